@@ -1,0 +1,88 @@
+"""Critical-point machinery shared by the wind models (compiled).
+
+At a critical point of a steady wind both the numerator N and the
+denominator D of dv/dr = N / D vanish.  L'Hopital's rule gives the slope
+p = dv/dr there as a root of
+
+.. math:: 2 p^2 - b p - c = 0,
+
+with, for the isothermal wind, b = dN/dv and c = dN/dr (partials at fixed
+mass-loss rate), and, for the diffusion wind, b = N_v + k1 and
+c = N_r + N_T T' (see ``windsolve.core`` model modules).  The topology follows
+from the linearisation of the autonomous system dr/ds = D, dv/ds = N: with
+dD/dr = 2p - k1 along the solution, the point is a saddle (X-type) when
+(2 p+ - k1)(2 p- - k1) < 0, a node when the roots are real and the product is
+positive, and a focus (spiral) when the roots are complex.  Textbook
+background: Lamers & Cassinelli (1999), Introduction to Stellar Winds,
+section 4.2 (from memory); Jordan & Smith (2007), Nonlinear Ordinary
+Differential Equations, 4th ed., ch. 2 (classification of linear critical
+points).
+"""
+
+import math
+
+from numba import njit
+
+SADDLE = 1
+NODE = 2
+FOCUS = 3
+DEGENERATE = 4
+
+KIND_NAMES = {SADDLE: "saddle (X-type)", NODE: "node", FOCUS: "focus (spiral)",
+              DEGENERATE: "degenerate"}
+
+
+@njit(cache=True)
+def classify(b, c, k1):
+    """Topology and slopes of a critical point from 2 p^2 - b p - c = 0.
+
+    Returns ``(kind, p_plus, p_minus)``; for a focus both slopes are NaN.
+    For a saddle ``p_plus`` is the root with 2p - k1 > 0, the accelerating
+    (wind) branch.
+    """
+    disc = b * b + 8.0 * c
+    if disc < 0.0:
+        return FOCUS, math.nan, math.nan
+    sq = math.sqrt(disc)
+    # Stable form of the two roots (avoid cancellation in b -/+ sq).
+    if b >= 0.0:
+        p1 = (b + sq) / 4.0
+    else:
+        p1 = (b - sq) / 4.0
+    # Product of the roots is -c/2; p1 = 0 only when b = c = 0.
+    p2 = -c / (2.0 * p1) if p1 != 0.0 else 0.0
+    p_plus = max(p1, p2)
+    p_minus = min(p1, p2)
+    prod = (2.0 * p_plus - k1) * (2.0 * p_minus - k1)
+    if prod < 0.0:
+        return SADDLE, p_plus, p_minus
+    if prod > 0.0:
+        return NODE, p_plus, p_minus
+    return DEGENERATE, p_plus, p_minus
+
+
+def make_bisector(f):
+    """Return a compiled bisection for a sign change of ``f(x, P, O)``.
+
+    Plain bisection (about 45 halvings of a grid cell in ln r) is cheap and
+    cannot be fooled by the steep, non-smooth N(r) an opacity bump can give.
+    A factory, like :func:`windsolve.core.integrate.make_integrator`, so that
+    callers stay cacheable.
+    """
+
+    @njit(cache=True)
+    def bisect_root(lo, hi, f_lo, P, O, xtol):
+        """Root of f in [lo, hi] given f(lo) = f_lo and a sign change."""
+        while hi - lo > xtol * (1.0 + abs(lo)):
+            mid = 0.5 * (lo + hi)
+            fm = f(mid, P, O)
+            if fm == 0.0:
+                return mid
+            if (fm > 0.0) == (f_lo > 0.0):
+                lo = mid
+                f_lo = fm
+            else:
+                hi = mid
+        return 0.5 * (lo + hi)
+
+    return bisect_root

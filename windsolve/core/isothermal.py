@@ -1,0 +1,526 @@
+"""Model A kernels: the steady, spherical, isothermal continuum-driven wind.
+
+Equations (cgs), with rho = Mdot / (4 pi r^2 v):
+
+.. math::
+
+    (v - a^2/v) \\frac{dv}{dr} = N(r, v) \\equiv \\frac{2a^2}{r} - \\frac{GM}{r^2}
+        + \\frac{\\kappa_{\\rm eff}(\\rho, T, r) L(r, v)}{4\\pi r^2 c}
+
+    L = L_0 \\quad\\text{or, with photon tiring,}\\quad
+    L = L_0 - \\dot M\\,[(v^2 - v_0^2)/2 + GM/R_0 - GM/r]
+
+This is Parker's (1958, ApJ 128, 664) isothermal wind with a radiative force;
+photon tiring (the luminosity spent lifting the flow) follows Owocki &
+Gayley (1997, ASP Conf. Ser. 120, 121; reference from memory), porosity
+Owocki, Gayley & Shaviv (2004, ApJ 616, 525).
+The kernels integrate y = ln v against x = ln r, because v spans many decades
+below the sonic point.
+
+The mass-loss rate is the eigenvalue: for a trial Mdot the innermost saddle
+(v = a, N = 0) beyond the base is found, the solution is started a small
+step off it along the accelerating slope and integrated inward to R0, and
+ln rho(R0) - ln rho0 is driven to zero by a bracketed root-find in ln Mdot.
+
+Parameter vector ``P`` (slots ``I_*``) and status codes are listed below; the
+user layer (:mod:`windsolve.solve`) builds ``P`` and turns codes into words.
+"""
+
+import math
+
+import numpy as np
+from numba import njit
+
+from .constants import C_LIGHT
+from .critical import SADDLE, classify, make_bisector
+from .integrate import REACHED_END, STEP_TOO_SMALL, make_integrator
+from .opacity import effective_opacity
+
+FOUR_PI = 4.0 * math.pi
+
+# --- parameter slots -------------------------------------------------------
+I_GM = 0  # G M [cm3 s-2]
+I_A2 = 1  # isothermal sound speed squared [cm2 s-2]
+I_R0 = 2  # base radius [cm]
+I_RHO0 = 3  # base density [g cm-3]
+I_L0 = 4  # luminosity at the base [erg s-1]
+I_T = 5  # gas temperature (for the opacity) [K]
+I_TIRING = 6  # 1.0 with photon tiring, 0.0 without
+I_ROUT = 7  # outer radius [cm]
+I_MDOT = 8  # trial mass-loss rate [g s-1] (set by the shooting)
+I_V0 = 9  # base velocity Mdot / (4 pi R0^2 rho0) [cm s-1] (set with Mdot)
+I_LNRHO_STOP = 10  # inward legs stop once ln rho exceeds this
+N_PARAMS = 11
+
+# --- status codes (the user layer has the words) ---------------------------
+OK = 0
+NO_CRITICAL_POINT_BOUND = 1  # N(r, a) < 0 on the whole range
+NO_CRITICAL_POINT_UNBOUND = 2  # N(r, a) > 0 on the whole range
+NO_SADDLE = 3  # critical points exist, none is a saddle
+INWARD_SINGULAR = 4  # subsonic branch returns to v = a before R0
+OUTWARD_SINGULAR = 5  # supersonic branch falls back to v = a with N != 0
+STALLED = 6  # photon tiring used up the luminosity
+NO_BRACKET_DENSE = 7  # rho(R0) > rho0 for every admissible Mdot
+NO_BRACKET_THIN = 8  # rho(R0) < rho0 for every admissible Mdot
+INTEGRATION_FAILED = 9
+ROOT_NOT_CONVERGED = 10
+
+# Codes returned by the monitors through ``integrate`` (positive).
+STOP_SINGULAR = 1
+STOP_STALL = 2
+STOP_DENSE = 3
+
+N_GRID = 256  # points of the ln r scan for roots of N(r, a)
+SONIC_GAP = 1e-3  # |v^2 - a^2| / a^2 below which a turning flow is singular
+DENSE_MARGIN = 40.0  # an inward leg stops once ln rho > ln rho0 + this
+LN_RANGE = 690.0  # Mdot is searched down to Mdot_max * exp(-LN_RANGE)
+MAX_SHOTS = 400
+
+
+@njit(cache=True)
+def set_mass_loss_rate(P, ln_mdot):
+    """Copy of P with the trial Mdot and the quantities that follow from it."""
+    Q = P.copy()
+    mdot = math.exp(ln_mdot)
+    Q[I_MDOT] = mdot
+    Q[I_V0] = mdot / (FOUR_PI * P[I_R0] ** 2 * P[I_RHO0])
+    Q[I_LNRHO_STOP] = math.log(P[I_RHO0]) + DENSE_MARGIN
+    return Q
+
+
+@njit(cache=True)
+def luminosity(r, v, P):
+    """Radiative luminosity L(r, v) [erg s-1] (constant without tiring)."""
+    if P[I_TIRING] > 0.0:
+        GM = P[I_GM]
+        return P[I_L0] - P[I_MDOT] * (0.5 * (v * v - P[I_V0] ** 2)
+                                      + GM / P[I_R0] - GM / r)
+    return P[I_L0]
+
+
+@njit(cache=True)
+def density(r, v, P):
+    """rho = Mdot / (4 pi r^2 v) [g cm-3]."""
+    return P[I_MDOT] / (FOUR_PI * r * r * v)
+
+
+@njit(cache=True)
+def force_balance(r, v, P, O):
+    """N(r, v) [cm s-2]: pressure gradient + radiative force - gravity."""
+    k = effective_opacity(O, density(r, v, P), P[I_T], r)
+    return (2.0 * P[I_A2] / r - P[I_GM] / (r * r)
+            + k * luminosity(r, v, P) / (FOUR_PI * C_LIGHT * r * r))
+
+
+@njit(cache=True)
+def sonic_force_balance(x, P, O):
+    """N(e^x, a): its roots in x = ln r are the critical points."""
+    return force_balance(math.exp(x), math.sqrt(P[I_A2]), P, O)
+
+
+@njit(cache=True)
+def rhs(x, y, P, O, dydx):
+    """d ln v / d ln r = r N / (v^2 - a^2)."""
+    r = math.exp(x)
+    v = math.exp(y[0])
+    dydx[0] = r * force_balance(r, v, P, O) / (v * v - P[I_A2])
+
+
+@njit(cache=True)
+def monitor_outward(x, y, P, O):
+    """Stop the supersonic leg when tiring exhausts L or v falls back to a."""
+    r = math.exp(x)
+    v = math.exp(y[0])
+    if P[I_TIRING] > 0.0 and luminosity(r, v, P) <= 0.0:
+        return STOP_STALL
+    if v * v - P[I_A2] < SONIC_GAP * P[I_A2] and force_balance(r, v, P, O) < 0.0:
+        return STOP_SINGULAR
+    return 0
+
+
+@njit(cache=True)
+def monitor_inward(x, y, P, O):
+    """Stop the subsonic leg when it turns back to v = a or is far too dense."""
+    r = math.exp(x)
+    v = math.exp(y[0])
+    if math.log(density(r, v, P)) > P[I_LNRHO_STOP]:
+        return STOP_DENSE
+    if v * v - P[I_A2] > -SONIC_GAP * P[I_A2] and force_balance(r, v, P, O) > 0.0:
+        return STOP_SINGULAR
+    return 0
+
+
+integrate_outward = make_integrator(rhs, monitor_outward)
+integrate_inward = make_integrator(rhs, monitor_inward)
+bisect_sonic = make_bisector(sonic_force_balance)
+
+
+@njit(cache=True)
+def critical_point_partials(r, P, O):
+    """(dN/dr, dN/dv) at (r, a), fixed Mdot, by central differences."""
+    a = math.sqrt(P[I_A2])
+    hr = 1e-5 * r
+    hv = 1e-5 * a
+    n_r = (force_balance(r + hr, a, P, O) - force_balance(r - hr, a, P, O)) / (2.0 * hr)
+    n_v = (force_balance(r, a + hv, P, O) - force_balance(r, a - hv, P, O)) / (2.0 * hv)
+    return n_r, n_v
+
+
+@njit(cache=True)
+def classify_point(r, P, O):
+    """(kind, p_plus, p_minus) of the critical point at r (Model A quadratic)."""
+    n_r, n_v = critical_point_partials(r, P, O)
+    # 2 p^2 - N_v p - N_r = 0  (d(v - a^2/v)/dr = 2 p at v = a)
+    return classify(n_v, n_r, 0.0)
+
+
+@njit(cache=True)
+def critical_points(P, O, out_r, out_kind, out_pp, out_pm):
+    """All roots of N(r, a) on [R0, r_out], classified; returns their count."""
+    x_lo = math.log(P[I_R0])
+    x_hi = math.log(P[I_ROUT])
+    dx = (x_hi - x_lo) / (N_GRID - 1)
+    f_prev = sonic_force_balance(x_lo, P, O)
+    count = 0
+    for i in range(1, N_GRID):
+        x = x_lo + i * dx
+        f = sonic_force_balance(x, P, O)
+        if (f_prev < 0.0 and f >= 0.0) or (f_prev > 0.0 and f <= 0.0):
+            xr = bisect_sonic(x - dx, x, f_prev, P, O, 1e-15)
+            if count < out_r.shape[0]:
+                r = math.exp(xr)
+                kind, pp, pm = classify_point(r, P, O)
+                out_r[count] = r
+                out_kind[count] = kind
+                out_pp[count] = pp
+                out_pm[count] = pm
+                count += 1
+        f_prev = f
+    return count
+
+
+@njit(cache=True)
+def innermost_saddle(P, O):
+    """First saddle of N(r, a) outward from R0: (code, r_c, slope dv/dr)."""
+    x_lo = math.log(P[I_R0])
+    x_hi = math.log(P[I_ROUT])
+    dx = (x_hi - x_lo) / (N_GRID - 1)
+    f_prev = sonic_force_balance(x_lo, P, O)
+    any_root = False
+    any_pos = f_prev > 0.0
+    for i in range(1, N_GRID):
+        x = x_lo + i * dx
+        f = sonic_force_balance(x, P, O)
+        if f > 0.0:
+            any_pos = True
+        if f_prev < 0.0 and f >= 0.0:
+            # N rising through zero: dN/dr > 0 at v = a, a saddle candidate.
+            xr = bisect_sonic(x - dx, x, f_prev, P, O, 1e-15)
+            r = math.exp(xr)
+            kind, pp, pm = classify_point(r, P, O)
+            if kind == SADDLE:
+                return OK, r, pp
+            any_root = True
+        elif f_prev > 0.0 and f <= 0.0:
+            any_root = True
+        f_prev = f
+    if any_root:
+        return NO_SADDLE, math.nan, math.nan
+    if any_pos:
+        return NO_CRITICAL_POINT_UNBOUND, math.nan, math.nan
+    return NO_CRITICAL_POINT_BOUND, math.nan, math.nan
+
+
+@njit(cache=True)
+def shoot(ln_mdot, P, O, rtol, delta):
+    """One trial: (code, ln rho(R0) - ln rho0, r_c, slope) for this Mdot."""
+    Q = set_mass_loss_rate(P, ln_mdot)
+    code, rc, slope = innermost_saddle(Q, O)
+    if code != OK:
+        return code, math.nan, rc, slope
+    a = math.sqrt(Q[I_A2])
+    R0 = Q[I_R0]
+    ln_rho0 = math.log(Q[I_RHO0])
+    if rc * (1.0 - delta) <= R0:
+        # The sonic point sits (within delta) on the base.
+        v_base = a - slope * (rc - R0)
+        return OK, math.log(density(R0, v_base, Q)) - ln_rho0, rc, slope
+    y0 = np.empty(1)
+    y0[0] = math.log(a - slope * delta * rc)
+    no_x = np.empty(0)
+    no_y = np.empty((0, 1))
+    status, x, y, n_out, nfev = integrate_inward(
+        math.log(rc * (1.0 - delta)), y0, math.log(R0),
+        Q, O, 0.0, rtol, delta, np.inf, no_x, no_y)
+    if status == REACHED_END:
+        g = math.log(density(R0, math.exp(y[0]), Q)) - ln_rho0
+        return OK, g, rc, slope
+    if status == STOP_DENSE:
+        return OK, DENSE_MARGIN, rc, slope
+    if status == STOP_SINGULAR or status == STEP_TOO_SMALL:
+        return INWARD_SINGULAR, math.nan, rc, slope
+    return INTEGRATION_FAILED, math.nan, rc, slope
+
+
+@njit(cache=True)
+def first_guess(P, O):
+    """ln Mdot from Parker's subsonic asymptote with the base Eddington factor.
+
+    v/a ~ (r_c/r)^2 exp(3/2 - 2 r_c/r) far below the sonic point (Lamers &
+    Cassinelli 1999, ch. 3, from memory), with GM reduced by (1 - Gamma_0).
+    Only a starting point: the bracket search does not depend on it.
+    """
+    a2 = P[I_A2]
+    R0 = P[I_R0]
+    ln_mdot_max = math.log(FOUR_PI * R0 * R0 * P[I_RHO0] * math.sqrt(a2))
+    k0 = effective_opacity(O, P[I_RHO0], P[I_T], R0)
+    gamma0 = k0 * P[I_L0] / (FOUR_PI * C_LIGHT * P[I_GM])
+    guess = ln_mdot_max - 1.0
+    if gamma0 < 1.0:
+        rcg = P[I_GM] * (1.0 - gamma0) / (2.0 * a2)
+        if rcg > R0:
+            guess = ln_mdot_max + min(2.0 * math.log(rcg / R0) + 1.5 - 2.0 * rcg / R0, -1.0)
+    return max(guess, ln_mdot_max - LN_RANGE), ln_mdot_max
+
+
+@njit(cache=True)
+def solve(P, O, rtol, delta):
+    """Find the mass-loss rate of the transonic solution through rho(R0) = rho0.
+
+    Returns ``(code, ln_mdot, r_c, slope, n_shots, reason)`` where ``reason``
+    is the first failure met while searching (useful when code != OK).
+    """
+    guess, x_max = first_guess(P, O)
+    x_min = x_max - LN_RANGE
+    x_max = x_max - 1e-9
+    xtol_b = 1e-9
+    shots = 1
+    code, g, rc, slope = shoot(guess, P, O, rtol, delta)
+    reason = code
+    x = guess
+    # 1. Find any admissible Mdot (one that has a saddle and reaches R0).
+    if code != OK:
+        step = 0.5
+        found = False
+        while step < 2.0 * LN_RANGE and not found:
+            for sgn in (1.0, -1.0):
+                xt = x + sgn * step
+                if xt > x_max or xt < x_min:
+                    continue
+                c2, g2, rc2, s2 = shoot(xt, P, O, rtol, delta)
+                shots += 1
+                if c2 == OK:
+                    x = xt
+                    g = g2
+                    found = True
+                    break
+            step *= 2.0
+        if not found:
+            return reason, math.nan, math.nan, math.nan, shots, reason
+    # 2. Walk to a sign change of g, bisecting onto the admissible boundary.
+    lo = math.nan
+    hi = math.nan
+    g_lo = math.nan
+    g_hi = math.nan
+    if g > 0.0:
+        hi = x
+        g_hi = g
+        step = 1.0
+        while math.isnan(lo):
+            xt = hi - step
+            if xt < x_min:
+                return NO_BRACKET_DENSE, math.nan, math.nan, math.nan, shots, reason
+            c2, g2, rc2, s2 = shoot(xt, P, O, rtol, delta)
+            shots += 1
+            if c2 == OK:
+                if g2 <= 0.0:
+                    lo = xt
+                    g_lo = g2
+                else:
+                    hi = xt
+                    g_hi = g2
+                    step *= 2.0
+            else:
+                reason = c2
+                bad = xt
+                while hi - bad > xtol_b and shots < MAX_SHOTS:
+                    m = 0.5 * (hi + bad)
+                    c3, g3, rc3, s3 = shoot(m, P, O, rtol, delta)
+                    shots += 1
+                    if c3 != OK:
+                        bad = m
+                    elif g3 <= 0.0:
+                        lo = m
+                        g_lo = g3
+                        break
+                    else:
+                        hi = m
+                        g_hi = g3
+                if math.isnan(lo):
+                    return NO_BRACKET_DENSE, math.nan, math.nan, math.nan, shots, reason
+    else:
+        lo = x
+        g_lo = g
+        step = 1.0
+        while math.isnan(hi):
+            if lo >= x_max:
+                return NO_BRACKET_THIN, math.nan, math.nan, math.nan, shots, reason
+            xt = min(lo + step, x_max)
+            c2, g2, rc2, s2 = shoot(xt, P, O, rtol, delta)
+            shots += 1
+            if c2 == OK:
+                if g2 >= 0.0:
+                    hi = xt
+                    g_hi = g2
+                else:
+                    lo = xt
+                    g_lo = g2
+                    step *= 2.0
+            else:
+                reason = c2
+                bad = xt
+                while bad - lo > xtol_b and shots < MAX_SHOTS:
+                    m = 0.5 * (lo + bad)
+                    c3, g3, rc3, s3 = shoot(m, P, O, rtol, delta)
+                    shots += 1
+                    if c3 != OK:
+                        bad = m
+                    elif g3 >= 0.0:
+                        hi = m
+                        g_hi = g3
+                        break
+                    else:
+                        lo = m
+                        g_lo = g3
+                if math.isnan(hi):
+                    return NO_BRACKET_THIN, math.nan, math.nan, math.nan, shots, reason
+    # 3. Brent's method on ln Mdot (Brent 1973, ch. 4; the layout of scipy's
+    #    brentq).  The tolerance stays above the integration noise.
+    xtol = 0.1 * rtol
+    xpre = lo
+    xcur = hi
+    fpre = g_lo
+    fcur = g_hi
+    xblk = 0.0
+    fblk = 0.0
+    spre = 0.0
+    scur = 0.0
+    if fpre == 0.0:
+        xcur = xpre
+        fcur = fpre
+    while fcur != 0.0:
+        if shots >= MAX_SHOTS:
+            return ROOT_NOT_CONVERGED, xcur, math.nan, math.nan, shots, reason
+        if fpre != 0.0 and fcur != 0.0 and (fpre < 0.0) != (fcur < 0.0):
+            xblk = xpre
+            fblk = fpre
+            spre = xcur - xpre
+            scur = spre
+        if abs(fblk) < abs(fcur):
+            xpre = xcur
+            xcur = xblk
+            xblk = xpre
+            fpre = fcur
+            fcur = fblk
+            fblk = fpre
+        tol = 0.5 * xtol * (1.0 + abs(xcur))
+        sbis = 0.5 * (xblk - xcur)
+        if abs(sbis) < tol:
+            break
+        if abs(spre) > tol and abs(fcur) < abs(fpre):
+            if xpre == xblk:
+                stry = -fcur * (xcur - xpre) / (fcur - fpre)
+            else:
+                dpre = (fpre - fcur) / (xpre - xcur)
+                dblk = (fblk - fcur) / (xblk - xcur)
+                stry = -fcur * (fblk * dblk - fpre * dpre) / (dblk * dpre * (fblk - fpre))
+            if 2.0 * abs(stry) < min(abs(spre), 3.0 * abs(sbis) - tol):
+                spre = scur
+                scur = stry
+            else:
+                spre = sbis
+                scur = sbis
+        else:
+            spre = sbis
+            scur = sbis
+        xpre = xcur
+        fpre = fcur
+        if abs(scur) > tol:
+            xcur += scur
+        else:
+            xcur += tol if sbis > 0.0 else -tol
+        c4, fcur, rc4, s4 = shoot(xcur, P, O, rtol, delta)
+        shots += 1
+        if c4 != OK:
+            return c4, xcur, math.nan, math.nan, shots, c4
+    code, g, rc, slope = shoot(xcur, P, O, rtol, delta)
+    return OK, xcur, rc, slope, shots + 1, reason
+
+
+@njit(cache=True)
+def profile(ln_mdot, P, O, rtol, delta, max_step, capacity):
+    """Integrate the converged solution from R0 to r_out, storing it.
+
+    Returns ``(status_in, status_out, r, v)``; ``status_out`` is OK,
+    OUTWARD_SINGULAR or STALLED (the profile then ends where the flow did).
+    """
+    Q = set_mass_loss_rate(P, ln_mdot)
+    code, rc, slope = innermost_saddle(Q, O)
+    a = math.sqrt(Q[I_A2])
+    R0 = Q[I_R0]
+    xi = np.empty(capacity)
+    yi = np.empty((capacity, 1))
+    xo = np.empty(capacity)
+    yo = np.empty((capacity, 1))
+    y0 = np.empty(1)
+    ni = 0
+    status_in = OK
+    if rc * (1.0 - delta) > R0:
+        y0[0] = math.log(a - slope * delta * rc)
+        st, x, y, ni, nfev = integrate_inward(
+            math.log(rc * (1.0 - delta)), y0, math.log(R0),
+            Q, O, 0.0, rtol, delta, max_step, xi, yi)
+        if st != REACHED_END:
+            status_in = INWARD_SINGULAR
+    y0[0] = math.log(a + slope * delta * rc)
+    st, x, y, no, nfev = integrate_outward(
+        math.log(rc * (1.0 + delta)), y0, math.log(Q[I_ROUT]),
+        Q, O, 0.0, rtol, delta, max_step, xo, yo)
+    status_out = OK
+    if st == STOP_STALL:
+        status_out = STALLED
+    elif st == STOP_SINGULAR or st == STEP_TOO_SMALL:
+        status_out = OUTWARD_SINGULAR
+    elif st != REACHED_END:
+        status_out = INTEGRATION_FAILED
+    n = ni + 1 + no
+    r = np.empty(n)
+    v = np.empty(n)
+    for i in range(ni):
+        r[i] = math.exp(xi[ni - 1 - i])
+        v[i] = math.exp(yi[ni - 1 - i, 0])
+    if ni > 0:
+        r[0] = R0
+    r[ni] = rc
+    v[ni] = a
+    for i in range(no):
+        r[ni + 1 + i] = math.exp(xo[i])
+        v[ni + 1 + i] = math.exp(yo[i, 0])
+    return status_in, status_out, r, v
+
+
+@njit(cache=True)
+def profile_quantities(ln_mdot, r, v, P, O):
+    """rho, L, kappa_eff and Gamma_eff along a profile (cgs arrays)."""
+    Q = set_mass_loss_rate(P, ln_mdot)
+    n = r.shape[0]
+    rho = np.empty(n)
+    L = np.empty(n)
+    kappa = np.empty(n)
+    gamma = np.empty(n)
+    for i in range(n):
+        rho[i] = density(r[i], v[i], Q)
+        L[i] = luminosity(r[i], v[i], Q)
+        kappa[i] = effective_opacity(O, rho[i], Q[I_T], r[i])
+        gamma[i] = kappa[i] * L[i] / (FOUR_PI * C_LIGHT * Q[I_GM])
+    return rho, L, kappa, gamma
