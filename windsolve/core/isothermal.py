@@ -299,13 +299,50 @@ def solve(P, O, rtol, delta):
     reason = code
     x = guess
     # 1. Find any admissible Mdot (one that has a saddle and reaches R0).
+    #    The failures on either side of the admissible window usually differ
+    #    (porosity: too little Mdot leaves the base super-Eddington at the
+    #    sonic density, too much buries the critical point below R0), so
+    #    bisect between two trials that failed for different reasons; fall
+    #    back on a widening search around the guess.
     if code != OK:
-        step = 0.5
+        xs = np.array([x_min, guess, x_max])
+        cs = np.array([OK, code, OK])
+        gs = np.array([math.nan, g, math.nan])
+        for k in (0, 2):
+            cs[k], gs[k], rc2, s2 = shoot(xs[k], P, O, rtol, delta)
+            shots += 1
         found = False
+        for k in (0, 2):
+            if cs[k] == OK:
+                x = xs[k]
+                g = gs[k]
+                found = True
+        for k in (0, 1):
+            if found:
+                break
+            left = xs[k]
+            right = xs[k + 1]
+            c_left = cs[k]
+            if c_left == cs[k + 1]:
+                continue
+            while right - left > xtol_b and shots < MAX_SHOTS:
+                m = 0.5 * (left + right)
+                c2, g2, rc2, s2 = shoot(m, P, O, rtol, delta)
+                shots += 1
+                if c2 == OK:
+                    x = m
+                    g = g2
+                    found = True
+                    break
+                if c2 == c_left:
+                    left = m
+                else:
+                    right = m
+        step = 0.5
         while step < 2.0 * LN_RANGE and not found:
             for sgn in (1.0, -1.0):
                 xt = x + sgn * step
-                if xt > x_max or xt < x_min:
+                if xt >= x_max or xt <= x_min:
                     continue
                 c2, g2, rc2, s2 = shoot(xt, P, O, rtol, delta)
                 shots += 1
