@@ -1,0 +1,47 @@
+"""windsolve: steady continuum-driven stellar winds, solved through their critical point.
+
+Quick start::
+
+    >>> import windsolve
+    >>> model = windsolve.load_model("configs/demo.toml")
+    >>> result = windsolve.solve(model)
+    >>> result.summary["mass_loss_rate"].to("Msun/yr")
+    >>> result.to_hdf5("demo.h5")
+"""
+
+from ._version import __version__
+from .errors import ModelError, NoSolutionError, OutputError, WindsolveError
+from .modelfile import load_model, model_from_dict
+from .models import MODELS, IsothermalWind
+from .opacity import OPACITY_LAWS, Opacity
+from .result import WindResult
+from .solve import solve
+
+__all__ = [
+    "__version__",
+    "load_model",
+    "model_from_dict",
+    "solve",
+    "IsothermalWind",
+    "Opacity",
+    "WindResult",
+    "MODELS",
+    "OPACITY_LAWS",
+    "WindsolveError",
+    "ModelError",
+    "NoSolutionError",
+    "OutputError",
+    "demo_model_path",
+    "read_result",
+]
+
+
+def demo_model_path():
+    """Path of the built-in demo model file (an invented star)."""
+    from importlib.resources import files
+    return files("windsolve") / "data" / "demo.toml"
+
+
+def read_result(path):
+    """Read a result file written by :meth:`WindResult.to_hdf5`."""
+    return WindResult.from_hdf5(path)

@@ -263,6 +263,13 @@ def shoot(ln_mdot, P, O, rtol, delta):
 
 
 @njit(cache=True)
+def base_eddington_factor(P, O):
+    """Gamma_eff = kappa_eff(rho0, T, R0) L0 / (4 pi G M c) at the base."""
+    k0 = effective_opacity(O, P[I_RHO0], P[I_T], P[I_R0])
+    return k0 * P[I_L0] / (FOUR_PI * C_LIGHT * P[I_GM])
+
+
+@njit(cache=True)
 def first_guess(P, O):
     """ln Mdot from Parker's subsonic asymptote with the base Eddington factor.
 
@@ -273,8 +280,7 @@ def first_guess(P, O):
     a2 = P[I_A2]
     R0 = P[I_R0]
     ln_mdot_max = math.log(FOUR_PI * R0 * R0 * P[I_RHO0] * math.sqrt(a2))
-    k0 = effective_opacity(O, P[I_RHO0], P[I_T], R0)
-    gamma0 = k0 * P[I_L0] / (FOUR_PI * C_LIGHT * P[I_GM])
+    gamma0 = base_eddington_factor(P, O)
     guess = ln_mdot_max - 1.0
     if gamma0 < 1.0:
         rcg = P[I_GM] * (1.0 - gamma0) / (2.0 * a2)

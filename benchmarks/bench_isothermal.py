@@ -1,0 +1,174 @@
+"""Time windsolve's compiled Model A solve against a plain scipy reference.
+
+Run by hand from the repository root::
+
+    PYTHONPATH=. python benchmarks/bench_isothermal.py
+
+Two cases are built directly as kernel parameter vectors (no user layer):
+
+``porosity``
+    M = 50 Msun, R0 = 100 Rsun, L0 = 4e6 Lsun, a = 20 km/s, rho0 = 1e-9 g cm-3,
+    X = 0.7, T = 3e4 K, electron scattering with porosity h0 = 0.1 R0, q = 1,
+    r_out = 100 R0, no photon tiring (super-Eddington in kappa_es; porosity
+    sets the sonic point).
+``parker``
+    M = 10 Msun, R0 = 10 Rsun, electron scattering at Gamma = 0.5, a = 20 km/s,
+    rho0 = 1e-9 g cm-3, r_out = 1000 R0, no porosity: Parker's wind with
+    gravity GM(1 - Gamma), so the exact Mdot (Lambert W, SPEC.md section 4) is
+    printed as well.
+
+Both solvers get the same ``P``, ``O``, ``rtol`` and ``delta``; the reference
+(:mod:`scipy_reference`) searches its own bracket, so both timings include the
+whole shooting root-find.  Timings are medians of ``time.perf_counter``.
+"""
+
+import math
+import os
+import statistics
+import subprocess
+import sys
+import time
+
+import numpy as np
+from scipy.special import lambertw
+
+from scipy_reference import effective_opacity, solve_reference  # the script's folder
+
+from windsolve.core import isothermal as iso
+from windsolve.core import opacity as op
+from windsolve.core.constants import C_LIGHT, G, L_SUN, M_SUN, M_U, R_SUN, SIGMA_T
+
+RTOL = 1e-8
+DELTA = 1e-6
+N_WINDSOLVE = 200
+N_SCIPY = 7
+GOAL_MS = 2.0
+GOAL_RATIO = 100.0
+
+
+def make_case(M, R0, L0, a, rho0, X, T, r_out, h0=0.0, q=0.0):
+    """Kernel vectors ``(P, O)`` for Model A, electron scattering (cgs inputs)."""
+    P = np.zeros(iso.N_PARAMS)
+    P[iso.I_GM] = G * M
+    P[iso.I_A2] = a * a
+    P[iso.I_R0] = R0
+    P[iso.I_RHO0] = rho0
+    P[iso.I_L0] = L0
+    P[iso.I_T] = T
+    P[iso.I_TIRING] = 0.0
+    P[iso.I_ROUT] = r_out
+    kes = SIGMA_T / M_U * (1.0 + X) / 2.0
+    O = op.pack(op.LAW_ELECTRON_SCATTERING, kes, porosity=(h0, R0, q))
+    return P, O
+
+
+def cases():
+    """The two benchmark cases as ``{name: (P, O)}``."""
+    kes = SIGMA_T / M_U * (1.0 + 0.7) / 2.0
+    R0 = 100.0 * R_SUN
+    porosity = make_case(50.0 * M_SUN, R0, 4e6 * L_SUN, 20e5, 1e-9, 0.7, 3e4,
+                         100.0 * R0, h0=0.1 * R0, q=1.0)
+    M = 10.0 * M_SUN
+    R0 = 10.0 * R_SUN
+    parker = make_case(M, R0, 0.5 * 4.0 * math.pi * G * M * C_LIGHT / kes, 20e5,
+                       1e-9, 0.7, 3e4, 1000.0 * R0)
+    return {"porosity": porosity, "parker": parker}
+
+
+def parker_mass_loss_rate(P, O):
+    """Exact Mdot [g s-1] of the constant-Gamma case (Cranmer 2004, AJP 72, 1397).
+
+    v/a = sqrt(-W_0(-D)), D = (r_c/r)^4 exp(4 (1 - r_c/r) - 1), evaluated at R0.
+    """
+    GM, a2, R0, rho0 = P[iso.I_GM], P[iso.I_A2], P[iso.I_R0], P[iso.I_RHO0]
+    gamma = O[op.SLOT_KES] * P[iso.I_L0] / (4.0 * math.pi * C_LIGHT * GM)
+    u = GM * (1.0 - gamma) / (2.0 * a2) / R0
+    D = math.exp(4.0 * math.log(u) + 4.0 * (1.0 - u) - 1.0)
+    return 4.0 * math.pi * R0 ** 2 * rho0 * math.sqrt(a2) * math.sqrt(-lambertw(-D, 0).real)
+
+
+def opacity_agreement():
+    """Largest relative difference between the reference's and the kernel's
+    effective opacity, over all three laws with and without porosity."""
+    kes = SIGMA_T / M_U * 0.85
+    laws = [(op.LAW_ELECTRON_SCATTERING, ()), (op.LAW_KRAMERS, (3.68e22 * 1.7,)),
+            (op.LAW_BUMP, (5.0, 1e-9, 0.5, 5.25, 0.1))]
+    worst = 0.0
+    for law, params in laws:
+        for porosity in ((0.0, 1.0, 0.0), (7e11, 7e12, 1.0)):
+            O = op.pack(law, kes, params, porosity)
+            for rho in np.logspace(-18.0, -6.0, 9):
+                for T in (1e4, 1.8e5, 1e6):
+                    for r in (7e12, 3e13):
+                        k_ws = op.effective_opacity(O, rho, T, r)
+                        k_sp = effective_opacity(O, rho, T, r)
+                        worst = max(worst, abs(k_sp / k_ws - 1.0))
+    return worst
+
+
+def median_ms(fn, n):
+    """Median wall time of ``fn()`` over ``n`` calls [ms], and its last result."""
+    times = []
+    for _ in range(n):
+        t0 = time.perf_counter()
+        out = fn()
+        times.append(time.perf_counter() - t0)
+    return 1e3 * statistics.median(times), out
+
+
+def import_time_s():
+    """Wall time [s] of a fresh interpreter importing the isothermal kernels."""
+    env = dict(os.environ)
+    root = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
+    env["PYTHONPATH"] = root + os.pathsep + env.get("PYTHONPATH", "")
+    t0 = time.perf_counter()
+    subprocess.run([sys.executable, "-c", "import windsolve.core.isothermal"],
+                   check=True, env=env)
+    return time.perf_counter() - t0
+
+
+def main():
+    print(f"windsolve Model A vs plain scipy reference (rtol = {RTOL:g}, delta = {DELTA:g})")
+    print(f"medians: windsolve over {N_WINDSOLVE} runs, scipy over {N_SCIPY} runs")
+    header = (f"{'case':<9} {'ws [ms]':>8} {'scipy [ms]':>10} {'ratio':>6} "
+              f"{'shots ws/sp':>11} {'Mdot ws [g/s]':>22} {'Mdot scipy [g/s]':>22} {'rel diff':>9}")
+    print(header)
+    print("-" * len(header))
+    worst = 0.0
+    notes = []
+    for name, (P, O) in cases().items():
+        t0 = time.perf_counter()
+        iso.solve(P, O, RTOL, DELTA)  # compile or load numba's cache
+        warm = time.perf_counter() - t0
+        t_ws, res = median_ms(lambda: iso.solve(P, O, RTOL, DELTA), N_WINDSOLVE)
+        code, ln_mdot, r_c, slope, n_shots, reason = res
+        if code != iso.OK:
+            raise RuntimeError(f"{name}: windsolve failed with code {code}")
+        t_sp, ref = median_ms(lambda: solve_reference(P, O, RTOL, DELTA), N_SCIPY)
+        mdot = math.exp(ln_mdot)
+        rel = abs(ref["mass_loss_rate"] / mdot - 1.0)
+        worst = max(worst, t_ws)
+        print(f"{name:<9} {t_ws:8.3f} {t_sp:10.2f} {t_sp / t_ws:6.1f} "
+              f"{n_shots:>5d}/{ref['n_shots']:<5d} {mdot:22.15e} "
+              f"{ref['mass_loss_rate']:22.15e} {rel:9.1e}")
+        notes.append(f"  {name}: first call in process {1e3 * warm:.1f} ms; r_c ws {r_c:.10e} cm,"
+                     f" scipy {ref['sonic_radius']:.10e} cm (rel diff "
+                     f"{abs(ref['sonic_radius'] / r_c - 1.0):.1e})")
+        if name == "parker":
+            exact = parker_mass_loss_rate(P, O)
+            notes.append(f"  parker: exact Mdot {exact:.15e} g/s; rel err ws "
+                         f"{abs(mdot / exact - 1.0):.1e}, scipy "
+                         f"{abs(ref['mass_loss_rate'] / exact - 1.0):.1e}")
+        if rel > 1e-6:
+            notes.append(f"  WARNING {name}: Mdot differs by {rel:.1e} (> 1e-6)")
+    print("\n".join(notes))
+    print("  (windsolve's shot count includes its final re-shot at the root; the reference"
+          " counts distinct trial Mdot)")
+    print(f"  opacity laws, reference vs kernel: max rel diff {opacity_agreement():.1e}")
+    print(f"goal: <= {GOAL_MS:g} ms median, >= {GOAL_RATIO:g}x "
+          f"(slowest windsolve median here: {worst:.3f} ms)")
+    print(f"subprocess 'import windsolve.core.isothermal': {import_time_s():.2f} s (info)")
+
+
+if __name__ == "__main__":
+    main()

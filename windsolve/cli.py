@@ -1,0 +1,240 @@
+"""Command line: ``windsolve run | check | inspect | plot``.
+
+Every failure the user can fix ends with exit status 2 and one line on
+stderr naming the problem and the fix; no traceback, no output file.
+"""
+
+import argparse
+import math
+import sys
+from pathlib import Path
+
+from .errors import WindsolveError
+
+EXIT_OK = 0
+EXIT_BAD_INPUT = 2  # bad input or no solution: nothing written
+EXIT_PARTIAL = 3  # a solution that stops before the outer radius (file written)
+
+DESCRIPTION = ("Steady continuum-driven (radiation-pressure-driven) stellar winds: "
+               "find the transonic solution, its mass-loss rate and profiles.")
+
+
+def _load(path):
+    from . import demo_model_path, load_model
+    if path is None:
+        return load_model(demo_model_path()), "built-in demo"
+    return load_model(path), str(path)
+
+
+def cmd_run(args):
+    from .solve import solve
+    model, source = _load(args.model)
+    if args.output is not None:
+        _check_output(args.output, ".h5")
+    result = solve(model)
+    if not args.quiet:
+        print(f"model: {source}")
+        print(result)
+    if not result.profile:
+        # No solution at all: say why in one line, write nothing.
+        raise WindsolveError(f"no solution: {result.message}")
+    if args.output is not None:
+        result.to_hdf5(args.output)
+        if not args.quiet:
+            print(f"wrote {args.output}")
+    if not result.converged:
+        print(f"windsolve: {result.status}: {result.message}", file=sys.stderr)
+        return EXIT_PARTIAL
+    return EXIT_OK
+
+
+def _check_output(path, default_ext):
+    path = Path(path)
+    if path.is_dir():
+        raise WindsolveError(f"output {path} is a directory; give a file name such as "
+                             f"wind{default_ext}")
+    if not path.parent.exists():
+        raise WindsolveError(f"output directory {path.parent} does not exist; create it first")
+
+
+def cmd_check(args):
+    import astropy.units as u
+
+    from .core import basics
+    from .core import isothermal as K
+    from .core.constants import C_LIGHT, G
+
+    model, source = _load(args.model)
+    M = model.cgs("mass")
+    R0 = model.cgs("radius")
+    L0 = model.cgs("luminosity")
+    kes = basics.electron_scattering_opacity(model.X)
+    L_edd = basics.eddington_luminosity(M, kes)
+    gamma_es = L0 / L_edd
+    P, O = model.kernel_arrays
+    gamma_base = K.base_eddington_factor(P, O)
+    kappa_base = gamma_base * 4 * math.pi * G * M * C_LIGHT / L0
+    a = model.a
+    v_esc = basics.escape_speed(M, R0)
+    rows = [
+        ("model", f"{model.kind} ({source})"),
+        ("star", model.name),
+        ("mean molecular weight mu", f"{model.mu:.4f}"),
+        ("mean mass per electron mu_e", f"{basics.mean_mass_per_electron(model.X):.4f}"),
+        ("electron-scattering opacity", f"{kes:.4f} cm2/g"),
+        ("Eddington luminosity (kappa_es)", f"{(L_edd * u.erg / u.s).to_value(u.Lsun):.4g} Lsun"
+                                            f" = {L_edd:.4g} erg/s"),
+        ("Gamma_es = L0 / L_Edd", f"{gamma_es:.4g}"),
+        (f"opacity at the base ({model.opacity.law}"
+         f"{', porous' if model.porosity_length is not None else ''})",
+         f"{kappa_base:.4g} cm2/g at rho0, T = {model.T:.4g} K"),
+        ("Gamma at the base (that opacity)", f"{gamma_base:.4g}"),
+        ("sound speed a", f"{a / 1e5:.4g} km/s (T = {model.T:.4g} K)"),
+        ("escape speed at R0", f"{v_esc / 1e5:.4g} km/s"),
+    ]
+    notes = []
+    if gamma_base < 1.0:
+        rc = G * M * (1.0 - gamma_base) / (2.0 * a * a)
+        rows.append(("expected sonic radius", f"{rc / R0:.4g} R0 = GM(1 - Gamma_base)/(2a^2) "
+                                              f"(exact for constant opacity)"))
+        if rc <= R0:
+            notes.append("the expected sonic radius lies inside R0: the base would already "
+                         "be supersonic for constant opacity")
+    else:
+        rows.append(("expected sonic radius", "none: Gamma >= 1 at the base"))
+        if model.opacity.law == "electron_scattering" and model.porosity_length is None:
+            notes.append("Gamma_es >= 1 with electron scattering alone: the base is unbound "
+                         "and no steady transonic wind exists; add porosity or change L0")
+    rows.append(("largest mass-loss rate 4 pi R0^2 rho0 a",
+                 f"{(4 * math.pi * R0**2 * model.cgs('base_density') * a * u.g / u.s).to_value(u.Msun / u.yr):.4g} Msun/yr"))
+    if model.photon_tiring:
+        rows.append(("photon-tiring limit L0 R0 / GM",
+                     f"{(L0 * R0 / (G * M) * u.g / u.s).to_value(u.Msun / u.yr):.4g} Msun/yr"))
+    if model.porosity_length is not None and model.porosity_exponent >= 2.0:
+        notes.append("porosity radial_exponent >= 2: porosity cannot set the sonic point "
+                     "(needs q < 2)")
+    width = max(len(k) for k, _ in rows)
+    for key, value in rows:
+        print(f"  {key:<{width}}  {value}")
+    for note in notes:
+        print(f"  note: {note}")
+    return EXIT_OK
+
+
+def cmd_inspect(args):
+    import h5py
+    import numpy as np
+
+    from .errors import OutputError
+    path = Path(args.file)
+    if not path.exists():
+        raise OutputError(f"{path}: no such file")
+    try:
+        f = h5py.File(path, "r")
+    except OSError:
+        raise OutputError(f"{path}: not an HDF5 file (or damaged)") from None
+    with f:
+        print(f"{path}")
+        for key, value in f.attrs.items():
+            if key == "model_toml":
+                continue
+            print(f"  {key}: {value}")
+        if "summary" in f:
+            import json
+            g = f["summary"]
+            units = json.loads(g.attrs.get("units", "{}"))
+            print("summary:")
+            for key, value in g.attrs.items():
+                if key == "units":
+                    continue
+                unit = units.get(key, "")
+                print(f"  {key:<24s} {value}{' ' + unit if unit and unit != '1' else ''}")
+        if "profile" in f:
+            print("profile:")
+            for key, d in f["profile"].items():
+                data = d[()]
+                rng = (f"{np.nanmin(data):.4g} .. {np.nanmax(data):.4g}" if data.size
+                       else "empty")
+                print(f"  {key:<18s} {data.shape[0]:6d} points  {rng}  [{d.attrs.get('units', '?')}]")
+        if "critical_points" in f:
+            c = f["critical_points"]
+            print("critical points:")
+            for i in range(c["radius"].shape[0]):
+                kind = c["kind"][i]
+                kind = kind.decode() if isinstance(kind, bytes) else kind
+                print(f"  r = {c['radius'][i]:.6g} cm  {kind}")
+        if args.model and "model_toml" in f.attrs:
+            print("model file (resolved):")
+            print(f.attrs["model_toml"])
+    return EXIT_OK
+
+
+def cmd_plot(args):
+    from .plotting import plot_profile
+    from .result import WindResult
+    result = WindResult.from_hdf5(args.file)
+    out = Path(args.output) if args.output else Path(args.file).with_suffix(".png")
+    _check_output(out, ".png")
+    plot_profile(result, out)
+    print(f"wrote {out}")
+    return EXIT_OK
+
+
+def build_parser():
+    from ._version import __version__
+    parser = argparse.ArgumentParser(prog="windsolve", description=DESCRIPTION)
+    parser.add_argument("--version", action="version", version=f"windsolve {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+
+    p = sub.add_parser("run", help="solve one model and print its summary",
+                       description="Solve one model file (the built-in demo when none is "
+                                   "given). Exit 0: converged; 2: bad input or no solution "
+                                   "(nothing written); 3: the flow stops before the outer "
+                                   "radius (file written, status says where).")
+    p.add_argument("model", nargs="?", help="model file (TOML); default: the built-in demo")
+    p.add_argument("-o", "--output", metavar="OUT.h5", help="write the result to this HDF5 file")
+    p.add_argument("-q", "--quiet", action="store_true", help="print nothing on success")
+    p.set_defaults(func=cmd_run)
+
+    p = sub.add_parser("check", help="validate a model and print the derived numbers",
+                       description="Validate a model file and print mu, kappa_es, the "
+                                   "Eddington luminosity, Gamma at the base, the escape "
+                                   "speed and the expected sonic radius, without solving.")
+    p.add_argument("model", nargs="?", help="model file (TOML); default: the built-in demo")
+    p.set_defaults(func=cmd_check)
+
+    p = sub.add_parser("inspect", help="print what a result file holds",
+                       description="Print the attributes, summary, profile datasets "
+                                   "(with units) and critical points of a result file.")
+    p.add_argument("file", help="HDF5 result file")
+    p.add_argument("--model", action="store_true", help="also print the stored model file")
+    p.set_defaults(func=cmd_inspect)
+
+    p = sub.add_parser("plot", help="plot the profiles of a result file",
+                       description="Plot velocity, density, Eddington factor and luminosity "
+                                   "against radius, with the sonic point marked.")
+    p.add_argument("file", help="HDF5 result file")
+    p.add_argument("-o", "--output", metavar="OUT.png",
+                   help="image file (PNG, PDF or SVG); default: FILE with .png")
+    p.set_defaults(func=cmd_plot)
+    return parser
+
+
+def main(argv=None):
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    if args.command is None:
+        parser.print_help()
+        return EXIT_BAD_INPUT
+    try:
+        return args.func(args)
+    except WindsolveError as error:
+        print(f"windsolve: error: {error}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    except KeyboardInterrupt:
+        print("windsolve: interrupted", file=sys.stderr)
+        return 130
+
+
+if __name__ == "__main__":
+    sys.exit(main())

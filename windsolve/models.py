@@ -1,0 +1,324 @@
+"""Wind models as frozen dataclasses: one declaration per parameter.
+
+Each field declares, once, its key in the model file, its unit, its default
+and its check (:func:`param`).  The model-file reader, the resolved-model
+writer, ``windsolve check`` and sweeps all read these declarations.  Values
+are stored as astropy Quantities in cgs units (plain floats for fractions
+and flags); kernels get plain floats from :meth:`WindModel.kernel_arrays`.
+
+Build a model from keywords (strings with units or Quantities)::
+
+    >>> from windsolve import IsothermalWind
+    >>> m = IsothermalWind(mass="50 Msun", radius="100 Rsun", luminosity="4e6 Lsun",
+    ...                    sound_speed="20 km/s", base_density="1e-9 g/cm3")
+
+and variants with :meth:`WindModel.replace`.
+"""
+
+import dataclasses
+import math
+from dataclasses import dataclass, field
+from functools import cached_property
+
+import astropy.units as u
+import numpy as np
+
+from ._units import format_quantity, to_quantity
+from .core import basics
+from .core import isothermal as iso_kernels
+from .core.constants import G
+from .errors import ModelError
+from .opacity import Opacity, nearest
+from .physics import check_composition
+
+__all__ = ["WindModel", "IsothermalWind", "Param", "param"]
+
+REQUIRED = object()
+
+
+@dataclass(frozen=True)
+class Param:
+    """Declaration of one model parameter (see :func:`param`)."""
+
+    key: str  # dotted key in the model file, e.g. "star.mass"
+    kind: object  # an astropy unit, or float, bool, str
+    doc: str
+    default: object = REQUIRED
+    check: str = ""  # "", "positive", "fraction", "rtol"
+
+    @property
+    def section(self):
+        return self.key.rpartition(".")[0]
+
+    @property
+    def name(self):
+        return self.key.rpartition(".")[2]
+
+    @property
+    def where(self):
+        return f"[{self.section}] {self.name}" if self.section else self.name
+
+    def read(self, value):
+        """Convert and check one value; raises ModelError naming the key."""
+        where = self.where
+        if self.kind is bool:
+            if not isinstance(value, bool):
+                raise ModelError(f"{where} = {value!r}: write true or false")
+            return value
+        if self.kind is str:
+            if not isinstance(value, str):
+                raise ModelError(f"{where} = {value!r}: write a quoted string")
+            return value
+        if self.kind is float:
+            if isinstance(value, bool) or not isinstance(value, (int, float)):
+                raise ModelError(f"{where} = {value!r}: write a plain number")
+            value = float(value)
+            number = value
+        else:
+            value = to_quantity(value, self.kind, where, convert=False)
+            number = float(value.value)
+        if not math.isfinite(number):
+            raise ModelError(f"{where} = {number}: must be finite")
+        if self.check == "positive" and not number > 0:
+            raise ModelError(f"{where} = {format_value(value)}: must be positive")
+        if self.check == "fraction" and not 0.0 <= number <= 1.0:
+            raise ModelError(f"{where} = {number}: a mass fraction lies between 0 and 1")
+        if self.check == "rtol" and not 1e-13 <= number <= 1e-3:
+            raise ModelError(f"{where} = {number}: choose a relative tolerance "
+                             f"between 1e-13 and 1e-3 (1e-8 is the default)")
+        return value
+
+    def cgs(self, value):
+        """Plain float in the declared (cgs) unit."""
+        if isinstance(value, u.Quantity):
+            return float(value.to_value(self.kind))
+        return float(value)
+
+    def dump(self, value):
+        """Value as written in a model file."""
+        if isinstance(value, u.Quantity):
+            return format_quantity(value)
+        return value
+
+
+def format_value(value):
+    return format_quantity(value) if isinstance(value, u.Quantity) else repr(value)
+
+
+def param(key, kind, doc, default=REQUIRED, check=""):
+    """A dataclass field that declares a model-file parameter."""
+    meta = {"param": Param(key, kind, doc, default, check)}
+    return field(default=None, metadata=meta)
+
+
+class WindModel:
+    """Shared machinery of the model dataclasses (not a model itself)."""
+
+    kind = ""  # the model file's top-level ``model`` value
+    sections = ()  # tables the model file may have
+
+    # -- declarations -----------------------------------------------------
+    @classmethod
+    def params(cls):
+        """``{field name: Param}`` for every declared parameter."""
+        return {f.name: f.metadata["param"] for f in dataclasses.fields(cls)
+                if "param" in f.metadata}
+
+    @classmethod
+    def keys(cls):
+        """Every dotted model-file key this model accepts."""
+        keys = [p.key for p in cls.params().values()]
+        keys += ["opacity.law"] + [f"opacity.{p}" for p in cls.opacity_parameter_names()]
+        return keys
+
+    @staticmethod
+    def opacity_parameter_names():
+        from .opacity import OPACITY_LAWS
+        return sorted({p.name for law in OPACITY_LAWS.values() for p in law.parameters})
+
+    # -- construction -----------------------------------------------------
+    def _read_fields(self):
+        """Convert every declared field in place (called by __post_init__)."""
+        for name, p in self.params().items():
+            value = getattr(self, name)
+            if value is None:
+                if p.default is REQUIRED:
+                    raise ModelError(f"{p.where} is missing: {p.doc}")
+                value = None if p.default is None else p.read(p.default)
+            else:
+                value = p.read(value)
+            object.__setattr__(self, name, value)
+        opacity = getattr(self, "opacity", None)
+        if opacity is None:
+            object.__setattr__(self, "opacity", Opacity())
+        elif isinstance(opacity, dict):
+            table = dict(opacity)
+            law = table.pop("law", "electron_scattering")
+            object.__setattr__(self, "opacity", Opacity(law, table))
+        elif not isinstance(opacity, Opacity):
+            raise ModelError("opacity must be an Opacity or a table with a law")
+
+    @classmethod
+    def from_dict(cls, data, source="model"):
+        """Build from a parsed model file (nested dicts); unknown keys fail."""
+        by_key = {p.key: name for name, p in cls.params().items()}
+        kwargs = {}
+        for top, value in data.items():
+            if top == "model":
+                continue
+            if isinstance(value, dict):
+                if top not in cls.sections:
+                    raise ModelError(f"{source}: unknown table [{top}]"
+                                     f"{nearest(top, cls.sections)}; tables are "
+                                     f"{', '.join('[' + s + ']' for s in cls.sections)}")
+                if top == "opacity":
+                    kwargs["opacity"] = dict(value)
+                    continue
+                for key, item in value.items():
+                    dotted = f"{top}.{key}"
+                    if dotted not in by_key:
+                        inside = [k.rpartition(".")[2] for k in by_key if k.startswith(top + ".")]
+                        raise ModelError(f"{source}: unknown key \"{key}\" in [{top}]"
+                                         f"{nearest(key, inside)}; [{top}] takes "
+                                         f"{', '.join(inside)}")
+                    kwargs[by_key[dotted]] = item
+            else:
+                if top not in by_key:
+                    tops = ["model"] + [k for k in by_key if "." not in k]
+                    hint = nearest(top, tops + list(cls.sections))
+                    raise ModelError(f"{source}: unknown key \"{top}\"{hint}")
+                kwargs[by_key[top]] = value
+        return cls(**kwargs)
+
+    def replace(self, **changes):
+        """A copy with some fields changed (validated again)."""
+        values = {f.name: getattr(self, f.name) for f in dataclasses.fields(self)}
+        values.update(changes)
+        return type(self)(**values)
+
+    def cgs(self, name):
+        """Field ``name`` as a plain float in cgs (NaN when unset)."""
+        value = getattr(self, name)
+        return math.nan if value is None else self.params()[name].cgs(value)
+
+    # -- output -------------------------------------------------------------
+    def to_dict(self):
+        """The resolved model file as nested dicts (defaults filled in)."""
+        out = {"model": self.kind}
+        for name, p in self.params().items():
+            value = getattr(self, name)
+            if value is None:
+                continue
+            if p.section:
+                out.setdefault(p.section, {})[p.name] = p.dump(value)
+            else:
+                out[p.name] = p.dump(value)
+        out["opacity"] = self.opacity.to_toml()
+        ordered = {"model": out.pop("model")}
+        for key in [k for k in out if not isinstance(out[k], dict)]:
+            ordered[key] = out.pop(key)
+        for section in self.sections:
+            if section in out:
+                ordered[section] = out.pop(section)
+        return ordered
+
+
+@dataclass(frozen=True, eq=False)
+class IsothermalWind(WindModel):
+    """Model A: steady, spherical, isothermal continuum-driven wind.
+
+    The flow has a fixed sound speed ``a`` (or temperature with the mean
+    molecular weight of the composition); the radiative force uses the
+    flux-mean opacity of the chosen law, optionally reduced by porosity, and
+    the luminosity is constant or, with photon tiring, reduced by the work
+    done lifting the flow.  See ``SPEC`` section 4 and the README.
+    """
+
+    kind = "isothermal"
+    sections = ("star", "composition", "gas", "opacity", "porosity", "boundary",
+                "energy", "numerics")
+
+    name: str = param("name", str, "a label for the star", "unnamed star")
+    mass: object = param("star.mass", u.g, "stellar mass M, e.g. \"50 Msun\"",
+                         check="positive")
+    radius: object = param("star.radius", u.cm, "base radius R0, e.g. \"100 Rsun\"",
+                           check="positive")
+    luminosity: object = param("star.luminosity", u.erg / u.s,
+                               "luminosity at the base L0, e.g. \"4e6 Lsun\"", check="positive")
+    X: float = param("composition.X", float, "hydrogen mass fraction", 0.7, "fraction")
+    Z: float = param("composition.Z", float, "metal mass fraction", 0.02, "fraction")
+    sound_speed: object = param("gas.sound_speed", u.cm / u.s,
+                                "isothermal sound speed a, e.g. \"20 km/s\"", None, "positive")
+    temperature: object = param("gas.temperature", u.K,
+                                "gas temperature (sets a with mu), e.g. \"3e4 K\"", None,
+                                "positive")
+    opacity: object = None
+    porosity_length: object = param("porosity.length", u.cm,
+                                    "porosity length h0 at R0, e.g. \"10 Rsun\"", None,
+                                    "positive")
+    porosity_exponent: float = param("porosity.radial_exponent", float,
+                                     "q in h(r) = h0 (r/R0)^q", 0.0)
+    base_density: object = param("boundary.base_density", u.g / u.cm**3,
+                                 "density at the base rho0, e.g. \"1e-9 g/cm3\"",
+                                 check="positive")
+    photon_tiring: bool = param("energy.photon_tiring", bool,
+                                "let the flow's lift drain the luminosity", False)
+    rtol: float = param("numerics.rtol", float, "relative tolerance of the integration",
+                        1e-8, "rtol")
+    outer_radius: object = param("numerics.outer_radius", u.cm,
+                                 "outer radius of the solution (default 100 R0)", None,
+                                 "positive")
+
+    def __post_init__(self):
+        self._read_fields()
+        check_composition(self.X, self.Z)
+        if (self.sound_speed is None) == (self.temperature is None):
+            raise ModelError("[gas] give exactly one of sound_speed (e.g. \"20 km/s\") "
+                             "or temperature (e.g. \"3e4 K\")")
+        if self.outer_radius is None:
+            object.__setattr__(self, "outer_radius", 100.0 * self.radius)
+        if not self.outer_radius > self.radius:
+            raise ModelError(f"[numerics] outer_radius = {format_quantity(self.outer_radius)} "
+                             f"must exceed [star] radius = {format_quantity(self.radius)}")
+
+    # -- derived values (cgs floats) ----------------------------------------
+    @cached_property
+    def mu(self):
+        """Mean molecular weight of the fully ionized composition."""
+        return basics.mean_molecular_weight(self.X, self.Z)
+
+    @cached_property
+    def a(self):
+        """Isothermal sound speed [cm/s] (float)."""
+        if self.sound_speed is not None:
+            return self.cgs("sound_speed")
+        return basics.isothermal_sound_speed(self.cgs("temperature"), self.mu)
+
+    @cached_property
+    def T(self):
+        """Gas temperature [K] (float) used by temperature-dependent opacities."""
+        if self.temperature is not None:
+            return self.cgs("temperature")
+        return basics.gas_temperature(self.cgs("sound_speed"), self.mu)
+
+    @cached_property
+    def kernel_arrays(self):
+        """(P, O): the plain-float parameter vectors of the Model A kernels."""
+        P = np.zeros(iso_kernels.N_PARAMS)
+        P[iso_kernels.I_GM] = G * self.cgs("mass")
+        P[iso_kernels.I_A2] = self.a ** 2
+        P[iso_kernels.I_R0] = self.cgs("radius")
+        P[iso_kernels.I_RHO0] = self.cgs("base_density")
+        P[iso_kernels.I_L0] = self.cgs("luminosity")
+        P[iso_kernels.I_T] = self.T
+        P[iso_kernels.I_TIRING] = 1.0 if self.photon_tiring else 0.0
+        P[iso_kernels.I_ROUT] = self.cgs("outer_radius")
+        porosity = (0.0, 1.0, 0.0)
+        if self.porosity_length is not None:
+            porosity = (self.cgs("porosity_length"), self.cgs("radius"),
+                        float(self.porosity_exponent))
+        O = self.opacity.kernel_vector(self.X, self.Z, porosity)
+        return P, O
+
+
+MODELS = {cls.kind: cls for cls in (IsothermalWind,)}

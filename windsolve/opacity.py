@@ -1,0 +1,174 @@
+"""Opacity laws: the registry that names them, their parameters and units.
+
+:data:`OPACITY_LAWS` drives the model-file validator, ``windsolve check`` and
+the help text; adding a law means one kernel in :mod:`windsolve.core.opacity`
+and one entry here.
+"""
+
+import difflib
+from dataclasses import dataclass, field
+
+import astropy.units as u
+import numpy as np
+
+from ._units import format_quantity, to_quantity
+from .core import basics
+from .core import opacity as kernels
+from .errors import ModelError
+
+__all__ = ["OPACITY_LAWS", "Opacity", "OpacityLaw", "LawParameter", "opacity_value"]
+
+KRAMERS_UNIT = u.cm**5 * u.K**3.5 / u.g**2
+
+
+@dataclass(frozen=True)
+class LawParameter:
+    """One parameter of an opacity law as written in the model file."""
+
+    name: str
+    unit: object  # astropy unit; dimensionless for plain numbers
+    default: object  # value used when omitted; None means required
+    doc: str
+    positive: bool = False
+
+    def read(self, value, where):
+        q = to_quantity(value, self.unit, where, convert=False)
+        if self.positive and not q.value > 0:
+            raise ModelError(f"{where} = {value!r} must be positive")
+        if not np.isfinite(q.value):
+            raise ModelError(f"{where} = {value!r} must be finite")
+        return q
+
+
+@dataclass(frozen=True)
+class OpacityLaw:
+    """A named opacity law: kernel code, parameters and how to pack them."""
+
+    name: str
+    code: int
+    formula: str
+    parameters: tuple = ()
+    # (cgs parameter values by name, X, Z) -> floats for kernel slots 2..7
+    pack: object = field(default=lambda values, X, Z: ())
+
+
+def _pack_kramers(p, X, Z):
+    coeff = (p["free_free_coefficient"] * (1.0 - Z)
+             + p["bound_free_coefficient"] * p["gaunt_guillotine_ratio"] * Z) * (1.0 + X)
+    return (coeff,)
+
+
+def _pack_bump(p, X, Z):
+    return (p["amplitude"], p["reference_density"], p["density_exponent"],
+            np.log10(p["peak_temperature"]), p["width_dex"])
+
+
+OPACITY_LAWS = {law.name: law for law in (
+    OpacityLaw(
+        "electron_scattering", kernels.LAW_ELECTRON_SCATTERING,
+        "kappa = kappa_es = 0.2 (1 + X) cm2/g (Thomson scattering, fully ionized)"),
+    OpacityLaw(
+        "kramers", kernels.LAW_KRAMERS,
+        "kappa = kappa_es + (C_ff (1 - Z) + C_bf (g/t) Z) (1 + X) rho T^-3.5 (Kramers form)",
+        (
+            LawParameter("free_free_coefficient", KRAMERS_UNIT,
+                         "3.68e22 cm5 K(7/2) / g2", "C_ff, free-free coefficient", True),
+            LawParameter("bound_free_coefficient", KRAMERS_UNIT,
+                         "4.34e25 cm5 K(7/2) / g2", "C_bf, bound-free coefficient", True),
+            LawParameter("gaunt_guillotine_ratio", u.dimensionless_unscaled, 1.0,
+                         "g_bf / t, Gaunt over guillotine factor multiplying C_bf", True),
+        ),
+        _pack_kramers),
+    OpacityLaw(
+        "bump", kernels.LAW_BUMP,
+        "kappa = kappa_es [1 + A (rho/rho_ref)^s exp(-(log T - log T_b)^2 / (2 w^2))]",
+        (
+            LawParameter("amplitude", u.dimensionless_unscaled, None,
+                         "A, peak height in units of kappa_es"),
+            LawParameter("peak_temperature", u.K, None, "T_b, temperature of the peak", True),
+            LawParameter("width_dex", u.dimensionless_unscaled, None,
+                         "w, Gaussian width in log10 T", True),
+            LawParameter("density_exponent", u.dimensionless_unscaled, 0.0,
+                         "s, density dependence of the peak"),
+            LawParameter("reference_density", u.g / u.cm**3, "1e-10 g / cm3",
+                         "rho_ref, density at which the peak height is A", True),
+        ),
+        _pack_bump),
+)}
+
+
+def nearest(word, choices):
+    """' (did you mean "x"?)' for the closest of ``choices``, or ''."""
+    match = difflib.get_close_matches(word, list(choices), n=1, cutoff=0.5)
+    return f' (did you mean "{match[0]}"?)' if match else ""
+
+
+@dataclass(frozen=True)
+class Opacity:
+    """An opacity law by name with its parameters (Quantities, cgs).
+
+    Build from keywords, e.g. ``Opacity("bump", amplitude=4,
+    peak_temperature="1.8e5 K", width_dex=0.1)``; omitted parameters take the
+    registry's defaults.
+    """
+
+    law: str = "electron_scattering"
+    params: dict = field(default_factory=dict)
+
+    def __init__(self, law="electron_scattering", params=None, **kwargs):
+        if law not in OPACITY_LAWS:
+            raise ModelError(f"[opacity] law = \"{law}\" is not known{nearest(law, OPACITY_LAWS)}; "
+                             f"choose one of: {', '.join(OPACITY_LAWS)}")
+        spec = OPACITY_LAWS[law]
+        given = dict(params or {}, **kwargs)
+        allowed = {p.name for p in spec.parameters}
+        for key in given:
+            if key not in allowed:
+                hint = nearest(key, allowed) or (
+                    f"; the {law} law takes {', '.join(sorted(allowed))}" if allowed
+                    else f"; the {law} law takes no parameters")
+                raise ModelError(f"[opacity] unknown key \"{key}\"{hint}")
+        values = {}
+        for p in spec.parameters:
+            where = f"[opacity] {p.name}"
+            if p.name in given:
+                values[p.name] = p.read(given[p.name], where)
+            elif p.default is None:
+                raise ModelError(f"{where} is required by the {law} law ({p.doc})")
+            else:
+                values[p.name] = p.read(p.default, where)
+        object.__setattr__(self, "law", law)
+        object.__setattr__(self, "params", values)
+
+    def cgs(self):
+        """Parameter values as plain floats in cgs, by name."""
+        units = {p.name: p.unit for p in OPACITY_LAWS[self.law].parameters}
+        return {k: float(q.to_value(units[k])) for k, q in self.params.items()}
+
+    def kernel_vector(self, X, Z, porosity=(0.0, 1.0, 0.0)):
+        """The flat float vector ``O`` the kernels take (see core.opacity)."""
+        spec = OPACITY_LAWS[self.law]
+        kes = basics.electron_scattering_opacity(X)
+        return kernels.pack(spec.code, kes, spec.pack(self.cgs(), X, Z), porosity)
+
+    def to_toml(self):
+        """The ``[opacity]`` table, every value written out."""
+        table = {"law": self.law}
+        for name, q in self.params.items():
+            table[name] = float(q.value) if q.unit == u.dimensionless_unscaled else format_quantity(q)
+        return table
+
+
+def opacity_value(opacity, density, temperature, X=0.7, Z=0.02):
+    """kappa(rho, T) of ``opacity`` (an :class:`Opacity`), no porosity [cm2/g].
+
+    Kernel twin: ``opacity_value.lite(O, rho, T)`` with ``O`` from
+    :meth:`Opacity.kernel_vector`.
+    """
+    rho = to_quantity(density, u.g / u.cm**3, "density").value
+    T = to_quantity(temperature, u.K, "temperature").value
+    O = opacity.kernel_vector(X, Z)
+    return kernels.opacity(O, float(rho), float(T)) << u.cm**2 / u.g
+
+
+opacity_value.lite = kernels.opacity

@@ -1,0 +1,69 @@
+"""Pictures of a result (matplotlib, imported only when plotting)."""
+
+import astropy.units as u
+import numpy as np
+
+from .errors import OutputError
+
+__all__ = ["plot_profile"]
+
+
+def plot_profile(result, path=None):
+    """Velocity, density, Eddington factor and luminosity against radius.
+
+    The sonic (critical) point is marked in every panel.  Returns the figure;
+    writes it to ``path`` (PNG, PDF, SVG by extension) when given.
+    """
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    p = result.profile
+    if not p or len(p.get("radius", [])) == 0:
+        raise OutputError(f"nothing to plot: the result has no profile ({result.message})")
+    r = p["radius"].to_value(u.Rsun)
+    rc = result.summary.get("sonic_radius", np.nan * u.cm).to_value(u.Rsun)
+    panels = [
+        ("velocity", u.km / u.s, "velocity  v  [km s$^{-1}$]", "linear"),
+        ("density", u.g / u.cm**3, r"density  $\rho$  [g cm$^{-3}$]", "log"),
+        ("eddington_factor", u.one, r"Eddington factor  $\Gamma_{\rm eff}$", "linear"),
+        ("luminosity", u.Lsun, r"luminosity  $L$  [L$_\odot$]", "linear"),
+    ]
+    if "optical_depth" in p:
+        panels.append(("temperature", u.K, "temperature  T  [K]", "log"))
+        panels.append(("optical_depth", u.one, r"optical depth  $\tau$", "log"))
+    ncols = 2
+    nrows = (len(panels) + 1) // 2
+    fig, axes = plt.subplots(nrows, ncols, figsize=(10, 3.2 * nrows), sharex=True,
+                             constrained_layout=True)
+    for ax, (key, unit, label, scale) in zip(axes.flat, panels):
+        y = p[key].to_value(unit)
+        ax.plot(r, y, color="#1f4e79", lw=1.6)
+        ax.set_xscale("log")
+        ax.set_yscale(scale)
+        if scale == "linear":
+            ax.ticklabel_format(axis="y", useOffset=False)
+        ax.set_ylabel(label)
+        ax.grid(True, which="both", alpha=0.25)
+        if np.isfinite(rc):
+            ax.axvline(rc, color="#b03a2e", ls="--", lw=1.0, label="sonic point")
+            if key == "velocity":
+                a = result.summary["sonic_velocity"].to_value(u.km / u.s)
+                ax.plot([rc], [a], "o", color="#b03a2e", ms=5)
+        if key == "eddington_factor":
+            ax.axhline(1.0, color="0.5", lw=0.8, ls=":")
+    for ax in axes[-1]:
+        ax.set_xlabel(r"radius  r  [R$_\odot$]")
+    axes.flat[0].legend(loc="lower right", frameon=False)
+    name = getattr(result.model, "name", "") if result.model is not None else ""
+    mdot = result.summary.get("mass_loss_rate", np.nan * u.g / u.s).to_value(u.Msun / u.yr)
+    fig.suptitle(f"{name} — {result.model.kind if result.model else ''} wind, "
+                 f"Ṁ = {mdot:.3g} M$_\\odot$/yr  ({result.status})")
+    if path is not None:
+        try:
+            fig.savefig(path, dpi=120)
+        except (OSError, ValueError) as error:
+            raise OutputError(f"{path}: cannot write the plot ({error})") from None
+        plt.close(fig)
+    return fig

@@ -1,0 +1,232 @@
+"""The one result object every solve returns, and its HDF5 form.
+
+The writer, the plots and the command line read only :class:`WindResult`.
+A result always says what happened: ``converged`` is True only for a
+complete transonic solution out to the outer radius; otherwise ``status``
+(short, machine-readable) and ``message`` (one line, in words) say what
+failed, and the numbers that could not be computed are NaN.
+"""
+
+import datetime
+import json
+import os
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import astropy.units as u
+import numpy as np
+
+from ._version import __version__
+from .errors import OutputError
+
+__all__ = ["WindResult", "PROFILE_UNITS", "SUMMARY_UNITS"]
+
+MSUN_PER_YR = u.Msun / u.yr
+
+# Datasets of /profile and attributes of /summary, with their cgs units.
+PROFILE_UNITS = {
+    "radius": u.cm,
+    "velocity": u.cm / u.s,
+    "density": u.g / u.cm**3,
+    "temperature": u.K,
+    "luminosity": u.erg / u.s,
+    "opacity": u.cm**2 / u.g,
+    "eddington_factor": u.dimensionless_unscaled,
+    "optical_depth": u.dimensionless_unscaled,
+}
+SUMMARY_UNITS = {
+    "mass_loss_rate": u.g / u.s,
+    "terminal_velocity": u.cm / u.s,
+    "sonic_radius": u.cm,
+    "sonic_velocity": u.cm / u.s,
+    "photosphere_radius": u.cm,
+    "photosphere_temperature": u.K,
+    "photosphere_luminosity": u.erg / u.s,
+    "energy_flux": u.erg / u.s,
+    "base_eddington_factor": u.dimensionless_unscaled,
+    "outer_radius": u.cm,
+}
+
+
+def _unit_text(unit):
+    text = u.Unit(unit).to_string()
+    return text if text else "1"  # CF convention for dimensionless
+
+
+@dataclass
+class WindResult:
+    """Outcome of :func:`windsolve.solve`.
+
+    Attributes
+    ----------
+    model : WindModel
+        The model that was solved (resolved, defaults filled in).
+    converged : bool
+        True for a complete transonic solution out to the outer radius.
+    status : str
+        Short code: ``converged``, ``no_critical_point``, ``no_saddle``,
+        ``stalled``, ``second_singular_point``, ``no_bracket``, ``failed``.
+    message : str
+        One line saying, in words, what happened.
+    summary : dict of Quantity
+        ``mass_loss_rate``, ``terminal_velocity``, ``sonic_radius``,
+        ``sonic_velocity`` and model-specific extras (NaN when unknown).
+    profile : dict of Quantity arrays
+        On one increasing radial grid: ``radius``, ``velocity``, ``density``,
+        ``temperature``, ``luminosity``, ``opacity``, ``eddington_factor``.
+        Empty when no solution was found.
+    critical_points : list of dict
+        Every root of the critical condition on the radial range (for the
+        converged mass-loss rate): ``radius``, ``kind``, ``slopes``.
+    counters : dict
+        ``shots`` (trial integrations), ``seconds`` (wall time of the solve).
+    """
+
+    model: object
+    converged: bool
+    status: str
+    message: str
+    summary: dict = field(default_factory=dict)
+    profile: dict = field(default_factory=dict)
+    critical_points: list = field(default_factory=list)
+    counters: dict = field(default_factory=dict)
+
+    # -- text ---------------------------------------------------------------
+    def summary_lines(self):
+        """Short human summary (list of lines)."""
+        s = self.summary
+        name = getattr(self.model, "name", "")
+        lines = [f"{name} ({self.model.kind} wind): {self.message}"]
+
+        def show(label, key, unit, fmt=".4g"):
+            q = s.get(key)
+            if q is not None and np.isfinite(q.value):
+                lines.append(f"  {label:<26s} {q.to_value(unit):{fmt}} {u.Unit(unit).to_string()}")
+
+        show("mass-loss rate", "mass_loss_rate", MSUN_PER_YR)
+        show("mass-loss rate", "mass_loss_rate", u.g / u.s)
+        show("sonic (critical) radius", "sonic_radius", u.Rsun)
+        show("sonic velocity", "sonic_velocity", u.km / u.s)
+        key = "terminal velocity"
+        if self.model.kind == "isothermal":
+            key = "velocity at outer radius"
+        show(key, "terminal_velocity", u.km / u.s)
+        show("outer radius", "outer_radius", u.Rsun)
+        show("base Eddington factor", "base_eddington_factor", u.dimensionless_unscaled)
+        if self.model.kind == "isothermal" and self.converged:
+            lines.append("  (an isothermal flow keeps accelerating slowly: the 'terminal' "
+                         "velocity is v at the outer radius)")
+        return lines
+
+    def __str__(self):
+        return "\n".join(self.summary_lines())
+
+    # -- HDF5 ---------------------------------------------------------------
+    def to_hdf5(self, path):
+        """Write the result as SPEC section 7 lays out (cgs, units on every dataset).
+
+        The file is written under a temporary name in the same directory and
+        renamed when complete, so an interrupted write never leaves a
+        half-written file at ``path``.
+        """
+        import h5py
+
+        from .modelfile import dumps
+
+        path = Path(path)
+        if path.is_dir():
+            raise OutputError(f"{path} is a directory; give a file name such as wind.h5")
+        if not path.parent.exists():
+            raise OutputError(f"{path}: directory {path.parent} does not exist")
+        tmp = path.with_name(f".{path.name}.{os.getpid()}.tmp")
+        try:
+            with h5py.File(tmp, "w") as f:
+                f.attrs["windsolve_version"] = __version__
+                f.attrs["created"] = datetime.datetime.now(datetime.timezone.utc).isoformat(
+                    timespec="seconds")
+                f.attrs["model_toml"] = dumps(self.model.to_dict())
+                f.attrs["model"] = self.model.kind
+                g = f.create_group("summary")
+                g.attrs["converged"] = bool(self.converged)
+                g.attrs["status"] = self.status
+                g.attrs["message"] = self.message
+                units = {}
+                for key, q in self.summary.items():
+                    g.attrs[key] = float(q.to_value(SUMMARY_UNITS[key]))
+                    units[key] = _unit_text(SUMMARY_UNITS[key])
+                g.attrs["units"] = json.dumps(units)
+                g.attrs["shots"] = int(self.counters.get("shots", 0))
+                g.attrs["solve_seconds"] = float(self.counters.get("seconds", 0.0))
+                p = f.create_group("profile")
+                for key, q in self.profile.items():
+                    d = p.create_dataset(key, data=np.asarray(q.to_value(PROFILE_UNITS[key]),
+                                                              dtype=np.float64))
+                    d.attrs["units"] = _unit_text(PROFILE_UNITS[key])
+                c = f.create_group("critical_points")
+                n = len(self.critical_points)
+                for key, unit in (("radius", "cm"), ("slope_plus", "1/s"),
+                                  ("slope_minus", "1/s")):
+                    d = c.create_dataset(key, data=np.array(
+                        [cp[key] for cp in self.critical_points], dtype=np.float64).reshape(n))
+                    d.attrs["units"] = unit
+                d = c.create_dataset("kind", data=np.array(
+                    [cp["kind"] for cp in self.critical_points], dtype=h5py.string_dtype()))
+                d.attrs["units"] = "none"
+            os.replace(tmp, path)
+        except OSError as error:
+            tmp.unlink(missing_ok=True)
+            raise OutputError(f"{path}: cannot write ({error})") from None
+        except BaseException:
+            tmp.unlink(missing_ok=True)
+            raise
+        return path
+
+    @classmethod
+    def from_hdf5(cls, path):
+        """Read a result file written by :meth:`to_hdf5` (or laid out the same way).
+
+        The model is rebuilt from the stored model file; datasets come back
+        as Quantities in the units their ``units`` attribute names.
+        """
+        import h5py
+
+        from .modelfile import model_from_dict
+        import tomllib
+
+        path = Path(path)
+        if not path.exists():
+            raise OutputError(f"{path}: no such file")
+        try:
+            f = h5py.File(path, "r")
+        except OSError:
+            raise OutputError(f"{path}: not an HDF5 file (or damaged)") from None
+        with f:
+            if "summary" not in f or "profile" not in f:
+                raise OutputError(f"{path}: no /summary and /profile groups; is this a "
+                                  f"windsolve result file?")
+            try:
+                model = model_from_dict(tomllib.loads(f.attrs["model_toml"]), source=str(path))
+            except (KeyError, tomllib.TOMLDecodeError):
+                model = None
+            g = f["summary"]
+            units = json.loads(g.attrs.get("units", "{}"))
+            summary = {k: g.attrs[k] * u.Unit(units.get(k, SUMMARY_UNITS.get(k, "")))
+                       for k in SUMMARY_UNITS if k in g.attrs}
+            profile = {}
+            for key, d in f["profile"].items():
+                unit = d.attrs.get("units", _unit_text(PROFILE_UNITS.get(key, "")))
+                profile[key] = d[()] * u.Unit(unit)
+            cps = []
+            if "critical_points" in f:
+                c = f["critical_points"]
+                for i in range(c["radius"].shape[0]):
+                    cps.append({"radius": float(c["radius"][i]),
+                                "kind": c["kind"][i].decode() if isinstance(c["kind"][i], bytes)
+                                else str(c["kind"][i]),
+                                "slope_plus": float(c["slope_plus"][i]),
+                                "slope_minus": float(c["slope_minus"][i])})
+            return cls(model=model, converged=bool(g.attrs["converged"]),
+                       status=str(g.attrs["status"]), message=str(g.attrs.get("message", "")),
+                       summary=summary, profile=profile, critical_points=cps,
+                       counters={"shots": int(g.attrs.get("shots", 0)),
+                                 "seconds": float(g.attrs.get("solve_seconds", 0.0))})

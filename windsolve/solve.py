@@ -1,0 +1,142 @@
+"""``solve(model) -> WindResult``: the user-facing entry to the kernels.
+
+Units are converted once (the model's :attr:`kernel_arrays`), the compiled
+solver runs, and its status codes become words here.
+"""
+
+import math
+import time
+
+import astropy.units as u
+import numpy as np
+
+from .core import isothermal as K
+from .core.critical import KIND_NAMES
+from .result import WindResult
+
+__all__ = ["solve", "SOLVERS"]
+
+FOUR_PI = 4.0 * math.pi
+DELTA = 1e-6  # start this fraction of r_c off the critical point (SPEC section 8)
+MAX_STEP = 0.02  # largest step in ln r of a stored profile (~115 points per decade)
+CAPACITY = 200000  # stored points per leg
+
+
+def _isothermal_failure(code, model):
+    """(status, message) for a Model A kernel failure code."""
+    a = model.a
+    if code == K.NO_CRITICAL_POINT_BOUND:
+        return ("no_critical_point",
+                "no critical point between R0 and the outer radius: Gamma_eff stays "
+                "below 1 - 2a^2 r/GM everywhere for every mass-loss rate tried (gravity "
+                "wins, the flow never becomes transonic); raise the luminosity or sound "
+                "speed, or move numerics.outer_radius out")
+    if code == K.NO_CRITICAL_POINT_UNBOUND:
+        return ("no_critical_point",
+                "no critical point beyond R0: Gamma_eff exceeds 1 - 2a^2 r/GM everywhere "
+                "from the base out for every mass-loss rate tried (the base is unbound "
+                "at the sonic density, so no steady transonic wind starts there); a "
+                "super-Eddington base needs porosity or a density-dependent opacity")
+    if code == K.NO_SADDLE:
+        return ("no_saddle", "the only critical points are nodes or foci: no transonic "
+                             "(X-type) solution passes from the base to large radii")
+    if code == K.INWARD_SINGULAR:
+        return ("failed", "the subsonic solution turns back to the sound speed between "
+                          "the base and the critical point for every admissible mass-loss "
+                          "rate; no smooth solution reaches R0")
+    if code == K.NO_BRACKET_DENSE:
+        return ("no_bracket", "every mass-loss rate with a critical point gives a base "
+                              "density above base_density; raise base_density")
+    if code == K.NO_BRACKET_THIN:
+        return ("no_bracket", "every mass-loss rate with a critical point gives a base "
+                              "density below base_density; lower base_density")
+    if code == K.ROOT_NOT_CONVERGED:
+        return ("failed", "the mass-loss rate did not converge; loosen numerics.rtol")
+    return ("failed", f"the integration failed (code {code}); try a different "
+                      f"numerics.rtol")
+
+
+def solve_isothermal(model):
+    """Solve Model A (:class:`~windsolve.models.IsothermalWind`)."""
+    t0 = time.perf_counter()
+    P, O = model.kernel_arrays
+    rtol = model.rtol
+    code, ln_mdot, rc, slope, shots, reason = K.solve(P, O, rtol, DELTA)
+    R0 = model.cgs("radius")
+    summary = {
+        "mass_loss_rate": np.nan * u.g / u.s,
+        "terminal_velocity": np.nan * u.cm / u.s,
+        "sonic_radius": np.nan * u.cm,
+        "sonic_velocity": model.a * u.cm / u.s,
+        "outer_radius": model.outer_radius.to(u.cm),
+        "base_eddington_factor": K.base_eddington_factor(P, O) * u.one,
+    }
+    if code != K.OK:
+        status, message = _isothermal_failure(code, model)
+        return WindResult(model, False, status, message, summary,
+                          counters={"shots": int(shots), "seconds": time.perf_counter() - t0})
+    st_in, st_out, r, v = K.profile(ln_mdot, P, O, rtol, DELTA, MAX_STEP, CAPACITY)
+    rho, L, kappa, gamma = K.profile_quantities(ln_mdot, r, v, P, O)
+    mdot = math.exp(ln_mdot)
+    summary["mass_loss_rate"] = mdot * u.g / u.s
+    summary["sonic_radius"] = rc * u.cm
+    summary["base_eddington_factor"] = gamma[0] * u.one
+    profile = {
+        "radius": r << u.cm,
+        "velocity": v << u.cm / u.s,
+        "density": rho << u.g / u.cm**3,
+        "temperature": np.full_like(r, model.T) << u.K,
+        "luminosity": L << u.erg / u.s,
+        "opacity": kappa << u.cm**2 / u.g,
+        "eddington_factor": gamma << u.one,
+    }
+    Q = K.set_mass_loss_rate(P, ln_mdot)
+    cr = np.empty(64)
+    ck = np.empty(64, dtype=np.int64)
+    cpp = np.empty(64)
+    cpm = np.empty(64)
+    n = K.critical_points(Q, O, cr, ck, cpp, cpm)
+    critical = [{"radius": float(cr[i]), "kind": KIND_NAMES[int(ck[i])],
+                 "slope_plus": float(cpp[i]), "slope_minus": float(cpm[i])} for i in range(n)]
+    r_end = r[-1] / R0
+    if st_out == K.OK:
+        converged, status = True, "converged"
+        summary["terminal_velocity"] = v[-1] * u.cm / u.s
+        message = (f"converged: transonic solution through the saddle at "
+                   f"r_c = {rc / R0:.5g} R0")
+    elif st_out == K.STALLED:
+        converged, status = False, "stalled"
+        message = (f"photon tiring uses up the luminosity at r = {r_end:.5g} R0: the flow "
+                   f"stalls there and does not reach the outer radius")
+    elif st_out == K.OUTWARD_SINGULAR:
+        converged, status = False, "second_singular_point"
+        message = (f"the supersonic solution falls back to the sound speed at "
+                   f"r = {r_end:.5g} R0 (a second singular point, N != 0); the profile "
+                   f"ends there")
+    else:
+        converged, status = False, "failed"
+        message = f"the outward integration failed at r = {r_end:.5g} R0"
+    seconds = time.perf_counter() - t0
+    return WindResult(model, converged, status, message, summary, profile, critical,
+                      {"shots": int(shots), "seconds": seconds})
+
+
+SOLVERS = {"isothermal": solve_isothermal}
+
+
+def solve(model):
+    """Solve a wind model; returns a :class:`~windsolve.result.WindResult`.
+
+    Parameters
+    ----------
+    model : WindModel
+        For example from :func:`windsolve.load_model` or
+        ``IsothermalWind(...)``.
+
+    Returns
+    -------
+    WindResult
+        Always returned; ``result.converged`` says whether the transonic
+        solution was found out to the outer radius, ``result.message`` why not.
+    """
+    return SOLVERS[model.kind](model)
