@@ -22,6 +22,7 @@ Both solvers get the same ``P``, ``O``, ``rtol`` and ``delta``; the reference
 whole shooting root-find.  Timings are medians of ``time.perf_counter``.
 """
 
+import functools
 import math
 import os
 import statistics
@@ -31,12 +32,11 @@ import time
 
 import numpy as np
 from scipy.special import lambertw
-
-from scipy_reference import effective_opacity, solve_reference  # the script's folder
+from scipy_reference import effective_opacity, solve_reference  # this script's folder
 
 from windsolve.core import isothermal as iso
 from windsolve.core import opacity as op
-from windsolve.core.constants import C_LIGHT, G, L_SUN, M_SUN, M_U, R_SUN, SIGMA_T
+from windsolve.core.constants import C_LIGHT, L_SUN, M_SUN, M_U, R_SUN, SIGMA_T, G
 
 RTOL = 1e-8
 DELTA = 1e-6
@@ -140,11 +140,11 @@ def main():
         t0 = time.perf_counter()
         iso.solve(P, O, RTOL, DELTA)  # compile or load numba's cache
         warm = time.perf_counter() - t0
-        t_ws, res = median_ms(lambda: iso.solve(P, O, RTOL, DELTA), N_WINDSOLVE)
+        t_ws, res = median_ms(functools.partial(iso.solve, P, O, RTOL, DELTA), N_WINDSOLVE)
         code, ln_mdot, r_c, slope, n_shots, reason = res
         if code != iso.OK:
             raise RuntimeError(f"{name}: windsolve failed with code {code}")
-        t_sp, ref = median_ms(lambda: solve_reference(P, O, RTOL, DELTA), N_SCIPY)
+        t_sp, ref = median_ms(functools.partial(solve_reference, P, O, RTOL, DELTA), N_SCIPY)
         mdot = math.exp(ln_mdot)
         rel = abs(ref["mass_loss_rate"] / mdot - 1.0)
         worst = max(worst, t_ws)

@@ -5,14 +5,13 @@ This module solves the same eigenvalue problem as
 ``P`` and ``O``, the way a one-off shooting script would: a Python
 right-hand side handed to :func:`scipy.integrate.solve_ivp` (``DOP853``), the
 critical point found by a numpy scan refined with :func:`scipy.optimize.brentq`,
-and the mass-loss rate found by ``brentq`` on ln Mdot.  It exists for two
-reasons: as an independent check of the compiled kernel (nothing compiled is
-called from here), and as the baseline that ``bench_isothermal.py`` times.
-It is not tuned; it only avoids handicaps a careful script would not have
-(the scalar right-hand side uses :mod:`math` on plain floats, not numpy
-scalars).
+and the mass-loss rate by ``brentq`` on ln Mdot.  It is an independent check
+of the compiled kernel (nothing compiled is called from here) and the
+baseline that ``bench_isothermal.py`` times.
+It is not tuned, but avoids handicaps a careful script would not have (the
+scalar right-hand side uses :mod:`math` on plain floats, not numpy scalars).
 
-The algorithm mirrors the kernel step for step (SPEC.md sections 4 and 8):
+The algorithm mirrors the kernel's (SPEC.md sections 4 and 8):
 
 1. for a trial Mdot, scan N(r, a) on ``N_GRID`` log-spaced radii in
    [R0, r_out]; refine each rising zero with ``brentq``, outward, and take
@@ -26,9 +25,15 @@ The algorithm mirrors the kernel step for step (SPEC.md sections 4 and 8):
 4. bracket g in ln Mdot with the kernel's own strategy re-written in Python
    (find an admissible Mdot by bisecting between trials that failed for
    different reasons, walk with doubling steps to a sign change, bisect onto
-   the admissible boundary when a step leaves it), then ``brentq`` with
-   ``xtol = 0.1 rtol``.  The bracket search is part of the timed work unless
-   a ``bracket`` is passed in.
+   the admissible boundary when a step leaves it; the kernel's last-resort
+   widening search is left out), then ``brentq`` with ``xtol = 0.1 rtol``.
+   The bracket search is part of the timed work unless a ``bracket`` is
+   passed in.
+
+One deliberate difference: ``solve_ivp`` gets ``rtol = atol = rtol`` on
+y = ln v; the kernel uses a pure absolute tolerance on ln v.  As |ln v| is
+10-200 in cgs, the reference is the looser (larger Mdot errors; if anything
+this flatters its timing).
 """
 
 import math
@@ -47,10 +52,8 @@ SONIC_GAP = iso.SONIC_GAP
 DENSE_MARGIN = iso.DENSE_MARGIN
 LN_RANGE = iso.LN_RANGE
 XTOL_BOUNDARY = 1e-9  # resolution of the admissible-window edge in ln Mdot
-
-OK, BOUND, UNBOUND, NO_SADDLE, INWARD_SINGULAR, FAILED = (
-    iso.OK, iso.NO_CRITICAL_POINT_BOUND, iso.NO_CRITICAL_POINT_UNBOUND,
-    iso.NO_SADDLE, iso.INWARD_SINGULAR, iso.INTEGRATION_FAILED)
+OK, BOUND, UNBOUND = iso.OK, iso.NO_CRITICAL_POINT_BOUND, iso.NO_CRITICAL_POINT_UNBOUND
+NO_SADDLE, INWARD_SINGULAR, FAILED = iso.NO_SADDLE, iso.INWARD_SINGULAR, iso.INTEGRATION_FAILED
 
 
 def effective_opacity(O, rho, T, r, xp=math):
@@ -60,10 +63,8 @@ def effective_opacity(O, rho, T, r, xp=math):
     ----------
     O : sequence of float
         Opacity vector (slots of :mod:`windsolve.core.opacity`).
-    rho, r : float or ndarray
-        Density [g cm-3] and radius [cm].
-    T : float
-        Temperature [K].
+    rho, T, r : float or ndarray
+        Density [g cm-3], temperature [K] (scalar), radius [cm].
     xp : module
         :mod:`math` for scalars, :mod:`numpy` for arrays.
 
@@ -72,8 +73,8 @@ def effective_opacity(O, rho, T, r, xp=math):
     .. math:: \\kappa_{\\rm eff} = \\kappa\\,(1 - e^{-\\tau_b})/\\tau_b,
               \\quad \\tau_b = \\kappa \\rho h_0 (r/R_0)^q
 
-    ``-expm1(-tau)/tau`` is accurate for small tau, so unlike the kernel no
-    series branch is needed (they differ by O(tau^3) below tau = 1e-5).
+    ``-expm1(-tau)/tau`` is accurate for small tau, so the kernel's series
+    branch below tau = 1e-5 is not needed (they differ by O(tau^3)).
     """
     law = int(O[op.SLOT_LAW])
     kes = O[op.SLOT_KES]
@@ -102,7 +103,6 @@ class _Wind:
                                   iso.I_T, iso.I_TIRING, iso.I_ROUT))
         self.tiring = tiring > 0.0
         self.a = math.sqrt(self.a2)
-        self.ln_mdot = ln_mdot
         self.mdot = math.exp(ln_mdot)
         self.v0 = self.mdot / (FOUR_PI * self.R0 ** 2 * self.rho0)
 
@@ -136,10 +136,17 @@ class _Wind:
         return BOUND, math.nan, math.nan
 
     def rhs(self, x, y):
-        """d ln v / d ln r = r N / (v^2 - a^2) (plain Python, scalar)."""
-        r = math.exp(x)
-        v = math.exp(y[0])
-        return [r * self.N(r, v) / (v * v - self.a2)]
+        """d ln v / d ln r = r N / (v^2 - a^2) (plain Python, scalar).
+
+        A wild trial stage can overflow exp or hit v = 0 or v = a exactly;
+        NaN makes ``solve_ivp`` reject the step and shrink it.
+        """
+        try:
+            r = math.exp(x)
+            v = math.exp(y[0])
+            return [r * self.N(r, v) / (v * v - self.a2)]
+        except (OverflowError, ZeroDivisionError):
+            return [math.nan]
 
 
 def shoot(ln_mdot, P, O, rtol, delta):
@@ -194,8 +201,7 @@ def find_bracket(trial, guess, x_min, x_max):
 
     ``trial(x) -> (code, g)``.  Same strategy as the kernel, in Python.
     """
-    x = guess
-    code, g = trial(x)
+    x, (code, g) = guess, trial(guess)
     if code != OK:
         # Probe both ends; failing that, bisect between two trials that failed
         # for different reasons (e.g. "unbound" below the window, "bound" above).
@@ -203,8 +209,7 @@ def find_bracket(trial, guess, x_min, x_max):
         cs = [trial(x_min)[0], code, trial(x_max)[0]]
         ok = [k for k in (2, 0) if cs[k] == OK]
         if ok:
-            x = xs[ok[0]]
-            g = trial(x)[1]
+            x, g = xs[ok[0]], trial(xs[ok[0]])[1]
         for k in (0, 1):
             if ok or cs[k] == cs[k + 1]:
                 continue
@@ -271,7 +276,7 @@ def solve_reference(P, O, rtol=1e-8, delta=1e-6, bracket=None):
     -------
     dict
         ``mass_loss_rate`` [g s-1], ``sonic_radius`` [cm] and ``n_shots``
-        (number of trial Mdot integrated).
+        (number of distinct trial Mdot).
     """
     shots = {}
 

@@ -68,6 +68,10 @@ def to_quantity(value, unit, where, convert=True):
     else:
         raise ModelError(f"{where} = {value!r}: expected a {kind_of(unit)} "
                          f"such as \"{example_for(unit)}\"")
+    if (q.unit == u.dimensionless_unscaled and unit != u.dimensionless_unscaled
+            and not isinstance(value, u.Quantity)):
+        raise ModelError(f"{where} = \"{value}\" has no unit; write it with one, "
+                         f"e.g. \"{example_for(unit)}\"")
     if not q.unit.is_equivalent(unit):
         raise ModelError(f"{where} = \"{value}\" is a {kind_of(q.unit)}, but a {kind_of(unit)} "
                          f"is needed, e.g. \"{example_for(unit)}\"")

@@ -44,7 +44,7 @@ class Param:
     kind: object  # an astropy unit, or float, bool, str
     doc: str
     default: object = REQUIRED
-    check: str = ""  # "", "positive", "fraction", "rtol"
+    check: str = ""  # "", "positive", "nonnegative", "fraction", "rtol"
 
     @property
     def section(self):
@@ -81,6 +81,8 @@ class Param:
             raise ModelError(f"{where} = {number}: must be finite")
         if self.check == "positive" and not number > 0:
             raise ModelError(f"{where} = {format_value(value)}: must be positive")
+        if self.check == "nonnegative" and not number >= 0:
+            raise ModelError(f"{where} = {format_value(value)}: must not be negative")
         if self.check == "fraction" and not 0.0 <= number <= 1.0:
             raise ModelError(f"{where} = {number}: a mass fraction lies between 0 and 1")
         if self.check == "rtol" and not 1e-13 <= number <= 1e-3:
@@ -244,7 +246,7 @@ class IsothermalWind(WindModel):
     radius: object = param("star.radius", u.cm, "base radius R0, e.g. \"100 Rsun\"",
                            check="positive")
     luminosity: object = param("star.luminosity", u.erg / u.s,
-                               "luminosity at the base L0, e.g. \"4e6 Lsun\"", check="positive")
+                               "luminosity at the base L0, e.g. \"4e6 Lsun\"", check="nonnegative")
     X: float = param("composition.X", float, "hydrogen mass fraction", 0.7, "fraction")
     Z: float = param("composition.Z", float, "metal mass fraction", 0.02, "fraction")
     sound_speed: object = param("gas.sound_speed", u.cm / u.s,

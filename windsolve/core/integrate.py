@@ -41,7 +41,7 @@ STEP_TOO_SMALL = -1
 TOO_MANY_STEPS = -2
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def error_norm(K, h, y, y_new, rtol, atol):
     """DOP853's blended 5th/3rd-order error estimate (as scipy's DOP853)."""
     n = y.shape[0]
@@ -65,7 +65,7 @@ def error_norm(K, h, y, y_new, rtol, atol):
 def make_integrator(rhs, monitor):
     """Return a compiled ``integrate`` closed over ``rhs`` and ``monitor``."""
 
-    @njit(cache=True)
+    @njit(cache=True, error_model="numpy")
     def dop853_step(x, y, f, h, P, O, K, y_new, f_new):
         """One DOP853 step from (x, y) with derivative f; fills K, y_new, f_new."""
         n = y.shape[0]
@@ -88,7 +88,7 @@ def make_integrator(rhs, monitor):
         for j in range(n):
             K[N_STAGES, j] = f_new[j]
 
-    @njit(cache=True)
+    @njit(cache=True, error_model="numpy")
     def integrate(x0, y0, x_end, P, O, rtol, atol, h_start, max_step,
                   out_x, out_y):
         """Integrate y' = rhs(x, y) from x0 to x_end (either direction).

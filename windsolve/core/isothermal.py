@@ -32,7 +32,7 @@ import numpy as np
 from numba import njit
 
 from .constants import C_LIGHT
-from .critical import SADDLE, classify, make_bisector
+from .critical import SADDLE, classify, make_root_refiner
 from .integrate import REACHED_END, STEP_TOO_SMALL, make_integrator
 from .opacity import effective_opacity
 
@@ -77,7 +77,7 @@ LN_RANGE = 690.0  # Mdot is searched down to Mdot_max * exp(-LN_RANGE)
 MAX_SHOTS = 400
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def set_mass_loss_rate(P, ln_mdot):
     """Copy of P with the trial Mdot and the quantities that follow from it."""
     Q = P.copy()
@@ -88,7 +88,7 @@ def set_mass_loss_rate(P, ln_mdot):
     return Q
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def luminosity(r, v, P):
     """Radiative luminosity L(r, v) [erg s-1] (constant without tiring)."""
     if P[I_TIRING] > 0.0:
@@ -98,13 +98,13 @@ def luminosity(r, v, P):
     return P[I_L0]
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def density(r, v, P):
     """rho = Mdot / (4 pi r^2 v) [g cm-3]."""
     return P[I_MDOT] / (FOUR_PI * r * r * v)
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def force_balance(r, v, P, O):
     """N(r, v) [cm s-2]: pressure gradient + radiative force - gravity."""
     k = effective_opacity(O, density(r, v, P), P[I_T], r)
@@ -112,13 +112,13 @@ def force_balance(r, v, P, O):
             + k * luminosity(r, v, P) / (FOUR_PI * C_LIGHT * r * r))
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def sonic_force_balance(x, P, O):
     """N(e^x, a): its roots in x = ln r are the critical points."""
     return force_balance(math.exp(x), math.sqrt(P[I_A2]), P, O)
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def rhs(x, y, P, O, dydx):
     """d ln v / d ln r = r N / (v^2 - a^2)."""
     r = math.exp(x)
@@ -126,7 +126,7 @@ def rhs(x, y, P, O, dydx):
     dydx[0] = r * force_balance(r, v, P, O) / (v * v - P[I_A2])
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def monitor_outward(x, y, P, O):
     """Stop the supersonic leg when tiring exhausts L or v falls back to a."""
     r = math.exp(x)
@@ -138,7 +138,7 @@ def monitor_outward(x, y, P, O):
     return 0
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def monitor_inward(x, y, P, O):
     """Stop the subsonic leg when it turns back to v = a or is far too dense."""
     r = math.exp(x)
@@ -152,10 +152,10 @@ def monitor_inward(x, y, P, O):
 
 integrate_outward = make_integrator(rhs, monitor_outward)
 integrate_inward = make_integrator(rhs, monitor_inward)
-bisect_sonic = make_bisector(sonic_force_balance)
+refine_sonic = make_root_refiner(sonic_force_balance)
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def critical_point_partials(r, P, O):
     """(dN/dr, dN/dv) at (r, a), fixed Mdot, by central differences."""
     a = math.sqrt(P[I_A2])
@@ -166,7 +166,7 @@ def critical_point_partials(r, P, O):
     return n_r, n_v
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def classify_point(r, P, O):
     """(kind, p_plus, p_minus) of the critical point at r (Model A quadratic)."""
     n_r, n_v = critical_point_partials(r, P, O)
@@ -174,7 +174,7 @@ def classify_point(r, P, O):
     return classify(n_v, n_r, 0.0)
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def critical_points(P, O, out_r, out_kind, out_pp, out_pm):
     """All roots of N(r, a) on [R0, r_out], classified; returns their count."""
     x_lo = math.log(P[I_R0])
@@ -186,7 +186,7 @@ def critical_points(P, O, out_r, out_kind, out_pp, out_pm):
         x = x_lo + i * dx
         f = sonic_force_balance(x, P, O)
         if (f_prev < 0.0 and f >= 0.0) or (f_prev > 0.0 and f <= 0.0):
-            xr = bisect_sonic(x - dx, x, f_prev, P, O, 1e-15)
+            xr = refine_sonic(x - dx, x, f_prev, f, P, O, 1e-15)
             if count < out_r.shape[0]:
                 r = math.exp(xr)
                 kind, pp, pm = classify_point(r, P, O)
@@ -199,7 +199,7 @@ def critical_points(P, O, out_r, out_kind, out_pp, out_pm):
     return count
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def innermost_saddle(P, O):
     """First saddle of N(r, a) outward from R0: (code, r_c, slope dv/dr)."""
     x_lo = math.log(P[I_R0])
@@ -215,7 +215,7 @@ def innermost_saddle(P, O):
             any_pos = True
         if f_prev < 0.0 and f >= 0.0:
             # N rising through zero: dN/dr > 0 at v = a, a saddle candidate.
-            xr = bisect_sonic(x - dx, x, f_prev, P, O, 1e-15)
+            xr = refine_sonic(x - dx, x, f_prev, f, P, O, 1e-15)
             r = math.exp(xr)
             kind, pp, pm = classify_point(r, P, O)
             if kind == SADDLE:
@@ -231,7 +231,7 @@ def innermost_saddle(P, O):
     return NO_CRITICAL_POINT_BOUND, math.nan, math.nan
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def shoot(ln_mdot, P, O, rtol, delta):
     """One trial: (code, ln rho(R0) - ln rho0, r_c, slope) for this Mdot."""
     Q = set_mass_loss_rate(P, ln_mdot)
@@ -262,14 +262,14 @@ def shoot(ln_mdot, P, O, rtol, delta):
     return INTEGRATION_FAILED, math.nan, rc, slope
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def base_eddington_factor(P, O):
     """Gamma_eff = kappa_eff(rho0, T, R0) L0 / (4 pi G M c) at the base."""
     k0 = effective_opacity(O, P[I_RHO0], P[I_T], P[I_R0])
     return k0 * P[I_L0] / (FOUR_PI * C_LIGHT * P[I_GM])
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def first_guess(P, O):
     """ln Mdot from Parker's subsonic asymptote with the base Eddington factor.
 
@@ -289,7 +289,7 @@ def first_guess(P, O):
     return max(guess, ln_mdot_max - LN_RANGE), ln_mdot_max
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def solve(P, O, rtol, delta):
     """Find the mass-loss rate of the transonic solution through rho(R0) = rho0.
 
@@ -451,6 +451,9 @@ def solve(P, O, rtol, delta):
     if fpre == 0.0:
         xcur = xpre
         fcur = fpre
+    last_x = math.nan
+    last_rc = math.nan
+    last_slope = math.nan
     while fcur != 0.0:
         if shots >= MAX_SHOTS:
             return ROOT_NOT_CONVERGED, xcur, math.nan, math.nan, shots, reason
@@ -466,9 +469,12 @@ def solve(P, O, rtol, delta):
             fpre = fcur
             fcur = fblk
             fblk = fpre
-        tol = 0.5 * xtol * (1.0 + abs(xcur))
+        tol = 0.5 * xtol  # absolute in ln Mdot: a relative tolerance on Mdot
         sbis = 0.5 * (xblk - xcur)
-        if abs(sbis) < tol:
+        # Stop on a small bracket, or once the base-density mismatch is
+        # within the integration noise (|g| < rtol): further steps would
+        # only bisect on that noise.
+        if abs(sbis) < tol or abs(fcur) < rtol:
             break
         if abs(spre) > tol and abs(fcur) < abs(fpre):
             if xpre == xblk:
@@ -496,11 +502,16 @@ def solve(P, O, rtol, delta):
         shots += 1
         if c4 != OK:
             return c4, xcur, math.nan, math.nan, shots, c4
-    code, g, rc, slope = shoot(xcur, P, O, rtol, delta)
-    return OK, xcur, rc, slope, shots + 1, reason
+        last_x = xcur
+        last_rc = rc4
+        last_slope = s4
+    if xcur != last_x:
+        code, g, last_rc, last_slope = shoot(xcur, P, O, rtol, delta)
+        shots += 1
+    return OK, xcur, last_rc, last_slope, shots, reason
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def profile(ln_mdot, P, O, rtol, delta, max_step, capacity):
     """Integrate the converged solution from R0 to r_out, storing it.
 
@@ -552,7 +563,7 @@ def profile(ln_mdot, P, O, rtol, delta, max_step, capacity):
     return status_in, status_out, r, v
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def profile_quantities(ln_mdot, r, v, P, O):
     """rho, L, kappa_eff and Gamma_eff along a profile (cgs arrays)."""
     Q = set_mass_loss_rate(P, ln_mdot)

@@ -38,7 +38,7 @@ SLOT_Q = 10
 LN10 = math.log(10.0)
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def kramers(rho, T, kes, coeff):
     """Electron scattering plus a Kramers-form free-free/bound-free term.
 
@@ -51,7 +51,7 @@ def kramers(rho, T, kes, coeff):
     return kes + coeff * rho * T ** -3.5
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def bump(rho, T, kes, amplitude, rho_ref, s, log_tb, width):
     """Parametric opacity bump, a transparent stand-in for the iron bump.
 
@@ -61,7 +61,7 @@ def bump(rho, T, kes, amplitude, rho_ref, s, log_tb, width):
     return kes * (1.0 + amplitude * (rho / rho_ref) ** s * math.exp(-0.5 * d * d))
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def opacity(O, rho, T):
     """Opacity of the law encoded in ``O`` at density rho [g cm-3], T [K]."""
     law = int(O[SLOT_LAW])
@@ -75,7 +75,7 @@ def opacity(O, rho, T):
     return np.nan
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def porosity_factor(tau_b):
     """Porosity reduction (1 - exp(-tau_b)) / tau_b for clumps of optical depth tau_b.
 
@@ -88,13 +88,13 @@ def porosity_factor(tau_b):
     return -math.expm1(-tau_b) / tau_b
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def porosity_length(O, r):
     """h(r) = h0 (r / R0)**q [cm]."""
     return O[SLOT_H0] * (r / O[SLOT_R0]) ** O[SLOT_Q]
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def effective_opacity(O, rho, T, r):
     """Opacity with the porosity modifier applied when h0 > 0."""
     k = opacity(O, rho, T)

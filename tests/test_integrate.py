@@ -1,0 +1,94 @@
+"""The compiled DOP853 integrator against exact solutions and scipy's tableau.
+
+Tier (a): exact solutions, errors measured against ``atol + rtol |y|``
+(the convention of scipy's own ``_ivp`` tests).
+"""
+
+import math
+
+import numpy as np
+import pytest
+from numba import njit
+from scipy.integrate._ivp import dop853_coefficients as scipy_dop853
+
+from windsolve.core import _dop853_tableau as T
+from windsolve.core.integrate import REACHED_END, STEP_TOO_SMALL, make_integrator
+
+
+def test_tableau_matches_scipy():
+    n = scipy_dop853.N_STAGES
+    assert T.N_STAGES == n
+    np.testing.assert_array_equal(T.A, scipy_dop853.A[:n, :n])
+    np.testing.assert_array_equal(T.B, scipy_dop853.A[n, :n])
+    np.testing.assert_array_equal(T.C, scipy_dop853.C[:n])
+    np.testing.assert_array_equal(T.E3, scipy_dop853.E3)
+    np.testing.assert_array_equal(T.E5, scipy_dop853.E5)
+
+
+@njit
+def _oscillator(x, y, P, O, dydx):
+    dydx[0] = y[1]
+    dydx[1] = -P[0] * y[0]
+
+
+@njit
+def _never(x, y, P, O):
+    return 0
+
+
+@njit
+def _stop_when_negative(x, y, P, O):
+    return 7 if y[0] < 0.0 else 0
+
+
+@njit
+def _blow_up(x, y, P, O, dydx):
+    dydx[0] = y[0] * y[0]  # y = 1/(1 - x): singular at x = 1
+
+
+oscillate = make_integrator(_oscillator, _never)
+oscillate_until_negative = make_integrator(_oscillator, _stop_when_negative)
+blow_up = make_integrator(_blow_up, _never)
+
+
+@pytest.mark.parametrize("rtol", [1e-6, 1e-9, 1e-12])
+def test_harmonic_oscillator_exact(rtol):
+    # y'' = -w^2 y, y(0) = 1, y'(0) = 0  ->  y = cos(w x)
+    w = 3.0
+    P = np.array([w * w])
+    xs = np.empty(5000)
+    ys = np.empty((5000, 2))
+    status, x, y, n, nfev = oscillate(0.0, np.array([1.0, 0.0]), 10.0, P, P, rtol, rtol,
+                                      1e-3, np.inf, xs, ys)
+    assert status == REACHED_END and x == 10.0
+    err = np.abs(ys[:n, 0] - np.cos(w * xs[:n])) / (rtol + rtol * np.abs(np.cos(w * xs[:n])))
+    # global error of a few hundred local tolerances over ~5 periods
+    assert err.max() < 300
+
+
+def test_backward_integration_and_storage_order():
+    P = np.array([1.0])
+    xs = np.empty(1000)
+    ys = np.empty((1000, 2))
+    status, x, y, n, _ = oscillate(0.0, np.array([1.0, 0.0]), -2.0, P, P, 1e-10, 1e-10,
+                                   1e-3, 0.1, xs, ys)
+    assert status == REACHED_END and n > 20
+    assert np.all(np.diff(xs[:n]) < 0) and np.all(np.diff(xs[:n]) >= -0.1 - 1e-15)
+    assert abs(y[0] - math.cos(2.0)) < 1e-8
+
+
+def test_monitor_stops_the_integration():
+    P = np.array([1.0])
+    status, x, y, n, _ = oscillate_until_negative(0.0, np.array([1.0, 0.0]), 10.0, P, P,
+                                                  1e-10, 1e-10, 1e-3, 0.01, np.empty(0),
+                                                  np.empty((0, 2)))
+    assert status == 7
+    # first accepted step past the zero of cos at pi/2 (max step 0.01)
+    assert math.pi / 2 < x <= math.pi / 2 + 0.0101
+
+
+def test_singularity_gives_step_too_small():
+    status, x, y, n, _ = blow_up(0.0, np.array([1.0]), 2.0, np.zeros(1), np.zeros(1),
+                                 1e-8, 1e-8, 1e-3, np.inf, np.empty(0), np.empty((0, 1)))
+    assert status == STEP_TOO_SMALL
+    assert abs(x - 1.0) < 1e-6  # stops at the singular point x = 1
