@@ -196,7 +196,25 @@ def first_guess(P, O):
     return max(guess, ln_max - LN_RANGE), ln_max
 
 
-def find_bracket(trial, guess, x_min, x_max):
+def base_boundary(P, O, x_min, x_max):
+    """(guess, first step): start just inside the admissible window.
+
+    Mirrors the kernel's step 0: where N(R0, a) changes sign with Mdot, its
+    root (found with brentq) is where the saddle sits on the base.
+    """
+    def n_base(x):
+        w = _Wind(P, O, x)
+        return w.N(w.R0, w.a)
+
+    lo, hi = n_base(x_min), n_base(x_max)
+    if lo == 0.0 or hi == 0.0 or (lo > 0.0) == (hi > 0.0):
+        return None, 1.0
+    xb = brentq(n_base, x_min, x_max, xtol=1e-14)
+    side = 1.0 if hi < 0.0 else -1.0
+    return min(max(xb + side * 1e-6 * (1.0 + abs(xb)), x_min), x_max), 0.02
+
+
+def find_bracket(trial, guess, x_min, x_max, step0=1.0):
     """``(lo, hi)`` in ln Mdot with g(lo) <= 0 <= g(hi), both admissible.
 
     ``trial(x) -> (code, g)``.  Same strategy as the kernel, in Python.
@@ -226,7 +244,7 @@ def find_bracket(trial, guess, x_min, x_max):
         if not ok:
             raise RuntimeError("no admissible mass-loss rate found")
     sgn = 1.0 if g > 0.0 else -1.0  # walk down from g > 0, up from g <= 0
-    good, step = x, 1.0
+    good, step = x, step0
     while True:
         xt = good - sgn * step
         if not x_min <= xt <= x_max:
@@ -293,7 +311,9 @@ def solve_reference(P, O, rtol=1e-8, delta=1e-6, bracket=None):
 
     guess, ln_max = first_guess(P, O)
     if bracket is None:
-        bracket = find_bracket(trial, guess, ln_max - LN_RANGE, ln_max - 1e-9)
+        x_min, x_max = ln_max - LN_RANGE, ln_max - 1e-9
+        start, step0 = base_boundary(P, O, x_min, x_max)
+        bracket = find_bracket(trial, guess if start is None else start, x_min, x_max, step0)
     x = brentq(g, bracket[0], bracket[1], xtol=0.1 * rtol)
     trial(x)
     return dict(mass_loss_rate=math.exp(x), sonic_radius=shots[x][2], n_shots=len(shots))

@@ -66,19 +66,22 @@ def make_integrator(rhs, monitor):
     """Return a compiled ``integrate`` closed over ``rhs`` and ``monitor``."""
 
     @njit(cache=True, error_model="numpy")
-    def dop853_step(x, y, f, h, P, O, K, y_new, f_new):
+    def dop853_step(x, y, f, h, P, O, K, y_new, f_new, y_stage, f_stage):
         """One DOP853 step from (x, y) with derivative f; fills K, y_new, f_new."""
         n = y.shape[0]
         for j in range(n):
             K[0, j] = f[j]
-        y_stage = np.empty(n)
         for s in range(1, N_STAGES):
             for j in range(n):
                 acc = 0.0
                 for m in range(s):
                     acc += A[s, m] * K[m, j]
                 y_stage[j] = y[j] + h * acc
-            rhs(x + C[s] * h, y_stage, P, O, K[s])
+            # Through a work vector, not the row view K[s]: building a view
+            # per stage costs more than the right-hand side itself.
+            rhs(x + C[s] * h, y_stage, P, O, f_stage)
+            for j in range(n):
+                K[s, j] = f_stage[j]
         for j in range(n):
             acc = 0.0
             for m in range(N_STAGES):
@@ -132,6 +135,8 @@ def make_integrator(rhs, monitor):
         K = np.empty((N_STAGES + 1, n))
         y_new = np.empty(n)
         f_new = np.empty(n)
+        y_stage = np.empty(n)
+        f_stage = np.empty(n)
         capacity = out_x.shape[0]
         n_out = 0
         if capacity > 0:
@@ -161,7 +166,7 @@ def make_integrator(rhs, monitor):
                     x_new = x_end
                 h = x_new - x
                 h_abs = abs(h)
-                dop853_step(x, y, f, h, P, O, K, y_new, f_new)
+                dop853_step(x, y, f, h, P, O, K, y_new, f_new, y_stage, f_stage)
                 nfev += N_STAGES
                 en = error_norm(K, h, y, y_new, rtol, atol)
                 # A non-finite stage (e.g. a step across a singular point) is an

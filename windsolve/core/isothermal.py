@@ -37,6 +37,8 @@ from .integrate import REACHED_END, STEP_TOO_SMALL, make_integrator
 from .opacity import effective_opacity
 
 FOUR_PI = 4.0 * math.pi
+INV_FOUR_PI = 1.0 / FOUR_PI
+INV_FOUR_PI_C = 1.0 / (FOUR_PI * C_LIGHT)
 
 # --- parameter slots -------------------------------------------------------
 I_GM = 0  # G M [cm3 s-2]
@@ -72,7 +74,7 @@ STOP_DENSE = 3
 
 N_GRID = 256  # points of the ln r scan for roots of N(r, a)
 SONIC_GAP = 1e-3  # |v^2 - a^2| / a^2 below which a turning flow is singular
-DENSE_MARGIN = 40.0  # an inward leg stops once ln rho > ln rho0 + this
+DENSE_MARGIN = 10.0  # an inward leg stops once ln rho > ln rho0 + this
 LN_RANGE = 690.0  # Mdot is searched down to Mdot_max * exp(-LN_RANGE)
 MAX_SHOTS = 400
 
@@ -104,12 +106,25 @@ def density(r, v, P):
     return P[I_MDOT] / (FOUR_PI * r * r * v)
 
 
+@njit(cache=True, error_model="numpy", inline="always")
+def force_balance_inv(r, inv_r, v, inv_v, P, O):
+    """N(r, v) given the reciprocals 1/r and 1/v as well.
+
+    The innermost call of every integration stage.  The stages of a
+    Runge-Kutta step run one after another, so what counts is latency; with
+    the reciprocals computed independently (as exp(-x), exp(-y)) the chain
+    of dependent divisions shrinks to none.
+    """
+    inv_r2 = inv_r * inv_r
+    rho = P[I_MDOT] * INV_FOUR_PI * inv_r2 * inv_v
+    k = effective_opacity(O, rho, P[I_T], r)
+    return inv_r * (2.0 * P[I_A2]) + inv_r2 * (k * luminosity(r, v, P) * INV_FOUR_PI_C - P[I_GM])
+
+
 @njit(cache=True, error_model="numpy")
 def force_balance(r, v, P, O):
     """N(r, v) [cm s-2]: pressure gradient + radiative force - gravity."""
-    k = effective_opacity(O, density(r, v, P), P[I_T], r)
-    return (2.0 * P[I_A2] / r - P[I_GM] / (r * r)
-            + k * luminosity(r, v, P) / (FOUR_PI * C_LIGHT * r * r))
+    return force_balance_inv(r, 1.0 / r, v, 1.0 / v, P, O)
 
 
 @njit(cache=True, error_model="numpy")
@@ -123,7 +138,8 @@ def rhs(x, y, P, O, dydx):
     """d ln v / d ln r = r N / (v^2 - a^2)."""
     r = math.exp(x)
     v = math.exp(y[0])
-    dydx[0] = r * force_balance(r, v, P, O) / (v * v - P[I_A2])
+    n = force_balance_inv(r, math.exp(-x), v, math.exp(-y[0]), P, O)
+    dydx[0] = r * n / (v * v - P[I_A2])
 
 
 @njit(cache=True, error_model="numpy")
@@ -150,9 +166,22 @@ def monitor_inward(x, y, P, O):
     return 0
 
 
+@njit(cache=True, error_model="numpy")
+def base_sonic_balance(ln_mdot, P, O):
+    """N(R0, a) for the mass-loss rate e^ln_mdot.
+
+    Where it is positive the gas at the base is unbound at the sonic
+    density, so no critical point lies just beyond R0; its root in ln Mdot is
+    the smallest (or largest) Mdot whose saddle can sit on the base.
+    """
+    Q = set_mass_loss_rate(P, ln_mdot)
+    return force_balance(Q[I_R0], math.sqrt(Q[I_A2]), Q, O)
+
+
 integrate_outward = make_integrator(rhs, monitor_outward)
 integrate_inward = make_integrator(rhs, monitor_inward)
 refine_sonic = make_root_refiner(sonic_force_balance)
+refine_base = make_root_refiner(base_sonic_balance)
 
 
 @njit(cache=True, error_model="numpy")
@@ -300,6 +329,20 @@ def solve(P, O, rtol, delta):
     x_min = x_max - LN_RANGE
     x_max = x_max - 1e-9
     xtol_b = 1e-9
+    step0 = 1.0
+    # 0. When N(R0, a) changes sign with Mdot (density-dependent opacity,
+    #    porosity, tiring), the admissible window starts where the saddle
+    #    sits on the base.  Start just inside it (SPEC section 8): there
+    #    rho(R0) is the sonic density, below rho0, and ln rho(R0) climbs
+    #    steeply, so the walk starts with small steps.  N costs nanoseconds;
+    #    a shot costs microseconds.
+    n_lo = base_sonic_balance(x_min, P, O)
+    n_hi = base_sonic_balance(x_max, P, O)
+    if (n_lo > 0.0) != (n_hi > 0.0) and n_lo != 0.0 and n_hi != 0.0:
+        xb = refine_base(x_min, x_max, n_lo, n_hi, P, O, 1e-14)
+        side = 1.0 if n_hi < 0.0 else -1.0
+        guess = min(max(xb + side * 1e-6 * (1.0 + abs(xb)), x_min), x_max)
+        step0 = 0.02
     shots = 1
     code, g, rc, slope = shoot(guess, P, O, rtol, delta)
     reason = code
@@ -368,7 +411,7 @@ def solve(P, O, rtol, delta):
     if g > 0.0:
         hi = x
         g_hi = g
-        step = 1.0
+        step = step0
         while math.isnan(lo):
             xt = hi - step
             if xt < x_min:
@@ -404,7 +447,7 @@ def solve(P, O, rtol, delta):
     else:
         lo = x
         g_lo = g
-        step = 1.0
+        step = step0
         while math.isnan(hi):
             if lo >= x_max:
                 return NO_BRACKET_THIN, math.nan, math.nan, math.nan, shots, reason

@@ -38,7 +38,7 @@ SLOT_Q = 10
 LN10 = math.log(10.0)
 
 
-@njit(cache=True, error_model="numpy")
+@njit(cache=True, error_model="numpy", inline="always")
 def kramers(rho, T, kes, coeff):
     """Electron scattering plus a Kramers-form free-free/bound-free term.
 
@@ -51,7 +51,7 @@ def kramers(rho, T, kes, coeff):
     return kes + coeff * rho * T ** -3.5
 
 
-@njit(cache=True, error_model="numpy")
+@njit(cache=True, error_model="numpy", inline="always")
 def bump(rho, T, kes, amplitude, rho_ref, s, log_tb, width):
     """Parametric opacity bump, a transparent stand-in for the iron bump.
 
@@ -61,10 +61,12 @@ def bump(rho, T, kes, amplitude, rho_ref, s, log_tb, width):
     return kes * (1.0 + amplitude * (rho / rho_ref) ** s * math.exp(-0.5 * d * d))
 
 
-@njit(cache=True, error_model="numpy")
+@njit(cache=True, error_model="numpy", inline="always")
 def opacity(O, rho, T):
     """Opacity of the law encoded in ``O`` at density rho [g cm-3], T [K]."""
-    law = int(O[SLOT_LAW])
+    # Compare the float slot directly: converting it to an integer first
+    # costs measurably in the innermost loop.
+    law = O[SLOT_LAW]
     kes = O[SLOT_KES]
     if law == LAW_ELECTRON_SCATTERING:
         return kes
@@ -75,7 +77,7 @@ def opacity(O, rho, T):
     return np.nan
 
 
-@njit(cache=True, error_model="numpy")
+@njit(cache=True, error_model="numpy", inline="always")
 def porosity_factor(tau_b):
     """Porosity reduction (1 - exp(-tau_b)) / tau_b for clumps of optical depth tau_b.
 
@@ -88,13 +90,20 @@ def porosity_factor(tau_b):
     return -math.expm1(-tau_b) / tau_b
 
 
-@njit(cache=True, error_model="numpy")
+@njit(cache=True, error_model="numpy", inline="always")
 def porosity_length(O, r):
     """h(r) = h0 (r / R0)**q [cm]."""
-    return O[SLOT_H0] * (r / O[SLOT_R0]) ** O[SLOT_Q]
+    q = O[SLOT_Q]
+    # A general pow costs ~20 ns, several times the rest of this call;
+    # the common exponents 0 and 1 skip it.
+    if q == 0.0:
+        return O[SLOT_H0]
+    if q == 1.0:
+        return O[SLOT_H0] * (r / O[SLOT_R0])
+    return O[SLOT_H0] * math.exp(q * math.log(r / O[SLOT_R0]))
 
 
-@njit(cache=True, error_model="numpy")
+@njit(cache=True, error_model="numpy", inline="always")
 def effective_opacity(O, rho, T, r):
     """Opacity with the porosity modifier applied when h0 > 0."""
     k = opacity(O, rho, T)
