@@ -105,8 +105,9 @@ def cmd_check(args):
         if model.opacity.law == "electron_scattering" and model.porosity_length is None:
             notes.append("Gamma_es >= 1 with electron scattering alone: the base is unbound "
                          "and no steady transonic wind exists; add porosity or change L0")
+    mdot_max = 4 * math.pi * R0**2 * model.cgs("base_density") * a * u.g / u.s
     rows.append(("largest mass-loss rate 4 pi R0^2 rho0 a",
-                 f"{(4 * math.pi * R0**2 * model.cgs('base_density') * a * u.g / u.s).to_value(u.Msun / u.yr):.4g} Msun/yr"))
+                 f"{mdot_max.to_value(u.Msun / u.yr):.4g} Msun/yr"))
     if model.photon_tiring:
         rows.append(("photon-tiring limit L0 R0 / GM",
                      f"{(L0 * R0 / (G * M) * u.g / u.s).to_value(u.Msun / u.yr):.4g} Msun/yr"))
@@ -155,7 +156,8 @@ def cmd_inspect(args):
                 data = d[()]
                 rng = (f"{np.nanmin(data):.4g} .. {np.nanmax(data):.4g}" if data.size
                        else "empty")
-                print(f"  {key:<18s} {data.shape[0]:6d} points  {rng}  [{d.attrs.get('units', '?')}]")
+                unit = d.attrs.get("units", "?")
+                print(f"  {key:<18s} {data.shape[0]:6d} points  {rng}  [{unit}]")
         if "critical_points" in f:
             c = f["critical_points"]
             print("critical points:")

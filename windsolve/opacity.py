@@ -155,7 +155,8 @@ class Opacity:
         """The ``[opacity]`` table, every value written out."""
         table = {"law": self.law}
         for name, q in self.params.items():
-            table[name] = float(q.value) if q.unit == u.dimensionless_unscaled else format_quantity(q)
+            dimensionless = q.unit == u.dimensionless_unscaled
+            table[name] = float(q.value) if dimensionless else format_quantity(q)
         return table
 
 

@@ -37,7 +37,7 @@ def plot_profile(result, path=None):
     nrows = (len(panels) + 1) // 2
     fig, axes = plt.subplots(nrows, ncols, figsize=(10, 3.2 * nrows), sharex=True,
                              constrained_layout=True)
-    for ax, (key, unit, label, scale) in zip(axes.flat, panels):
+    for ax, (key, unit, label, scale) in zip(axes.flat, panels, strict=False):
         y = p[key].to_value(unit)
         ax.plot(r, y, color="#1f4e79", lw=1.6)
         ax.set_xscale("log")

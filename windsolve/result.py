@@ -142,7 +142,7 @@ class WindResult:
         try:
             with h5py.File(tmp, "w") as f:
                 f.attrs["windsolve_version"] = __version__
-                f.attrs["created"] = datetime.datetime.now(datetime.timezone.utc).isoformat(
+                f.attrs["created"] = datetime.datetime.now(datetime.UTC).isoformat(
                     timespec="seconds")
                 f.attrs["model_toml"] = dumps(self.model.to_dict())
                 f.attrs["model"] = self.model.kind
@@ -188,10 +188,11 @@ class WindResult:
         The model is rebuilt from the stored model file; datasets come back
         as Quantities in the units their ``units`` attribute names.
         """
+        import tomllib
+
         import h5py
 
         from .modelfile import model_from_dict
-        import tomllib
 
         path = Path(path)
         if not path.exists():

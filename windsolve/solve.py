@@ -24,7 +24,6 @@ CAPACITY = 200000  # stored points per leg
 
 def _isothermal_failure(code, model):
     """(status, message) for a Model A kernel failure code."""
-    a = model.a
     if code == K.NO_CRITICAL_POINT_BOUND:
         return ("no_critical_point",
                 "no critical point between R0 and the outer radius: Gamma_eff stays "

@@ -8,7 +8,7 @@ import math
 
 from numba import njit
 
-from .constants import C_LIGHT, G, K_B, M_U, SIGMA_T
+from .constants import C_LIGHT, K_B, M_U, SIGMA_T, G
 
 FOUR_PI = 4.0 * math.pi
 

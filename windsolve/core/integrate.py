@@ -27,7 +27,7 @@ import math
 import numpy as np
 from numba import njit
 
-from ._dop853_tableau import A, B, C, E3, E5, ERROR_ESTIMATOR_ORDER, N_STAGES
+from ._dop853_tableau import E3, E5, ERROR_ESTIMATOR_ORDER, N_STAGES, A, B, C
 
 SAFETY = 0.9  # multiply the optimal step by this
 MIN_FACTOR = 0.2  # never shrink a step by more than this

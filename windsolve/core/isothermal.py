@@ -34,7 +34,7 @@ from numba import njit
 from .constants import C_LIGHT
 from .critical import SADDLE, classify, make_root_refiner
 from .integrate import REACHED_END, STEP_TOO_SMALL, make_integrator
-from .opacity import effective_opacity
+from .opacity import LAW_ELECTRON_SCATTERING, SLOT_H0, SLOT_KES, SLOT_LAW, effective_opacity
 
 FOUR_PI = 4.0 * math.pi
 INV_FOUR_PI = 1.0 / FOUR_PI
@@ -116,9 +116,13 @@ def force_balance_inv(r, inv_r, v, inv_v, P, O):
     of dependent divisions shrinks to none.
     """
     inv_r2 = inv_r * inv_r
-    rho = P[I_MDOT] * INV_FOUR_PI * inv_r2 * inv_v
-    k = effective_opacity(O, rho, P[I_T], r)
-    return inv_r * (2.0 * P[I_A2]) + inv_r2 * (k * luminosity(r, v, P) * INV_FOUR_PI_C - P[I_GM])
+    if O[SLOT_LAW] == LAW_ELECTRON_SCATTERING and O[SLOT_H0] <= 0.0:
+        k = O[SLOT_KES]  # constant opacity: skip the density (Parker-like flows)
+    else:
+        rho = P[I_MDOT] * INV_FOUR_PI * inv_r2 * inv_v
+        k = effective_opacity(O, rho, P[I_T], r)
+    L = P[I_L0] if P[I_TIRING] <= 0.0 else luminosity(r, v, P)
+    return inv_r * (2.0 * P[I_A2]) + inv_r2 * (k * L * INV_FOUR_PI_C - P[I_GM])
 
 
 @njit(cache=True, error_model="numpy")
