@@ -290,3 +290,29 @@ def test_porosity_sets_a_saddle_near_the_base():
     m2 = windsolve.solve(result.model.replace(porosity_length="100 Rsun")).summary[
         "mass_loss_rate"].value
     assert 0.05 < m2 / m1 < 0.2
+
+
+def test_only_nodes_and_foci_reported_as_no_saddle():
+    # A cool gas with a Kramers opacity: Gamma_eff is largest where the gas is
+    # densest and falls outward, so N(r, a) crosses zero downward (dN/dr < 0):
+    # a node or focus, never a saddle, and the Parker point lies beyond the
+    # outer radius.  No transonic wind; the result must say why.
+    from windsolve.core import isothermal as K
+    model = IsothermalWind(name="no saddle test", mass="10 Msun", radius="10 Rsun",
+                           luminosity="1e5 Lsun", temperature="1e4 K",
+                           base_density="1e-6 g/cm3", opacity={"law": "kramers"},
+                           outer_radius="200 Rsun")
+    result = windsolve.solve(model)
+    assert result.status == "no_saddle"
+    assert "nodes or foci" in result.message
+    # and at such a mass-loss rate the critical points found are indeed not saddles
+    P, O = model.kernel_arrays
+    x_max = math.log(4 * math.pi * model.cgs("radius") ** 2 * 1e-6 * model.a)
+    codes = np.empty(200, dtype=np.int64)
+    K.survey(P, O, x_max - 20, x_max, codes)
+    i = int(np.flatnonzero(codes == K.NO_SADDLE)[0])
+    Q = K.set_mass_loss_rate(P, x_max - 20 + 20 * i / 199)
+    out = [np.empty(8), np.empty(8, dtype=np.int64), np.empty(8), np.empty(8)]
+    n = K.critical_points(Q, O, *out)
+    assert n >= 1
+    assert all(k in (critical.NODE, critical.FOCUS) for k in out[1][:n])

@@ -20,6 +20,7 @@ FOUR_PI = 4.0 * math.pi
 DELTA = 1e-6  # start this fraction of r_c off the critical point (SPEC section 8)
 MAX_STEP = 0.02  # largest step in ln r of a stored profile (~115 points per decade)
 CAPACITY = 200000  # stored points per leg
+SURVEY_POINTS = 400  # trial mass-loss rates scanned to explain a failure
 
 
 def _isothermal_failure(code, model):
@@ -37,8 +38,9 @@ def _isothermal_failure(code, model):
                 "at the sonic density, so no steady transonic wind starts there); a "
                 "super-Eddington base needs porosity or a density-dependent opacity")
     if code == K.NO_SADDLE:
-        return ("no_saddle", "the only critical points are nodes or foci: no transonic "
-                             "(X-type) solution passes from the base to large radii")
+        return ("no_saddle", "no transonic solution: for some mass-loss rates the flow has "
+                             "critical points, but only nodes or foci, never a saddle (X-type) "
+                             "point through which a wind could pass")
     if code == K.INWARD_SINGULAR:
         return ("failed", "the subsonic solution turns back to the sound speed between "
                           "the base and the critical point for every admissible mass-loss "
@@ -71,6 +73,14 @@ def solve_isothermal(model):
         "base_eddington_factor": K.base_eddington_factor(P, O) * u.one,
     }
     if code != K.OK:
+        if code in (K.NO_CRITICAL_POINT_BOUND, K.NO_CRITICAL_POINT_UNBOUND):
+            # The search met no saddle; say so more precisely when some
+            # mass-loss rates do have critical points, only not X-type ones.
+            codes = np.empty(SURVEY_POINTS, dtype=np.int64)
+            x_max = math.log(4 * math.pi * R0**2 * model.cgs("base_density") * model.a)
+            K.survey(P, O, x_max - K.LN_RANGE, x_max, codes)
+            if np.any(codes == K.NO_SADDLE):
+                code = K.NO_SADDLE
         status, message = _isothermal_failure(code, model)
         return WindResult(model, False, status, message, summary,
                           counters={"shots": int(shots), "seconds": time.perf_counter() - t0})

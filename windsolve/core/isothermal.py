@@ -265,6 +265,19 @@ def innermost_saddle(P, O):
 
 
 @njit(cache=True, error_model="numpy")
+def survey(P, O, x_lo, x_hi, codes):
+    """Critical-point code of innermost_saddle at len(codes) values of ln Mdot.
+
+    Cheap (no integration); used to explain a failed search, e.g. that some
+    mass-loss rates do have critical points, but only nodes or foci.
+    """
+    n = codes.shape[0]
+    for i in range(n):
+        x = x_lo + (x_hi - x_lo) * i / (n - 1)
+        codes[i] = innermost_saddle(set_mass_loss_rate(P, x), O)[0]
+
+
+@njit(cache=True, error_model="numpy")
 def shoot(ln_mdot, P, O, rtol, delta):
     """One trial: (code, ln rho(R0) - ln rho0, r_c, slope) for this Mdot."""
     Q = set_mass_loss_rate(P, ln_mdot)
