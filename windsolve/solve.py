@@ -108,7 +108,13 @@ def solve_isothermal(model):
     critical = [{"radius": float(cr[i]), "kind": KIND_NAMES[int(ck[i])],
                  "slope_plus": float(cpp[i]), "slope_minus": float(cpm[i])} for i in range(n)]
     r_end = r[-1] / R0
-    if st_out == K.OK:
+    if st_in != K.OK:
+        # The shooting reached R0 with this Mdot; a profile that does not is
+        # an integration problem, not physics: say so rather than guess.
+        converged, status = False, "failed"
+        message = ("the stored inward profile did not reach R0 although the shooting "
+                   "did; tighten numerics.rtol")
+    elif st_out == K.OK:
         converged, status = True, "converged"
         summary["terminal_velocity"] = v[-1] * u.cm / u.s
         message = (f"converged: transonic solution through the saddle at "
