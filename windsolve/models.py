@@ -19,6 +19,7 @@ import dataclasses
 import math
 from dataclasses import dataclass, field
 from functools import cached_property
+from pathlib import Path
 
 import astropy.units as u
 import numpy as np
@@ -174,7 +175,14 @@ class WindModel:
                                      f"{nearest(top, cls.sections)}; tables are "
                                      f"{', '.join('[' + s + ']' for s in cls.sections)}")
                 if top == "opacity":
-                    kwargs["opacity"] = dict(value)
+                    table = dict(value)
+                    # A table file is found relative to the model file.
+                    if isinstance(table.get("path"), str) and source != "model":
+                        path = Path(table["path"]).expanduser()
+                        if not path.is_absolute():
+                            path = Path(source).resolve().parent / path
+                        table["path"] = str(path)
+                    kwargs["opacity"] = table
                     continue
                 for key, item in value.items():
                     dotted = f"{top}.{key}"
