@@ -12,7 +12,7 @@ Quick start::
 from ._version import __version__
 from .errors import ModelError, NoSolutionError, OutputError, WindsolveError
 from .modelfile import load_model, model_from_dict
-from .models import MODELS, IsothermalWind
+from .models import MODELS, DiffusionWind, IsothermalWind
 from .opacity import OPACITY_LAWS, Opacity
 from .result import WindResult
 from .solve import solve
@@ -23,6 +23,7 @@ __all__ = [
     "model_from_dict",
     "solve",
     "IsothermalWind",
+    "DiffusionWind",
     "Opacity",
     "WindResult",
     "MODELS",

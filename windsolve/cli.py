@@ -1,4 +1,4 @@
-"""Command line: ``windsolve run | check | inspect | plot``.
+"""Command line: ``windsolve run | check | inspect | plot | tabulate``.
 
 Every failure the user can fix ends with exit status 2 and one line on
 stderr naming the problem and the fix; no traceback, no output file.
@@ -182,6 +182,46 @@ def cmd_plot(args):
     return EXIT_OK
 
 
+TABULATE_LOG_T = ("3.8", "7.0", "65")  # 0.05 dex in log10 T
+TABULATE_LOG_R = ("-8.0", "1.0", "19")  # 0.5 dex in log10 R
+
+
+def _grid_option(values, option):
+    from .tables import grid
+    start, stop, num = values
+    try:
+        start, stop = float(start), float(stop)
+    except ValueError:
+        raise WindsolveError(f"{option} START STOP NUM: START and STOP must be numbers "
+                             f"(got {values[0]!r}, {values[1]!r})") from None
+    try:
+        num = int(num)
+    except ValueError:
+        raise WindsolveError(f"{option} START STOP NUM: NUM must be a whole number "
+                             f"(got {values[2]!r})") from None
+    return grid(start, stop, num, option)
+
+
+def cmd_tabulate(args):
+    from .tables import HDF5_SUFFIXES, TEXT_LAYOUT, tabulate, write_table
+    model, source = _load(args.model)
+    _check_output(args.output, ".txt")
+    log_T = _grid_option(args.log_t, "--log-t")
+    log_R = _grid_option(args.log_r, "--log-r")
+    table = tabulate(model.opacity, log_T, log_R, model.X, model.Z)
+    description = (f"Made with: windsolve tabulate {source} -o {Path(args.output).name} "
+                   f"--log-t {' '.join(args.log_t)} --log-r {' '.join(args.log_r)}",
+                   *table.description)
+    if Path(args.output).suffix.lower() in HDF5_SUFFIXES:
+        description = tuple(s for s in description if s not in TEXT_LAYOUT)
+    table = type(table)(table.log_T, table.log_R, table.log_kappa, description)
+    write_table(table, args.output)
+    if not args.quiet:
+        print(f"wrote {args.output}: {model.opacity.law} law, {log_T.size} log10 T x "
+              f"{log_R.size} log10 R")
+    return EXIT_OK
+
+
 def build_parser():
     from ._version import __version__
     parser = argparse.ArgumentParser(prog="windsolve", description=DESCRIPTION)
@@ -219,6 +259,28 @@ def build_parser():
     p.add_argument("-o", "--output", metavar="OUT.png",
                    help="image file (PNG, PDF or SVG); default: FILE with .png")
     p.set_defaults(func=cmd_plot)
+
+    p = sub.add_parser("tabulate", help="tabulate a model's opacity law for the table law",
+                       description="Evaluate the analytic opacity law of a model file "
+                                   "(with its X and Z; porosity is not part of the law) on "
+                                   "a grid of log10 T and log10 R, R = rho / (T / 1e6 K)^3, "
+                                   "and write it as an opacity table that [opacity] "
+                                   "law = \"table\" reads. Exit 2 with one line and "
+                                   "nothing written on bad input.")
+    p.add_argument("model", help="model file (TOML) whose [opacity] law is tabulated")
+    p.add_argument("-o", "--output", required=True, metavar="TABLE.txt|TABLE.h5",
+                   help="table file to write: HDF5 for .h5/.hdf5, else the text matrix")
+    p.add_argument("--log-t", nargs=3, metavar=("START", "STOP", "NUM"),
+                   default=TABULATE_LOG_T,
+                   help="NUM evenly spaced log10 T [K] nodes from START to STOP "
+                        f"(default: {' '.join(TABULATE_LOG_T)}; NUM >= 4)")
+    p.add_argument("--log-r", nargs=3, metavar=("START", "STOP", "NUM"),
+                   default=TABULATE_LOG_R,
+                   help="NUM evenly spaced log10 R nodes from START to STOP, "
+                        "R = rho / (T / 1e6 K)^3 in g/cm3 "
+                        f"(default: {' '.join(TABULATE_LOG_R)}; NUM >= 4)")
+    p.add_argument("-q", "--quiet", action="store_true", help="print nothing on success")
+    p.set_defaults(func=cmd_tabulate)
     return parser
 
 

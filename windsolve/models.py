@@ -26,13 +26,14 @@ import numpy as np
 
 from ._units import format_quantity, to_quantity
 from .core import basics
+from .core import diffusion as diff_kernels
 from .core import isothermal as iso_kernels
-from .core.constants import G
+from .core.constants import K_B, M_U, SIGMA_SB, G
 from .errors import ModelError
 from .opacity import Opacity, nearest
 from .physics import check_composition
 
-__all__ = ["WindModel", "IsothermalWind", "Param", "param"]
+__all__ = ["WindModel", "IsothermalWind", "DiffusionWind", "Param", "param"]
 
 REQUIRED = object()
 
@@ -331,4 +332,136 @@ class IsothermalWind(WindModel):
         return P, O
 
 
-MODELS = {cls.kind: cls for cls in (IsothermalWind,)}
+@dataclass(frozen=True, eq=False)
+class DiffusionWind(WindModel):
+    """Model B: optically thick wind, gas + radiation, radiative diffusion.
+
+    Pinned either at the base (``[star] radius`` and ``luminosity`` with
+    ``[boundary] base_temperature`` or ``base_density``) or at the photosphere
+    (``[boundary] photosphere_luminosity`` and ``photosphere_temperature``;
+    the profile then runs inward to ``[star] radius`` if given, else down to
+    ``base_temperature``, default 1e6 K).  See SPEC section 5 and the README.
+    """
+
+    kind = "diffusion"
+    sections = ("star", "composition", "opacity", "porosity", "boundary", "numerics")
+
+    name: str = param("name", str, "a label for the star", "unnamed star")
+    mass: object = param("star.mass", u.g, "stellar mass M, e.g. \"10 Msun\"",
+                         check="positive")
+    radius: object = param("star.radius", u.cm, "base radius R0, e.g. \"1 Rsun\"", None,
+                           "positive")
+    luminosity: object = param("star.luminosity", u.erg / u.s,
+                               "radiative luminosity at the base L0, e.g. \"2e5 Lsun\"",
+                               None, "positive")
+    X: float = param("composition.X", float, "hydrogen mass fraction", 0.7, "fraction")
+    Z: float = param("composition.Z", float, "metal mass fraction", 0.02, "fraction")
+    opacity: object = None
+    porosity_length: object = param("porosity.length", u.cm,
+                                    "porosity length h0 at R0, e.g. \"0.01 Rsun\"", None,
+                                    "positive")
+    porosity_exponent: float = param("porosity.radial_exponent", float,
+                                     "q in h(r) = h0 (r/R0)^q", 0.0)
+    base_temperature: object = param("boundary.base_temperature", u.K,
+                                     "temperature at the base, e.g. \"5e5 K\"", None,
+                                     "positive")
+    base_density: object = param("boundary.base_density", u.g / u.cm**3,
+                                 "density at the base, e.g. \"1e-8 g/cm3\"", None,
+                                 "positive")
+    photosphere_luminosity: object = param(
+        "boundary.photosphere_luminosity", u.erg / u.s,
+        "observed luminosity at the photosphere, e.g. \"2e5 Lsun\"", None, "positive")
+    photosphere_temperature: object = param(
+        "boundary.photosphere_temperature", u.K,
+        "observed effective temperature, e.g. \"5e4 K\"", None, "positive")
+    rtol: float = param("numerics.rtol", float, "relative tolerance of the integration",
+                        1e-8, "rtol")
+    outer_radius: object = param("numerics.outer_radius", u.cm,
+                                 "give up looking for the photosphere beyond this radius "
+                                 "(default 1e4 times the photosphere or base radius)", None,
+                                 "positive")
+
+    DEFAULT_BASE_TEMPERATURE = 1e6  # K, inner end of a photosphere-anchored profile
+
+    def __post_init__(self):
+        self._read_fields()
+        check_composition(self.X, self.Z)
+        photo = (self.photosphere_luminosity, self.photosphere_temperature)
+        if any(v is not None for v in photo):
+            if any(v is None for v in photo):
+                raise ModelError("[boundary] a photosphere anchor needs both "
+                                 "photosphere_luminosity and photosphere_temperature")
+            if self.luminosity is not None or self.base_density is not None:
+                extra = "[star] luminosity" if self.luminosity is not None else \
+                    "[boundary] base_density"
+                raise ModelError(f"over-specified: {extra} belongs to a base-anchored model, "
+                                 f"but photosphere_luminosity and photosphere_temperature "
+                                 f"anchor this one at the photosphere; remove one of them")
+            if self.radius is not None and self.base_temperature is not None:
+                raise ModelError("over-specified: a photosphere-anchored profile ends at "
+                                 "[star] radius or at [boundary] base_temperature, not both; "
+                                 "remove one")
+            if self.radius is not None and not self.photosphere_radius > self.radius:
+                raise ModelError(
+                    f"photosphere_luminosity and photosphere_temperature put the photosphere "
+                    f"at {self.photosphere_radius.to_value(u.Rsun):.4g} Rsun, inside "
+                    f"[star] radius = {format_quantity(self.radius)}; lower the temperature, "
+                    f"raise the luminosity or lower the radius")
+        else:
+            missing = [key for key, value in (("[star] radius", self.radius),
+                                              ("[star] luminosity", self.luminosity))
+                       if value is None]
+            if missing or (self.base_temperature is None) == (self.base_density is None):
+                raise ModelError(
+                    "under-specified: anchor the model either at the photosphere "
+                    "([boundary] photosphere_luminosity and photosphere_temperature) or at "
+                    "the base ([star] radius and luminosity with exactly one of [boundary] "
+                    "base_temperature or base_density)"
+                    + (f"; missing {', '.join(missing)}" if missing else ""))
+
+    @property
+    def anchor(self):
+        """"photosphere" or "base"."""
+        return "photosphere" if self.photosphere_luminosity is not None else "base"
+
+    @cached_property
+    def mu(self):
+        return basics.mean_molecular_weight(self.X, self.Z)
+
+    @cached_property
+    def photosphere_radius(self):
+        """R_ph from the observed L_ph and T_eff (photosphere anchor) [Quantity]."""
+        if self.photosphere_luminosity is None:
+            return None
+        L = self.cgs("photosphere_luminosity")
+        T = self.cgs("photosphere_temperature")
+        return (math.sqrt(L / (4.0 * math.pi * SIGMA_SB * T**4)) * u.cm).to(u.Rsun)
+
+    @cached_property
+    def kernel_arrays(self):
+        """(P, O): the plain-float parameter vectors of the Model B kernels."""
+        P = np.zeros(diff_kernels.N_PARAMS)
+        P[diff_kernels.I_GM] = G * self.cgs("mass")
+        P[diff_kernels.I_KG] = K_B / (self.mu * M_U)
+        P[diff_kernels.I_KES] = basics.electron_scattering_opacity(self.X)
+        R0 = self.cgs("radius") if self.radius is not None else 0.0
+        P[diff_kernels.I_R_IN] = R0
+        if self.anchor == "photosphere" and self.radius is None:
+            T_in = (self.cgs("base_temperature") if self.base_temperature is not None
+                    else self.DEFAULT_BASE_TEMPERATURE)
+        else:
+            T_in = np.inf
+        P[diff_kernels.I_T_IN] = T_in
+        scale = (self.photosphere_radius.to_value(u.cm) if self.anchor == "photosphere"
+                 else R0)
+        P[diff_kernels.I_R_OUT] = (self.cgs("outer_radius") if self.outer_radius is not None
+                                   else 1e4 * scale)
+        porosity = (0.0, 1.0, 0.0)
+        if self.porosity_length is not None:
+            ref = R0 if R0 > 0 else scale
+            porosity = (self.cgs("porosity_length"), ref, float(self.porosity_exponent))
+        O = self.opacity.kernel_vector(self.X, self.Z, porosity)
+        return P, O
+
+
+MODELS = {cls.kind: cls for cls in (IsothermalWind, DiffusionWind)}

@@ -7,6 +7,7 @@ and one entry here.
 
 import difflib
 from dataclasses import dataclass, field
+from pathlib import Path
 
 import astropy.units as u
 import numpy as np
@@ -23,15 +24,33 @@ KRAMERS_UNIT = u.cm**5 * u.K**3.5 / u.g**2
 
 @dataclass(frozen=True)
 class LawParameter:
-    """One parameter of an opacity law as written in the model file."""
+    """One parameter of an opacity law as written in the model file.
+
+    ``unit`` is an astropy unit (dimensionless for plain numbers), or one of
+    the types ``bool`` (true/false) and ``Path`` (a file path, stored as an
+    absolute path string so that resolved model files work from anywhere).
+    """
 
     name: str
-    unit: object  # astropy unit; dimensionless for plain numbers
+    unit: object  # astropy unit; dimensionless for plain numbers; bool; Path
     default: object  # value used when omitted; None means required
     doc: str
     positive: bool = False
 
+    @property
+    def is_quantity(self):
+        return self.unit not in (bool, Path)
+
     def read(self, value, where):
+        if self.unit is bool:
+            if not isinstance(value, bool):
+                raise ModelError(f"{where} = {value!r}: write true or false")
+            return value
+        if self.unit is Path:
+            if not isinstance(value, (str, Path)) or not str(value).strip():
+                raise ModelError(f"{where} = {value!r}: write the file's path as a quoted "
+                                 f"string, e.g. \"tables/kappa.txt\"")
+            return str(Path(value).expanduser().absolute())
         q = to_quantity(value, self.unit, where, convert=False)
         if self.positive and not q.value > 0:
             raise ModelError(f"{where} = {value!r} must be positive")
@@ -50,6 +69,8 @@ class OpacityLaw:
     parameters: tuple = ()
     # (cgs parameter values by name, X, Z) -> floats for kernel slots 2..7
     pack: object = field(default=lambda values, X, Z: ())
+    # (cgs parameter values by name, X, Z) -> floats appended after slot 10, or None
+    extra: object = field(default=lambda values, X, Z: None)
 
 
 def _pack_kramers(p, X, Z):
@@ -61,6 +82,24 @@ def _pack_kramers(p, X, Z):
 def _pack_bump(p, X, Z):
     return (p["amplitude"], p["reference_density"], p["density_exponent"],
             np.log10(p["peak_temperature"]), p["width_dex"])
+
+
+def _table_where(p):
+    return f"[opacity] path = \"{p['path']}\""
+
+
+def _pack_table(p, X, Z):
+    # Table edges and the clamp flag; the file is read once per version
+    # (windsolve.tables.load_table caches it).
+    from . import tables
+    table, params, extra = tables.load_table(p["path"], _table_where(p))
+    return params[:4] + (1.0 if p["clamp"] else 0.0,)
+
+
+def _table_block(p, X, Z):
+    from . import tables
+    table, params, extra = tables.load_table(p["path"], _table_where(p))
+    return extra
 
 
 OPACITY_LAWS = {law.name: law for law in (
@@ -94,6 +133,18 @@ OPACITY_LAWS = {law.name: law for law in (
                          "rho_ref, density at which the peak height is A", True),
         ),
         _pack_bump),
+    OpacityLaw(
+        "table", kernels.LAW_TABLE,
+        "log10 kappa from a table of log10 T and log10 R = log10(rho / T6^3), "
+        "bicubic-spline interpolated",
+        (
+            LawParameter("path", Path, None,
+                         "table file: text matrix or HDF5 (layout: windsolve.tables); "
+                         "a relative path is taken from the model file's folder"),
+            LawParameter("clamp", bool, False,
+                         "outside the table use the nearest edge value instead of stopping"),
+        ),
+        _pack_table, _table_block),
 )}
 
 
@@ -141,20 +192,32 @@ class Opacity:
         object.__setattr__(self, "params", values)
 
     def cgs(self):
-        """Parameter values as plain floats in cgs, by name."""
-        units = {p.name: p.unit for p in OPACITY_LAWS[self.law].parameters}
-        return {k: float(q.to_value(units[k])) for k, q in self.params.items()}
+        """Parameter values by name: Quantities as plain floats in cgs; paths
+        (absolute, as strings) and flags as they are."""
+        spec = {p.name: p for p in OPACITY_LAWS[self.law].parameters}
+        return {k: float(q.to_value(spec[k].unit)) if spec[k].is_quantity else q
+                for k, q in self.params.items()}
 
     def kernel_vector(self, X, Z, porosity=(0.0, 1.0, 0.0)):
-        """The flat float vector ``O`` the kernels take (see core.opacity)."""
+        """The flat float vector ``O`` the kernels take (see core.opacity).
+
+        For the table law this reads and checks the file (once per version
+        of the file; see :func:`windsolve.tables.load_table`) and raises a
+        one-line ModelError naming it when it is missing or malformed.
+        """
         spec = OPACITY_LAWS[self.law]
         kes = basics.electron_scattering_opacity(X)
-        return kernels.pack(spec.code, kes, spec.pack(self.cgs(), X, Z), porosity)
+        values = self.cgs()
+        return kernels.pack(spec.code, kes, spec.pack(values, X, Z), porosity,
+                            spec.extra(values, X, Z))
 
     def to_toml(self):
         """The ``[opacity]`` table, every value written out."""
         table = {"law": self.law}
         for name, q in self.params.items():
+            if not isinstance(q, u.Quantity):
+                table[name] = q  # absolute path string, or a flag
+                continue
             dimensionless = q.unit == u.dimensionless_unscaled
             table[name] = float(q.value) if dimensionless else format_quantity(q)
         return table

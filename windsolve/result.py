@@ -45,6 +45,12 @@ SUMMARY_UNITS = {
     "energy_flux": u.erg / u.s,
     "base_eddington_factor": u.dimensionless_unscaled,
     "outer_radius": u.cm,
+    "photosphere_velocity": u.cm / u.s,
+    "sonic_temperature": u.K,
+    "base_radius": u.cm,
+    "base_temperature": u.K,
+    "base_density": u.g / u.cm**3,
+    "base_luminosity": u.erg / u.s,
 }
 
 
@@ -111,6 +117,16 @@ class WindResult:
         if self.model.kind == "isothermal":
             key = "velocity at outer radius"
         show(key, "terminal_velocity", u.km / u.s)
+        show("sonic temperature", "sonic_temperature", u.K)
+        show("photosphere radius", "photosphere_radius", u.Rsun)
+        show("photosphere temperature", "photosphere_temperature", u.K)
+        show("photosphere luminosity", "photosphere_luminosity", u.Lsun)
+        show("photosphere velocity", "photosphere_velocity", u.km / u.s)
+        show("energy flux Edot", "energy_flux", u.Lsun)
+        show("base radius", "base_radius", u.Rsun)
+        show("base temperature", "base_temperature", u.K)
+        show("base density", "base_density", u.g / u.cm**3)
+        show("base luminosity", "base_luminosity", u.Lsun)
         show("outer radius", "outer_radius", u.Rsun)
         show("base Eddington factor", "base_eddington_factor", u.dimensionless_unscaled)
         if self.model.kind == "isothermal" and self.converged:

@@ -136,7 +136,118 @@ def solve_isothermal(model):
                       {"shots": int(shots), "seconds": seconds})
 
 
-SOLVERS = {"isothermal": solve_isothermal}
+def _diffusion_failure_result(model, summary, code, text, t0):
+    from .core import diffusion as D
+    status = {D.OFF_TABLE: "off_table", D.STALLED: "stalled", D.FALLBACK: "fallback",
+              D.INVALID: "no_solution", D.SINGULAR: "no_solution"}.get(code, "failed")
+    return WindResult(model, False, status, text, summary,
+                      counters={"shots": 0, "seconds": time.perf_counter() - t0})
+
+
+def solve_diffusion(model):
+    """Solve Model B (:class:`~windsolve.models.DiffusionWind`)."""
+    from scipy.integrate import cumulative_trapezoid
+
+    from . import _diffusion as B
+    from .core import diffusion as D
+    from .core.constants import C_LIGHT, G
+
+    t0 = time.perf_counter()
+    P, O = model.kernel_arrays
+    rtol = model.rtol
+    M = model.cgs("mass")
+    nan = np.nan
+    summary = {key: nan * unit for key, unit in (
+        ("mass_loss_rate", u.g / u.s), ("terminal_velocity", u.cm / u.s),
+        ("sonic_radius", u.cm), ("sonic_velocity", u.cm / u.s),
+        ("photosphere_radius", u.cm), ("photosphere_temperature", u.K),
+        ("photosphere_luminosity", u.erg / u.s), ("energy_flux", u.erg / u.s))}
+    kes = P[D.I_KES]
+    if model.opacity.law == "electron_scattering" and model.porosity_length is None:
+        L = (model.cgs("photosphere_luminosity") if model.anchor == "photosphere"
+             else model.cgs("luminosity"))
+        gamma = kes * L / (4 * math.pi * G * M * C_LIGHT)
+        if gamma < 1.0:
+            return _diffusion_failure_result(
+                model, summary, D.INVALID,
+                f"no wind: with electron scattering alone Gamma = {gamma:.4g} < 1 "
+                f"everywhere, so radiation cannot lift the gas; a continuum-driven wind "
+                f"needs Gamma > 1 somewhere (a larger luminosity or an opacity that rises "
+                f"inward, e.g. the bump law or a table)", t0)
+    xo = np.empty(CAPACITY)
+    yo = np.empty((CAPACITY, 2))
+    try:
+        if model.anchor == "photosphere":
+            L_ph = model.cgs("photosphere_luminosity")
+            T_ph = model.cgs("photosphere_temperature")
+        else:
+            kind = "temperature" if model.base_temperature is not None else "density"
+            L_ph, T_ph = B.solve_base_anchor(P, O, model.cgs("luminosity"), kind,
+                                             model.cgs(f"base_{kind}"), rtol)
+        sol, no = B.solve_photosphere_anchor(P, O, L_ph, T_ph, rtol, xo, yo, MAX_STEP)
+    except B.ModelBFailure as failure:
+        return _diffusion_failure_result(model, summary, failure.code, failure.text, t0)
+    c = sol.crit
+    R_ph, v_ph, L_ph = sol.R_ph, sol.v_ph, sol.L_ph
+    # Profile: inward leg from the critical point (reversed), the critical
+    # point, then the stored inward shot from the photosphere (reversed).
+    xi = np.empty(CAPACITY)
+    yi = np.empty((CAPACITY, 2))
+    st_in, r_b, v_b, T_b, L_b, ni = B.inward(c, O, rtol, xi, yi, MAX_STEP)
+    if st_in != D.OK:
+        return _diffusion_failure_result(
+            model, summary, st_in,
+            "the subsonic solution below the sonic point does not reach the base "
+            f"({'the radiation is used up' if st_in == D.STALLED else f'code {st_in}'})", t0)
+    r = np.concatenate([np.exp(xi[:ni][::-1]), [c.rc], np.exp(xo[:no][::-1])])
+    v = np.concatenate([np.exp(yi[:ni, 0][::-1]), [c.vc], np.exp(yo[:no, 0][::-1])])
+    T = np.concatenate([np.exp(yi[:ni, 1][::-1]), [c.Tc], np.exp(yo[:no, 1][::-1])])
+    keep = np.concatenate([[True], np.diff(r) > 0])  # the shot may end inside r_c
+    r, v, T = r[keep], v[keep], T[keep]
+    rho, L, kappa, gamma = D.profile_quantities(r, v, T, c.P, O)
+    # tau(r) = 2/3 + integral of kappa rho dr from r to R_ph (in ln r).
+    integrand = kappa * rho * r
+    from_out = cumulative_trapezoid(integrand[::-1], -np.log(r[::-1]), initial=0.0)
+    tau = D.TAU_PH + from_out[::-1]
+    w2 = D.terminal_velocity_squared(R_ph, v_ph, L_ph, c.P)
+    summary.update({
+        "mass_loss_rate": c.mdot * u.g / u.s,
+        "terminal_velocity": math.sqrt(w2) * u.cm / u.s,
+        "sonic_radius": c.rc * u.cm,
+        "sonic_velocity": c.vc * u.cm / u.s,
+        "photosphere_radius": R_ph * u.cm,
+        "photosphere_temperature": D.effective_temperature(L_ph, R_ph) * u.K,
+        "photosphere_luminosity": L_ph * u.erg / u.s,
+        "energy_flux": c.P[D.I_EDOT] * u.erg / u.s,
+        "photosphere_velocity": v_ph * u.cm / u.s,
+        "sonic_temperature": c.Tc * u.K,
+        "base_radius": r[0] * u.cm,
+        "base_temperature": T[0] * u.K,
+        "base_density": rho[0] * u.g / u.cm**3,
+        "base_luminosity": L[0] * u.erg / u.s,
+    })
+    profile = {
+        "radius": r << u.cm,
+        "velocity": v << u.cm / u.s,
+        "density": rho << u.g / u.cm**3,
+        "temperature": T << u.K,
+        "luminosity": L << u.erg / u.s,
+        "opacity": kappa << u.cm**2 / u.g,
+        "eddington_factor": gamma << u.one,
+        "optical_depth": tau << u.one,
+    }
+    kind, pp, pm, dTdr, k1 = D.critical_slopes(c.rc, c.vc, c.Tc, c.P, O)
+    critical = [{"radius": c.rc, "kind": KIND_NAMES[int(kind)], "slope_plus": float(pp),
+                 "slope_minus": float(pm)}]
+    R0 = r[0]
+    message = (f"converged: transonic solution through the saddle at r_c = "
+               f"{c.rc / R0:.5g} R_base (T_c = {c.Tc:.4g} K); photosphere at "
+               f"{R_ph / 6.957e10:.4g} Rsun")
+    return WindResult(model, True, "converged", message, summary, profile, critical,
+                      {"shots": 0, "seconds": time.perf_counter() - t0})
+
+
+SOLVERS = {"isothermal": solve_isothermal, "diffusion": solve_diffusion}
 
 
 def solve(model):

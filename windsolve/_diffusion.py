@@ -1,0 +1,435 @@
+"""Model B drivers: pin (Mdot, r_c, T_c) by shooting and Newton's method.
+
+The compiled legs live in :mod:`windsolve.core.diffusion`; this module only
+decides which legs to run.  Everything here is plain floats in cgs.
+
+Photosphere anchor (given L_ph, T_eff, hence R_ph)
+    For a trial Mdot the photospheric state is complete (tau = 2/3 fixes
+    v_ph), so an inward integration from the photosphere either reaches the
+    sound speed with N > 0 or turns away with N < 0: bisection in ln Mdot
+    between the two outcomes converges on the regular solution.  Its point of
+    closest approach to v = c_T seeds a Newton polish in (ln Mdot, ln r_c,
+    ln T_c), where each trial starts exactly on a critical point and runs
+    outward to the photosphere, so that the final solution is regular by
+    construction and meets the three photospheric conditions to the
+    integration noise.
+Base anchor (given R0, L0 and T0 or rho0)
+    Newton in the same unknowns with residuals (photospheric condition,
+    L(R0) = L0, T(R0) = T0 or rho(R0) = rho0), started from the
+    photosphere-anchored solution with L_ph = L0 whose base temperature (or
+    density) matches, found by a scan and bisection in T_eff.
+"""
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from .core import diffusion as D
+from .core.constants import C_LIGHT, SIGMA_SB
+from .core.critical import SADDLE
+
+DELTA = 1e-6  # start this fraction of r_c off the critical point
+MAX_SHOTS = 200
+SHOT_CAPACITY = 100000
+TIE_DISTANCE = 1e-3  # tie the critical point to the shot this far (in ln r) outside it
+PROFILE_STEP = 0.02  # largest step in ln r of stored profiles (as windsolve.solve.MAX_STEP)
+MAX_NEWTON = 30
+STEP_TOL = 1e-10  # Newton stops when a step changes ln Mdot, ln r_c, ln T_c by less
+DEBUG = False
+NO_X = np.empty(0)
+NO_Y = np.empty((0, 2))
+
+
+class ModelBFailure(Exception):
+    """A Model B solve failed; ``code`` is a kernel status, ``where`` a radius or None."""
+
+    def __init__(self, code, text):
+        super().__init__(text)
+        self.code = code
+        self.text = text
+
+
+@dataclass
+class Critical:
+    """A regular trial solution fixed by its critical point."""
+
+    mdot: float
+    rc: float
+    Tc: float
+    vc: float
+    P: np.ndarray  # parameter vector with Mdot and Edot set
+    slope: float  # dv/dr on the wind branch
+    dTdr: float
+    kind: int
+
+
+def photosphere_radius(L, T):
+    return math.sqrt(L / (4.0 * math.pi * SIGMA_SB * T**4))
+
+
+def critical(P, O, ln_mdot, ln_rc, ln_Tc):
+    """The regular solution through (Mdot, r_c, T_c), or None if there is none."""
+    Q = P.copy()
+    mdot, rc, Tc = math.exp(ln_mdot), math.exp(ln_rc), math.exp(ln_Tc)
+    ok, vc, rho, Lc = D.critical_state(mdot, rc, Tc, Q, O)
+    if not ok:
+        return None
+    kind, pp, pm, dTdr, k1 = D.critical_slopes(rc, vc, Tc, Q, O)
+    if kind != SADDLE:
+        return None
+    return Critical(mdot, rc, Tc, vc, Q, pp, dTdr, kind)
+
+
+def outward(c, O, rtol, out_x=NO_X, out_y=NO_Y, max_step=np.inf):
+    return D.outward_leg(c.rc, c.vc, c.Tc, c.slope, c.dTdr, DELTA, c.P, O, rtol, max_step,
+                         out_x, out_y)
+
+
+def inward(c, O, rtol, out_x=NO_X, out_y=NO_Y, max_step=np.inf):
+    return D.inward_leg(c.rc, c.vc, c.Tc, c.slope, c.dTdr, DELTA, c.P, O, rtol, max_step,
+                        out_x, out_y)
+
+
+def _newton(residual, z, rtol):
+    """Damped Newton with a forward-difference Jacobian.
+
+    The residuals (photospheric T above all) are steep functions of the
+    critical point -- a relative change of 1e-7 in r_c can move T(R_ph) by
+    1e-4 -- so the residual floor set by the integration noise is well above
+    rtol.  Convergence is therefore judged by the size of the Newton step:
+    the solution is known once a full step changes the unknowns by less than
+    STEP_TOL.  Returns (z, last step size, residual).
+    """
+    f = residual(z)
+    if f is None:
+        raise ModelBFailure(D.INVALID, "the starting point of the Newton polish is not a "
+                                       "regular solution")
+    n = len(z)
+    last = np.inf
+    for _ in range(MAX_NEWTON):
+        h = 1e-7
+        J = np.empty((n, n))
+        for j in range(n):
+            dz = np.zeros(n)
+            dz[j] = h
+            fj = residual(z + dz)
+            if fj is None:
+                fj = residual(z - dz)
+                if fj is None:
+                    raise ModelBFailure(D.INVALID, "Newton step left the regular solutions")
+                J[:, j] = (f - fj) / h
+            else:
+                J[:, j] = (fj - f) / h
+        if DEBUG:
+            print("newton", np.abs(f).max(), np.linalg.cond(J), f)
+        try:
+            step = np.linalg.solve(J, -f)
+        except np.linalg.LinAlgError:
+            break
+        size = np.abs(step).max()
+        if size < STEP_TOL:
+            last = size
+            break
+        lam = 1.0
+        norm = np.abs(f).max()
+        while lam > 1e-3:
+            fn = residual(z + lam * step)
+            if fn is not None and np.abs(fn).max() < norm:
+                break
+            lam *= 0.5
+        else:
+            last = size
+            break  # no descent: the residual is at its noise floor
+        z = z + lam * step
+        f = fn
+        last = lam * size
+    return z, last, f
+
+
+@dataclass
+class PhotosphereSolution:
+    """A regular solution found from its photosphere."""
+
+    crit: Critical  # the critical point (with Mdot, Edot in crit.P)
+    R_ph: float
+    L_ph: float
+    T_ph: float
+    v_ph: float
+    ln_mdot: float
+
+
+def _bracket(P, O, R_ph, L_ph, T_eff, rtol):
+    """ln Mdot bracket (lo, hi, code at lo) between the two ways of missing."""
+    Q = P.copy()
+    gamma_thin = Q[D.I_KES] * L_ph / (4.0 * math.pi * C_LIGHT * Q[D.I_GM])
+    W = 2.0 * Q[D.I_GM] * (1.0 - gamma_thin) / R_ph
+    mdot_min = 4.0 * math.pi * R_ph * math.sqrt(W) / (3.0 * Q[D.I_KES]) if W > 0 else 1e-30
+    x = math.log(mdot_min) + 1e-6
+    failures = {}
+    sides = (D.SIDE_SONIC, D.SIDE_TURN)
+    code_prev = D.shoot_from_photosphere(x, R_ph, L_ph, T_eff, Q, O, rtol)[0]
+    step = 0.25
+    xs = x
+    for _ in range(MAX_SHOTS):
+        xs += step
+        code, r, v, T = D.shoot_from_photosphere(xs, R_ph, L_ph, T_eff, Q, O, rtol)
+        if code not in sides:
+            failures[code] = r
+        if code in sides and code_prev in sides and code != code_prev:
+            return xs - step, xs, code_prev
+        code_prev = code
+        if xs - x > 60.0:
+            break
+        step = min(step * 1.5, 2.0)
+    if D.OFF_TABLE in failures:
+        raise ModelBFailure(D.OFF_TABLE, "below the photosphere the solution leaves the "
+                                         "opacity table for every mass-loss rate tried")
+    raise ModelBFailure(D.INVALID, "no mass-loss rate gives a solution that passes smoothly "
+                                   "through a sonic point below this photosphere (Gamma never "
+                                   "exceeds 1 on the way in, or the flow stalls)")
+
+
+def _refine_critical(P, O, ln_mdot, stop, tie, rtol):
+    """Critical point of the (Mdot, Edot) in P nearest an inward shot's stop.
+
+    The shot stops a small distance d past... short of the saddle on the
+    separatrix.  Project onto the critical curve (N = 0 at v = c_T) and step
+    back along the saddle's slope: v_s - c_T(T_c) = p (r_s - r_c), iterated
+    until r_c settles (the error is O(d^2)).
+    """
+    r_s, v_s, T_s = stop
+    rc = r_s
+    Tc = T_s
+    for _ in range(8):
+        Tp = D.critical_temperature_at(rc, Tc, P, O)
+        if not math.isfinite(Tp):
+            break
+        Tc = Tp
+        c = critical(P, O, ln_mdot, math.log(rc), math.log(Tc))
+        if c is None:
+            break
+        rc_new = r_s - (v_s - c.vc) / c.slope
+        if abs(rc_new / rc - 1.0) < 1e-13:
+            rc = rc_new
+            break
+        rc = rc_new
+    # Then tie it to the shot exactly: the wind branch leaving (r_c, T_c)
+    # must pass through the stop point (secant on r_c along the critical curve).
+    r_t, v_t, T_t = tie
+
+    def miss(rc_try, Tc_guess):
+        Tt = D.critical_temperature_at(rc_try, Tc_guess, P, O)
+        if not math.isfinite(Tt):
+            return math.nan, Tt
+        ct = critical(P, O, ln_mdot, math.log(rc_try), math.log(Tt))
+        if ct is None or rc_try * (1.0 + DELTA) >= r_t:
+            return math.nan, Tt
+        lnv, lnT = D.short_outward(ct.rc, ct.vc, ct.Tc, ct.slope, ct.dTdr, DELTA, r_t, ct.P,
+                                   O, rtol)
+        return lnv - math.log(v_t), Tt
+
+    f0, T0 = miss(rc, Tc)
+    if DEBUG:
+        print("refine start", rc, Tc, r_s, f0)
+    if math.isfinite(f0):
+        rc1 = rc * (1.0 - 1e-6)
+        f1, T1 = miss(rc1, T0)
+        for _ in range(20):
+            if not math.isfinite(f1) or f1 == f0:
+                break
+            rc2 = rc1 - f1 * (rc1 - rc) / (f1 - f0)
+            rc, f0, T0 = rc1, f1, T1
+            rc1 = rc2
+            f1, T1 = miss(rc1, T0)
+            if DEBUG:
+                print("  refine", rc1, f1)
+            if abs(rc1 / rc - 1.0) < 1e-14 or abs(f1) < 1e-13:
+                break
+        if math.isfinite(f1) and abs(f1) < abs(f0):
+            rc, Tc = rc1, T1
+        else:
+            Tc = T0
+    Tc = D.critical_temperature_at(rc, Tc, P, O)
+    c = critical(P, O, ln_mdot, math.log(rc), math.log(Tc)) if math.isfinite(Tc) else None
+    if c is None:
+        raise ModelBFailure(D.INVALID, "the sonic point the photosphere leads to is not a "
+                                       "saddle (no transonic wind through it)")
+    return c
+
+
+def solve_photosphere_anchor(P, O, L_ph, T_eff, rtol, out_x=NO_X, out_y=NO_Y,
+                             max_step=np.inf):
+    """The regular solution with photosphere (L_ph, T_eff); stores the outer path.
+
+    Returns (PhotosphereSolution, n_stored): the stored points run inward from
+    the photosphere to just outside the critical point.
+    """
+    R_ph = photosphere_radius(L_ph, T_eff)
+    if P[D.I_R_IN] > 0.0 and R_ph <= P[D.I_R_IN]:
+        raise ModelBFailure(D.INVALID, "the photosphere lies inside the base radius")
+    lo, hi, code_lo = _bracket(P, O, R_ph, L_ph, T_eff, rtol)
+    Q = P.copy()
+    # Bisect with the step limit of the stored shot below: a different step
+    # sequence is a (slightly) different integration, and at a bracket of
+    # 1e-14 that can flip the side the stored shot falls on.
+    while hi - lo > 1e-14 * (1.0 + abs(lo)):
+        m = 0.5 * (lo + hi)
+        code = D.shoot_stored(m, R_ph, L_ph, T_eff, Q, O, rtol, max_step, NO_X, NO_Y)[0]
+        if code == code_lo:
+            lo = m
+        elif code in (D.SIDE_SONIC, D.SIDE_TURN):
+            hi = m
+        else:
+            raise ModelBFailure(code, "the inward integration from the photosphere failed "
+                                      "while bracketing the mass-loss rate")
+    # The sonic-side shot hugs the separatrix down to the sound speed.
+    x_sonic = lo if code_lo == D.SIDE_SONIC else hi
+    if out_x.shape[0] == 0:
+        out_x = np.empty(SHOT_CAPACITY)
+        out_y = np.empty((SHOT_CAPACITY, 2))
+    code, r, v, T, n = D.shoot_stored(x_sonic, R_ph, L_ph, T_eff, Q, O, rtol, max_step,
+                                      out_x, out_y)
+    if code != D.SIDE_SONIC or n < 2:
+        raise ModelBFailure(D.FAILED, "the converged inward solution did not reach the "
+                                      "sonic point; try another numerics.rtol")
+    v_ph = D.photospheric_state(math.exp(x_sonic), R_ph, L_ph, T_eff, Q)
+    # The shot leaves the separatrix only in the last ~1e-6 before the sonic
+    # line; tie the critical point to a stored point further out.
+    k = n - 1
+    while k > 0 and out_x[k] < math.log(r) + TIE_DISTANCE:
+        k -= 1
+    tie = (math.exp(out_x[k]), math.exp(out_y[k, 0]), math.exp(out_y[k, 1]))
+    c = _refine_critical(Q, O, x_sonic, (r, v, T), tie, rtol)
+    return PhotosphereSolution(c, R_ph, L_ph, T_eff, v_ph, x_sonic), n
+
+
+def base_values(P, O, L_ph, T_eff, rtol):
+    """(solution, L, T, rho) at the inner end for the photosphere (L_ph, T_eff)."""
+    # The same step limits as the stored profile, so that the base values a
+    # result reports are the ones matched here.
+    sol, n = solve_photosphere_anchor(P, O, L_ph, T_eff, rtol, max_step=PROFILE_STEP)
+    st, rb, vb, Tb, Lb, n = inward(sol.crit, O, rtol, max_step=PROFILE_STEP)
+    if st != D.OK or Lb <= 0.0:
+        raise ModelBFailure(st if st != D.OK else D.STALLED,
+                            "the subsonic solution does not reach the base")
+    return sol, Lb, Tb, sol.crit.mdot / (4.0 * math.pi * rb * rb * vb)
+
+
+def solve_base_anchor(P, O, L0, base_kind, base_value, rtol):
+    """(L_ph, T_eff) of the solution whose inner end (R0 = P[I_R_IN]) has L0 and T0 (or rho0).
+
+    Two nested one-dimensional root-finds, each trial a photosphere-anchored
+    solve (inward integrations are the numerically stable direction of an
+    optically thick envelope; the base temperature is a steep function of
+    T_eff, which defeats a plain two-dimensional Newton step): the inner one
+    finds T_eff that gives the base value for a photospheric luminosity, the
+    outer one (secant in ln L_ph) makes L(R0) = L0.
+    """
+    def base_miss(L_ph, T_eff):
+        sol, Lb, Tb, rhob = base_values(P, O, L_ph, T_eff, rtol)
+        b = Tb if base_kind == "temperature" else rhob
+        return math.log(b) - math.log(base_value), Lb
+
+    def match(L_ph, lt_guess):
+        """ln T_eff giving the base value at this L_ph, and L(R0) there."""
+        try:
+            if lt_guess is None:
+                raise ModelBFailure(D.INVALID, "no guess")
+            lo, hi, d_lo, d_hi = _local_bracket(base_miss, L_ph, lt_guess)
+        except ModelBFailure:
+            lo, hi, d_lo, d_hi = _scan_bracket(base_miss, L_ph, P[D.I_R_IN])
+        Lb = None
+        for _ in range(80):
+            m = lo - d_lo * (hi - lo) / (d_hi - d_lo)
+            if not lo < m < hi:
+                m = 0.5 * (lo + hi)
+            try:
+                dm, Lb = base_miss(L_ph, math.exp(m))
+            except ModelBFailure:
+                m = 0.5 * (lo + hi)  # a failed trial: fall back on bisection
+                dm, Lb = base_miss(L_ph, math.exp(m))
+            if abs(dm) < 1e-11 or hi - lo < 1e-14:
+                return m, Lb
+            if (dm > 0) == (d_lo > 0):
+                lo, d_lo = m, dm
+                d_hi *= 0.5  # Illinois: keep the stale end from stalling
+            else:
+                hi, d_hi = m, dm
+                d_lo *= 0.5
+        return m, Lb
+
+    try:
+        u0 = math.log(L0)
+        lt0, Lb0 = match(L0, None)
+        f0 = math.log(Lb0) - u0
+        u1 = u0 - max(min(f0, 0.05), -0.05)  # L(R0) ~ L_ph (1 + f0): a cautious first step
+        lt1, Lb1 = match(math.exp(u1), lt0)
+        f1 = math.log(Lb1) - u0
+        for _ in range(30):
+            if abs(f1) < 1e-10 or f1 == f0:
+                break
+            u2 = u1 - f1 * (u1 - u0) / (f1 - f0)
+            u0, f0, lt0 = u1, f1, lt1
+            u1 = u2
+            lt1, Lb1 = match(math.exp(u1), lt0)
+            f1 = math.log(Lb1) - math.log(L0)
+    except ModelBFailure as failure:
+        raise ModelBFailure(failure.code, f"no wind reaches R0 with L0 and the given base "
+                                          f"{base_kind}: {failure.text}") from None
+    if abs(f1) > 1e-6:
+        raise ModelBFailure(D.FAILED, f"the base luminosity could only be matched to "
+                                      f"{abs(f1):.1e}")
+    return math.exp(u1), math.exp(lt1)
+
+
+def _scan_bracket(base_miss, L_ph, R0):
+    """Bracket ln T_eff on a coarse grid; raises if the family never crosses."""
+    prev = None
+    for lt in np.linspace(math.log(2e3), math.log(2e6), 31):
+        if photosphere_radius(L_ph, math.exp(lt)) <= 1.02 * R0:
+            break
+        try:
+            d, Lb = base_miss(L_ph, math.exp(lt))
+        except ModelBFailure:
+            # Past the edge of the family: look between the last good point
+            # and here, where the crossing often sits.
+            if prev is not None:
+                a, b = prev[0], lt
+                for _ in range(12):
+                    m = 0.5 * (a + b)
+                    try:
+                        dm, Lb = base_miss(L_ph, math.exp(m))
+                    except ModelBFailure:
+                        b = m
+                        continue
+                    if (dm > 0) != (prev[1] > 0):
+                        return prev[0], m, prev[1], dm
+                    a = m
+                    prev = (m, dm)
+            prev = None
+            continue
+        if prev is not None and (d > 0) != (prev[1] > 0):
+            return prev[0], lt, prev[1], d
+        prev = (lt, d)
+    raise ModelBFailure(D.INVALID, "the photospherically consistent solutions never reach "
+                                   "that base value at R0")
+
+
+def _local_bracket(base_miss, L_ph, lt):
+    """Bracket ln T_eff around a previous root by widening steps."""
+    d0, Lb = base_miss(L_ph, math.exp(lt))
+    step = 1e-3
+    for _ in range(40):
+        for s in (1.0, -1.0):
+            lt2 = lt + s * step
+            try:
+                d2, Lb2 = base_miss(L_ph, math.exp(lt2))
+            except ModelBFailure:
+                continue
+            if (d2 > 0) != (d0 > 0):
+                return (lt, lt2, d0, d2) if lt < lt2 else (lt2, lt, d2, d0)
+        step *= 2.0
+        if step > 1.0:
+            break
+    raise ModelBFailure(D.INVALID, "lost the base value while adjusting the luminosity")

@@ -1,0 +1,551 @@
+"""Model B kernels: the optically thick wind with radiative diffusion.
+
+Gas plus radiation in LTE, diffusion approximation, steady and spherical
+(SPEC section 5).  With c_T^2 = k T / (mu m_u) and rho = Mdot / (4 pi r^2 v):
+
+.. math::
+
+    \\frac{dT}{dr} = -\\frac{3 \\kappa \\rho L_r}{16 \\pi a c r^2 T^3}
+
+    (v - c_T^2/v) \\frac{dv}{dr} = N \\equiv \\frac{2 c_T^2}{r} - \\frac{GM}{r^2}
+        + \\frac{\\kappa L_r}{4 \\pi r^2 c} - \\frac{k}{\\mu m_u} \\frac{dT}{dr}
+
+    \\dot E = L_r + \\dot M \\left[\\frac{v^2}{2} + \\frac{5}{2} c_T^2
+        + \\frac{4}{3} \\frac{a T^4}{\\rho} - \\frac{GM}{r}\\right] = {\\rm const}
+
+The energy integral gives L_r algebraically, so the state is (r, v, T) and
+the kernels integrate y = (ln v, ln T) against x = ln r with the same DOP853
+integrator as Model A.  The equations are those of the optically thick wind
+theory of Kato & Iben (1992, ApJ 394, 305) and Kato & Hachisu (1994, ApJ
+437, 802) in the form of SPEC section 5 (references from memory).
+
+A regular solution is fixed by its critical point (Mdot, r_c, T_c): v_c =
+c_T(T_c), and N = 0 is linear in L_r, which gives L_c and then Edot
+(:func:`critical_state`).  Legs run outward from the critical point to the
+photosphere (located as an event, :func:`outward_leg`) and inward to the
+base (:func:`inward_leg`); :func:`shoot_from_photosphere` integrates inward
+from a photospheric state, the robust way to bracket Mdot.
+
+Parameter vector ``P`` (slots ``I_*``); the user layer builds it.
+"""
+
+import math
+
+import numpy as np
+from numba import njit
+
+from .constants import A_RAD, C_LIGHT, SIGMA_SB
+from .critical import classify, make_root_refiner
+from .integrate import REACHED_END, STEP_TOO_SMALL, make_integrator
+from .opacity import effective_opacity
+
+FOUR_PI = 4.0 * math.pi
+
+# --- parameter slots -------------------------------------------------------
+I_GM = 0  # G M [cm3 s-2]
+I_KG = 1  # k / (mu m_u): c_T^2 = I_KG * T [erg g-1 K-1]
+I_MDOT = 2  # mass-loss rate [g s-1]
+I_EDOT = 3  # energy flux Edot [erg s-1]
+I_KES = 4  # electron-scattering opacity of the thin flow [cm2 g-1]
+I_R_IN = 5  # inner radius where inward legs stop [cm] (0: none)
+I_T_IN = 6  # base temperature where inward legs stop [K] (inf: none)
+I_R_OUT = 7  # outward legs give up beyond this radius [cm]
+I_PREV_X = 8  # monitor bookkeeping: last accepted ln r
+I_PREV_Y0 = 9  # ... and ln v
+I_PREV_Y1 = 10  # ... and ln T
+I_PREV_N = 11  # ... and the sign of N (shooting from the photosphere)
+N_PARAMS = 12
+
+TAU_PH = 2.0 / 3.0  # optical depth of the photosphere
+SONIC_GAP = 1e-4  # |v^2 - c_T^2| / c_T^2 below which an inward shot is at the sonic point
+
+# --- leg status codes ------------------------------------------------------
+OK = 0
+PHOTOSPHERE = 1  # outward leg reached tau = 2/3
+STALLED = 2  # L_r <= 0: the radiation is used up
+SINGULAR = 3  # v reached c_T with N != 0
+OFF_TABLE = 4  # (rho, T) left the opacity table
+NO_PHOTOSPHERE = 5  # reached r_out still optically thick
+BASE = 6  # inward leg reached the base (R0 or T_base)
+FALLBACK = 7  # v_inf^2 <= 0 above the photosphere: the matter does not escape
+INVALID = 8  # no critical point for these (Mdot, r_c, T_c): L_c <= 0 or not a saddle
+FAILED = 9  # integration failed
+SIDE_SONIC = 10  # shooting inward: v reached c_T with N > 0
+SIDE_TURN = 11  # shooting inward: N turned from + to - before the sonic point
+
+
+@njit(cache=True, error_model="numpy", inline="always")
+def luminosity(r, v, T, rho, P):
+    """L_r from the energy integral [erg s-1]."""
+    return P[I_EDOT] - P[I_MDOT] * (0.5 * v * v + 2.5 * P[I_KG] * T
+                                    + (4.0 / 3.0) * A_RAD * T**4 / rho - P[I_GM] / r)
+
+
+@njit(cache=True, error_model="numpy")
+def state(r, v, T, P, O):
+    """(rho, L_r, kappa, dT/dr, N) at (r, v, T)."""
+    rho = P[I_MDOT] / (FOUR_PI * r * r * v)
+    L = luminosity(r, v, T, rho, P)
+    k = effective_opacity(O, rho, T, r)
+    dTdr = -3.0 * k * rho * L / (4.0 * FOUR_PI * A_RAD * C_LIGHT * r * r * T**3)
+    N = (2.0 * P[I_KG] * T / r - P[I_GM] / (r * r) + k * L / (FOUR_PI * C_LIGHT * r * r)
+         - P[I_KG] * dTdr)
+    return rho, L, k, dTdr, N
+
+
+@njit(cache=True, error_model="numpy")
+def rhs(x, y, P, O, dydx):
+    """d(ln v, ln T)/d ln r."""
+    r = math.exp(x)
+    v = math.exp(y[0])
+    T = math.exp(y[1])
+    rho, L, k, dTdr, N = state(r, v, T, P, O)
+    dydx[0] = r * N / (v * v - P[I_KG] * T)
+    dydx[1] = r * dTdr / T
+
+
+@njit(cache=True, error_model="numpy")
+def terminal_velocity_squared(r, v, L, P):
+    """v_inf^2 of the ballistic thin flow above r (SPEC section 5)."""
+    gamma_thin = P[I_KES] * L / (FOUR_PI * C_LIGHT * P[I_GM])
+    return v * v - 2.0 * P[I_GM] * (1.0 - gamma_thin) / r
+
+
+@njit(cache=True, error_model="numpy")
+def thin_optical_depth(r, v, L, P):
+    """tau = kappa_es Mdot / (2 pi r (v + v_inf)) of the flow above r; inf if bound."""
+    w2 = terminal_velocity_squared(r, v, L, P)
+    if w2 <= 0.0:
+        return np.inf
+    return P[I_KES] * P[I_MDOT] / (2.0 * math.pi * r * (v + math.sqrt(w2)))
+
+
+@njit(cache=True, error_model="numpy")
+def photosphere_excess(x, y, P, O):
+    """ln(tau_thin / (2/3)) at (x, y): negative above the photosphere."""
+    r = math.exp(x)
+    v = math.exp(y[0])
+    T = math.exp(y[1])
+    rho = P[I_MDOT] / (FOUR_PI * r * r * v)
+    L = luminosity(r, v, T, rho, P)
+    return math.log(thin_optical_depth(r, v, L, P) / TAU_PH)
+
+
+@njit(cache=True, error_model="numpy")
+def monitor_outward(x, y, P, O):
+    r = math.exp(x)
+    v = math.exp(y[0])
+    T = math.exp(y[1])
+    rho, L, k, dTdr, N = state(r, v, T, P, O)
+    if not math.isfinite(k):
+        return OFF_TABLE
+    if L <= 0.0:
+        return STALLED
+    cT2 = P[I_KG] * T
+    if v * v - cT2 < 1e-3 * cT2 and N < 0.0:
+        return SINGULAR
+    if thin_optical_depth(r, v, L, P) <= TAU_PH:
+        return PHOTOSPHERE
+    if r > P[I_R_OUT]:
+        return NO_PHOTOSPHERE
+    P[I_PREV_X] = x
+    P[I_PREV_Y0] = y[0]
+    P[I_PREV_Y1] = y[1]
+    return 0
+
+
+@njit(cache=True, error_model="numpy")
+def monitor_inward(x, y, P, O):
+    r = math.exp(x)
+    v = math.exp(y[0])
+    T = math.exp(y[1])
+    rho, L, k, dTdr, N = state(r, v, T, P, O)
+    if not math.isfinite(k):
+        return OFF_TABLE
+    if L <= 0.0:
+        return STALLED
+    cT2 = P[I_KG] * T
+    if v * v - cT2 > -1e-3 * cT2 and N > 0.0:
+        return SINGULAR
+    if T >= P[I_T_IN]:
+        return BASE
+    P[I_PREV_X] = x
+    P[I_PREV_Y0] = y[0]
+    P[I_PREV_Y1] = y[1]
+    return 0
+
+
+@njit(cache=True, error_model="numpy")
+def monitor_shoot(x, y, P, O):
+    """Inward from the photosphere: which side of the critical solution?"""
+    r = math.exp(x)
+    v = math.exp(y[0])
+    T = math.exp(y[1])
+    rho, L, k, dTdr, N = state(r, v, T, P, O)
+    if not math.isfinite(k):
+        return OFF_TABLE
+    if L <= 0.0:
+        return STALLED
+    cT2 = P[I_KG] * T
+    if v * v - cT2 < SONIC_GAP * cT2:
+        return SIDE_SONIC if N > 0.0 else SIDE_TURN
+    # N from + to - moving inward: the flow turns away from the sonic point.
+    # (From - to + is the velocity maximum outside an opacity bump.)
+    if N < 0.0 and P[I_PREV_N] > 0.0:
+        return SIDE_TURN
+    P[I_PREV_N] = 1.0 if N > 0.0 else -1.0
+    P[I_PREV_X] = x
+    P[I_PREV_Y0] = y[0]
+    P[I_PREV_Y1] = y[1]
+    if T >= P[I_T_IN]:
+        return BASE
+    return 0
+
+
+@njit(cache=True, error_model="numpy")
+def monitor_none(x, y, P, O):
+    return 0
+
+
+integrate_outward = make_integrator(rhs, monitor_outward)
+integrate_inward = make_integrator(rhs, monitor_inward)
+integrate_shoot = make_integrator(rhs, monitor_shoot)
+integrate_plain = make_integrator(rhs, monitor_none)
+
+
+@njit(cache=True, error_model="numpy")
+def critical_state(mdot, rc, Tc, P, O):
+    """Set Mdot and Edot in P for the critical point (rc, Tc).
+
+    Returns ``(ok, vc, rho_c, L_c)``; ok is False when N = 0 needs L_c <= 0
+    (r_c beyond GM / (2 c_T^2)) or the opacity is undefined there.
+    """
+    KG = P[I_KG]
+    vc = math.sqrt(KG * Tc)
+    rho = mdot / (FOUR_PI * rc * rc * vc)
+    k = effective_opacity(O, rho, Tc, rc)
+    A = k / (FOUR_PI * C_LIGHT * rc * rc)
+    B = KG * 3.0 * k * rho / (4.0 * FOUR_PI * A_RAD * C_LIGHT * rc * rc * Tc**3)
+    Lc = (P[I_GM] / (rc * rc) - 2.0 * KG * Tc / rc) / (A + B)
+    P[I_MDOT] = mdot
+    P[I_EDOT] = Lc + mdot * (0.5 * vc * vc + 2.5 * KG * Tc
+                             + (4.0 / 3.0) * A_RAD * Tc**4 / rho - P[I_GM] / rc)
+    ok = math.isfinite(Lc) and Lc > 0.0
+    return ok, vc, rho, Lc
+
+
+@njit(cache=True, error_model="numpy")
+def n_of(r, v, T, P, O):
+    return state(r, v, T, P, O)[4]
+
+
+@njit(cache=True, error_model="numpy")
+def critical_slopes(rc, vc, Tc, P, O):
+    """(kind, p_plus, p_minus, T', k1) at a critical point (Mdot, Edot in P).
+
+    L'Hopital with D = v - c_T^2/v: dD/dr = 2p - k1, k1 = (k/mu m_u) T'/v,
+    so 2p^2 - (N_v + k1) p - (N_r + N_T T') = 0 (SPEC section 5), with the
+    partials of N at fixed Mdot and Edot by central differences.
+    """
+    hr = 1e-5 * rc
+    hv = 1e-5 * vc
+    hT = 1e-5 * Tc
+    n_r = (n_of(rc + hr, vc, Tc, P, O) - n_of(rc - hr, vc, Tc, P, O)) / (2.0 * hr)
+    n_v = (n_of(rc, vc + hv, Tc, P, O) - n_of(rc, vc - hv, Tc, P, O)) / (2.0 * hv)
+    n_T = (n_of(rc, vc, Tc + hT, P, O) - n_of(rc, vc, Tc - hT, P, O)) / (2.0 * hT)
+    dTdr = state(rc, vc, Tc, P, O)[3]
+    k1 = P[I_KG] * dTdr / vc
+    kind, pp, pm = classify(n_v + k1, n_r + n_T * dTdr, k1)
+    return kind, pp, pm, dTdr, k1
+
+
+refine_photosphere_x = make_root_refiner(photosphere_excess)
+
+
+@njit(cache=True, error_model="numpy")
+def sonic_balance_lnT(lnT, P, O):
+    """N at v = c_T(T) and r = P[I_PREV_X] (Mdot, Edot fixed), as a function of ln T."""
+    T = math.exp(lnT)
+    return n_of(P[I_PREV_X], math.sqrt(P[I_KG] * T), T, P, O)
+
+
+refine_sonic_T = make_root_refiner(sonic_balance_lnT)
+
+
+@njit(cache=True, error_model="numpy")
+def critical_temperature_at(r, T_guess, P, O):
+    """T_c with N(r, c_T(T_c), T_c) = 0 for the Mdot and Edot in P, near T_guess.
+
+    Projects a point where an inward shot came close to the sonic point onto
+    the critical curve of the same (Mdot, Edot); NaN if no root is bracketed
+    within a factor 1.5 of T_guess.
+    """
+    Q = P.copy()
+    Q[I_PREV_X] = r
+    lo = math.log(T_guess)
+    f0 = sonic_balance_lnT(lo, Q, O)
+    d = 1e-7
+    for _ in range(40):
+        # Widen geometrically from a tiny step: the root sought is the one
+        # nearest T_guess (the critical curve can have another branch a few
+        # per cent away).
+        d *= 1.5
+        if d > 0.4:
+            break
+        a = lo - d
+        b = lo + d
+        fa = sonic_balance_lnT(a, Q, O)
+        fb = sonic_balance_lnT(b, Q, O)
+        if (fa > 0.0) != (f0 > 0.0):
+            return math.exp(refine_sonic_T(a, lo, fa, f0, Q, O, 1e-14))
+        if (fb > 0.0) != (f0 > 0.0):
+            return math.exp(refine_sonic_T(lo, b, f0, fb, Q, O, 1e-14))
+    return math.nan
+
+
+@njit(cache=True, error_model="numpy")
+def locate_photosphere(P, O, x1, y1, rtol):
+    """Refine the tau = 2/3 crossing between the stored previous point and x1.
+
+    Returns (x_ph, y_ph) with y integrated from the previous accepted point.
+    """
+    x0 = P[I_PREV_X]
+    y0 = np.empty(2)
+    y0[0] = P[I_PREV_Y0]
+    y0[1] = P[I_PREV_Y1]
+    f0 = photosphere_excess(x0, y0, P, O)
+    f1 = photosphere_excess(x1, y1, P, O)
+    no_x = np.empty(0)
+    no_y = np.empty((0, 2))
+    lo = x0
+    hi = x1
+    y_lo = y0.copy()
+    # Illinois iterations, each a short plain integration from the previous
+    # accepted point (the integrator has no dense output).
+    side = 0
+    x = x1
+    y = y1.copy()
+    for _ in range(60):
+        if f1 == f0:
+            xm = 0.5 * (lo + hi)
+        else:
+            xm = (lo * f1 - hi * f0) / (f1 - f0)
+            if not lo < xm < hi:
+                xm = 0.5 * (lo + hi)
+        st, xx, ym, n, nf = integrate_plain(lo, y_lo, xm, P, O, 0.0, rtol,
+                                            0.5 * (xm - lo), np.inf, no_x, no_y)
+        fm = photosphere_excess(xm, ym, P, O)
+        x = xm
+        y = ym
+        if abs(fm) < 1e-13 or hi - lo < 1e-14 * (1.0 + abs(lo)):
+            break
+        if (fm > 0.0) == (f0 > 0.0):
+            lo = xm
+            y_lo = ym.copy()
+            f0 = fm
+            if side == -1:
+                f1 *= 0.5
+            side = -1
+        else:
+            hi = xm
+            f1 = fm
+            if side == 1:
+                f0 *= 0.5
+            side = 1
+    return x, y
+
+
+@njit(cache=True, error_model="numpy")
+def outward_leg(rc, vc, Tc, p, dTdr, delta, P, O, rtol, max_step, out_x, out_y):
+    """From just outside the critical point to the photosphere.
+
+    Returns (status, r_ph, v_ph, T_ph, L_ph, n_stored).  The stored points
+    end with the photosphere itself.
+    """
+    y0 = np.empty(2)
+    x0 = math.log(rc * (1.0 + delta))
+    y0[0] = math.log(vc + p * delta * rc)
+    y0[1] = math.log(Tc + dTdr * delta * rc)
+    P[I_PREV_X] = x0
+    P[I_PREV_Y0] = y0[0]
+    P[I_PREV_Y1] = y0[1]
+    st, x, y, n, nfev = integrate_outward(x0, y0, math.log(P[I_R_OUT]) + 1.0, P, O, 0.0, rtol,
+                                          delta, max_step, out_x, out_y)
+    if st == PHOTOSPHERE:
+        xp, yp = locate_photosphere(P, O, x, y, rtol)
+        if n > 0:
+            out_x[n - 1] = xp
+            out_y[n - 1, 0] = yp[0]
+            out_y[n - 1, 1] = yp[1]
+        r = math.exp(xp)
+        v = math.exp(yp[0])
+        T = math.exp(yp[1])
+        rho = P[I_MDOT] / (FOUR_PI * r * r * v)
+        L = luminosity(r, v, T, rho, P)
+        if terminal_velocity_squared(r, v, L, P) <= 0.0:
+            return FALLBACK, r, v, T, L, n
+        return OK, r, v, T, L, n
+    r = math.exp(x)
+    v = math.exp(y[0])
+    T = math.exp(y[1])
+    rho = P[I_MDOT] / (FOUR_PI * r * r * v)
+    L = luminosity(r, v, T, rho, P)
+    if st == REACHED_END:
+        st = NO_PHOTOSPHERE
+    elif st < 0:
+        st = SINGULAR if st == STEP_TOO_SMALL else FAILED
+    return st, r, v, T, L, n
+
+
+@njit(cache=True, error_model="numpy")
+def inward_leg(rc, vc, Tc, p, dTdr, delta, P, O, rtol, max_step, out_x, out_y):
+    """From just inside the critical point down to R_in (or T_in).
+
+    Returns (status, r, v, T, L, n_stored) at the inner end.
+    """
+    y0 = np.empty(2)
+    x0 = math.log(rc * (1.0 - delta))
+    y0[0] = math.log(vc - p * delta * rc)
+    y0[1] = math.log(Tc - dTdr * delta * rc)
+    P[I_PREV_X] = x0
+    P[I_PREV_Y0] = y0[0]
+    P[I_PREV_Y1] = y0[1]
+    x_end = math.log(P[I_R_IN]) if P[I_R_IN] > 0.0 else x0 - 30.0
+    st, x, y, n, nfev = integrate_inward(x0, y0, x_end, P, O, 0.0, rtol, delta, max_step,
+                                         out_x, out_y)
+    if st == BASE:
+        # Refine to T = T_in exactly (bisection on short plain legs).
+        lo = x
+        hi = P[I_PREV_X]
+        y_hi = np.empty(2)
+        y_hi[0] = P[I_PREV_Y0]
+        y_hi[1] = P[I_PREV_Y1]
+        lnT_in = math.log(P[I_T_IN])
+        no_x = np.empty(0)
+        no_y = np.empty((0, 2))
+        for _ in range(60):
+            xm = 0.5 * (lo + hi)
+            s2, xx, ym, nn, nf = integrate_plain(hi, y_hi, xm, P, O, 0.0, rtol,
+                                                 0.5 * (hi - xm), np.inf, no_x, no_y)
+            x = xm
+            y = ym
+            if ym[1] > lnT_in:
+                lo = xm
+            else:
+                hi = xm
+                y_hi = ym.copy()
+            if hi - lo < 1e-13 * (1.0 + abs(lo)):
+                break
+        if n > 0:
+            out_x[n - 1] = x
+            out_y[n - 1, 0] = y[0]
+            out_y[n - 1, 1] = y[1]
+        st = OK
+    elif st == REACHED_END:
+        st = OK if P[I_R_IN] > 0.0 else FAILED
+    elif st == STEP_TOO_SMALL:
+        st = SINGULAR
+    elif st < 0:
+        st = FAILED
+    r = math.exp(x)
+    v = math.exp(y[0])
+    T = math.exp(y[1])
+    rho = P[I_MDOT] / (FOUR_PI * r * r * v)
+    return st, r, v, T, luminosity(r, v, T, rho, P), n
+
+
+@njit(cache=True, error_model="numpy")
+def short_outward(rc, vc, Tc, p, dTdr, delta, r_target, P, O, rtol):
+    """(ln v, ln T) at r_target > r_c on the wind branch of the critical point.
+
+    Only a short way out, so the outward growth of errors in an optically
+    thick envelope does not matter; used to tie a critical point to an
+    inward shot that stopped near it.
+    """
+    y0 = np.empty(2)
+    x0 = math.log(rc * (1.0 + delta))
+    y0[0] = math.log(vc + p * delta * rc)
+    y0[1] = math.log(Tc + dTdr * delta * rc)
+    st, x, y, n, nfev = integrate_plain(x0, y0, math.log(r_target), P, O, 0.0, rtol, delta,
+                                        np.inf, np.empty(0), np.empty((0, 2)))
+    if st != REACHED_END:
+        y[0] = math.nan
+    return y[0], y[1]
+
+
+@njit(cache=True, error_model="numpy")
+def photospheric_state(mdot, R, L, T, P):
+    """Set Mdot and Edot in P from a photosphere (R, L, T); returns v_ph.
+
+    tau = kappa_es Mdot / (2 pi R (v + v_inf)) = 2/3 with v_inf^2 = v^2 - W,
+    W = 2 GM (1 - Gamma_thin) / R, gives v = (S^2 + W) / (2 S) with
+    S = 3 kappa_es Mdot / (4 pi R); NaN when v_inf would not be positive.
+    """
+    gamma_thin = P[I_KES] * L / (FOUR_PI * C_LIGHT * P[I_GM])
+    W = 2.0 * P[I_GM] * (1.0 - gamma_thin) / R
+    S = 3.0 * P[I_KES] * mdot / (FOUR_PI * R)
+    if S * S <= W:
+        return math.nan
+    v = (S * S + W) / (2.0 * S)
+    rho = mdot / (FOUR_PI * R * R * v)
+    P[I_MDOT] = mdot
+    P[I_EDOT] = L + mdot * (0.5 * v * v + 2.5 * P[I_KG] * T
+                            + (4.0 / 3.0) * A_RAD * T**4 / rho - P[I_GM] / R)
+    return v
+
+
+@njit(cache=True, error_model="numpy")
+def shoot_from_photosphere(ln_mdot, R, L, T, P, O, rtol):
+    """As :func:`shoot_stored` without storing the path."""
+    return shoot_stored(ln_mdot, R, L, T, P, O, rtol, np.inf, np.empty(0),
+                        np.empty((0, 2)))[:4]
+
+
+@njit(cache=True, error_model="numpy")
+def shoot_stored(ln_mdot, R, L, T, P, O, rtol, max_step, out_x, out_y):
+    """Integrate inward from the photosphere (R, L, T) for Mdot = e^ln_mdot.
+
+    Returns (code, r, v, T) at the stop: SIDE_SONIC or SIDE_TURN say on which
+    side of the critical solution Mdot lies; others are failures.
+    """
+    v = photospheric_state(math.exp(ln_mdot), R, L, T, P)
+    if not math.isfinite(v):
+        return FALLBACK, R, math.nan, T, 0
+    y0 = np.empty(2)
+    y0[0] = math.log(v)
+    y0[1] = math.log(T)
+    P[I_PREV_N] = 0.0
+    x0 = math.log(R)
+    x_end = math.log(P[I_R_IN]) if P[I_R_IN] > 0.0 else x0 - 30.0
+    st, x, y, n, nfev = integrate_shoot(x0, y0, x_end, P, O, 0.0, rtol, 1e-6, max_step,
+                                        out_x, out_y)
+    if st == STEP_TOO_SMALL:
+        # A near miss on the sonic side shows as a collapsing step (SPEC 8).
+        st = SIDE_SONIC
+    elif st == REACHED_END or st == BASE:
+        # Down to the base without meeting the sound speed: the solution
+        # missed the sonic point on the supersonic side, like a turn.
+        st = SIDE_TURN
+    elif st < 0:
+        st = FAILED
+    return st, math.exp(x), math.exp(y[0]), math.exp(y[1]), n
+
+
+@njit(cache=True, error_model="numpy")
+def effective_temperature(L, R):
+    """T_eff = [L / (4 pi sigma R^2)]^(1/4) [K]."""
+    return (L / (FOUR_PI * SIGMA_SB * R * R)) ** 0.25
+
+
+@njit(cache=True, error_model="numpy")
+def profile_quantities(r, v, T, P, O):
+    """rho, L_r, kappa, Gamma = kappa L_r / (4 pi G M c) along a profile."""
+    n = r.shape[0]
+    rho = np.empty(n)
+    L = np.empty(n)
+    kappa = np.empty(n)
+    gamma = np.empty(n)
+    for i in range(n):
+        rho[i], L[i], kappa[i], dTdr, N = state(r[i], v[i], T[i], P, O)
+        gamma[i] = kappa[i] * L[i] / (FOUR_PI * C_LIGHT * P[I_GM])
+    return rho, L, kappa, gamma
