@@ -181,3 +181,120 @@ def test_bad_anchors(kwargs, fragment):
     with pytest.raises(ModelError) as info:
         bump_star(**kwargs)
     assert fragment in str(info.value)
+
+
+# -- tabulated opacity, families and the command line --------------------------
+
+def test_tabulated_opacity_reproduces_analytic_wind(tmp_path):
+    # A table made by our converter from the same bump law must give the same
+    # wind to the interpolation error (bicubic, 0.02 dex grid: ~1e-5 in kappa).
+    from windsolve import Opacity, tables
+    op = Opacity("bump", amplitude=3.0, peak_temperature="1.8e5 K", width_dex=0.15)
+    table = tables.tabulate(op, tables.grid(3.8, 6.6, 141, "log T"),
+                            tables.grid(-9.0, -1.0, 41, "log R"), X=0.7, Z=0.02)
+    path = tmp_path / "bump.txt"
+    tables.write_table(table, path)
+    analytic = windsolve.solve(bump_star())
+    tabulated = windsolve.solve(bump_star(opacity={"law": "table", "path": str(path)}))
+    assert tabulated.converged, tabulated.message
+    for key in ("mass_loss_rate", "terminal_velocity", "sonic_radius"):
+        assert abs(tabulated.summary[key] / analytic.summary[key] - 1) < 1e-3
+
+
+def test_leaving_the_table_is_reported_with_the_point():
+    import pathlib
+    table = pathlib.Path(__file__).parent.parent / "configs" / "invented_bump_table.txt"
+    result = windsolve.solve(bump_star(opacity={"law": "table", "path": str(table)},
+                                       photosphere_temperature="5e3 K"))
+    assert result.status == "off_table"
+    assert "rho =" in result.message and "T =" in result.message
+    assert "clamp" in result.message
+
+
+def test_family_along_effective_temperature():
+    from windsolve.family import solve_family
+    fam = solve_family(bump_star(), "photosphere_temperature", 3e4, 8e4, 4)
+    assert fam.converged.all()
+    mdot = fam.column("mass_loss_rate")
+    rph = fam.column("photosphere_radius")
+    # Each member is the photosphere-anchored solution at its T_eff ...
+    single = windsolve.solve(bump_star(photosphere_temperature="3e4 K"))
+    assert math.isclose(mdot[0], single.summary["mass_loss_rate"].value, rel_tol=1e-9)
+    # ... with R_ph = sqrt(L / (4 pi sigma T^4)) at fixed L_ph
+    L = (2e5 * u.Lsun).to_value(u.erg / u.s)
+    assert np.allclose(rph, np.sqrt(L / (4 * np.pi * SIGMA * fam.values**4)), rtol=1e-9)
+
+
+def test_family_in_mass_loss_rate_hits_its_targets():
+    from windsolve.family import solve_family
+    targets = np.array([1.5e-5, 3e-5])
+    fam = solve_family(bump_star(), "mass_loss_rate", targets[0], targets[-1], 2)
+    assert fam.converged.all()
+    got = fam.column("mass_loss_rate") * (u.g / u.s).to(u.Msun / u.yr)
+    assert np.allclose(got, targets, rtol=1e-6)
+
+
+def test_family_reports_where_it_ends():
+    from windsolve.family import solve_family
+    # With the base at R0 = 0.45 Rsun, hot photospheres put the sonic point
+    # below the base: the family ends there and says so.
+    model = bump_star(radius="0.45 Rsun")
+    fam = solve_family(model, "photosphere_temperature", 3e4, 2e5, 6)
+    ok = fam.converged
+    assert ok.any() and not ok.all()
+    assert "ends" in fam.ends
+
+
+def test_cli_family_and_check(tmp_path, capsys):
+    import pathlib
+
+    from windsolve import cli
+    config = pathlib.Path(__file__).parent.parent / "configs" / "bump_wind.toml"
+    out = tmp_path / "fam.h5"
+    png = tmp_path / "fam.png"
+    assert cli.main(["family", str(config), "--scan", "photosphere_radius", "--from", "3",
+                     "--to", "10", "--num", "3", "-q", "-o", str(out), "--plot", str(png)]) == 0
+    assert out.exists() and png.read_bytes()[:4] == b"\x89PNG"
+    assert cli.main(["plot", str(out), "-o", str(tmp_path / "again.png")]) == 0
+    assert cli.main(["check", str(config)]) == 0
+    text = capsys.readouterr().out
+    assert "largest Gamma" in text and "Gamma_es" in text
+    # electron scattering only: check says no wind can launch
+    es = tmp_path / "es.toml"
+    es.write_text(config.read_text().replace('law = "bump"', 'law = "electron_scattering"')
+                  .replace("amplitude = 3.0\n", "").replace('peak_temperature = "1.8e5 K"\n', "")
+                  .replace("width_dex = 0.15\n", "").replace("density_exponent = 0.0\n", "")
+                  .replace('reference_density = "1e-10 g/cm3"\n', ""))
+    assert cli.main(["check", str(es)]) == 0
+    assert "no continuum-driven wind can launch" in capsys.readouterr().out
+
+
+@pytest.mark.parametrize("edit, fragment", [
+    ([('photosphere_temperature = "5e4 K"', "")], "needs both"),
+    ([("[star]", '[star]\nluminosity = "2e5 Lsun"')], "over-specified"),
+    ([('base_temperature = "1e6 K"', ""), ("[star]", '[star]\nradius = "10 Rsun"')],
+     "inside [star] radius"),
+    ([('law = "bump"', 'law = "table"\npath = "ragged.txt"')], "ragged.txt"),
+])
+def test_cli_bad_diffusion_models(tmp_path, capsys, edit, fragment):
+    import pathlib
+
+    from windsolve import cli
+    config = pathlib.Path(__file__).parent.parent / "configs" / "bump_wind.toml"
+    text = config.read_text()
+    for old, new in edit:
+        text = text.replace(old, new)
+    if "table" in edit[0][1]:
+        for key in ("amplitude = 3.0\n", 'peak_temperature = "1.8e5 K"\n', "width_dex = 0.15\n",
+                    "density_exponent = 0.0\n", 'reference_density = "1e-10 g/cm3"\n'):
+            text = text.replace(key, "")
+        (tmp_path / "ragged.txt").write_text("-8 -7 -6 -5\n4.0 0 0 0 0\n4.1 0 0 0\n"
+                                             "4.2 0 0 0 0\n4.3 0 0 0 0\n")
+    model = tmp_path / "bad.toml"
+    model.write_text(text)
+    out = tmp_path / "out.h5"
+    assert cli.main(["run", str(model), "-o", str(out)]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and err[0].startswith("windsolve: error:")
+    assert fragment in err[0]
+    assert not out.exists()

@@ -175,7 +175,7 @@ def _bracket(P, O, R_ph, L_ph, T_eff, rtol):
         xs += step
         code, r, v, T = D.shoot_from_photosphere(xs, R_ph, L_ph, T_eff, Q, O, rtol)
         if code not in sides:
-            failures[code] = r
+            failures[code] = (r, Q[D.I_MDOT] / (4.0 * math.pi * r * r * v), T)
         if code in sides and code_prev in sides and code != code_prev:
             return xs - step, xs, code_prev
         code_prev = code
@@ -183,8 +183,11 @@ def _bracket(P, O, R_ph, L_ph, T_eff, rtol):
             break
         step = min(step * 1.5, 2.0)
     if D.OFF_TABLE in failures:
-        raise ModelBFailure(D.OFF_TABLE, "below the photosphere the solution leaves the "
-                                         "opacity table for every mass-loss rate tried")
+        r, rho, T = failures[D.OFF_TABLE]
+        raise ModelBFailure(D.OFF_TABLE, f"below the photosphere the solution leaves the "
+                                         f"opacity table (e.g. at rho = {rho:.3g} g/cm3, "
+                                         f"T = {T:.3g} K, r = {r / 6.957e10:.4g} Rsun); extend "
+                                         f"the table or set [opacity] clamp = true")
     raise ModelBFailure(D.INVALID, "no mass-loss rate gives a solution that passes smoothly "
                                    "through a sonic point below this photosphere (Gamma never "
                                    "exceeds 1 on the way in, or the flow stalls)")

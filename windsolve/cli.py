@@ -65,6 +65,8 @@ def cmd_check(args):
     from .core.constants import C_LIGHT, G
 
     model, source = _load(args.model)
+    if model.kind == "diffusion":
+        return _check_diffusion(model, source)
     M = model.cgs("mass")
     R0 = model.cgs("radius")
     L0 = model.cgs("luminosity")
@@ -122,6 +124,92 @@ def cmd_check(args):
     return EXIT_OK
 
 
+def _check_diffusion(model, source):
+    """Derived numbers of a Model B file, and whether Gamma can exceed 1."""
+    import astropy.units as u
+    import numpy as np
+
+    from .core import basics
+    from .core import opacity as OP
+    from .core.constants import C_LIGHT, G
+
+    P, O = model.kernel_arrays
+    M = model.cgs("mass")
+    L = (model.cgs("photosphere_luminosity") if model.anchor == "photosphere"
+         else model.cgs("luminosity"))
+    kes = basics.electron_scattering_opacity(model.X)
+    L_edd = basics.eddington_luminosity(M, kes)
+    rows = [
+        ("model", f"diffusion, anchored at the {model.anchor} ({source})"),
+        ("star", model.name),
+        ("mean molecular weight mu", f"{model.mu:.4f}"),
+        ("electron-scattering opacity", f"{kes:.4f} cm2/g"),
+        ("Eddington luminosity (kappa_es)",
+         f"{(L_edd * u.erg / u.s).to_value(u.Lsun):.4g} Lsun"),
+        ("Gamma_es = L / L_Edd", f"{L / L_edd:.4g}"),
+    ]
+    gamma_of = 4 * np.pi * G * M * C_LIGHT / L  # Gamma = kappa / gamma_of
+    if model.anchor == "photosphere":
+        rows.append(("photosphere radius from L_ph, T_eff",
+                     f"{model.photosphere_radius.to_value(u.Rsun):.4g} Rsun"))
+        T_lo = model.cgs("photosphere_temperature")
+        T_hi = 1e7 if model.radius is not None else (
+            model.cgs("base_temperature") if model.base_temperature is not None else 1e6)
+    else:
+        T_lo = 3e3
+        T_hi = model.cgs("base_temperature") if model.base_temperature is not None else 1e7
+    # Largest Gamma the opacity allows between the photosphere and the base
+    # temperatures, over densities 1e-16 to 1e-2 g/cm3.
+    temps = np.geomspace(T_lo, max(T_hi, T_lo * 1.01), 200)
+    dens = np.geomspace(1e-16, 1e-2, 60)
+    kmax = max(OP.opacity(O, d, t) for t in temps for d in dens
+               if np.isfinite(OP.opacity(O, d, t)))
+    gmax = kmax / gamma_of
+    rows.append((f"largest Gamma for {T_lo:.3g} K < T < {T_hi:.3g} K", f"{gmax:.4g}"))
+    width = max(len(k) for k, _ in rows)
+    for key, value in rows:
+        print(f"  {key:<{width}}  {value}")
+    if gmax < 1.0:
+        print("  note: Gamma never exceeds 1 on the path between the photosphere and the base: "
+              "no continuum-driven wind can launch")
+    return EXIT_OK
+
+
+def cmd_family(args):
+    from .family import SCANS, plot_family, solve_family
+    model, source = _load(args.model)
+    if args.output is not None:
+        _check_output(args.output, ".h5")
+    if args.plot is not None:
+        _check_output(args.plot, ".png")
+    progress = None
+    if not args.quiet:
+        from tqdm import tqdm
+        bar = tqdm(total=args.num, desc="family", unit="model", leave=False)
+
+        def progress(done, total):
+            bar.update(1)
+    result = solve_family(model, args.scan, args.start, args.stop, args.num, progress)
+    if not args.quiet:
+        bar.close()
+        print(f"family of {source} along {args.scan} [{SCANS[args.scan].to_string()}]")
+        print("\n".join(result.lines()))
+        if result.ends:
+            print(result.ends)
+    if not result.converged.any():
+        raise WindsolveError(f"no member of the family has a solution: "
+                             f"{result.members[0].message}")
+    if args.output is not None:
+        result.to_hdf5(args.output, profiles=args.profiles)
+        if not args.quiet:
+            print(f"wrote {args.output}")
+    if args.plot is not None:
+        plot_family(result, args.plot)
+        if not args.quiet:
+            print(f"wrote {args.plot}")
+    return EXIT_OK
+
+
 def cmd_inspect(args):
     import h5py
     import numpy as np
@@ -158,6 +246,21 @@ def cmd_inspect(args):
                        else "empty")
                 unit = d.attrs.get("units", "?")
                 print(f"  {key:<18s} {data.shape[0]:6d} points  {rng}  [{unit}]")
+        if "table" in f:
+            g = f["table"]
+            n = len(next(iter(g.values()))) if len(g) else 0
+            print(f"table: {n} rows" + (f" (family along {f.attrs['family_scan']})"
+                                         if "family_scan" in f.attrs else ""))
+            for key, d in g.items():
+                unit = d.attrs.get("units", "?")
+                data = d[()]
+                if data.dtype.kind == "f" and data.size and np.isfinite(data).any():
+                    rng = f"{np.nanmin(data):.4g} .. {np.nanmax(data):.4g}"
+                else:
+                    rng = ""
+                print(f"  {key:<26s} {rng:<24s} [{unit}]")
+            if f.attrs.get("family_ends"):
+                print(f"  {f.attrs['family_ends']}")
         if "critical_points" in f:
             c = f["critical_points"]
             print("critical points:")
@@ -172,11 +275,24 @@ def cmd_inspect(args):
 
 
 def cmd_plot(args):
+    import h5py
+
     from .plotting import plot_profile
     from .result import WindResult
-    result = WindResult.from_hdf5(args.file)
     out = Path(args.output) if args.output else Path(args.file).with_suffix(".png")
+    family = False
+    try:
+        with h5py.File(args.file, "r") as f:
+            family = "family_scan" in f.attrs
+    except OSError:
+        pass  # from_hdf5 below says what is wrong with the file
     _check_output(out, ".png")
+    if family:
+        from .family import FamilyResult, plot_family
+        plot_family(FamilyResult.from_hdf5(args.file), out)
+        print(f"wrote {out}")
+        return EXIT_OK
+    result = WindResult.from_hdf5(args.file)
     plot_profile(result, out)
     print(f"wrote {out}")
     return EXIT_OK
@@ -259,6 +375,30 @@ def build_parser():
     p.add_argument("-o", "--output", metavar="OUT.png",
                    help="image file (PNG, PDF or SVG); default: FILE with .png")
     p.set_defaults(func=cmd_plot)
+
+    p = sub.add_parser("family", help="solve a family of photosphere-anchored diffusion winds",
+                       description="Keep the photosphere luminosity of a photosphere-anchored "
+                                   "diffusion model and scan the effective temperature, the "
+                                   "photosphere radius or the mass-loss rate: each member is a "
+                                   "full solve.  Prints the table, says where the family ends "
+                                   "and why, and writes HDF5 and a plot on request.")
+    p.add_argument("model", help="model file (model = \"diffusion\", photosphere anchor)")
+    p.add_argument("--scan", required=True,
+                   choices=["photosphere_temperature", "photosphere_radius", "mass_loss_rate"],
+                   help="quantity to scan (units: K, Rsun, Msun/yr)")
+    p.add_argument("--from", dest="start", type=float, required=True, metavar="START",
+                   help="first value of the scan, in the scan's unit")
+    p.add_argument("--to", dest="stop", type=float, required=True, metavar="STOP",
+                   help="last value of the scan, in the scan's unit")
+    p.add_argument("--num", type=int, default=20, help="number of members (log-spaced; "
+                                                       "default 20)")
+    p.add_argument("-o", "--output", metavar="FAMILY.h5", help="write the table to HDF5")
+    p.add_argument("--profiles", action="store_true",
+                   help="also store each member's profile in the HDF5 file")
+    p.add_argument("--plot", metavar="FAMILY.png",
+                   help="plot Mdot, v_inf, T_eff and the base temperature against R_ph")
+    p.add_argument("-q", "--quiet", action="store_true", help="no progress bar or table")
+    p.set_defaults(func=cmd_family)
 
     p = sub.add_parser("tabulate", help="tabulate a model's opacity law for the table law",
                        description="Evaluate the analytic opacity law of a model file "

@@ -18,6 +18,7 @@ def plot_profile(result, path=None):
 
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
+    import matplotlib.ticker
 
     p = result.profile
     if not p or len(p.get("radius", [])) == 0:
@@ -53,6 +54,12 @@ def plot_profile(result, path=None):
                 ax.plot([rc], [a], "o", color="#b03a2e", ms=5)
         if key == "eddington_factor":
             ax.axhline(1.0, color="0.5", lw=0.8, ls=":")
+        rph = result.summary.get("photosphere_radius")
+        if rph is not None and np.isfinite(rph.value):
+            ax.axvline(rph.to_value(u.Rsun), color="#7d3c98", ls="-.", lw=1.0,
+                       label="photosphere")
+        ax.xaxis.set_major_formatter(matplotlib.ticker.LogFormatterSciNotation(
+            labelOnlyBase=False, minor_thresholds=(2, 0.5)))
     for ax in axes[-1]:
         ax.set_xlabel(r"radius  r  [R$_\odot$]")
     axes.flat[0].legend(loc="lower right", frameon=False)

@@ -51,6 +51,10 @@ def _isothermal_failure(code, model):
     if code == K.NO_BRACKET_THIN:
         return ("no_bracket", "every mass-loss rate with a critical point gives a base "
                               "density below base_density; lower base_density")
+    if code == K.LEFT_TABLE:
+        return ("off_table", "the solution leaves the opacity table (no opacity at the "
+                             "(rho, T) it reaches) for every mass-loss rate tried; extend the "
+                             "table or set [opacity] clamp = true")
     if code == K.ROOT_NOT_CONVERGED:
         return ("failed", "the mass-loss rate did not converge; loosen numerics.rtol")
     return ("failed", f"the integration failed (code {code}); try a different "
@@ -123,6 +127,11 @@ def solve_isothermal(model):
         converged, status = False, "stalled"
         message = (f"photon tiring uses up the luminosity at r = {r_end:.5g} R0: the flow "
                    f"stalls there and does not reach the outer radius")
+    elif st_out == K.LEFT_TABLE:
+        converged, status = False, "off_table"
+        message = (f"the outward solution leaves the opacity table at r = {r_end:.5g} R0 "
+                   f"(rho = {rho[-1]:.4g} g/cm3, T = {model.T:.4g} K); extend the table or "
+                   f"set [opacity] clamp = true")
     elif st_out == K.OUTWARD_SINGULAR:
         converged, status = False, "second_singular_point"
         message = (f"the supersonic solution falls back to the sound speed at "

@@ -37,7 +37,7 @@ from numba import njit
 from .constants import A_RAD, C_LIGHT, SIGMA_SB
 from .critical import classify, make_root_refiner
 from .integrate import REACHED_END, STEP_TOO_SMALL, make_integrator
-from .opacity import effective_opacity
+from .opacity import effective_opacity, table_margin
 
 FOUR_PI = 4.0 * math.pi
 
@@ -205,6 +205,18 @@ def monitor_shoot(x, y, P, O):
 @njit(cache=True, error_model="numpy")
 def monitor_none(x, y, P, O):
     return 0
+
+
+TABLE_EDGE = 1e-6  # dex: a failed step this close to a table edge left the table
+
+
+@njit(cache=True, error_model="numpy")
+def left_table(x, y, P, O):
+    """Did a leg that gave up at (x, y) run into the edge of an opacity table?"""
+    r = math.exp(x)
+    v = math.exp(y[0])
+    rho = P[I_MDOT] / (FOUR_PI * r * r * v)
+    return table_margin(O, rho, math.exp(y[1])) < TABLE_EDGE
 
 
 integrate_outward = make_integrator(rhs, monitor_outward)
@@ -392,6 +404,8 @@ def outward_leg(rc, vc, Tc, p, dTdr, delta, P, O, rtol, max_step, out_x, out_y):
     L = luminosity(r, v, T, rho, P)
     if st == REACHED_END:
         st = NO_PHOTOSPHERE
+    elif st == STEP_TOO_SMALL and left_table(x, y, P, O):
+        st = OFF_TABLE
     elif st < 0:
         st = SINGULAR if st == STEP_TOO_SMALL else FAILED
     return st, r, v, T, L, n
@@ -443,6 +457,8 @@ def inward_leg(rc, vc, Tc, p, dTdr, delta, P, O, rtol, max_step, out_x, out_y):
         st = OK
     elif st == REACHED_END:
         st = OK if P[I_R_IN] > 0.0 else FAILED
+    elif st == STEP_TOO_SMALL and left_table(x, y, P, O):
+        st = OFF_TABLE
     elif st == STEP_TOO_SMALL:
         st = SINGULAR
     elif st < 0:
@@ -519,7 +535,9 @@ def shoot_stored(ln_mdot, R, L, T, P, O, rtol, max_step, out_x, out_y):
     x_end = math.log(P[I_R_IN]) if P[I_R_IN] > 0.0 else x0 - 30.0
     st, x, y, n, nfev = integrate_shoot(x0, y0, x_end, P, O, 0.0, rtol, 1e-6, max_step,
                                         out_x, out_y)
-    if st == STEP_TOO_SMALL:
+    if st == STEP_TOO_SMALL and left_table(x, y, P, O):
+        st = OFF_TABLE
+    elif st == STEP_TOO_SMALL:
         # A near miss on the sonic side shows as a collapsing step (SPEC 8).
         st = SIDE_SONIC
     elif st == REACHED_END or st == BASE:

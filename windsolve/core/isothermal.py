@@ -34,7 +34,14 @@ from numba import njit
 from .constants import C_LIGHT
 from .critical import SADDLE, classify, make_root_refiner
 from .integrate import REACHED_END, STEP_TOO_SMALL, make_integrator
-from .opacity import LAW_ELECTRON_SCATTERING, SLOT_H0, SLOT_KES, SLOT_LAW, effective_opacity
+from .opacity import (
+    LAW_ELECTRON_SCATTERING,
+    SLOT_H0,
+    SLOT_KES,
+    SLOT_LAW,
+    effective_opacity,
+    table_margin,
+)
 
 FOUR_PI = 4.0 * math.pi
 INV_FOUR_PI = 1.0 / FOUR_PI
@@ -66,6 +73,9 @@ NO_BRACKET_DENSE = 7  # rho(R0) > rho0 for every admissible Mdot
 NO_BRACKET_THIN = 8  # rho(R0) < rho0 for every admissible Mdot
 INTEGRATION_FAILED = 9
 ROOT_NOT_CONVERGED = 10
+LEFT_TABLE = 11  # (rho, T) left an (unclamped) opacity table
+
+TABLE_EDGE = 1e-6  # dex: a failed step this close to a table edge left the table
 
 # Codes returned by the monitors through ``integrate`` (positive).
 STOP_SINGULAR = 1
@@ -182,6 +192,18 @@ def base_sonic_balance(ln_mdot, P, O):
     return force_balance(Q[I_R0], math.sqrt(Q[I_A2]), Q, O)
 
 
+@njit(cache=True, error_model="numpy")
+def left_table(x, y, P, O):
+    """Did a leg that gave up at (x, y) run into the edge of an opacity table?
+
+    An adaptive step never accepts an off-table point (its stages give NaN
+    and the step shrinks), so the sign is a last accepted point hugging an
+    edge.
+    """
+    r = math.exp(x)
+    return table_margin(O, density(r, math.exp(y[0]), P), P[I_T]) < TABLE_EDGE
+
+
 integrate_outward = make_integrator(rhs, monitor_outward)
 integrate_inward = make_integrator(rhs, monitor_inward)
 refine_sonic = make_root_refiner(sonic_force_balance)
@@ -239,11 +261,16 @@ def innermost_saddle(P, O):
     x_hi = math.log(P[I_ROUT])
     dx = (x_hi - x_lo) / (N_GRID - 1)
     f_prev = sonic_force_balance(x_lo, P, O)
+    if math.isnan(f_prev):
+        return LEFT_TABLE, P[I_R0], math.nan
     any_root = False
     any_pos = f_prev > 0.0
     for i in range(1, N_GRID):
         x = x_lo + i * dx
         f = sonic_force_balance(x, P, O)
+        if math.isnan(f):
+            # Only an opacity table without clamping gives NaN here.
+            return LEFT_TABLE, math.exp(x), math.nan
         if f > 0.0:
             any_pos = True
         if f_prev < 0.0 and f >= 0.0:
@@ -303,6 +330,8 @@ def shoot(ln_mdot, P, O, rtol, delta):
         return OK, g, rc, slope
     if status == STOP_DENSE:
         return OK, DENSE_MARGIN, rc, slope
+    if status == STEP_TOO_SMALL and left_table(x, y, Q, O):
+        return LEFT_TABLE, math.nan, math.exp(x), slope
     if status == STOP_SINGULAR or status == STEP_TOO_SMALL:
         return INWARD_SINGULAR, math.nan, rc, slope
     return INTEGRATION_FAILED, math.nan, rc, slope
@@ -595,13 +624,15 @@ def profile(ln_mdot, P, O, rtol, delta, max_step, capacity):
             math.log(rc * (1.0 - delta)), y0, math.log(R0),
             Q, O, 0.0, rtol, delta, max_step, xi, yi)
         if st != REACHED_END:
-            status_in = INWARD_SINGULAR
+            status_in = LEFT_TABLE if left_table(x, y, Q, O) else INWARD_SINGULAR
     y0[0] = math.log(a + slope * delta * rc)
     st, x, y, no, nfev = integrate_outward(
         math.log(rc * (1.0 + delta)), y0, math.log(Q[I_ROUT]),
         Q, O, 0.0, rtol, delta, max_step, xo, yo)
     status_out = OK
-    if st == STOP_STALL:
+    if st == STEP_TOO_SMALL and left_table(x, y, Q, O):
+        status_out = LEFT_TABLE
+    elif st == STOP_STALL:
         status_out = STALLED
     elif st == STOP_SINGULAR or st == STEP_TOO_SMALL:
         status_out = OUTWARD_SINGULAR

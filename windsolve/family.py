@@ -1,0 +1,313 @@
+"""Families of optically thick winds: one photospheric luminosity, many solutions.
+
+A photosphere-anchored model fixes L_ph and T_eff.  Keeping L_ph and moving
+along one other quantity -- the effective temperature, the photospheric
+radius, or the mass-loss rate itself -- gives the sequence of photospherically
+consistent regular solutions that modellers fit observed stars against
+(SPEC section 5, "family").  Each member is a full photosphere-anchored solve;
+members that fail keep their status and message, so the table shows where
+the family ends and why.
+"""
+
+import datetime
+import math
+import os
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import astropy.units as u
+import numpy as np
+
+from ._version import __version__
+from .errors import ModelError, OutputError
+
+__all__ = ["SCANS", "FamilyResult", "solve_family", "plot_family"]
+
+# Quantities a family can be scanned in, with the unit of --from/--to.
+SCANS = {
+    "photosphere_temperature": u.K,
+    "photosphere_radius": u.Rsun,
+    "mass_loss_rate": u.Msun / u.yr,
+}
+
+COLUMNS = {  # summary key -> unit stored (cgs)
+    "mass_loss_rate": u.g / u.s,
+    "terminal_velocity": u.cm / u.s,
+    "photosphere_radius": u.cm,
+    "photosphere_temperature": u.K,
+    "photosphere_luminosity": u.erg / u.s,
+    "photosphere_velocity": u.cm / u.s,
+    "sonic_radius": u.cm,
+    "sonic_temperature": u.K,
+    "energy_flux": u.erg / u.s,
+    "base_radius": u.cm,
+    "base_temperature": u.K,
+    "base_density": u.g / u.cm**3,
+    "base_luminosity": u.erg / u.s,
+}
+
+
+@dataclass
+class FamilyResult:
+    """A family of solutions: one row per member, in scan order."""
+
+    model: object
+    scan: str
+    values: np.ndarray  # scanned values in SCANS[scan] units
+    members: list = field(default_factory=list)  # WindResult per member
+    ends: str = ""  # where and why the family ends (empty if it does not)
+
+    def column(self, key):
+        unit = COLUMNS[key]
+        return np.array([m.summary[key].to_value(unit) if key in m.summary else np.nan
+                         for m in self.members])
+
+    @property
+    def converged(self):
+        return np.array([m.converged for m in self.members])
+
+    def to_hdf5(self, path, profiles=False):
+        """Write the table (and optionally each member's profile) to HDF5."""
+        import h5py
+
+        from .modelfile import dumps
+        from .result import PROFILE_UNITS, _unit_text
+
+        path = Path(path)
+        tmp = path.with_name(f".{path.name}.{os.getpid()}.tmp")
+        try:
+            with h5py.File(tmp, "w") as f:
+                f.attrs["windsolve_version"] = __version__
+                f.attrs["created"] = datetime.datetime.now(datetime.UTC).isoformat(
+                    timespec="seconds")
+                f.attrs["model_toml"] = dumps(self.model.to_dict())
+                f.attrs["model"] = self.model.kind
+                f.attrs["family_scan"] = self.scan
+                f.attrs["family_ends"] = self.ends
+                g = f.create_group("table")
+                d = g.create_dataset(self.scan, data=(self.values * SCANS[self.scan]).cgs.value)
+                d.attrs["units"] = _unit_text((1 * SCANS[self.scan]).cgs.unit)
+                for key, unit in COLUMNS.items():
+                    d = g.create_dataset(key, data=self.column(key)) if key != self.scan \
+                        else None
+                    if d is not None:
+                        d.attrs["units"] = _unit_text(unit)
+                d = g.create_dataset("converged", data=self.converged)
+                d.attrs["units"] = "1"
+                d = g.create_dataset("status", data=np.array(
+                    [m.status for m in self.members], dtype=h5py.string_dtype()))
+                d.attrs["units"] = "none"
+                d = g.create_dataset("message", data=np.array(
+                    [m.message for m in self.members], dtype=h5py.string_dtype()))
+                d.attrs["units"] = "none"
+                if profiles:
+                    for i, m in enumerate(self.members):
+                        pg = f.create_group(f"profiles/{i}")
+                        for key, q in m.profile.items():
+                            dd = pg.create_dataset(key, data=q.to_value(PROFILE_UNITS[key]))
+                            dd.attrs["units"] = _unit_text(PROFILE_UNITS[key])
+            os.replace(tmp, path)
+        except OSError as error:
+            tmp.unlink(missing_ok=True)
+            raise OutputError(f"{path}: cannot write ({error})") from None
+        except BaseException:
+            tmp.unlink(missing_ok=True)
+            raise
+        return path
+
+    @classmethod
+    def from_hdf5(cls, path):
+        """Read a family file written by :meth:`to_hdf5` (table only)."""
+        import tomllib
+
+        import h5py
+
+        from .modelfile import model_from_dict
+        from .result import WindResult
+
+        with h5py.File(path, "r") as f:
+            scan = str(f.attrs["family_scan"])
+            model = model_from_dict(tomllib.loads(f.attrs["model_toml"]), source=str(path))
+            g = f["table"]
+            values = (g[scan][()] * u.Unit(g[scan].attrs["units"])).to_value(SCANS[scan])
+            cols = {k: g[k][()] * u.Unit(g[k].attrs["units"]) for k in COLUMNS if k in g}
+            if scan in COLUMNS:
+                cols[scan] = values * SCANS[scan]
+            status = [s.decode() if isinstance(s, bytes) else str(s) for s in g["status"][()]]
+            message = [s.decode() if isinstance(s, bytes) else str(s)
+                       for s in g["message"][()]]
+            converged = g["converged"][()]
+            ends = str(f.attrs.get("family_ends", ""))
+        members = [WindResult(model, bool(converged[i]), status[i], message[i],
+                              {k: c[i] for k, c in cols.items()})
+                   for i in range(len(values))]
+        return cls(model, scan, values, members, ends)
+
+    def lines(self):
+        """A printable table."""
+        head = (f"{self.scan:>24s} {'Mdot [Msun/yr]':>15s} {'v_inf [km/s]':>13s} "
+                f"{'R_ph [Rsun]':>12s} {'T_eff [K]':>10s} {'T_base [K]':>11s}  status")
+        out = [head]
+        mdot = self.column("mass_loss_rate") * (u.g / u.s).to(u.Msun / u.yr)
+        vinf = self.column("terminal_velocity") / 1e5
+        rph = self.column("photosphere_radius") / 6.957e10
+        teff = self.column("photosphere_temperature")
+        tb = self.column("base_temperature")
+        for i, m in enumerate(self.members):
+            out.append(f"{self.values[i]:24.6g} {mdot[i]:15.5g} {vinf[i]:13.5g} "
+                       f"{rph[i]:12.5g} {teff[i]:10.5g} {tb[i]:11.5g}  {m.status}")
+        return out
+
+
+def solve_family(model, scan, start, stop, num, progress=None):
+    """Solve the family of ``model`` (photosphere-anchored) along ``scan``.
+
+    ``start``/``stop`` are numbers in the unit of ``SCANS[scan]`` (K, Rsun,
+    Msun/yr); members are spaced logarithmically.
+    """
+    from .models import DiffusionWind
+    from .solve import solve
+
+    if not isinstance(model, DiffusionWind) or model.anchor != "photosphere":
+        raise ModelError("a family keeps the photosphere luminosity fixed: give a diffusion "
+                         "model anchored at the photosphere ([boundary] "
+                         "photosphere_luminosity and photosphere_temperature)")
+    if scan not in SCANS:
+        raise ModelError(f"--scan {scan}: choose one of {', '.join(SCANS)}")
+    if not (start > 0 and stop > 0 and num >= 2):
+        raise ModelError("--from and --to must be positive and --num at least 2")
+    values = np.geomspace(start, stop, int(num))
+    L_ph = model.photosphere_luminosity
+    sigma = 5.6703744191844314e-05
+
+    def member_at_temperature(T):
+        return solve(model.replace(photosphere_temperature=T * u.K))
+
+    members = []
+    if scan == "photosphere_temperature":
+        temps = values
+    elif scan == "photosphere_radius":
+        L = L_ph.to_value(u.erg / u.s)
+        temps = (L / (4 * math.pi * sigma * (values * 6.957e10) ** 2)) ** 0.25
+    else:
+        temps = _temperatures_for_mass_loss_rates(model, values, member_at_temperature)
+    for i, T in enumerate(temps):
+        if not np.isfinite(T):
+            members.append(_unreachable(model, values[i]))
+        else:
+            try:
+                members.append(member_at_temperature(float(T)))
+            except ModelError as error:  # e.g. photosphere inside R0
+                members.append(_failed(model, str(error)))
+        if progress is not None:
+            progress(i + 1, len(temps))
+    result = FamilyResult(model, scan, values, members)
+    result.ends = _ends(result)
+    return result
+
+
+def _failed(model, message):
+    from .result import WindResult
+    return WindResult(model, False, "failed", message, {})
+
+
+def _unreachable(model, value):
+    return _failed(model, f"no member of the family has a mass-loss rate of {value:.4g} "
+                          f"Msun/yr (outside the range the family covers)")
+
+
+def _temperatures_for_mass_loss_rates(model, mdots, member_at_temperature):
+    """T_eff giving each target Mdot: a coarse scan, then secant refinement."""
+    grid = np.geomspace(5e3, 5e5, 25)
+    known = []
+    for T in grid:
+        r = member_at_temperature(float(T))
+        if r.converged:
+            known.append((math.log(T), math.log(r.summary["mass_loss_rate"].to_value(
+                u.Msun / u.yr))))
+    temps = np.full(len(mdots), np.nan)
+    if len(known) < 2:
+        return temps
+    for k, target in enumerate(np.log(mdots)):
+        for (x0, f0), (x1, f1) in zip(known[:-1], known[1:], strict=True):
+            if (f0 - target) * (f1 - target) <= 0 and f1 != f0:
+                a, fa, b, fb = x0, f0 - target, x1, f1 - target
+                for _ in range(30):
+                    m = a - fa * (b - a) / (fb - fa)
+                    r = member_at_temperature(math.exp(m))
+                    if not r.converged:
+                        break
+                    fm = math.log(r.summary["mass_loss_rate"].to_value(u.Msun / u.yr)) - target
+                    if abs(fm) < 1e-9:
+                        break
+                    if (fm > 0) == (fa > 0):
+                        a, fa = m, fm
+                        fb *= 0.5
+                    else:
+                        b, fb = m, fm
+                        fa *= 0.5
+                temps[k] = math.exp(m)
+                break
+    return temps
+
+
+def _ends(result):
+    """Say where the family stops having solutions, and why."""
+    ok = result.converged
+    if ok.all() or not ok.any():
+        if not ok.any() and len(result.members):
+            return f"no member converged: {result.members[0].message}"
+        return ""
+    notes = []
+    for i in range(1, len(ok)):
+        if ok[i - 1] and not ok[i]:
+            notes.append(f"the family ends between {result.scan} = {result.values[i - 1]:.5g} "
+                         f"and {result.values[i]:.5g}: {result.members[i].message}")
+        if not ok[i - 1] and ok[i]:
+            notes.append(f"the family starts between {result.scan} = "
+                         f"{result.values[i - 1]:.5g} and {result.values[i]:.5g} "
+                         f"(before it: {result.members[i - 1].message})")
+    return "; ".join(notes)
+
+
+def plot_family(result, path):
+    """Mdot, v_inf, T_eff and the base (temperature or radius) against R_ph."""
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    ok = result.converged
+    rph = result.column("photosphere_radius")[ok] / 6.957e10
+    panels = [
+        (result.column("mass_loss_rate")[ok] * (u.g / u.s).to(u.Msun / u.yr),
+         r"mass-loss rate  $\dot M$  [M$_\odot$ yr$^{-1}$]", "log"),
+        (result.column("terminal_velocity")[ok] / 1e5,
+         r"terminal velocity  $v_\infty$  [km s$^{-1}$]", "linear"),
+        (result.column("photosphere_temperature")[ok], r"effective temperature  $T_{\rm eff}$  [K]",
+         "log"),
+    ]
+    if result.model.radius is not None:  # fixed base radius: its temperature varies
+        panels.append((result.column("base_temperature")[ok], "base temperature  [K]", "log"))
+    else:  # fixed base temperature: where the envelope reaches it varies
+        panels.append((result.column("base_radius")[ok] / 6.957e10,
+                       r"radius at the base temperature  [R$_\odot$]", "linear"))
+    fig, axes = plt.subplots(2, 2, figsize=(10, 7), sharex=True, constrained_layout=True)
+    for ax, (y, label, scale) in zip(axes.flat, panels, strict=True):
+        ax.plot(rph, y, "o-", color="#1f4e79", ms=3, lw=1.2)
+        ax.set_xscale("log")
+        ax.set_yscale(scale)
+        ax.set_ylabel(label)
+        ax.grid(True, which="both", alpha=0.25)
+    for ax in axes[-1]:
+        ax.set_xlabel(r"photosphere radius  $R_{\rm ph}$  [R$_\odot$]")
+    L = result.model.photosphere_luminosity.to_value(u.Lsun)
+    n_bad = int((~ok).sum())
+    fig.suptitle(f"{result.model.name} — family at L$_{{\\rm ph}}$ = {L:.3g} L$_\\odot$ "
+                 f"({ok.sum()} solutions{f', {n_bad} without' if n_bad else ''})")
+    try:
+        fig.savefig(path, dpi=120)
+    except (OSError, ValueError) as error:
+        raise OutputError(f"{path}: cannot write the plot ({error})") from None
+    plt.close(fig)
+    return path
