@@ -268,7 +268,7 @@ def short_outward(c, vc, p, dTdr, rc, Tc, r_target, rtol):
     y0 = [math.log(vc + p * delta * rc), math.log(Tc + dTdr * delta * rc)]
     sol = solve_ivp(c.rhs, (math.log(rc * (1.0 + delta)), math.log(r_target)), y0,
                     method="DOP853", rtol=RTOL_SCIPY, atol=rtol, first_step=delta)
-    return sol.y[0, -1] if sol.status == 0 else math.nan
+    return float(sol.y[0, -1]) if sol.status == 0 else math.nan
 
 
 def refine_critical(w, ln_mdot, stop, tie, rtol):
@@ -345,6 +345,7 @@ def solve_reference(P, O, L_ph, T_eff, rtol):
         ``mass_loss_rate`` [g s-1], ``sonic_radius`` [cm], ``sonic_temperature``
         [K] and ``n_shots`` (inward shots from the photosphere).
     """
+    L_ph, T_eff, rtol = float(L_ph), float(T_eff), float(rtol)  # no numpy scalars
     R = math.sqrt(L_ph / (FOUR_PI * SIGMA_SB * T_eff**4))
     w = _Wind(P, O)
     shots = [0]

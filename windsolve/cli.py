@@ -158,6 +158,18 @@ def _check_diffusion(model, source):
     else:
         T_lo = 3e3
         T_hi = model.cgs("base_temperature") if model.base_temperature is not None else 1e7
+    T_base = (model.cgs("base_temperature") if model.base_temperature is not None
+              else (T_hi if model.radius is None else None))
+    if T_base is not None:
+        g_base = [OP.opacity(O, d, T_base) / gamma_of for d in np.geomspace(1e-14, 1e-2, 25)]
+        rows.append((f"Gamma at the base temperature {T_base:.3g} K",
+                     f"{np.nanmin(g_base):.4g} .. {np.nanmax(g_base):.4g} "
+                     f"(for rho 1e-14 .. 1e-2 g/cm3)"))
+    elif model.base_density is not None:
+        rho0 = model.cgs("base_density")
+        g_base = [OP.opacity(O, rho0, t) / gamma_of for t in np.geomspace(1e4, 1e7, 25)]
+        rows.append(("Gamma at the base density",
+                     f"{np.nanmin(g_base):.4g} .. {np.nanmax(g_base):.4g} (for T 1e4 .. 1e7 K)"))
     # Largest Gamma the opacity allows between the photosphere and the base
     # temperatures, over densities 1e-16 to 1e-2 g/cm3.
     temps = np.geomspace(T_lo, max(T_hi, T_lo * 1.01), 200)
