@@ -1,62 +1,46 @@
 """A deliberately plain scipy reference for the photosphere-anchored Model B solve.
 
-This module solves the same problem as
-:func:`windsolve._diffusion.solve_photosphere_anchor`, from the same parameter
-vectors ``P`` and ``O`` (``model.kernel_arrays``), the way a one-off shooting
-script would: a plain-Python right-hand side (floats and :mod:`math`) handed
-to :func:`scipy.integrate.solve_ivp` (``DOP853``) with terminal events, and
-:func:`scipy.optimize.brentq` for the one-dimensional roots.  Nothing compiled
-is called from here (only slot numbers and constants are imported), so it is
-an independent check of the kernels and the baseline ``bench_diffusion.py``
-times.
+Solves the problem of :func:`windsolve._diffusion.solve_photosphere_anchor`,
+from the same vectors ``P, O`` (``model.kernel_arrays``), the way a one-off
+shooting script would: a plain-Python right-hand side (floats, :mod:`math`)
+in :func:`scipy.integrate.solve_ivp` (``DOP853``) with terminal events, and
+:func:`scipy.optimize.brentq` for scalar roots.  Nothing compiled is called
+(only slot numbers and constants are imported): an independent check of the
+kernels and the baseline ``bench_diffusion.py`` times.  Equations: SPEC.md
+section 5, state (r, v, T), L_r from the energy integral, y = (ln v, ln T)
+against x = ln r, d ln v / d ln r = r N / (v^2 - c_T^2), d ln T / d ln r = r T'/T.
 
-Equations (SPEC.md section 5): the state is (r, v, T), rho = Mdot / (4 pi r^2 v),
-L_r from the energy integral with Edot, and y = (ln v, ln T) against x = ln r:
+The algorithm is windsolve's: bracket ln Mdot stepping up from just above the
+smallest escaping Mdot (steps 0.25, x1.5 per shot, at most 2), each trial an
+inward shot from the photosphere (tau = 2/3 fixes v_ph) that is "sonic side"
+if it reaches v^2 - c_T^2 < SONIC_GAP c_T^2 with N > 0 (or its step collapses,
+a near miss: SPEC section 8) and "turn side" otherwise (N turns from + to -
+moving inward, c_T is met with N < 0, or the inner end is reached); bisect to
+1e-14 (1 + |ln Mdot|); re-shoot the sonic-side end; project its stop onto
+N = 0 at v = c_T (same Mdot, Edot) and step back along the slope p+ of
+2 p^2 - (N_v + k1) p - (N_r + N_T T') = 0 (central differences); tie the
+critical point to the stored point TIE_DISTANCE in ln r outside the stop by a
+secant on r_c (short outward legs from r_c (1 + DELTA)).
 
-    d ln v / d ln r = r N / (v^2 - c_T^2),   d ln T / d ln r = r T' / T.
+Tolerances.  windsolve's integrator gets a pure absolute tolerance ``rtol`` on
+ln v and ln T; ``solve_ivp`` raises a zero relative tolerance to 100 eps (with
+a warning), so here ``rtol = RTOL_SCIPY = 1e-13`` and ``atol = rtol``: the
+error scale atol + 1e-13 |y| is windsolve's to 1e-11 (|y| < 100).  With the
+same first steps (1e-6, DELTA), no step limit and the step control the kernel
+copied from scipy's DOP853, both take (nearly) the same steps.
 
-The algorithm is windsolve's, step by step:
-
-1. bracket ln Mdot stepping up from just above the smallest Mdot whose thin
-   flow escapes (first step 0.25, times 1.5 per shot, at most 2), each trial
-   an inward shot from the photosphere (L_ph, T_eff; tau = 2/3 fixes v_ph)
-   classified as "sonic side" (reached v^2 - c_T^2 < SONIC_GAP c_T^2 with
-   N > 0, or the step size collapsed: a near miss, SPEC section 8) or "turn
-   side" (N turned from + to - moving inward, reached the sound speed with
-   N < 0, or reached the inner end);
-2. bisect ln Mdot to a bracket of 1e-14 (1 + |ln Mdot|);
-3. re-shoot the sonic-side end, storing its accepted points;
-4. project its stop onto the critical curve (N = 0 at v = c_T, at the same
-   Mdot and Edot), step back along the saddle's slope from l'Hopital's
-   quadratic 2 p^2 - (N_v + k1) p - (N_r + N_T T') = 0 (central differences),
-   and finally tie the critical point to the stored point TIE_DISTANCE in
-   ln r outside the stop by a secant on r_c, each trial a short outward
-   integration from r_c (1 + DELTA).
-
-Tolerances.  The kernels call their integrator with a pure absolute
-tolerance ``rtol`` on ln v and ln T (relative tolerance 0).  ``solve_ivp``
-does not accept a zero relative tolerance (it raises it to 100 eps with a
-warning), so the reference passes ``rtol = RTOL_SCIPY = 1e-13`` and
-``atol = rtol``: its error scale atol + 1e-13 |y| differs from windsolve's by
-under 1e-11 relative (|y| < 100).  With the same first step (1e-6 in ln r,
-DELTA for the short outward legs), no step limit, and scipy's DOP853 step
-control being the one the kernel's integrator copies, the two take (nearly)
-the same steps, so they agree far below the tolerance.
-
-Deliberate differences, none of which changes the converged answer:
-
-- the stop of a shot is the root of the event function (scipy's dense
-  output), not the first accepted point past it;
-- scipy checks the "N turned" event on the first step as well, where the
-  kernel's monitor has no previous sign yet;
-- the one-dimensional roots (critical temperature at fixed r) use ``brentq``
-  instead of the kernel's Illinois iteration;
-- only the electron-scattering and bump opacity laws, without porosity.
+Deliberate differences: a shot stops at the root of its event function (dense
+output) and is classified by the sign of N there, where the kernel uses the
+first accepted point past v^2 - c_T^2 = SONIC_GAP c_T^2 (after a step that
+jumps across v = c_T that point lies beyond it: ~1e-9 in ln Mdot, rarely);
+the "N turned" event is also checked on the first step; ``brentq`` finds T_c
+at fixed r; only electron scattering and the bump law, without porosity.
 """
 
 import copy
 import math
 
+import numpy as np
 from scipy.integrate import solve_ivp
 from scipy.optimize import brentq
 
@@ -80,11 +64,8 @@ class _Wind:
             float(P[i]) for i in (D.I_GM, D.I_KG, D.I_KES, D.I_R_IN, D.I_T_IN))
         self.law = int(O[op.SLOT_LAW])
         if self.law not in (op.LAW_ELECTRON_SCATTERING, op.LAW_BUMP) or O[op.SLOT_H0] > 0.0:
-            raise ValueError("the reference knows electron scattering and the bump law, "
-                             "without porosity")
-        self.kes = float(O[op.SLOT_KES])
-        self.A, self.rho_ref, self.s, self.log_tb, self.width = (float(O[i])
-                                                                 for i in range(2, 7))
+            raise ValueError("reference: electron scattering or bump law, no porosity")
+        self.kes, self.A, self.rho_ref, self.s, self.log_tb, self.width = map(float, O[1:7])
         self.mdot = self.edot = math.nan
 
     def opacity(self, rho, T):
@@ -198,8 +179,7 @@ def critical_temperature_at(w, r, T_guess):
 
 
 def _event(fn, direction):
-    fn.terminal = True
-    fn.direction = direction
+    fn.terminal, fn.direction = True, direction
     return fn
 
 
@@ -264,10 +244,10 @@ def bracket(w, R, L, T, rtol, count):
 
 def short_outward(c, vc, p, dTdr, rc, Tc, r_target, rtol):
     """ln v at r_target on the wind branch leaving (r_c, T_c) (NaN on failure)."""
-    delta = B.DELTA
-    y0 = [math.log(vc + p * delta * rc), math.log(Tc + dTdr * delta * rc)]
-    sol = solve_ivp(c.rhs, (math.log(rc * (1.0 + delta)), math.log(r_target)), y0,
-                    method="DOP853", rtol=RTOL_SCIPY, atol=rtol, first_step=delta)
+    d = B.DELTA
+    sol = solve_ivp(c.rhs, (math.log(rc * (1.0 + d)), math.log(r_target)),
+                    [math.log(vc + p * d * rc), math.log(Tc + dTdr * d * rc)],
+                    method="DOP853", rtol=RTOL_SCIPY, atol=rtol, first_step=d)
     return float(sol.y[0, -1]) if sol.status == 0 else math.nan
 
 
@@ -284,10 +264,8 @@ def refine_critical(w, ln_mdot, stop, tie, rtol):
         crit = critical(w, mdot, rc, Tc)
         if crit is None:
             break
-        rc_new = r_s - (v_s - crit[1]) / crit[2]
-        done = abs(rc_new / rc - 1.0) < 1e-13
-        rc = rc_new
-        if done:
+        rc, rc_old = r_s - (v_s - crit[1]) / crit[2], rc
+        if abs(rc / rc_old - 1.0) < 1e-13:
             break
     r_t, v_t, T_t = tie
 
@@ -325,27 +303,20 @@ def refine_critical(w, ln_mdot, stop, tie, rtol):
 
 
 def solve_reference(P, O, L_ph, T_eff, rtol):
-    """Regular Model B wind with photosphere (L_ph, T_eff), the plain scipy way.
+    """Regular Model B wind with photosphere (L_ph [erg s-1], T_eff [K]), the scipy way.
 
-    Parameters
-    ----------
-    P, O : ndarray of float64
-        Model B and opacity vectors (``model.kernel_arrays``); Mdot and Edot
-        slots are ignored.
-    L_ph : float
-        Photospheric luminosity [erg s-1].
-    T_eff : float
-        Effective temperature [K].
-    rtol : float
-        windsolve's ``numerics.rtol``, used as ``atol`` on ln v and ln T.
-
-    Returns
-    -------
-    dict
-        ``mass_loss_rate`` [g s-1], ``sonic_radius`` [cm], ``sonic_temperature``
-        [K] and ``n_shots`` (inward shots from the photosphere).
+    ``P, O`` are ``model.kernel_arrays`` (Mdot, Edot slots ignored); ``rtol`` is
+    windsolve's ``numerics.rtol`` (used as ``atol`` on ln v and ln T).  Returns
+    a dict: ``mass_loss_rate`` [g s-1], ``sonic_radius`` [cm],
+    ``sonic_temperature`` [K] and ``n_shots`` (inward shots from the photosphere).
     """
-    L_ph, T_eff, rtol = float(L_ph), float(T_eff), float(rtol)  # no numpy scalars
+    # A right-hand side that overflows returns NaN so that solve_ivp rejects
+    # the step (as the kernel's integrator does); numpy need not warn then.
+    with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
+        return _solve(P, O, float(L_ph), float(T_eff), float(rtol))
+
+
+def _solve(P, O, L_ph, T_eff, rtol):
     R = math.sqrt(L_ph / (FOUR_PI * SIGMA_SB * T_eff**4))
     w = _Wind(P, O)
     shots = [0]

@@ -1,4 +1,4 @@
-"""Model B drivers: pin (Mdot, r_c, T_c) by shooting and Newton's method.
+"""Model B drivers: find the regular solution by shooting from the photosphere.
 
 The compiled legs live in :mod:`windsolve.core.diffusion`; this module only
 decides which legs to run.  Everything here is plain floats in cgs.
@@ -7,17 +7,16 @@ Photosphere anchor (given L_ph, T_eff, hence R_ph)
     For a trial Mdot the photospheric state is complete (tau = 2/3 fixes
     v_ph), so an inward integration from the photosphere either reaches the
     sound speed with N > 0 or turns away with N < 0: bisection in ln Mdot
-    between the two outcomes converges on the regular solution.  Its point of
-    closest approach to v = c_T seeds a Newton polish in (ln Mdot, ln r_c,
-    ln T_c), where each trial starts exactly on a critical point and runs
-    outward to the photosphere, so that the final solution is regular by
-    construction and meets the three photospheric conditions to the
-    integration noise.
+    between the two outcomes converges on the regular solution (SPEC
+    section 8).  Its critical point is then located on the critical curve of
+    the same (Mdot, Edot) and tied to the converged shot by a short outward
+    leg; the subsonic part is integrated inward from it.  Integrating the
+    diffusion equation outward over long distances is avoided: it amplifies
+    errors by about (T_c / T_ph)^3.
 Base anchor (given R0, L0 and T0 or rho0)
-    Newton in the same unknowns with residuals (photospheric condition,
-    L(R0) = L0, T(R0) = T0 or rho(R0) = rho0), started from the
-    photosphere-anchored solution with L_ph = L0 whose base temperature (or
-    density) matches, found by a scan and bisection in T_eff.
+    Two nested one-dimensional root-finds over photosphere-anchored solves:
+    T_eff that gives the base value at R0 for a photospheric luminosity, and
+    L_ph (secant) that makes L(R0) = L0.
 """
 
 import math
@@ -34,9 +33,6 @@ MAX_SHOTS = 200
 SHOT_CAPACITY = 100000
 TIE_DISTANCE = 1e-3  # tie the critical point to the shot this far (in ln r) outside it
 PROFILE_STEP = 0.02  # largest step in ln r of stored profiles (as windsolve.solve.MAX_STEP)
-MAX_NEWTON = 30
-STEP_TOL = 1e-10  # Newton stops when a step changes ln Mdot, ln r_c, ln T_c by less
-DEBUG = False
 NO_X = np.empty(0)
 NO_Y = np.empty((0, 2))
 
@@ -81,70 +77,9 @@ def critical(P, O, ln_mdot, ln_rc, ln_Tc):
     return Critical(mdot, rc, Tc, vc, Q, pp, dTdr, kind)
 
 
-def outward(c, O, rtol, out_x=NO_X, out_y=NO_Y, max_step=np.inf):
-    return D.outward_leg(c.rc, c.vc, c.Tc, c.slope, c.dTdr, DELTA, c.P, O, rtol, max_step,
-                         out_x, out_y)
-
-
 def inward(c, O, rtol, out_x=NO_X, out_y=NO_Y, max_step=np.inf):
     return D.inward_leg(c.rc, c.vc, c.Tc, c.slope, c.dTdr, DELTA, c.P, O, rtol, max_step,
                         out_x, out_y)
-
-
-def _newton(residual, z, rtol):
-    """Damped Newton with a forward-difference Jacobian.
-
-    The residuals (photospheric T above all) are steep functions of the
-    critical point -- a relative change of 1e-7 in r_c can move T(R_ph) by
-    1e-4 -- so the residual floor set by the integration noise is well above
-    rtol.  Convergence is therefore judged by the size of the Newton step:
-    the solution is known once a full step changes the unknowns by less than
-    STEP_TOL.  Returns (z, last step size, residual).
-    """
-    f = residual(z)
-    if f is None:
-        raise ModelBFailure(D.INVALID, "the starting point of the Newton polish is not a "
-                                       "regular solution")
-    n = len(z)
-    last = np.inf
-    for _ in range(MAX_NEWTON):
-        h = 1e-7
-        J = np.empty((n, n))
-        for j in range(n):
-            dz = np.zeros(n)
-            dz[j] = h
-            fj = residual(z + dz)
-            if fj is None:
-                fj = residual(z - dz)
-                if fj is None:
-                    raise ModelBFailure(D.INVALID, "Newton step left the regular solutions")
-                J[:, j] = (f - fj) / h
-            else:
-                J[:, j] = (fj - f) / h
-        if DEBUG:
-            print("newton", np.abs(f).max(), np.linalg.cond(J), f)
-        try:
-            step = np.linalg.solve(J, -f)
-        except np.linalg.LinAlgError:
-            break
-        size = np.abs(step).max()
-        if size < STEP_TOL:
-            last = size
-            break
-        lam = 1.0
-        norm = np.abs(f).max()
-        while lam > 1e-3:
-            fn = residual(z + lam * step)
-            if fn is not None and np.abs(fn).max() < norm:
-                break
-            lam *= 0.5
-        else:
-            last = size
-            break  # no descent: the residual is at its noise floor
-        z = z + lam * step
-        f = fn
-        last = lam * size
-    return z, last, f
 
 
 @dataclass
@@ -233,8 +168,6 @@ def _refine_critical(P, O, ln_mdot, stop, tie, rtol):
         return lnv - math.log(v_t), Tt
 
     f0, T0 = miss(rc, Tc)
-    if DEBUG:
-        print("refine start", rc, Tc, r_s, f0)
     if math.isfinite(f0):
         rc1 = rc * (1.0 - 1e-6)
         f1, T1 = miss(rc1, T0)
@@ -245,8 +178,6 @@ def _refine_critical(P, O, ln_mdot, stop, tie, rtol):
             rc, f0, T0 = rc1, f1, T1
             rc1 = rc2
             f1, T1 = miss(rc1, T0)
-            if DEBUG:
-                print("  refine", rc1, f1)
             if abs(rc1 / rc - 1.0) < 1e-14 or abs(f1) < 1e-13:
                 break
         if math.isfinite(f1) and abs(f1) < abs(f0):

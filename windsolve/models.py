@@ -376,10 +376,6 @@ class DiffusionWind(WindModel):
         "observed effective temperature, e.g. \"5e4 K\"", None, "positive")
     rtol: float = param("numerics.rtol", float, "relative tolerance of the integration",
                         1e-8, "rtol")
-    outer_radius: object = param("numerics.outer_radius", u.cm,
-                                 "give up looking for the photosphere beyond this radius "
-                                 "(default 1e4 times the photosphere or base radius)", None,
-                                 "positive")
 
     DEFAULT_BASE_TEMPERATURE = 1e6  # K, inner end of a photosphere-anchored profile
 
@@ -454,8 +450,6 @@ class DiffusionWind(WindModel):
         P[diff_kernels.I_T_IN] = T_in
         scale = (self.photosphere_radius.to_value(u.cm) if self.anchor == "photosphere"
                  else R0)
-        P[diff_kernels.I_R_OUT] = (self.cgs("outer_radius") if self.outer_radius is not None
-                                   else 1e4 * scale)
         porosity = (0.0, 1.0, 0.0)
         if self.porosity_length is not None:
             ref = R0 if R0 > 0 else scale

@@ -21,10 +21,12 @@ theory of Kato & Iben (1992, ApJ 394, 305) and Kato & Hachisu (1994, ApJ
 
 A regular solution is fixed by its critical point (Mdot, r_c, T_c): v_c =
 c_T(T_c), and N = 0 is linear in L_r, which gives L_c and then Edot
-(:func:`critical_state`).  Legs run outward from the critical point to the
-photosphere (located as an event, :func:`outward_leg`) and inward to the
+(:func:`critical_state`).  Legs run a short way outward from the critical
+point (:func:`short_outward`) and inward to the
 base (:func:`inward_leg`); :func:`shoot_from_photosphere` integrates inward
-from a photospheric state, the robust way to bracket Mdot.
+from a photospheric state, the robust way to bracket Mdot (outward
+integration of the diffusion equation amplifies errors, see
+:mod:`windsolve._diffusion`).
 
 Parameter vector ``P`` (slots ``I_*``); the user layer builds it.
 """
@@ -49,23 +51,20 @@ I_EDOT = 3  # energy flux Edot [erg s-1]
 I_KES = 4  # electron-scattering opacity of the thin flow [cm2 g-1]
 I_R_IN = 5  # inner radius where inward legs stop [cm] (0: none)
 I_T_IN = 6  # base temperature where inward legs stop [K] (inf: none)
-I_R_OUT = 7  # outward legs give up beyond this radius [cm]
-I_PREV_X = 8  # monitor bookkeeping: last accepted ln r
-I_PREV_Y0 = 9  # ... and ln v
-I_PREV_Y1 = 10  # ... and ln T
-I_PREV_N = 11  # ... and the sign of N (shooting from the photosphere)
-N_PARAMS = 12
+I_PREV_X = 7  # monitor bookkeeping: last accepted ln r
+I_PREV_Y0 = 8  # ... and ln v
+I_PREV_Y1 = 9  # ... and ln T
+I_PREV_N = 10  # ... and the sign of N (shooting from the photosphere)
+N_PARAMS = 11
 
 TAU_PH = 2.0 / 3.0  # optical depth of the photosphere
 SONIC_GAP = 1e-4  # |v^2 - c_T^2| / c_T^2 below which an inward shot is at the sonic point
 
 # --- leg status codes ------------------------------------------------------
 OK = 0
-PHOTOSPHERE = 1  # outward leg reached tau = 2/3
 STALLED = 2  # L_r <= 0: the radiation is used up
 SINGULAR = 3  # v reached c_T with N != 0
 OFF_TABLE = 4  # (rho, T) left the opacity table
-NO_PHOTOSPHERE = 5  # reached r_out still optically thick
 BASE = 6  # inward leg reached the base (R0 or T_base)
 FALLBACK = 7  # v_inf^2 <= 0 above the photosphere: the matter does not escape
 INVALID = 8  # no critical point for these (Mdot, r_c, T_c): L_c <= 0 or not a saddle
@@ -109,49 +108,6 @@ def terminal_velocity_squared(r, v, L, P):
     """v_inf^2 of the ballistic thin flow above r (SPEC section 5)."""
     gamma_thin = P[I_KES] * L / (FOUR_PI * C_LIGHT * P[I_GM])
     return v * v - 2.0 * P[I_GM] * (1.0 - gamma_thin) / r
-
-
-@njit(cache=True, error_model="numpy")
-def thin_optical_depth(r, v, L, P):
-    """tau = kappa_es Mdot / (2 pi r (v + v_inf)) of the flow above r; inf if bound."""
-    w2 = terminal_velocity_squared(r, v, L, P)
-    if w2 <= 0.0:
-        return np.inf
-    return P[I_KES] * P[I_MDOT] / (2.0 * math.pi * r * (v + math.sqrt(w2)))
-
-
-@njit(cache=True, error_model="numpy")
-def photosphere_excess(x, y, P, O):
-    """ln(tau_thin / (2/3)) at (x, y): negative above the photosphere."""
-    r = math.exp(x)
-    v = math.exp(y[0])
-    T = math.exp(y[1])
-    rho = P[I_MDOT] / (FOUR_PI * r * r * v)
-    L = luminosity(r, v, T, rho, P)
-    return math.log(thin_optical_depth(r, v, L, P) / TAU_PH)
-
-
-@njit(cache=True, error_model="numpy")
-def monitor_outward(x, y, P, O):
-    r = math.exp(x)
-    v = math.exp(y[0])
-    T = math.exp(y[1])
-    rho, L, k, dTdr, N = state(r, v, T, P, O)
-    if not math.isfinite(k):
-        return OFF_TABLE
-    if L <= 0.0:
-        return STALLED
-    cT2 = P[I_KG] * T
-    if v * v - cT2 < 1e-3 * cT2 and N < 0.0:
-        return SINGULAR
-    if thin_optical_depth(r, v, L, P) <= TAU_PH:
-        return PHOTOSPHERE
-    if r > P[I_R_OUT]:
-        return NO_PHOTOSPHERE
-    P[I_PREV_X] = x
-    P[I_PREV_Y0] = y[0]
-    P[I_PREV_Y1] = y[1]
-    return 0
 
 
 @njit(cache=True, error_model="numpy")
@@ -219,7 +175,6 @@ def left_table(x, y, P, O):
     return table_margin(O, rho, math.exp(y[1])) < TABLE_EDGE
 
 
-integrate_outward = make_integrator(rhs, monitor_outward)
 integrate_inward = make_integrator(rhs, monitor_inward)
 integrate_shoot = make_integrator(rhs, monitor_shoot)
 integrate_plain = make_integrator(rhs, monitor_none)
@@ -271,9 +226,6 @@ def critical_slopes(rc, vc, Tc, P, O):
     return kind, pp, pm, dTdr, k1
 
 
-refine_photosphere_x = make_root_refiner(photosphere_excess)
-
-
 @njit(cache=True, error_model="numpy")
 def sonic_balance_lnT(lnT, P, O):
     """N at v = c_T(T) and r = P[I_PREV_X] (Mdot, Edot fixed), as a function of ln T."""
@@ -313,102 +265,6 @@ def critical_temperature_at(r, T_guess, P, O):
         if (fb > 0.0) != (f0 > 0.0):
             return math.exp(refine_sonic_T(lo, b, f0, fb, Q, O, 1e-14))
     return math.nan
-
-
-@njit(cache=True, error_model="numpy")
-def locate_photosphere(P, O, x1, y1, rtol):
-    """Refine the tau = 2/3 crossing between the stored previous point and x1.
-
-    Returns (x_ph, y_ph) with y integrated from the previous accepted point.
-    """
-    x0 = P[I_PREV_X]
-    y0 = np.empty(2)
-    y0[0] = P[I_PREV_Y0]
-    y0[1] = P[I_PREV_Y1]
-    f0 = photosphere_excess(x0, y0, P, O)
-    f1 = photosphere_excess(x1, y1, P, O)
-    no_x = np.empty(0)
-    no_y = np.empty((0, 2))
-    lo = x0
-    hi = x1
-    y_lo = y0.copy()
-    # Illinois iterations, each a short plain integration from the previous
-    # accepted point (the integrator has no dense output).
-    side = 0
-    x = x1
-    y = y1.copy()
-    for _ in range(60):
-        if f1 == f0:
-            xm = 0.5 * (lo + hi)
-        else:
-            xm = (lo * f1 - hi * f0) / (f1 - f0)
-            if not lo < xm < hi:
-                xm = 0.5 * (lo + hi)
-        st, xx, ym, n, nf = integrate_plain(lo, y_lo, xm, P, O, 0.0, rtol,
-                                            0.5 * (xm - lo), np.inf, no_x, no_y)
-        fm = photosphere_excess(xm, ym, P, O)
-        x = xm
-        y = ym
-        if abs(fm) < 1e-13 or hi - lo < 1e-14 * (1.0 + abs(lo)):
-            break
-        if (fm > 0.0) == (f0 > 0.0):
-            lo = xm
-            y_lo = ym.copy()
-            f0 = fm
-            if side == -1:
-                f1 *= 0.5
-            side = -1
-        else:
-            hi = xm
-            f1 = fm
-            if side == 1:
-                f0 *= 0.5
-            side = 1
-    return x, y
-
-
-@njit(cache=True, error_model="numpy")
-def outward_leg(rc, vc, Tc, p, dTdr, delta, P, O, rtol, max_step, out_x, out_y):
-    """From just outside the critical point to the photosphere.
-
-    Returns (status, r_ph, v_ph, T_ph, L_ph, n_stored).  The stored points
-    end with the photosphere itself.
-    """
-    y0 = np.empty(2)
-    x0 = math.log(rc * (1.0 + delta))
-    y0[0] = math.log(vc + p * delta * rc)
-    y0[1] = math.log(Tc + dTdr * delta * rc)
-    P[I_PREV_X] = x0
-    P[I_PREV_Y0] = y0[0]
-    P[I_PREV_Y1] = y0[1]
-    st, x, y, n, nfev = integrate_outward(x0, y0, math.log(P[I_R_OUT]) + 1.0, P, O, 0.0, rtol,
-                                          delta, max_step, out_x, out_y)
-    if st == PHOTOSPHERE:
-        xp, yp = locate_photosphere(P, O, x, y, rtol)
-        if n > 0:
-            out_x[n - 1] = xp
-            out_y[n - 1, 0] = yp[0]
-            out_y[n - 1, 1] = yp[1]
-        r = math.exp(xp)
-        v = math.exp(yp[0])
-        T = math.exp(yp[1])
-        rho = P[I_MDOT] / (FOUR_PI * r * r * v)
-        L = luminosity(r, v, T, rho, P)
-        if terminal_velocity_squared(r, v, L, P) <= 0.0:
-            return FALLBACK, r, v, T, L, n
-        return OK, r, v, T, L, n
-    r = math.exp(x)
-    v = math.exp(y[0])
-    T = math.exp(y[1])
-    rho = P[I_MDOT] / (FOUR_PI * r * r * v)
-    L = luminosity(r, v, T, rho, P)
-    if st == REACHED_END:
-        st = NO_PHOTOSPHERE
-    elif st == STEP_TOO_SMALL and left_table(x, y, P, O):
-        st = OFF_TABLE
-    elif st < 0:
-        st = SINGULAR if st == STEP_TOO_SMALL else FAILED
-    return st, r, v, T, L, n
 
 
 @njit(cache=True, error_model="numpy")
