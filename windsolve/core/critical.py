@@ -75,8 +75,12 @@ def make_root_refiner(f):
     @njit(cache=True, error_model="numpy")
     def refine_root(lo, hi, f_lo, f_hi, P, O, xtol):
         """Root of f in [lo, hi] given f(lo) = f_lo, f(hi) = f_hi of opposite sign."""
+        if f_lo == 0.0:
+            return lo
+        if f_hi == 0.0:
+            return hi
         side = 0
-        m = 0.5 * (lo + hi)
+        m = math.nan  # no estimate yet: the first one is never "converged"
         for _ in range(200):
             if f_hi == f_lo:
                 m_new = 0.5 * (lo + hi)

@@ -144,6 +144,10 @@ def monitor_shoot(x, y, P, O):
         return STALLED
     cT2 = P[I_KG] * T
     if v * v - cT2 < SONIC_GAP * cT2:
+        if v * v < cT2 and P[I_PREV_N] != 0.0:
+            # One step jumped across v = c_T instead of landing in the gap:
+            # N on this side of the line says nothing; the last point decides.
+            return SIDE_SONIC if P[I_PREV_N] > 0.0 else SIDE_TURN
         return SIDE_SONIC if N > 0.0 else SIDE_TURN
     # N from + to - moving inward: the flow turns away from the sonic point.
     # (From - to + is the velocity maximum outside an opacity bump.)
@@ -248,6 +252,8 @@ def critical_temperature_at(r, T_guess, P, O):
     Q[I_PREV_X] = r
     lo = math.log(T_guess)
     f0 = sonic_balance_lnT(lo, Q, O)
+    if f0 == 0.0:
+        return T_guess
     d = 1e-7
     for _ in range(40):
         # Widen geometrically from a tiny step: the root sought is the one
