@@ -6,6 +6,7 @@ stderr naming the problem and the fix; no traceback, no output file.
 
 import argparse
 import math
+import os
 import sys
 from pathlib import Path
 
@@ -222,6 +223,36 @@ def cmd_family(args):
     return EXIT_OK
 
 
+def cmd_sweep(args):
+    from collections import Counter
+
+    from .sweep import load_sweep, run_sweep
+    sweep = load_sweep(args.sweep)
+    if args.profiles:
+        sweep.profiles = True
+    if args.workers is not None and args.workers < 1:
+        raise WindsolveError("--workers must be at least 1")
+    _check_output(args.output, ".h5")
+    if not args.quiet:
+        where = f"dask scheduler {args.scheduler}" if args.scheduler else \
+            f"{args.workers or 'all'} local worker(s)"
+        print(f"{args.sweep}: {len(sweep)} {sweep.kind} models ({sweep.design} design over "
+              f"{', '.join(a.key for a in sweep.axes)}) on {where}")
+    done, interrupted = run_sweep(sweep, args.output, workers=args.workers,
+                                  scheduler=args.scheduler, resume=args.resume,
+                                  quiet=args.quiet)
+    if interrupted:
+        print(f"windsolve: interrupted: {len(done)} of {len(sweep)} models done and kept; "
+              f"resume with: windsolve sweep {args.sweep} -o {args.output} --resume",
+              file=sys.stderr)
+        return 130
+    if not args.quiet:
+        counts = Counter(r.get("status", "?") for r in done.values())
+        print("  " + ", ".join(f"{k}: {v}" for k, v in counts.most_common()))
+        print(f"wrote {args.output}")
+    return EXIT_OK
+
+
 def cmd_inspect(args):
     import h5py
     import numpy as np
@@ -234,6 +265,9 @@ def cmd_inspect(args):
         f = h5py.File(path, "r")
     except OSError:
         raise OutputError(f"{path}: not an HDF5 file (or damaged)") from None
+    if args.csv is not None:
+        f.close()
+        return _export_csv(path, args.csv)
     with f:
         print(f"{path}")
         for key, value in f.attrs.items():
@@ -286,19 +320,67 @@ def cmd_inspect(args):
     return EXIT_OK
 
 
+def _export_csv(path, target):
+    """Write the /table of a sweep or family file as CSV (units in the header)."""
+    import csv
+
+    import h5py
+    import numpy as np
+
+    from .errors import OutputError
+    with h5py.File(path, "r") as f:
+        if "table" not in f:
+            raise OutputError(f"{path}: no /table to export (only sweep and family files "
+                              f"have one)")
+        g = f["table"]
+        keys = list(g.keys())
+        if "axes" in f.attrs:  # axis columns first, in sweep order
+            import json
+            axes = json.loads(f.attrs["axes"])
+            keys = axes + [k for k in keys if k not in axes]
+        cols = []
+        for key in keys:
+            data = g[key][()]
+            if data.dtype.kind in "OS":
+                data = np.array([x.decode() if isinstance(x, bytes) else str(x) for x in data])
+            cols.append(data)
+        units = [g[k].attrs.get("units", "") for k in keys]
+    header = ["row"] + [f"{k} [{u}]" if u not in ("", "1", "none") else k
+                        for k, u in zip(keys, units, strict=True)]
+    out = sys.stdout if target == "-" else open(target, "w", newline="", encoding="utf-8")
+    try:
+        w = csv.writer(out)
+        w.writerow(header)
+        for i in range(len(cols[0]) if cols else 0):
+            w.writerow([i] + [repr(float(c[i])) if c.dtype.kind == "f" else
+                              (bool(c[i]) if c.dtype.kind == "b" else c[i]) for c in cols])
+    finally:
+        if out is not sys.stdout:
+            out.close()
+    if target != "-":
+        print(f"wrote {target}")
+    return EXIT_OK
+
+
 def cmd_plot(args):
     import h5py
 
     from .plotting import plot_profile
     from .result import WindResult
     out = Path(args.output) if args.output else Path(args.file).with_suffix(".png")
-    family = False
+    family = sweep = False
     try:
         with h5py.File(args.file, "r") as f:
             family = "family_scan" in f.attrs
+            sweep = "sweep_toml" in f.attrs
     except OSError:
         pass  # from_hdf5 below says what is wrong with the file
     _check_output(out, ".png")
+    if sweep:
+        from .plotting import plot_sweep
+        plot_sweep(args.file, out)
+        print(f"wrote {out}")
+        return EXIT_OK
     if family:
         from .family import FamilyResult, plot_family
         plot_family(FamilyResult.from_hdf5(args.file), out)
@@ -378,6 +460,9 @@ def build_parser():
                                    "(with units) and critical points of a result file.")
     p.add_argument("file", help="HDF5 result file")
     p.add_argument("--model", action="store_true", help="also print the stored model file")
+    p.add_argument("--csv", nargs="?", const="-", metavar="FILE",
+                   help="export the /table of a sweep or family file as CSV (to FILE, or "
+                        "standard output)")
     p.set_defaults(func=cmd_inspect)
 
     p = sub.add_parser("plot", help="plot the profiles of a result file",
@@ -387,6 +472,26 @@ def build_parser():
     p.add_argument("-o", "--output", metavar="OUT.png",
                    help="image file (PNG, PDF or SVG); default: FILE with .png")
     p.set_defaults(func=cmd_plot)
+
+    p = sub.add_parser("sweep", help="run a parameter sweep (locally or on a dask cluster)",
+                       description="Run every model of a sweep file (grid, random or Latin "
+                                   "hypercube design).  Finished models are journaled as they "
+                                   "finish (OUT.h5.partial); a killed sweep resumes with "
+                                   "--resume.  Locally a process pool (default: all cores); "
+                                   "with --scheduler an existing dask.distributed cluster.")
+    p.add_argument("sweep", help="sweep file (TOML)")
+    p.add_argument("-o", "--output", required=True, metavar="OUT.h5", help="HDF5 output")
+    p.add_argument("--workers", type=int, metavar="N",
+                   help="local worker processes (default: all cores)")
+    p.add_argument("--scheduler", metavar="ADDRESS",
+                   help="run on the dask.distributed scheduler at ADDRESS (tcp://host:port "
+                        "or tls://host:port)")
+    p.add_argument("--resume", action="store_true",
+                   help="finish an interrupted sweep: run only the models not yet done")
+    p.add_argument("--profiles", action="store_true",
+                   help="also store every model's profile (large files)")
+    p.add_argument("-q", "--quiet", action="store_true", help="no progress bar or summary")
+    p.set_defaults(func=cmd_sweep)
 
     p = sub.add_parser("family", help="solve a family of photosphere-anchored diffusion winds",
                        description="Keep the photosphere luminosity of a photosphere-anchored "
@@ -450,6 +555,11 @@ def main(argv=None):
     except KeyboardInterrupt:
         print("windsolve: interrupted", file=sys.stderr)
         return 130
+    except BrokenPipeError:
+        # Output piped into e.g. `head`, which stopped reading: not an error.
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        return EXIT_OK
 
 
 if __name__ == "__main__":

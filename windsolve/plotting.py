@@ -5,7 +5,7 @@ import numpy as np
 
 from .errors import OutputError
 
-__all__ = ["plot_profile"]
+__all__ = ["plot_profile", "plot_sweep"]
 
 
 def plot_profile(result, path=None):
@@ -74,3 +74,78 @@ def plot_profile(result, path=None):
             raise OutputError(f"{path}: cannot write the plot ({error})") from None
         plt.close(fig)
     return fig
+
+
+def plot_sweep(path, out):
+    """Mdot and v_inf over a sweep: against one axis, or colour maps over two.
+
+    Failed models are marked with grey crosses and counted in the title.
+    """
+    import json
+
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    from .sweep import read_sweep_table
+
+    table, attrs = read_sweep_table(path)
+    axes_keys = json.loads(attrs["axes"])
+    ok = table["converged"].astype(bool)
+    mdot = table["mass_loss_rate"] * (u.g / u.s).to(u.Msun / u.yr)
+    vinf = table["terminal_velocity"] / 1e5
+    n_bad = int((~ok).sum())
+    fig, axs = plt.subplots(1, 2, figsize=(11, 4.4), constrained_layout=True)
+    quantities = [(mdot, r"mass-loss rate  $\dot M$  [M$_\odot$ yr$^{-1}$]", True),
+                  (vinf, r"terminal velocity  $v_\infty$  [km s$^{-1}$]", False)]
+
+    def label(key):
+        unit = ""
+        import h5py
+        with h5py.File(path, "r") as f:
+            unit = f["table"][key].attrs.get("units", "")
+        return f"{key}  [{unit}]" if unit not in ("", "1") else key
+
+    def logscale(x):
+        return np.all(x > 0) and x.max() / x.min() > 30
+
+    if len(axes_keys) == 1:
+        x = table[axes_keys[0]]
+        for ax, (y, ylab, logy) in zip(axs, quantities, strict=True):
+            order = np.argsort(x)
+            ax.plot(x[order][ok[order]], y[order][ok[order]], "o-", ms=3, color="#1f4e79")
+            if n_bad:
+                ymin = np.nanmin(y[ok]) if ok.any() else 1.0
+                ax.plot(x[~ok], np.full(n_bad, ymin), "x", color="0.5", label="no solution")
+                ax.legend(frameon=False)
+            ax.set_xlabel(label(axes_keys[0]))
+            ax.set_ylabel(ylab)
+            ax.set_xscale("log" if logscale(x) else "linear")
+            if logy and ok.any() and np.all(y[ok] > 0):
+                ax.set_yscale("log")
+            ax.grid(True, which="both", alpha=0.25)
+    else:
+        x, y = table[axes_keys[0]], table[axes_keys[1]]
+        for ax, (z, zlab, logz) in zip(axs, quantities, strict=True):
+            zz = np.log10(z) if logz and ok.any() and np.all(z[ok] > 0) else z
+            sc = ax.scatter(x[ok], y[ok], c=zz[ok], cmap="viridis", s=36, marker="s")
+            if n_bad:
+                ax.scatter(x[~ok], y[~ok], marker="x", color="0.5", s=30, label="no solution")
+                ax.legend(frameon=False, loc="best")
+            cb = fig.colorbar(sc, ax=ax)
+            cb.set_label(("log10 " if zz is not z else "") + zlab)
+            ax.set_xlabel(label(axes_keys[0]))
+            ax.set_ylabel(label(axes_keys[1]))
+            ax.set_xscale("log" if logscale(x) else "linear")
+            ax.set_yscale("log" if logscale(y) else "linear")
+        if len(axes_keys) > 2:
+            fig.text(0.01, 0.01, f"(first two of {len(axes_keys)} axes shown)", fontsize=8)
+    fig.suptitle(f"sweep {attrs.get('sweep_file', '')}: {ok.sum()} solutions"
+                 + (f", {n_bad} without (x)" if n_bad else ""))
+    try:
+        fig.savefig(out, dpi=120)
+    except (OSError, ValueError) as error:
+        raise OutputError(f"{out}: cannot write the plot ({error})") from None
+    plt.close(fig)
+    return out

@@ -17,6 +17,12 @@ from .result import WindResult
 __all__ = ["solve", "SOLVERS"]
 
 FOUR_PI = 4.0 * math.pi
+# Units built once: composing them on every call costs more than a solve.
+G_S = u.g / u.s
+CM_S = u.cm / u.s
+G_CM3 = u.g / u.cm**3
+CM2_G = u.cm**2 / u.g
+ERG_S = u.erg / u.s
 DELTA = 1e-6  # start this fraction of r_c off the critical point (SPEC section 8)
 MAX_STEP = 0.02  # largest step in ln r of a stored profile (~115 points per decade)
 CAPACITY = 200000  # stored points per leg
@@ -61,7 +67,7 @@ def _isothermal_failure(code, model):
                       f"numerics.rtol")
 
 
-def solve_isothermal(model):
+def solve_isothermal(model, profile=True):
     """Solve Model A (:class:`~windsolve.models.IsothermalWind`)."""
     t0 = time.perf_counter()
     P, O = model.kernel_arrays
@@ -69,10 +75,10 @@ def solve_isothermal(model):
     code, ln_mdot, rc, slope, shots, reason = K.solve(P, O, rtol, DELTA)
     R0 = model.cgs("radius")
     summary = {
-        "mass_loss_rate": np.nan * u.g / u.s,
-        "terminal_velocity": np.nan * u.cm / u.s,
+        "mass_loss_rate": np.nan * G_S,
+        "terminal_velocity": np.nan * CM_S,
         "sonic_radius": np.nan * u.cm,
-        "sonic_velocity": model.a * u.cm / u.s,
+        "sonic_velocity": model.a * CM_S,
         "outer_radius": model.outer_radius.to(u.cm),
         "base_eddington_factor": K.base_eddington_factor(P, O) * u.one,
     }
@@ -88,19 +94,26 @@ def solve_isothermal(model):
         status, message = _isothermal_failure(code, model)
         return WindResult(model, False, status, message, summary,
                           counters={"shots": int(shots), "seconds": time.perf_counter() - t0})
-    st_in, st_out, r, v = K.profile(ln_mdot, P, O, rtol, DELTA, MAX_STEP, CAPACITY)
+    if profile:
+        st_in, st_out, r, v = K.profile(ln_mdot, P, O, rtol, DELTA, MAX_STEP, CAPACITY)
+    else:  # the outer end only (sweeps): no stored profile
+        st_in = K.OK
+        st_out, r_end, v_end = K.end_state(ln_mdot, P, O, rtol, DELTA)
+        r = np.array([R0, r_end])
+        v = np.array([math.exp(ln_mdot) / (FOUR_PI * R0**2 * model.cgs("base_density")),
+                      v_end])
     rho, L, kappa, gamma = K.profile_quantities(ln_mdot, r, v, P, O)
     mdot = math.exp(ln_mdot)
-    summary["mass_loss_rate"] = mdot * u.g / u.s
+    summary["mass_loss_rate"] = mdot * G_S
     summary["sonic_radius"] = rc * u.cm
     summary["base_eddington_factor"] = gamma[0] * u.one
-    profile = {
+    profile = {} if not profile else {
         "radius": r << u.cm,
-        "velocity": v << u.cm / u.s,
-        "density": rho << u.g / u.cm**3,
+        "velocity": v << CM_S,
+        "density": rho << G_CM3,
         "temperature": np.full_like(r, model.T) << u.K,
-        "luminosity": L << u.erg / u.s,
-        "opacity": kappa << u.cm**2 / u.g,
+        "luminosity": L << ERG_S,
+        "opacity": kappa << CM2_G,
         "eddington_factor": gamma << u.one,
     }
     Q = K.set_mass_loss_rate(P, ln_mdot)
@@ -120,7 +133,7 @@ def solve_isothermal(model):
                    "did; tighten numerics.rtol")
     elif st_out == K.OK:
         converged, status = True, "converged"
-        summary["terminal_velocity"] = v[-1] * u.cm / u.s
+        summary["terminal_velocity"] = v[-1] * CM_S
         message = (f"converged: transonic solution through the saddle at "
                    f"r_c = {rc / R0:.5g} R0")
     elif st_out == K.STALLED:
@@ -153,8 +166,12 @@ def _diffusion_failure_result(model, summary, code, text, t0):
                       counters={"shots": 0, "seconds": time.perf_counter() - t0})
 
 
-def solve_diffusion(model):
-    """Solve Model B (:class:`~windsolve.models.DiffusionWind`)."""
+def solve_diffusion(model, profile=True):
+    """Solve Model B (:class:`~windsolve.models.DiffusionWind`).
+
+    ``profile`` is accepted for symmetry; the profile is always computed
+    (the base values come from it).
+    """
     from scipy.integrate import cumulative_trapezoid
 
     from . import _diffusion as B
@@ -167,10 +184,10 @@ def solve_diffusion(model):
     M = model.cgs("mass")
     nan = np.nan
     summary = {key: nan * unit for key, unit in (
-        ("mass_loss_rate", u.g / u.s), ("terminal_velocity", u.cm / u.s),
-        ("sonic_radius", u.cm), ("sonic_velocity", u.cm / u.s),
+        ("mass_loss_rate", G_S), ("terminal_velocity", CM_S),
+        ("sonic_radius", u.cm), ("sonic_velocity", CM_S),
         ("photosphere_radius", u.cm), ("photosphere_temperature", u.K),
-        ("photosphere_luminosity", u.erg / u.s), ("energy_flux", u.erg / u.s))}
+        ("photosphere_luminosity", ERG_S), ("energy_flux", ERG_S))}
     kes = P[D.I_KES]
     if model.opacity.law == "electron_scattering" and model.porosity_length is None:
         L = (model.cgs("photosphere_luminosity") if model.anchor == "photosphere"
@@ -220,28 +237,28 @@ def solve_diffusion(model):
     tau = D.TAU_PH + from_out[::-1]
     w2 = D.terminal_velocity_squared(R_ph, v_ph, L_ph, c.P)
     summary.update({
-        "mass_loss_rate": c.mdot * u.g / u.s,
-        "terminal_velocity": math.sqrt(w2) * u.cm / u.s,
+        "mass_loss_rate": c.mdot * G_S,
+        "terminal_velocity": math.sqrt(w2) * CM_S,
         "sonic_radius": c.rc * u.cm,
-        "sonic_velocity": c.vc * u.cm / u.s,
+        "sonic_velocity": c.vc * CM_S,
         "photosphere_radius": R_ph * u.cm,
         "photosphere_temperature": D.effective_temperature(L_ph, R_ph) * u.K,
-        "photosphere_luminosity": L_ph * u.erg / u.s,
-        "energy_flux": c.P[D.I_EDOT] * u.erg / u.s,
-        "photosphere_velocity": v_ph * u.cm / u.s,
+        "photosphere_luminosity": L_ph * ERG_S,
+        "energy_flux": c.P[D.I_EDOT] * ERG_S,
+        "photosphere_velocity": v_ph * CM_S,
         "sonic_temperature": c.Tc * u.K,
         "base_radius": r[0] * u.cm,
         "base_temperature": T[0] * u.K,
-        "base_density": rho[0] * u.g / u.cm**3,
-        "base_luminosity": L[0] * u.erg / u.s,
+        "base_density": rho[0] * G_CM3,
+        "base_luminosity": L[0] * ERG_S,
     })
     profile = {
         "radius": r << u.cm,
-        "velocity": v << u.cm / u.s,
-        "density": rho << u.g / u.cm**3,
+        "velocity": v << CM_S,
+        "density": rho << G_CM3,
         "temperature": T << u.K,
-        "luminosity": L << u.erg / u.s,
-        "opacity": kappa << u.cm**2 / u.g,
+        "luminosity": L << ERG_S,
+        "opacity": kappa << CM2_G,
         "eddington_factor": gamma << u.one,
         "optical_depth": tau << u.one,
     }
@@ -259,7 +276,7 @@ def solve_diffusion(model):
 SOLVERS = {"isothermal": solve_isothermal, "diffusion": solve_diffusion}
 
 
-def solve(model):
+def solve(model, profile=True):
     """Solve a wind model; returns a :class:`~windsolve.result.WindResult`.
 
     Parameters
@@ -267,6 +284,10 @@ def solve(model):
     model : WindModel
         For example from :func:`windsolve.load_model` or
         ``IsothermalWind(...)``.
+    profile : bool
+        Store the profiles (default).  Sweeps that only need the summary
+        pass False, which skips the stored, step-limited integration; the
+        summary values agree to the integration tolerance.
 
     Returns
     -------
@@ -274,4 +295,4 @@ def solve(model):
         Always returned; ``result.converged`` says whether the transonic
         solution was found out to the outer radius, ``result.message`` why not.
     """
-    return SOLVERS[model.kind](model)
+    return SOLVERS[model.kind](model, profile)

@@ -655,6 +655,33 @@ def profile(ln_mdot, P, O, rtol, delta, max_step, capacity):
 
 
 @njit(cache=True, error_model="numpy")
+def end_state(ln_mdot, P, O, rtol, delta):
+    """(status_out, r_end, v_end) of the outward leg, nothing stored.
+
+    What a sweep needs when it does not keep profiles: the velocity at the
+    outer radius and whether the flow got there.
+    """
+    Q = set_mass_loss_rate(P, ln_mdot)
+    code, rc, slope = innermost_saddle(Q, O)
+    a = math.sqrt(Q[I_A2])
+    y0 = np.empty(1)
+    y0[0] = math.log(a + slope * delta * rc)
+    st, x, y, no, nfev = integrate_outward(
+        math.log(rc * (1.0 + delta)), y0, math.log(Q[I_ROUT]), Q, O, 0.0, rtol, delta,
+        np.inf, np.empty(0), np.empty((0, 1)))
+    status_out = OK
+    if st == STEP_TOO_SMALL and left_table(x, y, Q, O):
+        status_out = LEFT_TABLE
+    elif st == STOP_STALL:
+        status_out = STALLED
+    elif st == STOP_SINGULAR or st == STEP_TOO_SMALL:
+        status_out = OUTWARD_SINGULAR
+    elif st != REACHED_END:
+        status_out = INTEGRATION_FAILED
+    return status_out, math.exp(x), math.exp(y[0])
+
+
+@njit(cache=True, error_model="numpy")
 def profile_quantities(ln_mdot, r, v, P, O):
     """rho, L, kappa_eff and Gamma_eff along a profile (cgs arrays)."""
     Q = set_mass_loss_rate(P, ln_mdot)

@@ -1,0 +1,124 @@
+"""Sweep throughput and memory: 1 vs 2 workers, overhead against a plain loop.
+
+Run by hand from the repository root (windsolve installed)::
+
+    python benchmarks/bench_sweep.py [N]
+
+Builds a Model A grid sweep of N models (default 2000) around the demo model
+(luminosity x porosity length), and measures in the same run:
+
+* ``solve`` in a loop in this process (the baseline, no sweep machinery: the
+  same row models, summary only, as the workers do);
+* ``windsolve sweep`` with 1 and with 2 local workers (wall time including
+  worker start-up, which is reported separately from a 1-model sweep);
+* peak resident memory of a sweep process at 1,000 and 10,000 models.
+
+Goals (sweep issue): speed-up >= 1.8x on 2 cores; per-model overhead <= 10 %
+of a Model A solve; memory flat as the sweep grows.
+"""
+
+import os
+import resource
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import windsolve
+from windsolve.modelfile import model_from_dict
+from windsolve.sweep import apply_changes, load_sweep
+
+ROOT = Path(__file__).resolve().parent.parent
+DEMO = ROOT / "configs" / "demo.toml"
+
+
+def sweep_text(n_l, n_h):
+    return f"""[sweep]
+base = "{DEMO}"
+design = "grid"
+batch = 50
+[[axis]]
+key = "star.luminosity"
+start = "2.5e6 Lsun"
+stop = "8e6 Lsun"
+num = {n_l}
+spacing = "log"
+[[axis]]
+key = "porosity.length"
+start = "1 Rsun"
+stop = "100 Rsun"
+num = {n_h}
+spacing = "log"
+"""
+
+
+def run_cli(path, out, workers):
+    t0 = time.perf_counter()
+    subprocess.run([sys.executable, "-m", "windsolve", "sweep", str(path), "-o", str(out),
+                    "--workers", str(workers), "-q"], check=True)
+    return time.perf_counter() - t0
+
+
+def peak_rss_mb(path, out):
+    """Peak RSS [MB] of a 2-worker sweep: main process and largest worker."""
+    code = ("import resource, sys\n"
+            "from windsolve import cli\n"
+            f"cli.main(['sweep', {str(path)!r}, '-o', {str(out)!r}, '--workers', '2', '-q'])\n"
+            "m = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024\n"
+            "c = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024\n"
+            "print(m, c)\n")
+    res = subprocess.run([sys.executable, "-c", code], check=True, capture_output=True,
+                         text=True)
+    main, child = res.stdout.split()
+    return float(main), float(child)
+
+
+def main():
+    n = int(sys.argv[1]) if len(sys.argv) > 1 else 2000
+    n_h = 20
+    n_l = max(1, n // n_h)
+    with tempfile.TemporaryDirectory() as tmp:
+        tmp = Path(tmp)
+        path = tmp / "sweep.toml"
+        path.write_text(sweep_text(n_l, n_h))
+        sweep = load_sweep(path)
+        total = len(sweep)
+        # Baseline: the same work in a loop in this process (kernels warm):
+        # build each row's model from the base and solve it, summary only.
+        base = model_from_dict(sweep.base)
+        windsolve.solve(apply_changes(base, sweep.rows[0]), profile=False)
+        t0 = time.perf_counter()
+        for changes in sweep.rows:
+            windsolve.solve(apply_changes(base, changes), profile=False)
+        loop = time.perf_counter() - t0
+        per_model = loop / total
+        one = tmp / "one.toml"
+        one.write_text(sweep_text(1, 1))
+        startup = run_cli(one, tmp / "one.h5", 1)
+        t1 = run_cli(path, tmp / "w1.h5", 1)
+        t2 = run_cli(path, tmp / "w2.h5", 2)
+        print(f"{total} Model A models (demo grid: luminosity x porosity length)")
+        print(f"  loop of windsolve.solve in one process: {loop:7.2f} s "
+              f"({1e3 * per_model:.3f} ms per model, {total / loop:7.1f} models/s)")
+        print(f"  sweep, 1 worker:  {t1:7.2f} s  ({total / t1:7.1f} models/s)")
+        print(f"  sweep, 2 workers: {t2:7.2f} s  ({total / t2:7.1f} models/s)")
+        print(f"  start-up of a 1-model sweep (spawn workers, load kernels): {startup:.2f} s")
+        speedup = (t1 - startup) / (t2 - startup)
+        overhead = ((t1 - startup) / total - per_model) / per_model
+        print(f"  speed-up 2 vs 1 worker (start-up removed): {speedup:.2f}x   (goal >= 1.8x; "
+              f"raw {t1 / t2:.2f}x)")
+        print(f"  per-model overhead of the sweep machinery, 1 worker, start-up removed: "
+              f"{100 * overhead:+.1f} % of a solve   (goal <= 10 %)")
+        for n_mem in (1000, 10000):
+            p = tmp / f"mem{n_mem}.toml"
+            p.write_text(sweep_text(n_mem // n_h, n_h))
+            main_mb, child_mb = peak_rss_mb(p, tmp / f"mem{n_mem}.h5")
+            print(f"  peak RSS at {n_mem:5d} models: main process {main_mb:6.1f} MB, "
+                  f"largest worker {child_mb:6.1f} MB")
+    rss = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+    print(f"(machine: {os.cpu_count()} cores; this process peak RSS {rss:.0f} MB)")
+
+
+if __name__ == "__main__":
+    main()

@@ -1,0 +1,613 @@
+"""Parameter sweeps: thousands of models on a laptop or on a dask cluster.
+
+A sweep file (TOML) names a base model (a model file, or an inline
+``[model]`` table), a design (``grid``, ``random`` or ``latin``) and one or
+more ``[[axis]]`` tables, each a dotted model key with explicit ``values`` or
+``start``/``stop`` (and ``num`` and ``spacing`` for a grid).  The whole sweep
+is validated -- every row built into a model -- before anything runs.
+
+Execution goes through the ``concurrent.futures.Executor`` interface, which
+both a local process pool and a ``dask.distributed`` client
+(``Client.get_executor()``) provide: one code path for a laptop and a
+cluster.  Rows are sent in batches so the per-task overhead stays small.
+
+Nothing finished is lost: every finished batch is appended to a journal next
+to the output (``OUT.h5.partial``, JSON lines, flushed and fsynced), so a
+killed sweep loses at most the batches in flight, and ``--resume`` runs only
+the missing rows.  The HDF5 file is written from the journal at the end
+(under a temporary name, then renamed), rows in design order, so a resumed
+sweep gives the same table as an uninterrupted one.
+"""
+
+import datetime
+import hashlib
+import itertools
+import json
+import math
+import os
+import time
+from concurrent.futures import FIRST_COMPLETED, BrokenExecutor, wait
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from ._version import __version__
+from .errors import ModelError, OutputError, WindsolveError
+from .opacity import nearest
+
+__all__ = ["Sweep", "load_sweep", "run_sweep", "read_sweep_table", "DESIGNS",
+           "SUMMARY_COLUMNS"]
+
+DESIGNS = ("grid", "random", "latin")
+SPACINGS = ("linear", "log")
+SWEEP_KEYS = ("base", "design", "samples", "seed", "profiles", "batch")
+AXIS_KEYS = ("key", "values", "start", "stop", "num", "spacing")
+DEFAULT_BATCH = 25
+JOURNAL_SUFFIX = ".partial"
+
+
+def _summary_columns():
+    from .result import SUMMARY_UNITS
+    return list(SUMMARY_UNITS)
+
+
+SUMMARY_COLUMNS = _summary_columns()
+
+
+@dataclass
+class Axis:
+    """One swept model key and its values (model-file strings, cgs numbers)."""
+
+    key: str
+    texts: list  # values as written into each row's model file
+    numbers: np.ndarray  # the same values in cgs (floats) for the table
+    unit: str  # unit of ``numbers`` ("" for plain numbers)
+
+
+@dataclass
+class Sweep:
+    """A validated sweep: the base model, the axes and every row's model file."""
+
+    path: Path
+    text: str
+    kind: str
+    design: str
+    axes: list
+    base: dict  # the base model file (nested dicts)
+    rows: list  # per row: {dotted key: value as written in a model file}
+    profiles: bool = False
+    batch: int = DEFAULT_BATCH
+    axis_table: np.ndarray = field(default=None)  # (n_rows, n_axes) cgs
+
+    @property
+    def digest(self):
+        return hashlib.sha256(self.text.encode()).hexdigest()[:16]
+
+    def __len__(self):
+        return len(self.rows)
+
+
+# -- reading a sweep file ---------------------------------------------------------
+
+def _fail(path, text):
+    raise ModelError(f"{path}: {text}")
+
+
+def _axis_spec(model_cls, key, where):
+    """(reader, unit) for a dotted key: reader(value) -> checked value."""
+    from .opacity import OPACITY_LAWS
+    by_key = {p.key: p for p in model_cls.params().values()}
+    if key in by_key:
+        p = by_key[key]
+        if p.kind in (str, bool):
+            _fail(where, f"axis key \"{key}\" is not a number; sweep numeric keys only")
+        return p.read, (None if p.kind is float else p.kind)
+    if key.startswith("opacity."):
+        name = key.partition(".")[2]
+        for law in OPACITY_LAWS.values():
+            for lp in law.parameters:
+                if lp.name == name and lp.unit not in (bool, Path):
+                    import astropy.units as u
+                    unit = None if lp.unit == u.dimensionless_unscaled else lp.unit
+                    return (lambda value, lp=lp: lp.read(value, f"[opacity] {lp.name}")), unit
+    valid = [k for k in model_cls.keys() if k not in ("name", "opacity.law")]
+    _fail(where, f"axis key \"{key}\" is not a {model_cls.kind} model key"
+                 f"{nearest(key, valid)}")
+
+
+def _number(value, unit):
+    """cgs float of a checked value."""
+    if unit is None:
+        return float(value.value) if hasattr(value, "value") else float(value)
+    return float(value.to_value(unit))
+
+
+def _as_text(value):
+    """How a checked value is written into a row's model file."""
+    import astropy.units as u
+    if isinstance(value, u.Quantity):
+        if value.unit == u.dimensionless_unscaled:
+            return float(value.value)
+        return f"{float(value.value)!r} {value.unit.to_string()}"
+    return value
+
+
+def _read_axis(model_cls, table, where, design):
+    import astropy.units as u
+    for k in table:
+        if k not in AXIS_KEYS:
+            _fail(where, f"unknown key \"{k}\" in [[axis]]{nearest(k, AXIS_KEYS)}; an axis "
+                         f"takes {', '.join(AXIS_KEYS)}")
+    if "key" not in table:
+        _fail(where, "an [[axis]] needs key = \"section.name\", e.g. key = \"star.luminosity\"")
+    key = table["key"]
+    read, unit = _axis_spec(model_cls, key, where)
+    axis_where = f"{where} [[axis]] {key}"
+    if "values" in table:
+        if any(k in table for k in ("start", "stop", "num", "spacing")):
+            _fail(axis_where, "give either values or start/stop/num, not both")
+        values = table["values"]
+        if not isinstance(values, list) or not values:
+            _fail(axis_where, "values is empty; give at least one value")
+        try:
+            checked = [read(v) for v in values]
+        except ModelError as error:
+            _fail(axis_where, str(error))
+        return key, "values", checked, unit
+    if "start" not in table or "stop" not in table:
+        _fail(axis_where, "give values = [...] or start and stop (and num for a grid)")
+    if design != "grid" and "num" in table:
+        _fail(axis_where, f"num is for grid designs; a {design} design draws [sweep] samples "
+                          f"values between start and stop")
+    spacing = table.get("spacing", "linear")
+    if spacing not in SPACINGS:
+        _fail(axis_where, f"spacing = \"{spacing}\": choose linear or log")
+    try:
+        start, stop = read(table["start"]), read(table["stop"])
+    except ModelError as error:
+        _fail(axis_where, str(error))
+    if isinstance(start, u.Quantity):
+        stop = stop.to(start.unit)
+    lo = float(getattr(start, "value", start))
+    hi = float(getattr(stop, "value", stop))
+    if spacing == "log" and not (lo > 0 and hi > 0):
+        _fail(axis_where, "a log axis needs positive start and stop")
+    if design == "grid":
+        num = table.get("num")
+        if not isinstance(num, int) or isinstance(num, bool) or num < 1:
+            _fail(axis_where, "a grid axis with start and stop needs num = a whole number >= 1")
+        if num == 1:
+            grid = np.array([lo])
+        else:
+            grid = np.geomspace(lo, hi, num) if spacing == "log" else np.linspace(lo, hi, num)
+        unit_of = start.unit if isinstance(start, u.Quantity) else None
+        try:
+            checked = [read(g * unit_of if unit_of is not None else float(g)) for g in grid]
+        except ModelError as error:
+            _fail(axis_where, str(error))
+        return key, "values", checked, unit
+    return key, "range", (start, stop, spacing, read), unit
+
+
+def apply_changes(model, changes):
+    """``model`` with the dotted-key values of ``changes`` (validated again).
+
+    Rebuilding through :meth:`WindModel.replace` reuses the base model's
+    already-parsed values: several times cheaper than reading a model file
+    per row, which matters in a sweep of thousands.
+    """
+    by_key = {p.key: name for name, p in model.params().items()}
+    kwargs = {}
+    opacity = {}
+    for key, value in changes.items():
+        if key.startswith("opacity."):
+            opacity[key.partition(".")[2]] = value
+        else:
+            kwargs[by_key[key]] = value
+    if opacity:
+        kwargs["opacity"] = dict(model.opacity.to_toml(), **opacity)
+    return model.replace(**kwargs)
+
+
+def load_sweep(path):
+    """Read and validate a sweep file; every row is built into a model."""
+    import tomllib
+
+    from .modelfile import model_from_dict, read_model_file
+    from .models import MODELS
+
+    path = Path(path)
+    try:
+        text = path.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise ModelError(f"{path}: no such file; give the path of a sweep file") from None
+    except (OSError, UnicodeDecodeError) as error:
+        raise ModelError(f"{path}: cannot read ({error})") from None
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as error:
+        raise ModelError(f"{path}: not valid TOML: {error}") from None
+    for k in data:
+        if k not in ("sweep", "model", "axis"):
+            _fail(path, f"unknown table [{k}]{nearest(k, ('sweep', 'model', 'axis'))}; a "
+                        f"sweep file has [sweep], [[axis]] and optionally [model]")
+    spec = data.get("sweep")
+    if not isinstance(spec, dict):
+        _fail(path, "the [sweep] table is missing")
+    for k in spec:
+        if k not in SWEEP_KEYS:
+            _fail(path, f"unknown key \"{k}\" in [sweep]{nearest(k, SWEEP_KEYS)}")
+    if ("base" in spec) == ("model" in data):
+        _fail(path, "give the base model either as [sweep] base = \"model.toml\" or as an "
+                    "inline [model] table (exactly one)")
+    if "base" in spec:
+        base_path = Path(spec["base"])
+        if not base_path.is_absolute():
+            base_path = path.resolve().parent / base_path
+        base = read_model_file(base_path)
+        source = str(base_path)
+    else:
+        base = data["model"]
+        source = f"{path} [model]"
+    base_model = model_from_dict(base, source=source)  # the base itself must be valid
+    if "opacity" in base and isinstance(base["opacity"].get("path"), str):
+        base["opacity"]["path"] = str(base_model.opacity.params["path"])
+    model_cls = MODELS[base_model.kind]
+    design = spec.get("design", "grid")
+    if design not in DESIGNS:
+        _fail(path, f"design = \"{design}\" is not known{nearest(str(design), DESIGNS)}; "
+                    f"choose grid, random or latin")
+    axes_tables = data.get("axis")
+    if not isinstance(axes_tables, list) or not axes_tables:
+        _fail(path, "no [[axis]] tables: give at least one axis to sweep")
+    axes = [_read_axis(model_cls, t, path, design) for t in axes_tables]
+    keys = [a[0] for a in axes]
+    if len(set(keys)) != len(keys):
+        _fail(path, "an axis key appears twice")
+    seed = spec.get("seed", 0)
+    # Format each axis value once: unit formatting costs ~20 us a call, and a
+    # sweep can have 10^4 rows.
+    options = []
+    for _key, mode, spec_a, unit in axes:
+        if mode == "values":
+            options.append([(_as_text(v), _number(v, unit)) for v in spec_a])
+        else:
+            options.append(None)
+    if design == "grid":
+        index_combos = itertools.product(*[range(len(o)) for o in options])
+        combos = [[options[j][k] for j, k in enumerate(ks)] for ks in index_combos]
+    else:
+        samples = spec.get("samples")
+        if not isinstance(samples, int) or isinstance(samples, bool) or samples < 1:
+            _fail(path, f"design = \"{design}\" needs samples = a whole number >= 1")
+        if design == "random":
+            unit_cube = np.random.default_rng(seed).random((samples, len(axes)))
+        else:
+            from scipy.stats import qmc
+            unit_cube = qmc.LatinHypercube(d=len(axes), seed=seed).random(samples)
+        pickers = [_picker(a, o) for a, o in zip(axes, options, strict=True)]
+        combos = [[pickers[j](unit_cube[i, j]) for j in range(len(axes))]
+                  for i in range(samples)]
+    keys = [a[0] for a in axes]
+    rows = [dict(zip(keys, (text for text, _ in combo), strict=True)) for combo in combos]
+    numbers = np.array([[number for _, number in combo] for combo in combos], dtype=float)
+    numbers = numbers.reshape(len(combos), len(axes))
+    # Every axis value was checked on its own above.  Combinations are
+    # checked at the corners of the design (and the first row): a model that
+    # a cross-field rule rejects there (X + Z > 1, a photosphere inside R0)
+    # stops the sweep now; any other invalid row is recorded as failed, with
+    # its reason, when it runs.  (Building all rows here would cost ~0.1 ms
+    # each -- a third of a Model A solve.)
+    for i in _corner_rows(numbers):
+        try:
+            apply_changes(base_model, rows[i])
+        except ModelError as error:
+            label = ", ".join(f"{k} = {v}" for k, v in rows[i].items())
+            raise ModelError(f"{path} row {i} ({label}): {error}") from None
+    profiles = spec.get("profiles", False)
+    if not isinstance(profiles, bool):
+        _fail(path, "profiles = true or false")
+    batch = spec.get("batch", DEFAULT_BATCH)
+    if not isinstance(batch, int) or isinstance(batch, bool) or batch < 1:
+        _fail(path, "batch = a whole number >= 1 (models per task)")
+    out_axes = [Axis(a[0], [row[a[0]] for row in rows], numbers[:, j],
+                     "" if a[3] is None else a[3].to_string())
+                for j, a in enumerate(axes)]
+    return Sweep(path, text, base_model.kind, design, out_axes, base, rows, profiles, batch,
+                 numbers)
+
+
+def _corner_rows(numbers, limit=256):
+    """Rows holding the smallest or largest value of every axis (and row 0)."""
+    rows = {0}
+    for j in range(numbers.shape[1]):
+        rows.add(int(np.argmin(numbers[:, j])))
+        rows.add(int(np.argmax(numbers[:, j])))
+    if numbers.shape[1] <= 8:
+        lo = numbers.min(axis=0)
+        hi = numbers.max(axis=0)
+        at_edge = np.all((numbers == lo) | (numbers == hi), axis=1)
+        rows.update(int(i) for i in np.flatnonzero(at_edge)[:limit])
+    return sorted(rows)
+
+
+def _picker(axis, options):
+    """u01 -> (model-file text, cgs number) for a random/latin axis."""
+    key, mode, spec, unit = axis
+    if mode == "values":
+        return lambda u01: options[min(int(u01 * len(options)), len(options) - 1)]
+    import astropy.units as u
+    start, stop, spacing, read = spec
+    lo = float(getattr(start, "value", start))
+    hi = float(getattr(stop, "value", stop))
+    if isinstance(start, u.Quantity):
+        text_unit = start.unit.to_string()
+        scale = float(start.unit.to(unit))
+    else:
+        text_unit, scale = None, 1.0
+    # Start and stop were checked; every rule on a single value (positive,
+    # a fraction) holds between two values that satisfy it.
+
+    def pick(u01):
+        u01 = float(u01)
+        if spacing == "log":
+            x = math.exp(math.log(lo) + u01 * (math.log(hi) - math.log(lo)))
+        else:
+            x = lo + u01 * (hi - lo)
+        return (f"{x!r} {text_unit}" if text_unit is not None else x), x * scale
+
+    return pick
+
+
+# -- running -------------------------------------------------------------------------
+
+_BASE_CACHE = {}
+_SCALES = {}
+
+
+def _in_unit(q, unit):
+    """float(q.to_value(unit)), with the conversion factor cached per unit pair.
+
+    A unit conversion costs microseconds; twenty of them per model were a
+    quarter of a Model A solve.
+    """
+    key = (q.unit, unit)
+    scale = _SCALES.get(key)
+    if scale is None:
+        scale = _SCALES[key] = float(q.unit.to(unit))
+    return float(q.value) * scale
+
+
+def run_batch(base, items, profiles=False):
+    """Solve a batch of rows in a worker: base model file, [(row, changes)] -> records.
+
+    A failure of any kind is recorded with its status and message; it never
+    stops the sweep.
+    """
+    from .modelfile import model_from_dict
+    from .result import PROFILE_UNITS, SUMMARY_UNITS
+    from .solve import solve
+
+    out = []
+    key = json.dumps(base, sort_keys=True)
+    for row, changes in items:
+        t0 = time.perf_counter()
+        record = {"row": row}
+        try:
+            if key not in _BASE_CACHE:  # parse the base once per worker
+                _BASE_CACHE.clear()
+                _BASE_CACHE[key] = model_from_dict(base, source="sweep base")
+            result = solve(apply_changes(_BASE_CACHE[key], changes), profile=profiles)
+            record["converged"] = bool(result.converged)
+            record["status"] = result.status
+            record["message"] = result.message
+            for key in SUMMARY_COLUMNS:
+                q = result.summary.get(key)
+                record[key] = _in_unit(q, SUMMARY_UNITS[key]) if q is not None else math.nan
+            if profiles and result.profile:
+                record["profile"] = {k: q.to_value(PROFILE_UNITS[k]).tolist()
+                                     for k, q in result.profile.items()}
+        except WindsolveError as error:
+            record.update(converged=False, status="error", message=str(error))
+        except Exception as error:  # noqa: BLE001 -- recorded, never fatal to the sweep
+            record.update(converged=False, status="error",
+                          message=f"{type(error).__name__}: {error}")
+        record["seconds"] = time.perf_counter() - t0
+        out.append(record)
+    return out
+
+
+def _read_journal(journal, sweep):
+    """Finished rows from a journal written for the same sweep file."""
+    done = {}
+    with open(journal, encoding="utf-8") as f:
+        lines = f.read().split("\n")
+    if not lines or not lines[0].strip():
+        return done
+    try:
+        header = json.loads(lines[0])
+    except json.JSONDecodeError:
+        raise OutputError(f"{journal}: not a windsolve sweep journal; delete it") from None
+    if header.get("sweep") != sweep.digest or header.get("rows") != len(sweep):
+        raise OutputError(f"{journal} belongs to a different sweep file; delete it or write "
+                          f"to another output")
+    for line in lines[1:]:
+        if not line.strip():
+            continue
+        try:
+            record = json.loads(line)
+        except json.JSONDecodeError:
+            continue  # a line cut short by a kill: that row runs again
+        done[record["row"]] = record
+    return done
+
+
+def run_sweep(sweep, out, workers=None, scheduler=None, resume=False, quiet=False):
+    """Run every row not already done; returns (records by row, interrupted)."""
+    out = Path(out)
+    journal = out.with_name(out.name + JOURNAL_SUFFIX)
+    if journal.exists() and not resume:
+        raise OutputError(f"{journal} holds an interrupted run of a sweep; pass --resume to "
+                          f"finish it, or delete it to start again")
+    done = _read_journal(journal, sweep) if (resume and journal.exists()) else {}
+    todo = [i for i in range(len(sweep)) if i not in done]
+    batches = [todo[k:k + sweep.batch] for k in range(0, len(todo), sweep.batch)]
+    executor, close = _executor(workers, scheduler)
+    bar = None
+    if not quiet:
+        from tqdm import tqdm
+        bar = tqdm(total=len(sweep), initial=len(done), unit="model", desc="sweep")
+    converged = sum(1 for r in done.values() if r.get("converged"))
+    interrupted = False
+    with open(journal, "a", encoding="utf-8") as jf:
+        if jf.tell() == 0:
+            jf.write(json.dumps({"sweep": sweep.digest, "rows": len(sweep),
+                                 "windsolve": __version__}) + "\n")
+            jf.flush()
+        pending = set()
+        queue = iter(batches)
+        # Keep a bounded number of batches in flight, so memory stays flat.
+        limit = max(2 * (workers or os.cpu_count() or 1), 4)
+        try:
+            while True:
+                while len(pending) < limit:
+                    b = next(queue, None)
+                    if b is None:
+                        break
+                    pending.add(executor.submit(run_batch, sweep.base,
+                                                [(i, sweep.rows[i]) for i in b],
+                                                sweep.profiles))
+                if not pending:
+                    break
+                finished, pending = wait(pending, return_when=FIRST_COMPLETED)
+                for fut in finished:
+                    try:
+                        records = fut.result()
+                    except BrokenExecutor as error:
+                        raise WindsolveError(
+                            f"a worker process died ({error}); the models finished so far "
+                            f"are kept: rerun with --resume") from None
+                    for record in records:
+                        jf.write(json.dumps(record) + "\n")
+                        done[record["row"]] = record
+                        converged += bool(record.get("converged"))
+                    jf.flush()
+                    os.fsync(jf.fileno())
+                    if bar is not None:
+                        bar.update(len(records))
+                        failed = len(done) - converged
+                        bar.set_postfix(converged=converged, failed=failed, refresh=False)
+        except KeyboardInterrupt:
+            interrupted = True
+            for fut in pending:
+                fut.cancel()
+        finally:
+            if bar is not None:
+                bar.close()
+            close()
+    if interrupted:
+        return done, True
+    write_sweep_table(sweep, done, out)
+    journal.unlink()
+    return done, False
+
+
+def _executor(workers, scheduler):
+    """(executor, close) -- a local process pool or a dask cluster's executor."""
+    if scheduler is not None:
+        try:
+            from distributed import Client
+        except ImportError:
+            raise WindsolveError("--scheduler needs dask.distributed: pip install "
+                                 "\"windsolve[cluster]\"") from None
+        try:
+            client = Client(scheduler, timeout="10s")
+        except (OSError, TimeoutError) as error:
+            raise WindsolveError(f"cannot reach the dask scheduler at {scheduler} "
+                                 f"({error})") from None
+        return client.get_executor(), client.close
+    import multiprocessing
+    from concurrent.futures import ProcessPoolExecutor
+    n = workers or os.cpu_count() or 1
+    # "spawn": workers start clean (no inherited threads or locks) and load
+    # the compiled kernels from numba's on-disk cache.
+    pool = ProcessPoolExecutor(max_workers=n, mp_context=multiprocessing.get_context("spawn"),
+                               initializer=_worker_init)
+    return pool, lambda: pool.shutdown(wait=False, cancel_futures=True)
+
+
+def _worker_init():
+    """Workers leave Ctrl-C to the main process, which stops the sweep cleanly."""
+    import signal
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+
+
+# -- output --------------------------------------------------------------------------
+
+def write_sweep_table(sweep, records, out):
+    """The sweep's HDF5 file: /table (one dataset per column) and /profiles."""
+    import h5py
+
+    from .result import PROFILE_UNITS, SUMMARY_UNITS, _unit_text
+
+    out = Path(out)
+    n = len(sweep)
+    tmp = out.with_name(f".{out.name}.{os.getpid()}.tmp")
+    try:
+        with h5py.File(tmp, "w") as f:
+            f.attrs["windsolve_version"] = __version__
+            f.attrs["created"] = datetime.datetime.now(datetime.UTC).isoformat(
+                timespec="seconds")
+            f.attrs["sweep_toml"] = sweep.text
+            f.attrs["sweep_file"] = str(sweep.path)
+            f.attrs["model"] = sweep.kind
+            f.attrs["design"] = sweep.design
+            f.attrs["axes"] = json.dumps([a.key for a in sweep.axes])
+            g = f.create_group("table")
+            for a in sweep.axes:
+                d = g.create_dataset(a.key, data=a.numbers)
+                d.attrs["units"] = a.unit or "1"
+            for key in SUMMARY_COLUMNS:
+                d = g.create_dataset(key, data=np.array(
+                    [records[i].get(key, math.nan) for i in range(n)], dtype=float))
+                d.attrs["units"] = _unit_text(SUMMARY_UNITS[key])
+            d = g.create_dataset("converged", data=np.array(
+                [bool(records[i].get("converged")) for i in range(n)]))
+            d.attrs["units"] = "1"
+            for key in ("status", "message"):
+                d = g.create_dataset(key, data=np.array(
+                    [records[i].get(key, "") for i in range(n)], dtype=h5py.string_dtype()))
+                d.attrs["units"] = "none"
+            d = g.create_dataset("seconds", data=np.array(
+                [records[i].get("seconds", math.nan) for i in range(n)]))
+            d.attrs["units"] = "s"
+            for i in range(n):
+                profile = records[i].get("profile")
+                if profile:
+                    pg = f.create_group(f"profiles/{i}")
+                    for key, values in profile.items():
+                        dd = pg.create_dataset(key, data=np.asarray(values))
+                        dd.attrs["units"] = _unit_text(PROFILE_UNITS[key])
+        os.replace(tmp, out)
+    except OSError as error:
+        tmp.unlink(missing_ok=True)
+        raise OutputError(f"{out}: cannot write ({error})") from None
+    except BaseException:
+        tmp.unlink(missing_ok=True)
+        raise
+    return out
+
+
+def read_sweep_table(path):
+    """{column: numpy array} and the root attributes of a sweep file."""
+    import h5py
+    with h5py.File(path, "r") as f:
+        table = {}
+        for key, d in f["table"].items():
+            data = d[()]
+            if data.dtype.kind in "OS":
+                data = np.array([x.decode() if isinstance(x, bytes) else str(x) for x in data])
+            table[key] = data
+        attrs = dict(f.attrs)
+    return table, attrs
