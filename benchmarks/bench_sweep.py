@@ -53,6 +53,20 @@ spacing = "log"
 """
 
 
+def diffusion_text(n):
+    return f"""[sweep]
+base = "{ROOT / 'configs' / 'bump_wind.toml'}"
+design = "grid"
+batch = 10
+[[axis]]
+key = "boundary.photosphere_temperature"
+start = "3e4 K"
+stop = "8e4 K"
+num = {n}
+spacing = "log"
+"""
+
+
 def run_cli(path, out, workers):
     t0 = time.perf_counter()
     subprocess.run([sys.executable, "-m", "windsolve", "sweep", str(path), "-o", str(out),
@@ -110,6 +124,22 @@ def main():
               f"raw {t1 / t2:.2f}x)")
         print(f"  per-model overhead of the sweep machinery, 1 worker, start-up removed: "
               f"{100 * overhead:+.1f} % of a solve   (goal <= 10 %)")
+        # Model B: photosphere-anchored optically thick winds.
+        pb = tmp / "diffusion.toml"
+        pb.write_text(diffusion_text(200))
+        sweep_b = load_sweep(pb)
+        base_b = model_from_dict(sweep_b.base)
+        windsolve.solve(apply_changes(base_b, sweep_b.rows[0]), profile=False)
+        t0 = time.perf_counter()
+        for changes in sweep_b.rows:
+            windsolve.solve(apply_changes(base_b, changes), profile=False)
+        loop_b = time.perf_counter() - t0
+        b1 = run_cli(pb, tmp / "b1.h5", 1)
+        b2 = run_cli(pb, tmp / "b2.h5", 2)
+        print(f"200 Model B models (bump wind, T_eff 3e4..8e4 K): loop {loop_b:.2f} s "
+              f"({1e3 * loop_b / 200:.1f} ms each); sweep 1 worker {b1:.2f} s, 2 workers "
+              f"{b2:.2f} s; speed-up (start-up removed) "
+              f"{(b1 - startup) / (b2 - startup):.2f}x")
         for n_mem in (1000, 10000):
             p = tmp / f"mem{n_mem}.toml"
             p.write_text(sweep_text(n_mem // n_h, n_h))
