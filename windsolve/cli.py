@@ -253,6 +253,173 @@ def cmd_sweep(args):
     return EXIT_OK
 
 
+def _line_settings(args):
+    """LineSettings from the shared line options (one-line errors)."""
+    from .lines import LineSettings
+    kwargs = {}
+    if getattr(args, "emissivity_power", None) is not None:
+        kwargs["emissivity_power"] = args.emissivity_power
+    if getattr(args, "no_occultation", False):
+        kwargs["occultation"] = False
+    if getattr(args, "turbulence", None) is not None:
+        kwargs["turbulence"] = args.turbulence
+    if getattr(args, "resolution", None) is not None:
+        text = args.resolution.strip()
+        try:
+            kwargs["resolution"] = float(text)  # a resolving power R
+        except ValueError:
+            kwargs["resolution"] = text  # a velocity such as "30 km/s"
+    if getattr(args, "hwzi_fraction", None) is not None:
+        kwargs["hwzi_fraction"] = args.hwzi_fraction
+    if getattr(args, "edge_depth", None) is not None:
+        kwargs["edge_depth"] = args.edge_depth
+    if getattr(args, "line_strength", None) is not None:
+        kwargs["line_strength"] = args.line_strength
+    return LineSettings(**kwargs)
+
+
+def _add_line_options(p):
+    g = p.add_argument_group("line settings")
+    g.add_argument("--emissivity-power", type=int, metavar="N",
+                   help="emissivity j proportional to rho^N, N = 1 or 2 (default 2)")
+    g.add_argument("--no-occultation", action="store_true",
+                   help="do not hide the emission behind the stellar (photospheric) disk")
+    g.add_argument("--turbulence", metavar="V",
+                   help="Gaussian turbulent broadening, FWHM, e.g. \"20 km/s\"")
+    g.add_argument("--resolution", metavar="V|R",
+                   help="instrumental resolution: a velocity FWHM (\"30 km/s\") or a "
+                        "resolving power R (a plain number, FWHM = c/R)")
+    g.add_argument("--hwzi-fraction", type=float, metavar="F",
+                   help="HWZI is measured where the line falls to F of its peak (default 0.05)")
+    g.add_argument("--edge-depth", type=float, metavar="D",
+                   help="blue edge: where the P Cygni absorption depth reaches D (default 0.1)")
+    g.add_argument("--line-strength", type=float, metavar="K",
+                   help="Sobolev line strength of the P Cygni line (default 100)")
+
+
+def cmd_lines(args):
+    import astropy.units as u
+    import numpy as np
+
+    from .lines import emission_profile, pcygni_profile
+    from .result import WindResult
+    settings = _line_settings(args)
+    if args.output is not None:
+        suffix = Path(args.output).suffix.lower()
+        if suffix not in (".csv", ".png", ".pdf", ".svg"):
+            raise WindsolveError(f"-o {args.output}: give a .csv file for the profile or a "
+                                 f".png/.pdf/.svg file for a plot")
+        _check_output(args.output, ".csv")
+    result = WindResult.from_hdf5(args.file)
+    if not result.profile:
+        raise WindsolveError(f"{args.file}: the result has no profile ({result.message})")
+    line = (pcygni_profile if args.pcygni else emission_profile)(result, settings)
+
+    def kms(q):
+        v = q.to_value(u.km / u.s)
+        return "not defined" if not np.isfinite(v) else f"{v:.1f} km/s"
+
+    print(f"{args.file}: {'P Cygni' if args.pcygni else 'optically thin emission'} line, "
+          f"emissivity ~ rho^{settings.emissivity_power}, "
+          f"{'with' if settings.occultation else 'without'} occultation")
+    print(f"  FWHM  {kms(line.fwhm)}")
+    print(f"  HWZI  {kms(line.hwzi)}   (at {settings.hwzi_fraction:g} of the peak)")
+    print(f"  blue edge  {kms(line.edge_velocity)}   (absorption depth {settings.edge_depth:g})")
+    v_inf = result.summary.get("terminal_velocity")
+    if v_inf is not None:
+        print(f"  model terminal velocity  {kms(v_inf)}")
+    if args.output is not None:
+        if Path(args.output).suffix.lower() == ".csv":
+            line.to_csv(args.output)
+        else:
+            from .plotting import plot_line
+            plot_line(line, args.output, title=f"{getattr(result.model, 'name', '')}")
+        print(f"wrote {args.output}")
+    return EXIT_OK
+
+
+def cmd_compare(args):
+    import h5py
+    import numpy as np
+
+    from .observe import compare_result, read_observed, sweep_chi2, write_chi2_csv
+    observations = read_observed(args.observed, args.object)
+    for target in (args.output, args.plot):
+        if target is not None:
+            _check_output(target, ".csv")
+    try:
+        with h5py.File(args.file, "r") as f:
+            is_sweep = "sweep_toml" in f.attrs
+    except OSError:
+        is_sweep = False  # from_hdf5 below explains what is wrong
+    if not is_sweep:
+        from .result import WindResult
+        result = WindResult.from_hdf5(args.file)
+        if not result.converged:
+            raise WindsolveError(f"{args.file}: the model did not converge ({result.message})")
+        rows, chi2 = compare_result(result, observations, _line_settings(args))
+        print(f"{args.file} against {args.observed} ({observations[0].object})")
+        print(f"  {'quantity':<28s} {'observed [km/s]':>16s} {'model [km/s]':>13s} "
+              f"{'residual [sigma]':>17s}")
+        for o, p, z in rows:
+            print(f"  {o.label():<28s} {o.value / 1e5:9.1f} ± {o.uncertainty / 1e5:<5.1f} "
+                  f"{p / 1e5:13.1f} {z:17.2f}")
+        print(f"  chi2 = {chi2:.3f} for {len(rows)} measurements")
+        if args.output is not None:
+            import csv
+            with open(args.output, "w", newline="", encoding="utf-8") as f:
+                w = csv.writer(f)
+                w.writerow(["quantity", "line", "observed_km_s", "uncertainty_km_s",
+                            "model_km_s", "residual_sigma"])
+                for o, p, z in rows:
+                    w.writerow([o.quantity, o.line, o.value / 1e5, o.uncertainty / 1e5,
+                                p / 1e5, z])
+            print(f"wrote {args.output}")
+        if args.plot is not None:
+            from .plotting import plot_residuals
+            plot_residuals(rows, chi2, args.plot)
+            print(f"wrote {args.plot}")
+        return EXIT_OK
+    from .sweep import read_sweep_table
+    table, attrs = read_sweep_table(args.file)
+    import json
+    axes = json.loads(attrs["axes"])
+    chi2 = sweep_chi2(table, observations)
+    ok = np.isfinite(chi2)
+    print(f"{args.file}: {ok.sum()} models compared with {len(observations)} measurements of "
+          f"{observations[0].object}; {int((~ok).sum())} failed models excluded")
+    if not ok.any():
+        raise WindsolveError("no converged model to compare")
+    best = np.argsort(np.where(ok, chi2, np.inf))[:min(5, int(ok.sum()))]
+    print("  best models:")
+    for i in best:
+        values = ", ".join(f"{a} = {table[a][i]:.5g}" for a in axes)
+        print(f"    row {i}: chi2 = {chi2[i]:.3f}  ({values})")
+    if args.output is not None:
+        write_chi2_csv(args.output, axes, table, chi2)
+        print(f"wrote {args.output}")
+    if args.plot is not None:
+        from .plotting import plot_chi2
+        plot_chi2(table, axes, chi2, args.plot)
+        print(f"wrote {args.plot}")
+    return EXIT_OK
+
+
+def cmd_match(args):
+    from .observe import match_parameter, read_observed
+    model, source = _load(args.model)
+    observations = [o for o in read_observed(args.observed, args.object)
+                    if o.quantity == args.quantity]
+    if not observations:
+        raise WindsolveError(f"{args.observed}: no {args.quantity} measurement to match")
+    o = observations[0]
+    value, predicted, scan = match_parameter(model, args.key, args.start, args.stop, o,
+                                             _line_settings(args))
+    print(f"{source}: {args.key} = {value:.6g} reproduces {o.label()} = "
+          f"{o.value / 1e5:.1f} ± {o.uncertainty / 1e5:.1f} km/s (model {predicted / 1e5:.2f})")
+    return EXIT_OK
+
+
 def cmd_inspect(args):
     import h5py
     import numpy as np
@@ -472,6 +639,51 @@ def build_parser():
     p.add_argument("-o", "--output", metavar="OUT.png",
                    help="image file (PNG, PDF or SVG); default: FILE with .png")
     p.set_defaults(func=cmd_plot)
+
+    p = sub.add_parser("lines", help="synthetic line profile and its measured widths",
+                       description="Compute an optically thin emission line (or, with "
+                                   "--pcygni, a Sobolev P Cygni resonance line) from a solved "
+                                   "profile in any HDF5 file laid out like windsolve's, and "
+                                   "print its FWHM, HWZI and blue-edge velocity.")
+    p.add_argument("file", help="HDF5 result file")
+    p.add_argument("-o", "--output", metavar="profile.csv|profile.png",
+                   help="write the profile as CSV (velocity in km/s, normalised flux) or plot it")
+    p.add_argument("--pcygni", action="store_true",
+                   help="a P Cygni resonance line (Sobolev approximation) instead of emission")
+    _add_line_options(p)
+    p.set_defaults(func=cmd_lines)
+
+    p = sub.add_parser("compare", help="compare a model or a sweep with observed widths",
+                       description="Predicted against observed widths (observed-widths CSV): "
+                                   "for one model, residuals in sigma and chi^2; for a sweep "
+                                   "file, chi^2 per model, the best models and a chi^2 map.")
+    p.add_argument("file", help="a result file or a sweep file (HDF5)")
+    p.add_argument("observed", help="observed-widths CSV (object,quantity,line,value,"
+                                    "uncertainty,unit)")
+    p.add_argument("--object", help="which object of the CSV (when it holds several)")
+    p.add_argument("-o", "--output", metavar="chi2.csv", help="write the comparison as CSV")
+    p.add_argument("--plot", metavar="chi2.png", help="plot residuals or the chi^2 map")
+    _add_line_options(p)
+    p.set_defaults(func=cmd_compare)
+
+    p = sub.add_parser("match", help="find the value of one model key that fits an observation",
+                       description="Vary one model key between --from and --to (a scan, then "
+                                   "Brent's method over full solves) until the model reproduces "
+                                   "one observed quantity, or say that no value in the range "
+                                   "can.")
+    p.add_argument("model", help="model file (TOML)")
+    p.add_argument("--key", required=True, help="dotted model key, e.g. star.luminosity")
+    p.add_argument("--from", dest="start", required=True, metavar="VALUE",
+                   help="one end of the range, with its unit, e.g. \"2e6 Lsun\"")
+    p.add_argument("--to", dest="stop", required=True, metavar="VALUE",
+                   help="the other end, same dimension")
+    p.add_argument("--observed", required=True, help="observed-widths CSV")
+    p.add_argument("--quantity", default="terminal_velocity",
+                   choices=["terminal_velocity", "fwhm", "hwzi", "edge_velocity"],
+                   help="which observed quantity to match (default terminal_velocity)")
+    p.add_argument("--object", help="which object of the CSV (when it holds several)")
+    _add_line_options(p)
+    p.set_defaults(func=cmd_match)
 
     p = sub.add_parser("sweep", help="run a parameter sweep (locally or on a dask cluster)",
                        description="Run every model of a sweep file (grid, random or Latin "

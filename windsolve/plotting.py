@@ -5,7 +5,7 @@ import numpy as np
 
 from .errors import OutputError
 
-__all__ = ["plot_profile", "plot_sweep"]
+__all__ = ["plot_profile", "plot_sweep", "plot_line", "plot_residuals", "plot_chi2"]
 
 
 def plot_profile(result, path=None):
@@ -149,3 +149,101 @@ def plot_sweep(path, out):
         raise OutputError(f"{out}: cannot write the plot ({error})") from None
     plt.close(fig)
     return out
+
+
+def _figure(figsize):
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+    return plt, plt.subplots(figsize=figsize, constrained_layout=True)
+
+
+def _save(plt, fig, path):
+    try:
+        fig.savefig(path, dpi=120)
+    except (OSError, ValueError) as error:
+        raise OutputError(f"{path}: cannot write the plot ({error})") from None
+    plt.close(fig)
+    return path
+
+
+def plot_line(line, path, title=""):
+    """A synthetic line profile with its measured widths marked."""
+    plt, (fig, ax) = _figure((8, 4.5))
+    w = line.velocity.to_value(u.km / u.s)
+    ax.plot(w, line.flux, color="#1f4e79", lw=1.6)
+    ax.set_xlabel(r"velocity  [km s$^{-1}$]  (negative: towards the observer)")
+    ax.set_ylabel("normalised flux")
+    ax.grid(True, alpha=0.25)
+    fwhm = line.fwhm.to_value(u.km / u.s)
+    hwzi = line.hwzi.to_value(u.km / u.s)
+    edge = line.edge_velocity.to_value(u.km / u.s)
+    if np.isfinite(fwhm):
+        # the outermost half-maximum crossings (the line can be asymmetric)
+        above = np.flatnonzero(line.flux >= 0.5)
+        lo, hi = above[0], above[-1]
+        w_lo = np.interp(0.5, [line.flux[lo - 1], line.flux[lo]], [w[lo - 1], w[lo]]) \
+            if lo > 0 else w[lo]
+        w_hi = w_lo + fwhm
+        ax.annotate("", xy=(w_lo, 0.5), xytext=(w_hi, 0.5),
+                    arrowprops=dict(arrowstyle="<->", color="#b03a2e"))
+        ax.text(0.5 * (w_lo + w_hi), 0.53, f"FWHM {fwhm:.0f} km/s", ha="center",
+                color="#b03a2e")
+    if np.isfinite(hwzi):
+        for x in (-hwzi, hwzi):
+            ax.axvline(x, color="#7d3c98", ls=":", lw=1)
+        ax.text(hwzi, ax.get_ylim()[1] * 0.9, f" HWZI {hwzi:.0f}", color="#7d3c98")
+    if np.isfinite(edge):
+        ax.axvline(edge, color="#196f3d", ls="--", lw=1)
+        ax.text(edge, ax.get_ylim()[0], f" edge {edge:.0f}", color="#196f3d", va="bottom")
+    ax.set_title(f"{title} — {line.kind} line".strip(" —"))
+    return _save(plt, fig, path)
+
+
+def plot_residuals(rows, chi2, path):
+    """Model minus observation, in units of the uncertainty, per measurement."""
+    plt, (fig, ax) = _figure((7, 0.6 * len(rows) + 1.8))
+    labels = [o.label() for o, _, _ in rows]
+    z = [r[2] for r in rows]
+    ax.barh(range(len(rows)), z, color=["#1f4e79" if abs(v) <= 1 else "#b03a2e" for v in z])
+    ax.set_yticks(range(len(rows)), labels)
+    for x in (-1, 1):
+        ax.axvline(x, color="0.5", ls=":", lw=1)
+    ax.axvline(0, color="0.3", lw=0.8)
+    ax.set_xlabel(r"(model $-$ observed) / uncertainty")
+    ax.set_title(f"chi$^2$ = {chi2:.2f} for {len(rows)} measurements")
+    return _save(plt, fig, path)
+
+
+def plot_chi2(table, axes, chi2, path):
+    """chi^2 against one axis, or a map over the first two; failed models marked."""
+    ok = np.isfinite(chi2)
+    plt, (fig, ax) = _figure((7.5, 5))
+    x = table[axes[0]]
+    if len(axes) == 1:
+        order = np.argsort(x)
+        ax.plot(x[order][ok[order]], chi2[order][ok[order]], "o-", ms=3, color="#1f4e79")
+        if (~ok).any():
+            ax.plot(x[~ok], np.full((~ok).sum(), np.nanmin(chi2) if ok.any() else 1.0), "x",
+                    color="0.5", label="no solution")
+            ax.legend(frameon=False)
+        ax.set_yscale("log")
+        ax.set_ylabel(r"$\chi^2$")
+    else:
+        y = table[axes[1]]
+        sc = ax.scatter(x[ok], y[ok], c=np.log10(chi2[ok]), cmap="viridis_r", s=40, marker="s")
+        if (~ok).any():
+            ax.scatter(x[~ok], y[~ok], marker="x", color="0.5", s=30, label="no solution")
+            ax.legend(frameon=False)
+        best = int(np.nanargmin(chi2))
+        ax.plot(x[best], y[best], "*", color="#b03a2e", ms=14, label="best")
+        fig.colorbar(sc, ax=ax).set_label(r"log$_{10}$ $\chi^2$")
+        ax.set_ylabel(axes[1])
+        if np.all(y > 0) and y.max() / y.min() > 30:
+            ax.set_yscale("log")
+    if np.all(x > 0) and x.max() / x.min() > 30:
+        ax.set_xscale("log")
+    ax.set_xlabel(axes[0])
+    ax.set_title(f"{ok.sum()} models compared, {(~ok).sum()} without a solution")
+    return _save(plt, fig, path)

@@ -79,6 +79,7 @@ class Sweep:
     profiles: bool = False
     batch: int = DEFAULT_BATCH
     axis_table: np.ndarray = field(default=None)  # (n_rows, n_axes) cgs
+    observables: dict = None  # line settings: widths are measured in the workers
 
     @property
     def digest(self):
@@ -228,10 +229,16 @@ def load_sweep(path):
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as error:
         raise ModelError(f"{path}: not valid TOML: {error}") from None
+    tables = ("sweep", "model", "axis", "observables")
     for k in data:
-        if k not in ("sweep", "model", "axis"):
-            _fail(path, f"unknown table [{k}]{nearest(k, ('sweep', 'model', 'axis'))}; a "
-                        f"sweep file has [sweep], [[axis]] and optionally [model]")
+        if k not in tables:
+            _fail(path, f"unknown table [{k}]{nearest(k, tables)}; a sweep file has [sweep], "
+                        f"[[axis]] and optionally [model] and [observables]")
+    observables = data.get("observables")
+    if observables is not None:
+        if not isinstance(observables, dict):
+            _fail(path, "[observables] must be a table of line settings")
+        _check_observables(path, observables)
     spec = data.get("sweep")
     if not isinstance(spec, dict):
         _fail(path, "the [sweep] table is missing")
@@ -315,7 +322,26 @@ def load_sweep(path):
                      "" if a[3] is None else a[3].to_string())
                 for j, a in enumerate(axes)]
     return Sweep(path, text, base_model.kind, design, out_axes, base, rows, profiles, batch,
-                 numbers)
+                 numbers, observables)
+
+
+WIDTH_COLUMNS = ("fwhm", "hwzi", "edge_velocity")
+
+
+def _check_observables(path, table):
+    """[observables] holds LineSettings keywords; check them before anything runs."""
+    import dataclasses
+
+    from .lines import LineSettings
+    names = [f.name for f in dataclasses.fields(LineSettings)]
+    for k in table:
+        if k not in names:
+            _fail(path, f"unknown key \"{k}\" in [observables]{nearest(k, names)}; it takes "
+                        f"{', '.join(names)}")
+    try:
+        LineSettings(**table)
+    except ModelError as error:
+        _fail(path, f"[observables] {error}")
 
 
 def _corner_rows(numbers, limit=256):
@@ -379,8 +405,11 @@ def _in_unit(q, unit):
     return float(q.value) * scale
 
 
-def run_batch(base, items, profiles=False):
+def run_batch(base, items, profiles=False, observables=None):
     """Solve a batch of rows in a worker: base model file, [(row, changes)] -> records.
+
+    With ``observables`` (LineSettings keywords) each converged model's line
+    widths are measured here, in the worker, and recorded with the row.
 
     A failure of any kind is recorded with its status and message; it never
     stops the sweep.
@@ -398,13 +427,24 @@ def run_batch(base, items, profiles=False):
             if key not in _BASE_CACHE:  # parse the base once per worker
                 _BASE_CACHE.clear()
                 _BASE_CACHE[key] = model_from_dict(base, source="sweep base")
-            result = solve(apply_changes(_BASE_CACHE[key], changes), profile=profiles)
+            result = solve(apply_changes(_BASE_CACHE[key], changes),
+                           profile=profiles or observables is not None)
             record["converged"] = bool(result.converged)
             record["status"] = result.status
             record["message"] = result.message
             for key in SUMMARY_COLUMNS:
                 q = result.summary.get(key)
                 record[key] = _in_unit(q, SUMMARY_UNITS[key]) if q is not None else math.nan
+            if observables is not None:
+                for name in WIDTH_COLUMNS:
+                    record[name] = math.nan
+                if result.converged:
+                    from .lines import LineSettings, line_widths
+                    widths = line_widths(result, LineSettings(**observables))
+                    for name in WIDTH_COLUMNS:
+                        q = widths.get(name)
+                        if q is not None:
+                            record[name] = float(q.to_value(SUMMARY_UNITS["terminal_velocity"]))
             if profiles and result.profile:
                 record["profile"] = {k: q.to_value(PROFILE_UNITS[k]).tolist()
                                      for k, q in result.profile.items()}
@@ -477,7 +517,7 @@ def run_sweep(sweep, out, workers=None, scheduler=None, resume=False, quiet=Fals
                         break
                     pending.add(executor.submit(run_batch, sweep.base,
                                                 [(i, sweep.rows[i]) for i in b],
-                                                sweep.profiles))
+                                                sweep.profiles, sweep.observables))
                 if not pending:
                     break
                 finished, pending = wait(pending, return_when=FIRST_COMPLETED)
@@ -572,6 +612,12 @@ def write_sweep_table(sweep, records, out):
                 d = g.create_dataset(key, data=np.array(
                     [records[i].get(key, math.nan) for i in range(n)], dtype=float))
                 d.attrs["units"] = _unit_text(SUMMARY_UNITS[key])
+            if sweep.observables is not None:
+                for key in WIDTH_COLUMNS:
+                    d = g.create_dataset(key, data=np.array(
+                        [records[i].get(key, math.nan) for i in range(n)], dtype=float))
+                    d.attrs["units"] = "cm / s"
+                f.attrs["observables"] = json.dumps(sweep.observables)
             d = g.create_dataset("converged", data=np.array(
                 [bool(records[i].get("converged")) for i in range(n)]))
             d.attrs["units"] = "1"

@@ -1,0 +1,102 @@
+"""Line profiles, chi^2 over a big sweep, and the cost of widths inside a sweep.
+
+Run by hand from the repository root (windsolve installed)::
+
+    python benchmarks/bench_lines.py
+
+Measures, in one run:
+
+* a synthetic emission line with its measured widths from a solved model
+  (the demo, Model A; and configs/bump_wind.toml, Model B) -- goal <= 20 ms;
+* chi^2 of a 10,000-row sweep table against observed widths (the table is
+  written with the sweep's own writer from synthetic rows, so no solve runs)
+  -- goal <= 2 s, timed as ``windsolve compare`` does it (read + chi^2);
+* a 1,000-model sweep with and without an [observables] table (1 worker)
+  -- goal: widths add <= 20 % to the run time.
+"""
+
+import statistics
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+
+import windsolve
+from windsolve.lines import LineSettings, line_widths
+from windsolve.observe import read_observed, sweep_chi2
+from windsolve.sweep import load_sweep, read_sweep_table, write_sweep_table
+
+ROOT = Path(__file__).resolve().parent.parent
+DEMO = ROOT / "configs" / "demo.toml"
+
+
+def median_ms(fn, n):
+    times = []
+    for _ in range(n):
+        t0 = time.perf_counter()
+        fn()
+        times.append(time.perf_counter() - t0)
+    return 1e3 * statistics.median(times)
+
+
+def main():
+    settings = LineSettings()
+    for name, path in (("demo (Model A)", DEMO), ("bump wind (Model B)",
+                                                  ROOT / "configs" / "bump_wind.toml")):
+        result = windsolve.solve(windsolve.load_model(path))
+        line_widths(result, settings)  # compile / warm
+        t = median_ms(lambda result=result: line_widths(result, settings), 30)
+        print(f"line profile + widths, {name}: {t:.2f} ms median (goal <= 20 ms)")
+    with tempfile.TemporaryDirectory() as tmp:
+        tmp = Path(tmp)
+        big = tmp / "big.toml"
+        big.write_text(f'[sweep]\nbase = "{DEMO}"\ndesign = "grid"\n[observables]\n'
+                       f'emissivity_power = 2\n[[axis]]\nkey = "star.luminosity"\n'
+                       f'start = "2.5e6 Lsun"\nstop = "8e6 Lsun"\nnum = 100\nspacing = "log"\n'
+                       f'[[axis]]\nkey = "porosity.length"\nstart = "1 Rsun"\n'
+                       f'stop = "100 Rsun"\nnum = 100\nspacing = "log"\n')
+        sweep = load_sweep(big)
+        rng = np.random.default_rng(0)
+        records = {i: {"row": i, "converged": bool(rng.random() > 0.05), "status": "converged",
+                       "message": "", "seconds": 0.0,
+                       "terminal_velocity": float(rng.uniform(2e7, 8e7)),
+                       "fwhm": float(rng.uniform(1e7, 5e7)), "hwzi": float(rng.uniform(2e7, 8e7)),
+                       "edge_velocity": float(-rng.uniform(2e7, 8e7))} for i in range(len(sweep))}
+        out = tmp / "big.h5"
+        write_sweep_table(sweep, records, out)
+        obs = ROOT / "configs" / "observed_widths.csv"
+
+        def chi2():
+            table, attrs = read_sweep_table(out)
+            return sweep_chi2(table, read_observed(obs))
+
+        t = median_ms(chi2, 5)
+        print(f"chi^2 over a {len(sweep)}-row sweep table (read + compute): {t:.1f} ms "
+              f"(goal <= 2000 ms)")
+        small = tmp / "small.toml"
+        body = (f'[sweep]\nbase = "{DEMO}"\ndesign = "grid"\n[[axis]]\n'
+                f'key = "star.luminosity"\nstart = "2.5e6 Lsun"\nstop = "8e6 Lsun"\nnum = 50\n'
+                f'spacing = "log"\n[[axis]]\nkey = "porosity.length"\nstart = "1 Rsun"\n'
+                f'stop = "100 Rsun"\nnum = 20\nspacing = "log"\n')
+        small.write_text(body)
+        widths = tmp / "widths.toml"
+        widths.write_text(body + "[observables]\nemissivity_power = 2\n")
+
+        def run(path):
+            t0 = time.perf_counter()
+            subprocess.run([sys.executable, "-m", "windsolve", "sweep", str(path), "-o",
+                            str(path.with_suffix(".h5")), "--workers", "1", "-q"], check=True)
+            return time.perf_counter() - t0
+
+        run(widths)  # warm every kernel cache
+        t_plain = run(small)
+        t_widths = run(widths)
+        print(f"1000-model sweep, 1 worker: {t_plain:.2f} s without widths, {t_widths:.2f} s "
+              f"with widths: +{100 * (t_widths / t_plain - 1):.0f} % (goal <= 20 %)")
+
+
+if __name__ == "__main__":
+    main()

@@ -1,0 +1,110 @@
+"""Observed widths: the CSV format, chi^2 over a sweep, matching one parameter.
+
+Tier (d)/(e): an invented data set with a known answer (made from a model
+here, never used as a reference for physics): the best sweep row and the
+matched parameter must be the ones the synthetic observations came from.
+"""
+
+import math
+from pathlib import Path
+
+import astropy.units as u
+import numpy as np
+import pytest
+
+import windsolve
+from windsolve import cli
+from windsolve.errors import ModelError
+from windsolve.observe import match_parameter, read_observed, sweep_chi2
+from windsolve.sweep import load_sweep, read_sweep_table, run_sweep
+
+DEMO = Path(str(windsolve.demo_model_path()))
+HEADER = "object,quantity,line,value,uncertainty,unit\n"
+
+
+def csv_file(tmp_path, body, name="obs.csv"):
+    path = tmp_path / name
+    path.write_text("# invented, for a test\n" + HEADER + body)
+    return path
+
+
+def test_read_observed_converts_units(tmp_path):
+    obs = read_observed(csv_file(tmp_path, "Star X,terminal_velocity,-,450,40,km/s\n"
+                                           "Star X,fwhm,H-alpha,4.5e7,4e6,cm/s\n"))
+    assert [o.quantity for o in obs] == ["terminal_velocity", "fwhm"]
+    assert obs[0].value == 450e5 and obs[0].uncertainty == 40e5
+    assert obs[1].value == 4.5e7
+
+
+def test_shipped_example_is_valid():
+    obs = read_observed(Path(__file__).parent.parent / "configs" / "observed_widths.csv")
+    assert {o.object for o in obs} == {"Calder Var A (invented)"}
+
+
+@pytest.mark.parametrize("body, fragment", [
+    ("Star X,terminal_velocty,-,450,40,km/s\n", 'did you mean "terminal_velocity"'),
+    ("Star X,fwhm,-,450,0,km/s\n", "positive"),
+    ("Star X,fwhm,-,fast,40,km/s\n", "numbers"),
+    ("Star X,fwhm,-,450,40,K\n", "not a speed"),
+    ("Star X,fwhm,-,450,40\n", "fields"),
+    ("Star X,fwhm,-,450,40,km/s\nStar Y,fwhm,-,400,40,km/s\n", "--object"),
+])
+def test_bad_observed_files(tmp_path, body, fragment):
+    with pytest.raises(ModelError) as info:
+        read_observed(csv_file(tmp_path, body))
+    assert fragment in str(info.value)
+    assert "\n" not in str(info.value)
+
+
+def test_bad_header(tmp_path):
+    path = tmp_path / "obs.csv"
+    path.write_text("name,value\nX,1\n")
+    with pytest.raises(ModelError, match="header"):
+        read_observed(path)
+
+
+def test_chi2_picks_the_row_the_observations_came_from(tmp_path, capsys):
+    sweep_path = tmp_path / "sweep.toml"
+    sweep_path.write_text(f'[sweep]\nbase = "{DEMO}"\ndesign = "grid"\n[[axis]]\n'
+                          f'key = "star.luminosity"\nstart = "3e6 Lsun"\nstop = "6e6 Lsun"\n'
+                          f'num = 7\n')
+    out = tmp_path / "sweep.h5"
+    run_sweep(load_sweep(sweep_path), out, workers=1, quiet=True)
+    table, attrs = read_sweep_table(out)
+    truth = 4
+    v = float(table["terminal_velocity"][truth])
+    obs = csv_file(tmp_path, f"Synthetic,terminal_velocity,-,{v / 1e5!r},{0.01 * v / 1e5!r},"
+                             f"km/s\n")
+    chi2 = sweep_chi2(table, read_observed(obs))
+    assert int(np.nanargmin(chi2)) == truth and chi2[truth] < 1e-12
+    csv_out = tmp_path / "chi2.csv"
+    png = tmp_path / "chi2.png"
+    assert cli.main(["compare", str(out), str(obs), "-o", str(csv_out), "--plot",
+                     str(png)]) == 0
+    text = capsys.readouterr().out
+    assert f"row {truth}: chi2 = 0.000" in text
+    assert csv_out.read_text().splitlines()[0] == "row,star.luminosity,chi2"
+    assert png.read_bytes()[:4] == b"\x89PNG"
+
+
+def test_match_recovers_the_parameter_behind_synthetic_data(tmp_path):
+    model = windsolve.load_model(DEMO)
+    truth = 4.7e6
+    made = windsolve.solve(model.replace(luminosity=truth * u.Lsun))
+    v = float(made.summary["terminal_velocity"].to_value(u.km / u.s))
+    obs = read_observed(csv_file(tmp_path, f"Synthetic,terminal_velocity,-,{v!r},10,km/s\n"))
+    value, predicted, scan = match_parameter(model, "star.luminosity", "3e6 Lsun", "6e6 Lsun",
+                                             obs[0])
+    assert math.isclose(value.to_value(u.Lsun), truth, rel_tol=1e-5)
+    assert math.isclose(predicted, v * 1e5, rel_tol=1e-6)
+
+
+def test_match_says_when_no_value_in_range_can(tmp_path, capsys):
+    obs = csv_file(tmp_path, "Synthetic,terminal_velocity,-,5000,10,km/s\n")
+    assert cli.main(["match", str(DEMO), "--key", "star.luminosity", "--from", "3e6 Lsun",
+                     "--to", "6e6 Lsun", "--observed", str(obs)]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "no value of star.luminosity" in err[0]
+    assert cli.main(["match", str(DEMO), "--key", "star.lumnosity", "--from", "3e6 Lsun",
+                     "--to", "6e6 Lsun", "--observed", str(obs)]) == 2
+    assert 'did you mean "star.luminosity"' in capsys.readouterr().err

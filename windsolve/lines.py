@@ -1,0 +1,701 @@
+"""Line profiles from a solved wind, and the widths an observer quotes.
+
+Two profiles are computed from a wind's tabulated radius, velocity and
+density (a :class:`~windsolve.result.WindResult`, or a dict of Quantities, so
+that profiles not written by windsolve work too):
+
+* :func:`emission_profile` -- an optically thin emission line with
+  emissivity j proportional to rho**n (n = 2: recombination or collisional
+  excitation; n = 1: a process linear in the density), SPEC section 6:
+
+  .. math:: F(w) = 2\\pi \\int_{v(r) > |w|} j(r) \\frac{r^2}{v(r)} \\, dr
+
+  A shell of radius r and speed v spreads its light evenly over
+  -v < w < v (Lamers & Cassinelli 1999, Introduction to Stellar Winds,
+  ch. 2, from memory), so a constant-velocity wind gives a flat-topped line
+  of half-width v.  With ``occultation`` the opaque core of radius R_c hides
+  the gas inside it (r < R_c is not seen at all) and, for r > R_c, the
+  hemisphere cap behind its disk: the red part w > v(r) sqrt(1 - (R_c/r)**2).
+  Without ``occultation`` every tabulated shell is seen whole (R_c unused).
+* :func:`pcygni_profile` -- a P Cygni profile of a pure-scattering resonance
+  line in the Sobolev approximation: the uniformly bright core of radius R_c
+  is absorbed by the gas in front of its disk, with Sobolev optical depth
+  tau(r, mu), and every resonance point scatters with source function
+  S = (beta_c / beta) I_c, beta and beta_c the escape and core-penetration
+  probabilities built from beta(tau) = (1 - exp(-tau)) / tau (Castor 1970,
+  MNRAS 149, 111; Lamers & Cassinelli 1999, ch. 2 and ch. 8; Castor &
+  Lamers 1979, ApJS 39, 481 -- all from memory).  Approximations: the
+  Sobolev approximation (no thermal or turbulent width in the line
+  transfer; the velocity gradient along the ray is mu**2 dv/dr +
+  (1 - mu**2) v/r), core-halo geometry (a sharp, uniformly bright core, no
+  limb darkening, no continuum opacity in the wind, photons scattered back
+  onto the core are lost), one resonance point per ray (v(r) must
+  not fall outward outside R_c; a ModelError says where it does).  Only gas
+  at r >= R_c takes part.
+
+Line strength.  The Sobolev optical depth is
+
+.. math::
+
+    \\tau(r, \\mu) = k_0 \\, \\frac{\\rho(r)}{\\rho_{\\rm ref}}
+        \\frac{v_{\\max} / R_c}{\\mu^2\\, dv/dr + (1 - \\mu^2)\\, v / r},
+    \\qquad \\rho_{\\rm ref} = \\frac{\\langle r^2 \\rho v \\rangle}{R_c^2 v_{\\max}}
+
+with k_0 = ``line_strength``, v_max the largest tabulated velocity and
+<r^2 rho v> the median over the profile (the mass flux Mdot / 4 pi of a
+steady wind).  For a steady wind the radial optical depth is then the
+familiar tau_rad = k_0 / (x**2 w dw/dx), x = r / R_c, w = v / v_max (as in
+Castor & Lamers 1979, from memory); k_0 >> 1 is a strong (saturated) line.
+
+Broadening.  ``turbulence`` and ``resolution`` are both Gaussians given by
+their FULL WIDTH AT HALF MAXIMUM (FWHM = 2 sqrt(2 ln 2) sigma = 2.3548
+sigma); the line is convolved once with a Gaussian of FWHM
+sqrt(turbulence**2 + instrument**2).  A plain number as ``resolution`` is a
+resolving power R, instrument FWHM = c / R.  The convolution is the exact
+convolution of the piecewise-linear sampled profile, so a width far below
+the grid step changes the profile very little instead of not at all.
+
+Velocity grid.  ``n_velocity`` evenly spaced points over
+[-H, H], H = 1.2 v_max + 2 FWHM_broadening (just 1.2 v_max without
+broadening), v_max the largest tabulated velocity; beyond the grid the line
+is at the continuum.  Velocities are Doppler velocities, positive = red.
+
+The emitting (or scattering) region is the tabulated profile, from R_c to
+its last point, with one addition: a Model B (diffusion) profile stops at
+the photosphere, and above it the flow is optically thin and ballistic
+(SPEC section 5), v^2 = v_inf^2 + (v_ph^2 - v_inf^2) R_ph / r; that thin
+flow is appended out to 100 R_ph.  Nothing else is extrapolated.
+
+Core radius (the disk that occults and, for P Cygni, emits the continuum):
+the photosphere of a Model B result; for a Model A result the radius where
+the optical depth integrated inward with the profile's own opacity reaches
+2/3 (the wind of the demo is opaque near its base), or the base R0 if the
+whole profile is thin.  ``core_radius`` overrides it.
+
+Caveat: the slow base.  With continuity (rho v r^2 = const) the emission
+integrand j r^2 / v is proportional to rho^(n-1) / v^2, so dense, slow gas
+just outside the core dominates an optically thin line: a core radius deep
+in a nearly hydrostatic base gives a narrow central spike whose FWHM is set
+by the base.  Likewise the Sobolev approximation fails where v is not much
+larger than the thermal speed, so P Cygni features within a few sound
+speeds of w = 0 are not reliable.
+
+Normalisation.  Emission: continuum 0, the line's peak = 1.  P Cygni:
+continuum 1 (F / F_c, F_c the core's flux).
+
+Measurements (all on the final, broadened profile; linear interpolation
+between grid points; NaN when not measurable):
+
+FWHM
+    Full width at half maximum of the emission line: w_+ - w_-, where w_-
+    and w_+ are the smallest and largest w at which the normalised flux is
+    >= 0.5 (the outermost half-maximum crossings; for a single-peaked line
+    these are the usual ones).  NaN for a P Cygni profile.
+HWZI
+    Half width at "zero" intensity of the emission line: the largest |w| at
+    which the normalised flux is >= ``hwzi_fraction``, i.e.
+    max(-w_-, w_+) at that level, measured from the rest velocity w = 0.
+    NaN for a P Cygni profile.
+Blue-edge velocity
+    Of the P Cygni profile: the most negative w at which the absorption
+    depth 1 - F/F_c reaches ``edge_depth`` (a negative number; about
+    -v_infinity for a strong line).  NaN when the trough never reaches
+    ``edge_depth``, and for an emission profile.
+"""
+
+import math
+import numbers
+import os
+from collections.abc import Mapping
+from dataclasses import dataclass
+from pathlib import Path
+
+import astropy.units as u
+import numpy as np
+
+from ._units import to_quantity
+from .core import lines as kernels
+from .core.constants import C_LIGHT
+from .errors import ModelError, OutputError
+from .result import WindResult
+
+__all__ = [
+    "LineSettings",
+    "LineProfile",
+    "emission_profile",
+    "pcygni_profile",
+    "line_widths",
+    "broaden",
+    "FWHM_PER_SIGMA",
+]
+
+KM_S = u.km / u.s
+CM_PER_KM = 1e5
+FWHM_PER_SIGMA = 2.0 * math.sqrt(2.0 * math.log(2.0))  # 2.3548: Gaussian FWHM / sigma
+GRID_MARGIN = 1.2  # the grid spans this many v_max ...
+BROADENING_MARGIN = 2.0  # ... plus this many broadening FWHM (about 4.7 sigma)
+MONOTONIC_RTOL = 1e-6  # an outward fall of v by less than this * v_max is noise
+MIN_POINTS = 21
+
+
+class _NoGasOutsideCore(ModelError):
+    """No tabulated point lies outside the core radius (line_widths gives NaN)."""
+
+
+class _NotMonotonic(ModelError):
+    """v(r) falls outward outside the core (line_widths gives a NaN blue edge)."""
+
+
+def _nan_speed():
+    return np.nan * KM_S
+
+
+@dataclass(frozen=True)
+class LineSettings:
+    """How to compute and measure a line profile.
+
+    Attributes
+    ----------
+    emissivity_power : int
+        n in j proportional to rho**n for the emission line: 1 or 2 (default 2).
+    occultation : bool
+        Hide what lies behind the core's disk, and (emission) the gas inside
+        the core radius.  Default True.
+    turbulence : Quantity or str
+        Gaussian turbulent broadening, given as its FWHM (not sigma, not the
+        1/e half-width), e.g. ``"10 km/s"``.  Default 0.
+    resolution : Quantity, str, float or None
+        Instrumental broadening, a Gaussian: a speed is its FWHM (``"30 km/s"``),
+        a plain number is the resolving power R (FWHM = c / R).  None: no
+        instrumental broadening (default).
+    hwzi_fraction : float
+        HWZI is measured where the line falls to this fraction of its peak
+        (0 < f < 1; default 0.05).
+    edge_depth : float
+        The P Cygni blue edge is the most negative velocity at which the
+        absorption depth 1 - F/F_c reaches this (0 < d < 1; default 0.1).
+    line_strength : float
+        k_0 > 0 in the Sobolev optical depth (module docstring); radially
+        tau_rad = k_0 / (x**2 w dw/dx).  Default 100 (a strong line).
+    n_velocity : int
+        Number of points of the velocity grid (>= 21; default 401).
+    """
+
+    emissivity_power: int = 2
+    occultation: bool = True
+    turbulence: object = 0.0 * KM_S
+    resolution: object = None
+    hwzi_fraction: float = 0.05
+    edge_depth: float = 0.1
+    line_strength: float = 100.0
+    n_velocity: int = 401
+
+    def __post_init__(self):
+        set_ = object.__setattr__
+        n = self.emissivity_power
+        if isinstance(n, bool) or not isinstance(n, numbers.Integral) or n not in (1, 2):
+            raise ModelError(f"LineSettings.emissivity_power = {n!r}: must be 1 (j ~ rho) "
+                             f"or 2 (j ~ rho**2)")
+        set_(self, "emissivity_power", int(n))
+        if not isinstance(self.occultation, bool | np.bool_):
+            raise ModelError(f"LineSettings.occultation = {self.occultation!r}: must be "
+                             f"True or False")
+        set_(self, "occultation", bool(self.occultation))
+        turbulence = to_quantity(self.turbulence, KM_S, "LineSettings.turbulence")
+        if not (np.isfinite(turbulence.value) and turbulence.value >= 0):
+            raise ModelError(f"LineSettings.turbulence = {turbulence:g}: must be a FWHM "
+                             f">= 0, e.g. \"10 km/s\"")
+        set_(self, "turbulence", turbulence)
+        set_(self, "resolution", _check_resolution(self.resolution))
+        for name in ("hwzi_fraction", "edge_depth"):
+            value = getattr(self, name)
+            if (isinstance(value, bool) or not isinstance(value, numbers.Real)
+                    or not 0.0 < value < 1.0):
+                raise ModelError(f"LineSettings.{name} = {value!r}: must be a number "
+                                 f"between 0 and 1 (exclusive)")
+            set_(self, name, float(value))
+        k0 = self.line_strength
+        if (isinstance(k0, bool) or not isinstance(k0, numbers.Real)
+                or not (math.isfinite(k0) and k0 > 0)):
+            raise ModelError(f"LineSettings.line_strength = {k0!r}: must be a positive "
+                             f"number (k_0 >> 1 for a strong line)")
+        set_(self, "line_strength", float(k0))
+        npts = self.n_velocity
+        if (isinstance(npts, bool) or not isinstance(npts, numbers.Integral)
+                or npts < MIN_POINTS):
+            raise ModelError(f"LineSettings.n_velocity = {npts!r}: must be a whole number "
+                             f">= {MIN_POINTS}")
+        set_(self, "n_velocity", int(npts))
+
+    @property
+    def instrument_fwhm(self):
+        """Instrumental FWHM [km/s]: the given speed, c / R, or 0."""
+        if self.resolution is None:
+            return 0.0 * KM_S
+        if isinstance(self.resolution, u.Quantity):
+            return self.resolution
+        return (C_LIGHT / CM_PER_KM / self.resolution) * KM_S
+
+    @property
+    def broadening_fwhm(self):
+        """FWHM [km/s] of the one Gaussian applied: turbulence and instrument in quadrature."""
+        return np.hypot(self.turbulence, self.instrument_fwhm)
+
+
+def _check_resolution(value):
+    """None, a velocity FWHM (Quantity in km/s) or a resolving power (float)."""
+    where = "LineSettings.resolution"
+    if value is None:
+        return None
+    if isinstance(value, str):
+        try:
+            parsed = u.Quantity(value)
+        except (TypeError, ValueError):
+            raise ModelError(f"{where} = \"{value}\": give a FWHM such as \"30 km/s\" or a "
+                             f"resolving power such as 20000") from None
+        value = parsed.value.item() if parsed.unit == u.dimensionless_unscaled else parsed
+    if isinstance(value, u.Quantity) and value.unit == u.dimensionless_unscaled:
+        value = float(value.value)
+    if isinstance(value, u.Quantity):
+        q = to_quantity(value, KM_S, where)
+        if not (np.isfinite(q.value) and q.value > 0):
+            raise ModelError(f"{where} = {q:g}: an instrumental FWHM must be > 0")
+        return q
+    if isinstance(value, bool) or not isinstance(value, numbers.Real):
+        raise ModelError(f"{where} = {value!r}: give a FWHM such as \"30 km/s\" or a "
+                         f"resolving power such as 20000")
+    if not (math.isfinite(value) and value > 0):
+        raise ModelError(f"{where} = {value!r}: a resolving power R must be > 0")
+    return float(value)
+
+
+@dataclass
+class LineProfile:
+    """A computed line profile and its measured widths.
+
+    Attributes
+    ----------
+    velocity : Quantity
+        Doppler velocity [km/s], increasing, evenly spaced (positive = red).
+    flux : ndarray
+        Emission: continuum 0, peak 1.  P Cygni: F / F_c, continuum 1.
+    kind : str
+        ``"emission"`` or ``"pcygni"``.
+    fwhm, hwzi, edge_velocity : Quantity
+        [km/s] as defined in :mod:`windsolve.lines`; NaN where not defined
+        (fwhm and hwzi for P Cygni, edge_velocity for emission) or not
+        measurable.
+    """
+
+    velocity: object
+    flux: object
+    kind: str
+    fwhm: object
+    hwzi: object
+    edge_velocity: object
+
+    def to_csv(self, path):
+        """Write ``velocity_km_s,flux`` (one header line, then one row per point).
+
+        Written under a temporary name and renamed when complete.
+        """
+        path = Path(path)
+        if path.is_dir():
+            raise OutputError(f"{path} is a directory; give a file name such as line.csv")
+        if not path.parent.exists():
+            raise OutputError(f"{path}: directory {path.parent} does not exist")
+        tmp = path.with_name(f".{path.name}.{os.getpid()}.tmp")
+        data = np.column_stack([self.velocity.to_value(KM_S), np.asarray(self.flux)])
+        try:
+            np.savetxt(tmp, data, delimiter=",", header="velocity_km_s,flux", comments="",
+                       fmt="%.10g")
+            os.replace(tmp, path)
+        except OSError as error:
+            tmp.unlink(missing_ok=True)
+            raise OutputError(f"{path}: cannot write ({error})") from None
+        return path
+
+
+# -- input ------------------------------------------------------------------
+
+_INPUT_UNITS = (("radius", u.cm), ("velocity", u.cm / u.s), ("density", u.g / u.cm**3))
+
+
+def _read_profile(source, what):
+    """(r, v, rho) in cgs from a WindResult or a dict of Quantities; ModelError if unusable."""
+    if isinstance(source, WindResult):
+        if not source.converged or not source.profile:
+            raise ModelError(f"{what}: the result has no converged profile "
+                             f"(status {source.status}: {source.message})")
+        profile = source.profile
+    elif isinstance(source, Mapping):
+        profile = source
+    else:
+        raise ModelError(f"{what}: expected a WindResult or a dict of radius, velocity and "
+                         f"density Quantities, not {type(source).__name__}")
+    arrays = []
+    for key, unit in _INPUT_UNITS:
+        if key not in profile:
+            raise ModelError(f"{what}: the profile has no '{key}'")
+        q = profile[key]
+        if not isinstance(q, u.Quantity) or not q.unit.is_equivalent(unit):
+            raise ModelError(f"{what}: profile['{key}'] must be a Quantity array in units of "
+                             f"{unit.physical_type} (e.g. {unit.to_string()})")
+        a = np.asarray(q.to_value(unit), dtype=np.float64)
+        if a.ndim != 1:
+            raise ModelError(f"{what}: profile['{key}'] must be one-dimensional")
+        if not np.all(np.isfinite(a)) or not np.all(a > 0):
+            raise ModelError(f"{what}: profile['{key}'] must be finite and > 0 everywhere")
+        arrays.append(a)
+    r, v, rho = arrays
+    if not (r.size == v.size == rho.size):
+        raise ModelError(f"{what}: radius, velocity and density have different lengths "
+                         f"({r.size}, {v.size}, {rho.size})")
+    if r.size < 3:
+        raise ModelError(f"{what}: the profile needs at least 3 points, not {r.size}")
+    if not np.all(np.diff(r) > 0):
+        raise ModelError(f"{what}: profile['radius'] must increase strictly")
+    if isinstance(source, WindResult):
+        r, v, rho = _thin_extension(source, r, v, rho)
+    return r, v, rho
+
+
+THIN_EXTENT = 100.0  # the optically thin flow above a photosphere is followed to 100 R_ph
+THIN_POINTS = 200
+
+
+def _thin_extension(result, r, v, rho):
+    """Append the ballistic thin flow above a Model B photosphere.
+
+    A diffusion-wind profile stops at the photosphere; above it the flow is
+    optically thin and ballistic (SPEC section 5): v(r)^2 = v_inf^2 + K / r
+    with K = (v_ph^2 - v_inf^2) R_ph, and rho from continuity.  That is the
+    gas an observer's lines come from, so it is added here (out to
+    THIN_EXTENT R_ph); profiles without a photosphere are returned as they are.
+    """
+    s = result.summary
+    R_ph = s.get("photosphere_radius")
+    v_inf = s.get("terminal_velocity")
+    mdot = s.get("mass_loss_rate")
+    if R_ph is None or v_inf is None or mdot is None:
+        return r, v, rho
+    R_ph = float(R_ph.to_value(u.cm))
+    v_inf = float(v_inf.to_value(u.cm / u.s))
+    mdot = float(mdot.to_value(u.g / u.s))
+    if not (np.isfinite(R_ph) and np.isfinite(v_inf) and abs(r[-1] / R_ph - 1.0) < 1e-6):
+        return r, v, rho
+    K = (v[-1] ** 2 - v_inf**2) * R_ph
+    r_out = R_ph * np.geomspace(1.0, THIN_EXTENT, THIN_POINTS)[1:]
+    v_out = np.sqrt(v_inf**2 + K / r_out)
+    rho_out = mdot / (4.0 * np.pi * r_out**2 * v_out)
+    return (np.concatenate([r, r_out]), np.concatenate([v, v_out]),
+            np.concatenate([rho, rho_out]))
+
+
+def _optical_core(result):
+    """Radius where tau = integral of kappa rho dr from outside reaches 2/3, or None.
+
+    The disk an observer sees (and that hides the red side of the line) is
+    where the gas becomes optically thick; for an isothermal (Model A)
+    result that is not the base R0 when the wind itself is opaque near the
+    base.  Uses the profile's own opacity; None if the whole profile is
+    optically thin (tau(R0) < 2/3).
+    """
+    p = result.profile
+    if "opacity" not in p or "density" not in p:
+        return None
+    r = p["radius"].to_value(u.cm)
+    dtau = p["opacity"].to_value(u.cm**2 / u.g) * p["density"].to_value(u.g / u.cm**3)
+    # cumulative trapezoid from the outer end inward
+    seg = 0.5 * (dtau[1:] + dtau[:-1]) * np.diff(r)
+    tau = np.concatenate([np.cumsum(seg[::-1])[::-1], [0.0]])
+    if not tau[0] > 2.0 / 3.0:
+        return None
+    i = int(np.flatnonzero(tau >= 2.0 / 3.0)[-1])
+    # linear interpolation between r[i] (tau >= 2/3) and r[i+1] (tau < 2/3)
+    t0, t1 = tau[i], tau[i + 1]
+    return float(r[i] + (t0 - 2.0 / 3.0) / (t0 - t1) * (r[i + 1] - r[i]))
+
+
+def _core_radius(source, core_radius, r, what):
+    """R_c [cm]: given, else the photosphere (Model B), else where the profile's own
+    optical depth reaches 2/3 (Model A with an opaque inner wind), else the
+    base R0, else r[0]."""
+    if core_radius is not None:
+        q = to_quantity(core_radius, u.cm, f"{what}: core_radius")
+        if not (np.isfinite(q.value) and q.value > 0):
+            raise ModelError(f"{what}: core_radius = {q:g} must be > 0")
+        return float(q.value)
+    if isinstance(source, WindResult):
+        q = source.summary.get("photosphere_radius")
+        if q is not None and np.isfinite(q.value):
+            return float(q.to_value(u.cm))
+        rc = _optical_core(source)
+        if rc is not None:
+            return rc
+        R0 = getattr(source.model, "radius", None)
+        if isinstance(R0, u.Quantity):
+            return float(R0.to_value(u.cm))
+        q = source.summary.get("base_radius")
+        if q is not None and np.isfinite(q.value):
+            return float(q.to_value(u.cm))
+    return float(r[0])
+
+
+def _check_settings(settings):
+    if settings is None:
+        return LineSettings()
+    if not isinstance(settings, LineSettings):
+        raise ModelError(f"settings must be a LineSettings, not {type(settings).__name__}")
+    return settings
+
+
+def _velocity_grid(v, settings):
+    """Evenly spaced w [cm/s] over +-(1.2 v_max + 2 FWHM_broadening)."""
+    fwhm = settings.broadening_fwhm.to_value(KM_S) * CM_PER_KM
+    half = GRID_MARGIN * float(v.max()) + BROADENING_MARGIN * fwhm
+    return np.linspace(-half, half, settings.n_velocity), fwhm / FWHM_PER_SIGMA
+
+
+def _no_gas(what, Rc, r):
+    rsun = u.Rsun.to(u.cm)
+    return _NoGasOutsideCore(
+        f"{what}: no tabulated gas outside the core radius (R_c = {Rc / rsun:.4g} Rsun, the "
+        f"profile ends at {r[-1] / rsun:.4g} Rsun; a Model B profile ends at the "
+        f"photosphere), so there is no line; pass a smaller core_radius"
+        + (" or occultation=False" if what == "emission_profile" else ""))
+
+
+# -- profiles -----------------------------------------------------------------
+
+def emission_profile(result_or_profile, settings=LineSettings(), core_radius=None):
+    """Optically thin emission line (j proportional to rho**n) of a solved wind.
+
+    Parameters
+    ----------
+    result_or_profile : WindResult or dict
+        A converged result, or a dict with ``radius`` [length], ``velocity``
+        [speed] and ``density`` [mass density] Quantity arrays on an
+        increasing radial grid (e.g. ``WindResult.from_hdf5(path)``).
+    settings : LineSettings
+        Emissivity power, occultation, broadening, grid, HWZI level.
+    core_radius : Quantity or str, optional
+        Radius R_c of the occulting core [length].  Default: the photosphere
+        radius (Model B), the base radius R0 (Model A), else the first
+        tabulated radius.
+
+    Returns
+    -------
+    LineProfile
+        ``kind="emission"``, peak 1, with ``fwhm`` and ``hwzi`` (km/s).
+
+    Raises
+    ------
+    ModelError
+        Unusable input, or (with occultation) no tabulated gas outside R_c.
+
+    Notes
+    -----
+    .. math:: F(w) = 2\\pi \\int_{v(r) > |w|} \\rho^n \\frac{r^2}{v} \\, dr
+
+    minus, with occultation, the part behind the disk (module docstring;
+    kernel :func:`windsolve.core.lines.emission_flux`).  The profile is not
+    extrapolated beyond its last point.
+
+    References
+    ----------
+    Lamers, H. J. G. L. M. & Cassinelli, J. P. 1999, Introduction to Stellar
+    Winds (Cambridge University Press), ch. 2 (from memory).
+    """
+    what = "emission_profile"
+    settings = _check_settings(settings)
+    r, v, rho = _read_profile(result_or_profile, what)
+    Rc = _core_radius(result_or_profile, core_radius, r, what)
+    if settings.occultation and Rc >= r[-1]:
+        raise _no_gas(what, Rc, r)
+    w, sigma = _velocity_grid(v, settings)
+    F = kernels.emission_flux(r, v, rho, float(settings.emissivity_power), Rc,
+                              settings.occultation, w)
+    F = kernels.gaussian_broaden(F, w[1] - w[0], sigma, 0.0)
+    peak = F.max()
+    if not peak > 0:
+        raise _no_gas(what, Rc, r)
+    f = F / peak
+    lo, hi = kernels.outermost_crossings(w, f, 0.5)
+    zlo, zhi = kernels.outermost_crossings(w, f, settings.hwzi_fraction)
+    return LineProfile(velocity=(w / CM_PER_KM) << KM_S, flux=f, kind="emission",
+                       fwhm=((hi - lo) / CM_PER_KM) * KM_S,
+                       hwzi=(float(np.maximum(-zlo, zhi)) / CM_PER_KM) * KM_S,
+                       edge_velocity=_nan_speed())
+
+
+def pcygni_profile(result_or_profile, settings=LineSettings(), core_radius=None):
+    """Sobolev P Cygni profile of a pure-scattering resonance line in a solved wind.
+
+    Parameters
+    ----------
+    result_or_profile : WindResult or dict
+        As for :func:`emission_profile`; v(r) must not fall outward outside
+        the core radius.
+    settings : LineSettings
+        ``line_strength`` (k_0), occultation, broadening, grid, ``edge_depth``.
+    core_radius : Quantity or str, optional
+        Radius R_c of the uniformly bright core [length]; defaults as for
+        :func:`emission_profile`.
+
+    Returns
+    -------
+    LineProfile
+        ``kind="pcygni"``, F / F_c (continuum 1), with ``edge_velocity`` (km/s,
+        negative).
+
+    Raises
+    ------
+    ModelError
+        Unusable input, no tabulated gas outside R_c, or v(r) falling outward.
+
+    Notes
+    -----
+    .. math::
+
+        \\frac{F(w)}{F_c} = 1 + \\frac{1}{R_c^2} \\int \\left[\\frac{\\beta_c}{\\beta}
+            - \\mathbb{1}_{p < R_c,\\ w < 0}\\right] (1 - e^{-\\tau}) \\, dp^2
+
+    over the resonance surface mu = -w / v(r) outside the core, with
+    tau(r, mu) as in the module docstring (kernel
+    :func:`windsolve.core.lines.pcygni_flux`).
+
+    References
+    ----------
+    Castor, J. I. 1970, MNRAS 149, 111 (escape probabilities, from memory).
+    Castor, J. I. & Lamers, H. J. G. L. M. 1979, ApJS 39, 481 (from memory).
+    Lamers & Cassinelli 1999, Introduction to Stellar Winds, ch. 2 and ch. 8
+    (from memory).
+    """
+    what = "pcygni_profile"
+    settings = _check_settings(settings)
+    r, v, rho = _read_profile(result_or_profile, what)
+    Rc = _core_radius(result_or_profile, core_radius, r, what)
+    if Rc >= r[-1]:
+        raise _no_gas(what, Rc, r)
+    v = _monotonic_outside(r, v, Rc, what)
+    w, sigma = _velocity_grid(v, settings)
+    v_max = float(v.max())
+    rho_ref = float(np.median(r * r * rho * v)) / (Rc * Rc * v_max)
+    K = settings.line_strength * v_max / (Rc * rho_ref)
+    F = kernels.pcygni_flux(r, v, rho, K, Rc, settings.occultation, w)
+    F = kernels.gaussian_broaden(F, w[1] - w[0], sigma, 1.0)
+    edge, _ = kernels.outermost_crossings(w, 1.0 - F, settings.edge_depth)
+    return LineProfile(velocity=(w / CM_PER_KM) << KM_S, flux=F, kind="pcygni",
+                       fwhm=_nan_speed(), hwzi=_nan_speed(),
+                       edge_velocity=(edge / CM_PER_KM) * KM_S)
+
+
+def _monotonic_outside(r, v, Rc, what):
+    """v with outward noise below MONOTONIC_RTOL v_max removed; ModelError for a real fall."""
+    i0 = max(int(np.searchsorted(r, Rc, side="right")) - 1, 0)
+    tail = v[i0:]
+    running = np.maximum.accumulate(tail)
+    drop = running - tail
+    if np.any(drop > MONOTONIC_RTOL * v.max()):
+        k = int(np.argmax(drop > MONOTONIC_RTOL * v.max()))
+        rsun = u.Rsun.to(u.cm)
+        raise _NotMonotonic(
+            f"{what}: v(r) falls outward outside the core radius (to {tail[k] / 1e5:.4g} km/s "
+            f"at r = {r[i0 + k] / rsun:.4g} Rsun after {running[k] / 1e5:.4g} km/s further "
+            f"in); the Sobolev profile here needs v rising outward outside the core radius "
+            f"(one resonance point per ray)")
+    v = v.copy()
+    v[i0:] = running
+    return v
+
+
+def line_widths(result, settings=LineSettings(), core_radius=None):
+    """The widths an observer quotes, from one solved wind.
+
+    Parameters
+    ----------
+    result : WindResult or dict
+        As for :func:`emission_profile`.
+    settings : LineSettings
+        Used for both profiles.
+    core_radius : Quantity or str, optional
+        As for :func:`emission_profile`.
+
+    Returns
+    -------
+    dict of Quantity [km/s]
+        ``fwhm`` and ``hwzi`` of the emission line, ``edge_velocity`` (negative)
+        of the P Cygni profile, and ``terminal_velocity`` from the result's
+        summary (or the dict's ``terminal_velocity`` entry).  NaN where not
+        measurable -- also when no tabulated gas lies outside the core radius
+        (a Model B profile with the default core radius, the photosphere) and,
+        for ``edge_velocity``, when v(r) falls outward outside the core.
+
+    Raises
+    ------
+    ModelError
+        Unusable input or settings.
+    """
+    settings = _check_settings(settings)
+    out = {"fwhm": _nan_speed(), "hwzi": _nan_speed(), "edge_velocity": _nan_speed()}
+    try:
+        em = emission_profile(result, settings, core_radius)
+        out["fwhm"], out["hwzi"] = em.fwhm, em.hwzi
+    except _NoGasOutsideCore:
+        pass
+    try:
+        out["edge_velocity"] = pcygni_profile(result, settings, core_radius).edge_velocity
+    except (_NoGasOutsideCore, _NotMonotonic):
+        pass
+    if isinstance(result, WindResult):
+        vinf = result.summary.get("terminal_velocity")
+    else:
+        vinf = result.get("terminal_velocity")
+    if isinstance(vinf, u.Quantity) and vinf.unit.is_equivalent(KM_S) and vinf.isscalar:
+        out["terminal_velocity"] = vinf.to(KM_S)
+    else:
+        out["terminal_velocity"] = _nan_speed()
+    return out
+
+
+def broaden(velocity, flux, fwhm, continuum=0.0):
+    """Convolve a profile on an evenly spaced velocity grid with a Gaussian of given FWHM.
+
+    Parameters
+    ----------
+    velocity : Quantity
+        Evenly spaced, increasing velocities [speed].
+    flux : array_like
+        The profile at those velocities.
+    fwhm : Quantity or str
+        FWHM of the Gaussian [speed] (sigma = FWHM / 2.3548).
+    continuum : float
+        The profile's value outside the grid (0 for an emission line, 1 for
+        a normalised absorption or P Cygni profile).
+
+    Returns
+    -------
+    ndarray
+        The broadened profile (exact convolution of the piecewise-linear
+        profile; kernel :func:`windsolve.core.lines.gaussian_broaden`).
+    """
+    w = np.asarray(_speed_array(velocity, "broaden: velocity"))
+    f = np.asarray(flux, dtype=np.float64)
+    if f.shape != w.shape or w.ndim != 1 or w.size < 2:
+        raise ModelError("broaden: velocity and flux must be 1-D arrays of the same length")
+    dw = np.diff(w)
+    if not (np.all(dw > 0) and np.allclose(dw, dw[0], rtol=1e-6, atol=0)):
+        raise ModelError("broaden: the velocity grid must be evenly spaced and increasing")
+    q = to_quantity(fwhm, KM_S, "broaden: fwhm")
+    if not (np.isfinite(q.value) and q.value >= 0):
+        raise ModelError(f"broaden: fwhm = {q:g} must be >= 0")
+    sigma = q.to_value(KM_S) / FWHM_PER_SIGMA
+    return kernels.gaussian_broaden(f, float(dw.mean()), sigma, float(continuum))
+
+
+def _speed_array(q, where):
+    """A velocity array in km/s as floats; ModelError unless a speed Quantity."""
+    if not isinstance(q, u.Quantity) or not q.unit.is_equivalent(KM_S):
+        raise ModelError(f"{where} must be a Quantity array of speeds (e.g. km/s)")
+    return np.asarray(q.to_value(KM_S), dtype=np.float64)

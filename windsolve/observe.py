@@ -1,0 +1,218 @@
+"""Observed widths: a CSV format of our own, comparison with models, chi^2 over sweeps.
+
+Observed-widths file (CSV, one measurement a row, ``#`` comment lines allowed)::
+
+    object,quantity,line,value,uncertainty,unit
+    Calder Var A (invented),terminal_velocity,-,450,40,km/s
+    Calder Var A (invented),fwhm,H-alpha,510,50,km/s
+
+``quantity`` is one of :data:`QUANTITIES` -- ``terminal_velocity`` (the
+model's summary value), ``fwhm``, ``hwzi`` and ``edge_velocity`` (measured
+on the model's synthetic line, :mod:`windsolve.lines`; an edge velocity is
+negative, blue-shifted).  ``line`` is a free label; ``uncertainty`` is one
+standard deviation in the same unit; ``unit`` is any speed astropy reads.
+
+chi^2 = sum over the measurements of ((predicted - observed) / uncertainty)^2.
+"""
+
+import csv
+import math
+from dataclasses import dataclass
+from pathlib import Path
+
+import astropy.units as u
+import numpy as np
+
+from .errors import ModelError, OutputError
+from .opacity import nearest
+
+__all__ = ["QUANTITIES", "Observation", "read_observed", "predict", "compare_result",
+           "sweep_chi2", "match_parameter"]
+
+QUANTITIES = ("terminal_velocity", "fwhm", "hwzi", "edge_velocity")
+COLUMNS = ("object", "quantity", "line", "value", "uncertainty", "unit")
+
+
+@dataclass(frozen=True)
+class Observation:
+    object: str
+    quantity: str
+    line: str
+    value: float  # cm/s
+    uncertainty: float  # cm/s
+    row: int  # line number in the file
+
+    def label(self):
+        return f"{self.quantity}" + (f" ({self.line})" if self.line not in ("", "-") else "")
+
+
+def read_observed(path, object_name=None):
+    """Validated observations from an observed-widths CSV (one-line errors)."""
+    path = Path(path)
+    try:
+        text = path.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise ModelError(f"{path}: no such file; give an observed-widths CSV "
+                         f"(see configs/observed_widths.csv)") from None
+    except (OSError, UnicodeDecodeError) as error:
+        raise ModelError(f"{path}: cannot read ({error})") from None
+    lines = [(i + 1, line) for i, line in enumerate(text.splitlines())
+             if line.strip() and not line.lstrip().startswith("#")]
+    if not lines:
+        raise ModelError(f"{path}: no header and no measurements")
+    reader = csv.reader([line for _, line in lines])
+    rows = list(reader)
+    header = [h.strip() for h in rows[0]]
+    if header != list(COLUMNS):
+        missing = [c for c in COLUMNS if c not in header]
+        hint = f"; missing {', '.join(missing)}" if missing else ""
+        raise ModelError(f"{path} line {lines[0][0]}: the header must be "
+                         f"{','.join(COLUMNS)}{hint}")
+    out = []
+    for (lineno, _), row in zip(lines[1:], rows[1:], strict=True):
+        where = f"{path} line {lineno}"
+        if len(row) != len(COLUMNS):
+            raise ModelError(f"{where}: {len(row)} fields, expected {len(COLUMNS)} "
+                             f"({','.join(COLUMNS)})")
+        obj, quantity, line, value, sigma, unit = (x.strip() for x in row)
+        if quantity not in QUANTITIES:
+            raise ModelError(f"{where}: quantity \"{quantity}\" is not known"
+                             f"{nearest(quantity, QUANTITIES)}; choose one of "
+                             f"{', '.join(QUANTITIES)}")
+        try:
+            value, sigma = float(value), float(sigma)
+        except ValueError:
+            raise ModelError(f"{where}: value and uncertainty must be numbers") from None
+        if not (math.isfinite(value) and math.isfinite(sigma)) or sigma <= 0:
+            raise ModelError(f"{where}: the uncertainty must be a positive number "
+                             f"(got {sigma})")
+        try:
+            unit_obj = u.Unit(unit)
+        except ValueError:
+            raise ModelError(f"{where}: unit \"{unit}\" is not a unit; write e.g. km/s") from None
+        if not unit_obj.is_equivalent(u.cm / u.s):
+            raise ModelError(f"{where}: unit \"{unit}\" is not a speed; write e.g. km/s")
+        scale = float(unit_obj.to(u.cm / u.s))
+        out.append(Observation(obj, quantity, line, value * scale, sigma * scale, lineno))
+    if not out:
+        raise ModelError(f"{path}: no measurements below the header")
+    objects = sorted({o.object for o in out})
+    if object_name is not None:
+        out = [o for o in out if o.object == object_name]
+        if not out:
+            raise ModelError(f"{path}: no measurements of \"{object_name}\""
+                             f"{nearest(object_name, objects)}; objects: {', '.join(objects)}")
+    elif len(objects) > 1:
+        raise ModelError(f"{path} holds several objects ({', '.join(objects)}); choose one "
+                         f"with --object")
+    return out
+
+
+def predict(result, quantity, settings=None, widths=None):
+    """A model's value of an observed quantity [cm/s] (NaN when undefined)."""
+    if quantity == "terminal_velocity":
+        return float(result.summary["terminal_velocity"].to_value(u.cm / u.s))
+    if widths is None:
+        from .lines import LineSettings, line_widths
+        widths = line_widths(result, settings or LineSettings())
+    q = widths.get(quantity)
+    return math.nan if q is None else float(q.to_value(u.cm / u.s))
+
+
+def compare_result(result, observations, settings=None):
+    """Rows (observation, predicted, residual in sigma) and chi^2 for one model."""
+    widths = None
+    if any(o.quantity != "terminal_velocity" for o in observations):
+        from .lines import LineSettings, line_widths
+        widths = line_widths(result, settings or LineSettings())
+    rows = []
+    for o in observations:
+        p = predict(result, o.quantity, settings, widths)
+        rows.append((o, p, (p - o.value) / o.uncertainty))
+    chi2 = float(sum(r[2] ** 2 for r in rows))
+    return rows, chi2
+
+
+def sweep_chi2(table, observations):
+    """chi^2 per sweep row from the stored columns; NaN for failed rows.
+
+    Widths (fwhm, hwzi, edge_velocity) must have been computed in the sweep
+    (an ``[observables]`` table); otherwise a clear error says so.
+    """
+    n = len(table["converged"])
+    chi2 = np.zeros(n)
+    for o in observations:
+        if o.quantity not in table:
+            raise ModelError(f"the sweep has no {o.quantity} column: add an [observables] "
+                             f"table to the sweep file so that line widths are computed in "
+                             f"the workers")
+        chi2 += ((table[o.quantity] - o.value) / o.uncertainty) ** 2
+    ok = table["converged"].astype(bool) & np.isfinite(chi2)
+    chi2[~ok] = np.nan
+    return chi2
+
+
+def match_parameter(model, key, start, stop, observation, settings=None, num=12, xtol=1e-6):
+    """The value of one model key (in start's unit) that reproduces an observation.
+
+    A scan of ``num`` values (log-spaced when both ends are positive) finds a
+    sign change of predicted - observed; Brent's method (scipy.optimize.brentq)
+    then refines it.  Returns (value Quantity, predicted, scan) or raises
+    ModelError saying that no value in the range can.
+    """
+    from scipy.optimize import brentq
+
+    from .models import MODELS
+    from .solve import solve
+    from .sweep import _axis_spec, apply_changes
+    _axis_spec(MODELS[model.kind], key, "--key")  # unknown keys: one line, with a suggestion
+    try:
+        start = u.Quantity(start)
+        stop = u.Quantity(stop).to(start.unit)
+    except (TypeError, ValueError, u.UnitsError) as error:
+        raise ModelError(f"--from/--to: {error}; give two values of the same dimension, e.g. "
+                         f"\"2e6 Lsun\"") from None
+    unit = start.unit
+    lo, hi = float(start.value), float(stop.value)
+    log = lo > 0 and hi > 0
+
+    def text(x):
+        return f"{x!r} {unit.to_string()}" if unit != u.dimensionless_unscaled else x
+
+    def miss(s):
+        x = math.exp(s) if log else s
+        result = solve(apply_changes(model, {key: text(x)}))
+        if not result.converged:
+            return math.nan
+        return predict(result, observation.quantity, settings) - observation.value
+
+    grid = np.linspace(math.log(lo), math.log(hi), num) if log else np.linspace(lo, hi, num)
+    values = [miss(s) for s in grid]
+    scan = [(math.exp(s) if log else s, v) for s, v in zip(grid, values, strict=True)]
+    for (s0, f0), (s1, f1) in zip(zip(grid, values, strict=True),
+                                  zip(grid[1:], values[1:], strict=True), strict=False):
+        if np.isfinite(f0) and np.isfinite(f1) and (f0 == 0 or (f0 > 0) != (f1 > 0)):
+            s = brentq(miss, s0, s1, xtol=xtol * (1 + abs(s0)))
+            x = math.exp(s) if log else s
+            return x * unit, miss(s) + observation.value, scan
+    finite = [v for v in values if np.isfinite(v)]
+    if not finite:
+        raise ModelError(f"no model between {key} = {start} and {stop} has a solution")
+    span = (min(finite) + observation.value, max(finite) + observation.value)
+    raise ModelError(f"no value of {key} between {start} and {stop} reproduces "
+                     f"{observation.quantity} = {observation.value / 1e5:.4g} km/s: the models "
+                     f"give {span[0] / 1e5:.4g} to {span[1] / 1e5:.4g} km/s")
+
+
+def write_chi2_csv(path, axes, table, chi2):
+    """row, axis values (cgs), chi2 -- for a sweep comparison."""
+    path = Path(path)
+    try:
+        with open(path, "w", newline="", encoding="utf-8") as f:
+            w = csv.writer(f)
+            w.writerow(["row"] + list(axes) + ["chi2"])
+            for i in range(len(chi2)):
+                w.writerow([i] + [repr(float(table[a][i])) for a in axes] + [repr(float(chi2[i]))])
+    except OSError as error:
+        raise OutputError(f"{path}: cannot write ({error})") from None
+    return path
