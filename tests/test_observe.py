@@ -108,3 +108,62 @@ def test_match_says_when_no_value_in_range_can(tmp_path, capsys):
     assert cli.main(["match", str(DEMO), "--key", "star.lumnosity", "--from", "3e6 Lsun",
                      "--to", "6e6 Lsun", "--observed", str(obs)]) == 2
     assert 'did you mean "star.luminosity"' in capsys.readouterr().err
+
+
+# -- line widths on the command line and inside sweeps ----------------------------
+
+def test_lines_reads_a_file_windsolve_did_not_write(tmp_path, capsys):
+    # Only the SPEC section 7 layout: /profile datasets with units, /summary attributes.
+    import h5py
+    r = np.geomspace(7e12, 7e14, 300)
+    v = 2e6 + 4e7 * (1 - 7e12 / r)
+    rho = 1e21 / (4 * np.pi * r**2 * v)
+    path = tmp_path / "foreign.h5"
+    with h5py.File(path, "w") as f:
+        g = f.create_group("summary")
+        g.attrs["converged"] = True
+        g.attrs["status"] = "converged"
+        g.attrs["terminal_velocity"] = v[-1]
+        p = f.create_group("profile")
+        for key, data, unit in (("radius", r, "cm"), ("velocity", v, "cm / s"),
+                                ("density", rho, "g / cm3")):
+            p.create_dataset(key, data=data).attrs["units"] = unit
+    out = tmp_path / "line.csv"
+    assert cli.main(["lines", str(path), "-o", str(out), "--turbulence", "20 km/s",
+                     "--resolution", "5000", "--emissivity-power", "1"]) == 0
+    assert "FWHM" in capsys.readouterr().out
+    rows = out.read_text().splitlines()
+    assert rows[0] == "velocity_km_s,flux" and len(rows) == 402
+    assert cli.main(["lines", str(path), "--resolution", "-5"]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and err[0].startswith("windsolve: error:")
+
+
+def test_widths_measured_inside_a_sweep_match_a_single_model(tmp_path, capsys):
+    from windsolve.lines import LineSettings, line_widths
+    sweep_path = tmp_path / "sweep.toml"
+    sweep_path.write_text(f'[sweep]\nbase = "{DEMO}"\ndesign = "grid"\n'
+                          f'[observables]\nturbulence = "10 km/s"\n[[axis]]\n'
+                          f'key = "star.luminosity"\nvalues = ["4e6 Lsun", "5e6 Lsun"]\n')
+    out = tmp_path / "sweep.h5"
+    run_sweep(load_sweep(sweep_path), out, workers=1, quiet=True)
+    table, attrs = read_sweep_table(out)
+    single = windsolve.solve(windsolve.load_model(DEMO))
+    widths = line_widths(single, LineSettings(turbulence="10 km/s"))
+    for key in ("fwhm", "hwzi", "edge_velocity"):
+        assert math.isclose(table[key][0], widths[key].to_value(u.cm / u.s), rel_tol=1e-6)
+    # compare a sweep with widths: no solve needed
+    obs = csv_file(tmp_path, f"S,fwhm,-,{float(table['fwhm'][1]) / 1e5!r},5,km/s\n")
+    assert cli.main(["compare", str(out), str(obs)]) == 0
+    assert "row 1: chi2 = 0.000" in capsys.readouterr().out
+
+
+def test_compare_without_widths_in_the_sweep_says_what_to_do(tmp_path, capsys):
+    sweep_path = tmp_path / "sweep.toml"
+    sweep_path.write_text(f'[sweep]\nbase = "{DEMO}"\ndesign = "grid"\n[[axis]]\n'
+                          f'key = "star.luminosity"\nvalues = ["4e6 Lsun"]\n')
+    out = tmp_path / "sweep.h5"
+    run_sweep(load_sweep(sweep_path), out, workers=1, quiet=True)
+    obs = csv_file(tmp_path, "S,fwhm,-,500,5,km/s\n")
+    assert cli.main(["compare", str(out), str(obs)]) == 2
+    assert "[observables]" in capsys.readouterr().err

@@ -182,7 +182,7 @@ def plot_line(line, path, title=""):
     if np.isfinite(fwhm):
         # the outermost half-maximum crossings (the line can be asymmetric)
         above = np.flatnonzero(line.flux >= 0.5)
-        lo, hi = above[0], above[-1]
+        lo = above[0]
         w_lo = np.interp(0.5, [line.flux[lo - 1], line.flux[lo]], [w[lo - 1], w[lo]]) \
             if lo > 0 else w[lo]
         w_hi = w_lo + fwhm
