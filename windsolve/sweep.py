@@ -398,11 +398,13 @@ def _in_unit(q, unit):
     A unit conversion costs microseconds; twenty of them per model were a
     quarter of a Model A solve.
     """
-    key = (q.unit, unit)
-    scale = _SCALES.get(key)
-    if scale is None:
-        scale = _SCALES[key] = float(q.unit.to(unit))
-    return float(q.value) * scale
+    # Keyed by identity: the solvers build their summaries from module-level
+    # unit objects, and hashing a composite unit costs as much as converting.
+    key = (id(q.unit), id(unit))
+    hit = _SCALES.get(key)
+    if hit is None or hit[0] is not q.unit or hit[1] is not unit:
+        hit = _SCALES[key] = (q.unit, unit, float(q.unit.to(unit)))
+    return float(q.value) * hit[2]
 
 
 def run_batch(base, items, profiles=False, observables=None):
