@@ -421,17 +421,11 @@ def cmd_match(args):
 
 
 def cmd_inspect(args):
-    import h5py
     import numpy as np
 
-    from .errors import OutputError
+    from ._io import open_hdf5
     path = Path(args.file)
-    if not path.exists():
-        raise OutputError(f"{path}: no such file")
-    try:
-        f = h5py.File(path, "r")
-    except OSError:
-        raise OutputError(f"{path}: not an HDF5 file (or damaged)") from None
+    f = open_hdf5(path)
     if args.csv is not None:
         f.close()
         return _export_csv(path, args.csv)

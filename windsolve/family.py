@@ -9,16 +9,12 @@ members that fail keep their status and message, so the table shows where
 the family ends and why.
 """
 
-import datetime
 import math
-import os
 from dataclasses import dataclass, field
-from pathlib import Path
 
 import astropy.units as u
 import numpy as np
 
-from ._version import __version__
 from .errors import ModelError, OutputError
 
 __all__ = ["SCANS", "FamilyResult", "solve_family", "plot_family"]
@@ -70,62 +66,41 @@ class FamilyResult:
         """Write the table (and optionally each member's profile) to HDF5."""
         import h5py
 
+        from ._io import atomic_write, dataset, stamp, strings
         from .modelfile import dumps
-        from .result import PROFILE_UNITS, _unit_text
+        from .result import _unit_text, write_profile
 
-        path = Path(path)
-        tmp = path.with_name(f".{path.name}.{os.getpid()}.tmp")
-        try:
+        def write(tmp):
             with h5py.File(tmp, "w") as f:
-                f.attrs["windsolve_version"] = __version__
-                f.attrs["created"] = datetime.datetime.now(datetime.UTC).isoformat(
-                    timespec="seconds")
+                stamp(f, self.model.kind)
                 f.attrs["model_toml"] = dumps(self.model.to_dict())
-                f.attrs["model"] = self.model.kind
                 f.attrs["family_scan"] = self.scan
                 f.attrs["family_ends"] = self.ends
                 g = f.create_group("table")
-                d = g.create_dataset(self.scan, data=(self.values * SCANS[self.scan]).cgs.value)
-                d.attrs["units"] = _unit_text((1 * SCANS[self.scan]).cgs.unit)
+                scan = self.values * SCANS[self.scan]
+                dataset(g, self.scan, scan.cgs.value, _unit_text(scan.cgs.unit))
                 for key, unit in COLUMNS.items():
-                    d = g.create_dataset(key, data=self.column(key)) if key != self.scan \
-                        else None
-                    if d is not None:
-                        d.attrs["units"] = _unit_text(unit)
-                d = g.create_dataset("converged", data=self.converged)
-                d.attrs["units"] = "1"
-                d = g.create_dataset("status", data=np.array(
-                    [m.status for m in self.members], dtype=h5py.string_dtype()))
-                d.attrs["units"] = "none"
-                d = g.create_dataset("message", data=np.array(
-                    [m.message for m in self.members], dtype=h5py.string_dtype()))
-                d.attrs["units"] = "none"
+                    if key != self.scan:
+                        dataset(g, key, self.column(key), _unit_text(unit))
+                dataset(g, "converged", self.converged, "1")
+                strings(g, "status", (m.status for m in self.members))
+                strings(g, "message", (m.message for m in self.members))
                 if profiles:
                     for i, m in enumerate(self.members):
-                        pg = f.create_group(f"profiles/{i}")
-                        for key, q in m.profile.items():
-                            dd = pg.create_dataset(key, data=q.to_value(PROFILE_UNITS[key]))
-                            dd.attrs["units"] = _unit_text(PROFILE_UNITS[key])
-            os.replace(tmp, path)
-        except OSError as error:
-            tmp.unlink(missing_ok=True)
-            raise OutputError(f"{path}: cannot write ({error})") from None
-        except BaseException:
-            tmp.unlink(missing_ok=True)
-            raise
-        return path
+                        write_profile(f.create_group(f"profiles/{i}"), m.profile)
+
+        return atomic_write(path, write)
 
     @classmethod
     def from_hdf5(cls, path):
         """Read a family file written by :meth:`to_hdf5` (table only)."""
         import tomllib
 
-        import h5py
-
+        from ._io import open_hdf5, read_strings
         from .modelfile import model_from_dict
         from .result import WindResult
 
-        with h5py.File(path, "r") as f:
+        with open_hdf5(path) as f:
             scan = str(f.attrs["family_scan"])
             model = model_from_dict(tomllib.loads(f.attrs["model_toml"]), source=str(path))
             g = f["table"]
@@ -133,9 +108,8 @@ class FamilyResult:
             cols = {k: g[k][()] * u.Unit(g[k].attrs["units"]) for k in COLUMNS if k in g}
             if scan in COLUMNS:
                 cols[scan] = values * SCANS[scan]
-            status = [s.decode() if isinstance(s, bytes) else str(s) for s in g["status"][()]]
-            message = [s.decode() if isinstance(s, bytes) else str(s)
-                       for s in g["message"][()]]
+            status = read_strings(g["status"][()])
+            message = read_strings(g["message"][()])
             converged = g["converged"][()]
             ends = str(f.attrs.get("family_ends", ""))
         members = [WindResult(model, bool(converged[i]), status[i], message[i],

@@ -7,16 +7,14 @@ complete transonic solution out to the outer radius; otherwise ``status``
 failed, and the numbers that could not be computed are NaN.
 """
 
-import datetime
 import json
-import os
 from dataclasses import dataclass, field
 from pathlib import Path
 
 import astropy.units as u
 import numpy as np
 
-from ._version import __version__
+from ._io import atomic_write, dataset, open_hdf5, stamp, strings
 from .errors import OutputError
 
 __all__ = ["WindResult", "PROFILE_UNITS", "SUMMARY_UNITS"]
@@ -52,6 +50,14 @@ SUMMARY_UNITS = {
     "base_density": u.g / u.cm**3,
     "base_luminosity": u.erg / u.s,
 }
+
+
+def write_profile(group, profile):
+    """Profile Quantities as cgs datasets with units (results, families, sweeps)."""
+    for key, q in profile.items():
+        unit = PROFILE_UNITS[key]
+        values = q.to_value(unit) if hasattr(q, "to_value") else q  # sweeps send cgs lists
+        dataset(group, key, np.asarray(values, dtype=np.float64), _unit_text(unit))
 
 
 def _unit_text(unit):
@@ -154,14 +160,11 @@ class WindResult:
             raise OutputError(f"{path} is a directory; give a file name such as wind.h5")
         if not path.parent.exists():
             raise OutputError(f"{path}: directory {path.parent} does not exist")
-        tmp = path.with_name(f".{path.name}.{os.getpid()}.tmp")
-        try:
+
+        def write(tmp):
             with h5py.File(tmp, "w") as f:
-                f.attrs["windsolve_version"] = __version__
-                f.attrs["created"] = datetime.datetime.now(datetime.UTC).isoformat(
-                    timespec="seconds")
+                stamp(f, self.model.kind)
                 f.attrs["model_toml"] = dumps(self.model.to_dict())
-                f.attrs["model"] = self.model.kind
                 g = f.create_group("summary")
                 g.attrs["converged"] = bool(self.converged)
                 g.attrs["status"] = self.status
@@ -173,29 +176,16 @@ class WindResult:
                 g.attrs["units"] = json.dumps(units)
                 g.attrs["shots"] = int(self.counters.get("shots", 0))
                 g.attrs["solve_seconds"] = float(self.counters.get("seconds", 0.0))
-                p = f.create_group("profile")
-                for key, q in self.profile.items():
-                    d = p.create_dataset(key, data=np.asarray(q.to_value(PROFILE_UNITS[key]),
-                                                              dtype=np.float64))
-                    d.attrs["units"] = _unit_text(PROFILE_UNITS[key])
+                write_profile(f.create_group("profile"), self.profile)
                 c = f.create_group("critical_points")
                 n = len(self.critical_points)
                 for key, unit in (("radius", "cm"), ("slope_plus", "1/s"),
                                   ("slope_minus", "1/s")):
-                    d = c.create_dataset(key, data=np.array(
-                        [cp[key] for cp in self.critical_points], dtype=np.float64).reshape(n))
-                    d.attrs["units"] = unit
-                d = c.create_dataset("kind", data=np.array(
-                    [cp["kind"] for cp in self.critical_points], dtype=h5py.string_dtype()))
-                d.attrs["units"] = "none"
-            os.replace(tmp, path)
-        except OSError as error:
-            tmp.unlink(missing_ok=True)
-            raise OutputError(f"{path}: cannot write ({error})") from None
-        except BaseException:
-            tmp.unlink(missing_ok=True)
-            raise
-        return path
+                    dataset(c, key, np.array([cp[key] for cp in self.critical_points],
+                                             dtype=np.float64).reshape(n), unit)
+                strings(c, "kind", (cp["kind"] for cp in self.critical_points))
+
+        return atomic_write(path, write)
 
     @classmethod
     def from_hdf5(cls, path):
@@ -206,18 +196,10 @@ class WindResult:
         """
         import tomllib
 
-        import h5py
-
         from .modelfile import model_from_dict
 
         path = Path(path)
-        if not path.exists():
-            raise OutputError(f"{path}: no such file")
-        try:
-            f = h5py.File(path, "r")
-        except OSError:
-            raise OutputError(f"{path}: not an HDF5 file (or damaged)") from None
-        with f:
+        with open_hdf5(path) as f:
             if "summary" not in f or "profile" not in f:
                 raise OutputError(f"{path}: no /summary and /profile groups; is this a "
                                   f"windsolve result file?")

@@ -19,7 +19,6 @@ the missing rows.  The HDF5 file is written from the journal at the end
 sweep gives the same table as an uninterrupted one.
 """
 
-import datetime
 import hashlib
 import itertools
 import json
@@ -591,71 +590,49 @@ def write_sweep_table(sweep, records, out):
     """The sweep's HDF5 file: /table (one dataset per column) and /profiles."""
     import h5py
 
-    from .result import PROFILE_UNITS, SUMMARY_UNITS, _unit_text
+    from ._io import atomic_write, dataset, stamp, strings
+    from .result import SUMMARY_UNITS, _unit_text, write_profile
 
-    out = Path(out)
     n = len(sweep)
-    tmp = out.with_name(f".{out.name}.{os.getpid()}.tmp")
-    try:
+
+    def column(key):
+        return np.array([records[i].get(key, math.nan) for i in range(n)], dtype=float)
+
+    def write(tmp):
         with h5py.File(tmp, "w") as f:
-            f.attrs["windsolve_version"] = __version__
-            f.attrs["created"] = datetime.datetime.now(datetime.UTC).isoformat(
-                timespec="seconds")
+            stamp(f, sweep.kind)
             f.attrs["sweep_toml"] = sweep.text
             f.attrs["sweep_file"] = str(sweep.path)
-            f.attrs["model"] = sweep.kind
             f.attrs["design"] = sweep.design
             f.attrs["axes"] = json.dumps([a.key for a in sweep.axes])
             g = f.create_group("table")
             for a in sweep.axes:
-                d = g.create_dataset(a.key, data=a.numbers)
-                d.attrs["units"] = a.unit or "1"
+                dataset(g, a.key, a.numbers, a.unit or "1")
             for key in SUMMARY_COLUMNS:
-                d = g.create_dataset(key, data=np.array(
-                    [records[i].get(key, math.nan) for i in range(n)], dtype=float))
-                d.attrs["units"] = _unit_text(SUMMARY_UNITS[key])
+                dataset(g, key, column(key), _unit_text(SUMMARY_UNITS[key]))
             if sweep.observables is not None:
                 for key in WIDTH_COLUMNS:
-                    d = g.create_dataset(key, data=np.array(
-                        [records[i].get(key, math.nan) for i in range(n)], dtype=float))
-                    d.attrs["units"] = "cm / s"
+                    dataset(g, key, column(key), "cm / s")
                 f.attrs["observables"] = json.dumps(sweep.observables)
-            d = g.create_dataset("converged", data=np.array(
-                [bool(records[i].get("converged")) for i in range(n)]))
-            d.attrs["units"] = "1"
+            dataset(g, "converged", np.array([bool(records[i].get("converged"))
+                                              for i in range(n)]), "1")
             for key in ("status", "message"):
-                d = g.create_dataset(key, data=np.array(
-                    [records[i].get(key, "") for i in range(n)], dtype=h5py.string_dtype()))
-                d.attrs["units"] = "none"
-            d = g.create_dataset("seconds", data=np.array(
-                [records[i].get("seconds", math.nan) for i in range(n)]))
-            d.attrs["units"] = "s"
+                strings(g, key, (records[i].get(key, "") for i in range(n)))
+            dataset(g, "seconds", column("seconds"), "s")
             for i in range(n):
-                profile = records[i].get("profile")
-                if profile:
-                    pg = f.create_group(f"profiles/{i}")
-                    for key, values in profile.items():
-                        dd = pg.create_dataset(key, data=np.asarray(values))
-                        dd.attrs["units"] = _unit_text(PROFILE_UNITS[key])
-        os.replace(tmp, out)
-    except OSError as error:
-        tmp.unlink(missing_ok=True)
-        raise OutputError(f"{out}: cannot write ({error})") from None
-    except BaseException:
-        tmp.unlink(missing_ok=True)
-        raise
-    return out
+                if records[i].get("profile"):
+                    write_profile(f.create_group(f"profiles/{i}"), records[i]["profile"])
+
+    return atomic_write(out, write)
 
 
 def read_sweep_table(path):
     """{column: numpy array} and the root attributes of a sweep file."""
-    import h5py
-    with h5py.File(path, "r") as f:
+    from ._io import open_hdf5, read_strings
+    with open_hdf5(path) as f:
         table = {}
         for key, d in f["table"].items():
             data = d[()]
-            if data.dtype.kind in "OS":
-                data = np.array([x.decode() if isinstance(x, bytes) else str(x) for x in data])
-            table[key] = data
+            table[key] = read_strings(data) if data.dtype.kind in "OS" else data
         attrs = dict(f.attrs)
     return table, attrs

@@ -47,15 +47,15 @@ resolve bumps with several nodes across their width.
 
 import datetime
 import math
-import os
 from dataclasses import dataclass, field
 from functools import lru_cache
 from pathlib import Path
 
 import numpy as np
 
+from ._io import atomic_write
 from .core import opacity as kernels
-from .errors import ModelError, OutputError
+from .errors import ModelError
 
 __all__ = ["OpacityTable", "read_table", "write_table", "write_text", "write_hdf5",
            "tabulate", "node_derivatives", "load_table", "table_kernel_data",
@@ -305,21 +305,6 @@ def _read_hdf5(path, where):
 
 # --- writing -------------------------------------------------------------------
 
-def _atomic(path, write):
-    """Call ``write(tmp)`` on a temporary name beside ``path``, then rename."""
-    path = Path(path)
-    tmp = path.with_name(f".{path.name}.tmp-{os.getpid()}")
-    try:
-        write(tmp)
-        os.replace(tmp, path)
-    except OSError as error:
-        raise OutputError(f"{path}: cannot write ({error.strerror or error})") from None
-    finally:
-        if tmp.exists():
-            tmp.unlink()
-    return path
-
-
 def write_text(table, path):
     """Write ``table`` as a text matrix (layout in the module docstring).
 
@@ -335,7 +320,7 @@ def write_text(table, path):
     for head, row in zip(heads, cells, strict=True):
         lines.append(head.rjust(width) + "".join(s.rjust(width) for s in row))
     text = "\n".join(lines) + "\n"
-    return _atomic(path, lambda tmp: tmp.write_text(text, encoding="utf-8"))
+    return atomic_write(path, lambda tmp: tmp.write_text(text, encoding="utf-8"))
 
 
 def write_hdf5(table, path):
@@ -354,7 +339,7 @@ def write_hdf5(table, path):
             for name in ("log_T", "log_R", "log_kappa"):
                 d = f.create_dataset(name, data=np.asarray(getattr(table, name), dtype=float))
                 d.attrs["units"] = HDF5_UNITS[name]
-    return _atomic(path, write)
+    return atomic_write(path, write)
 
 
 def write_table(table, path):
