@@ -15,7 +15,7 @@ from dataclasses import dataclass, field
 import astropy.units as u
 import numpy as np
 
-from .errors import ModelError, OutputError
+from .errors import ModelError
 
 __all__ = ["SCANS", "FamilyResult", "solve_family", "plot_family"]
 
@@ -246,10 +246,9 @@ def _ends(result):
 
 def plot_family(result, path):
     """Mdot, v_inf, T_eff and the base (temperature or radius) against R_ph."""
-    import matplotlib
+    from .plotting import pyplot, save
 
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
+    plt = pyplot()
 
     ok = result.converged
     rph = result.column("photosphere_radius")[ok] / 6.957e10
@@ -279,9 +278,4 @@ def plot_family(result, path):
     n_bad = int((~ok).sum())
     fig.suptitle(f"{result.model.name} — family at L$_{{\\rm ph}}$ = {L:.3g} L$_\\odot$ "
                  f"({ok.sum()} solutions{f', {n_bad} without' if n_bad else ''})")
-    try:
-        fig.savefig(path, dpi=120)
-    except (OSError, ValueError) as error:
-        raise OutputError(f"{path}: cannot write the plot ({error})") from None
-    plt.close(fig)
-    return path
+    return save(plt, fig, path)

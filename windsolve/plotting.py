@@ -8,17 +8,39 @@ from .errors import OutputError
 __all__ = ["plot_profile", "plot_sweep", "plot_line", "plot_residuals", "plot_chi2"]
 
 
+def pyplot():
+    """matplotlib.pyplot on the file-only Agg backend (imported only when plotting)."""
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+    return plt
+
+
+def _figure(figsize):
+    plt = pyplot()
+    return plt, plt.subplots(figsize=figsize, constrained_layout=True)
+
+
+def save(plt, fig, path):
+    """Write a figure (format by extension) and close it; one-line OutputError."""
+    try:
+        fig.savefig(path, dpi=120)
+    except (OSError, ValueError) as error:
+        raise OutputError(f"{path}: cannot write the plot ({error})") from None
+    plt.close(fig)
+    return path
+
+
 def plot_profile(result, path=None):
     """Velocity, density, Eddington factor and luminosity against radius.
 
     The sonic (critical) point is marked in every panel.  Returns the figure;
     writes it to ``path`` (PNG, PDF, SVG by extension) when given.
     """
-    import matplotlib
-
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
     import matplotlib.ticker
+
+    plt = pyplot()
 
     p = result.profile
     if not p or len(p.get("radius", [])) == 0:
@@ -58,8 +80,11 @@ def plot_profile(result, path=None):
         if rph is not None and np.isfinite(rph.value):
             ax.axvline(rph.to_value(u.Rsun), color="#7d3c98", ls="-.", lw=1.0,
                        label="photosphere")
-        ax.xaxis.set_major_formatter(matplotlib.ticker.LogFormatterSciNotation(
-            labelOnlyBase=False, minor_thresholds=(2, 0.5)))
+        # Plain numbers on the decades and at 2 and 5 (the default log labels
+        # collide on a short range such as 0.5-6 Rsun).
+        ax.xaxis.set_major_formatter(matplotlib.ticker.FormatStrFormatter("%g"))
+        ax.xaxis.set_minor_locator(matplotlib.ticker.LogLocator(subs=(2.0, 5.0)))
+        ax.xaxis.set_minor_formatter(matplotlib.ticker.FormatStrFormatter("%g"))
     for ax in axes[-1]:
         ax.set_xlabel(r"radius  r  [R$_\odot$]")
     axes.flat[0].legend(loc="lower right", frameon=False)
@@ -68,11 +93,7 @@ def plot_profile(result, path=None):
     fig.suptitle(f"{name} — {result.model.kind if result.model else ''} wind, "
                  f"Ṁ = {mdot:.3g} M$_\\odot$/yr  ({result.status})")
     if path is not None:
-        try:
-            fig.savefig(path, dpi=120)
-        except (OSError, ValueError) as error:
-            raise OutputError(f"{path}: cannot write the plot ({error})") from None
-        plt.close(fig)
+        save(plt, fig, path)
     return fig
 
 
@@ -83,10 +104,7 @@ def plot_sweep(path, out):
     """
     import json
 
-    import matplotlib
-
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
+    plt = pyplot()
 
     from .sweep import read_sweep_table
 
@@ -143,29 +161,7 @@ def plot_sweep(path, out):
             fig.text(0.01, 0.01, f"(first two of {len(axes_keys)} axes shown)", fontsize=8)
     fig.suptitle(f"sweep {attrs.get('sweep_file', '')}: {ok.sum()} solutions"
                  + (f", {n_bad} without (x)" if n_bad else ""))
-    try:
-        fig.savefig(out, dpi=120)
-    except (OSError, ValueError) as error:
-        raise OutputError(f"{out}: cannot write the plot ({error})") from None
-    plt.close(fig)
-    return out
-
-
-def _figure(figsize):
-    import matplotlib
-
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-    return plt, plt.subplots(figsize=figsize, constrained_layout=True)
-
-
-def _save(plt, fig, path):
-    try:
-        fig.savefig(path, dpi=120)
-    except (OSError, ValueError) as error:
-        raise OutputError(f"{path}: cannot write the plot ({error})") from None
-    plt.close(fig)
-    return path
+    return save(plt, fig, out)
 
 
 def plot_line(line, path, title=""):
@@ -198,7 +194,7 @@ def plot_line(line, path, title=""):
         ax.axvline(edge, color="#196f3d", ls="--", lw=1)
         ax.text(edge, ax.get_ylim()[0], f" edge {edge:.0f}", color="#196f3d", va="bottom")
     ax.set_title(f"{title} — {line.kind} line".strip(" —"))
-    return _save(plt, fig, path)
+    return save(plt, fig, path)
 
 
 def plot_residuals(rows, chi2, path):
@@ -213,7 +209,7 @@ def plot_residuals(rows, chi2, path):
     ax.axvline(0, color="0.3", lw=0.8)
     ax.set_xlabel(r"(model $-$ observed) / uncertainty")
     ax.set_title(f"chi$^2$ = {chi2:.2f} for {len(rows)} measurements")
-    return _save(plt, fig, path)
+    return save(plt, fig, path)
 
 
 def plot_chi2(table, axes, chi2, path):
@@ -246,4 +242,4 @@ def plot_chi2(table, axes, chi2, path):
         ax.set_xscale("log")
     ax.set_xlabel(axes[0])
     ax.set_title(f"{ok.sum()} models compared, {(~ok).sum()} without a solution")
-    return _save(plt, fig, path)
+    return save(plt, fig, path)
