@@ -601,6 +601,30 @@ def solve(P, O, rtol, delta):
 
 
 @njit(cache=True, error_model="numpy")
+def outward_leg(Q, O, rc, slope, rtol, delta, max_step, xo, yo):
+    """The wind branch from just outside r_c to r_out: (status, x, y, n_stored).
+
+    status is OK, STALLED, OUTWARD_SINGULAR, LEFT_TABLE or INTEGRATION_FAILED;
+    (x, y) is the last accepted point.
+    """
+    y0 = np.empty(1)
+    y0[0] = math.log(math.sqrt(Q[I_A2]) + slope * delta * rc)
+    st, x, y, no, nfev = integrate_outward(
+        math.log(rc * (1.0 + delta)), y0, math.log(Q[I_ROUT]),
+        Q, O, 0.0, rtol, delta, max_step, xo, yo)
+    status = OK
+    if st == STEP_TOO_SMALL and left_table(x, y, Q, O):
+        status = LEFT_TABLE
+    elif st == STOP_STALL:
+        status = STALLED
+    elif st == STOP_SINGULAR or st == STEP_TOO_SMALL:
+        status = OUTWARD_SINGULAR
+    elif st != REACHED_END:
+        status = INTEGRATION_FAILED
+    return status, x, y, no
+
+
+@njit(cache=True, error_model="numpy")
 def profile(ln_mdot, P, O, rtol, delta, max_step, capacity):
     """Integrate the converged solution from R0 to r_out, storing it.
 
@@ -625,19 +649,7 @@ def profile(ln_mdot, P, O, rtol, delta, max_step, capacity):
             Q, O, 0.0, rtol, delta, max_step, xi, yi)
         if st != REACHED_END:
             status_in = LEFT_TABLE if left_table(x, y, Q, O) else INWARD_SINGULAR
-    y0[0] = math.log(a + slope * delta * rc)
-    st, x, y, no, nfev = integrate_outward(
-        math.log(rc * (1.0 + delta)), y0, math.log(Q[I_ROUT]),
-        Q, O, 0.0, rtol, delta, max_step, xo, yo)
-    status_out = OK
-    if st == STEP_TOO_SMALL and left_table(x, y, Q, O):
-        status_out = LEFT_TABLE
-    elif st == STOP_STALL:
-        status_out = STALLED
-    elif st == STOP_SINGULAR or st == STEP_TOO_SMALL:
-        status_out = OUTWARD_SINGULAR
-    elif st != REACHED_END:
-        status_out = INTEGRATION_FAILED
+    status_out, x, y, no = outward_leg(Q, O, rc, slope, rtol, delta, max_step, xo, yo)
     n = ni + 1 + no
     r = np.empty(n)
     v = np.empty(n)
@@ -663,21 +675,8 @@ def end_state(ln_mdot, P, O, rtol, delta):
     """
     Q = set_mass_loss_rate(P, ln_mdot)
     code, rc, slope = innermost_saddle(Q, O)
-    a = math.sqrt(Q[I_A2])
-    y0 = np.empty(1)
-    y0[0] = math.log(a + slope * delta * rc)
-    st, x, y, no, nfev = integrate_outward(
-        math.log(rc * (1.0 + delta)), y0, math.log(Q[I_ROUT]), Q, O, 0.0, rtol, delta,
-        np.inf, np.empty(0), np.empty((0, 1)))
-    status_out = OK
-    if st == STEP_TOO_SMALL and left_table(x, y, Q, O):
-        status_out = LEFT_TABLE
-    elif st == STOP_STALL:
-        status_out = STALLED
-    elif st == STOP_SINGULAR or st == STEP_TOO_SMALL:
-        status_out = OUTWARD_SINGULAR
-    elif st != REACHED_END:
-        status_out = INTEGRATION_FAILED
+    status_out, x, y, no = outward_leg(Q, O, rc, slope, rtol, delta, np.inf, np.empty(0),
+                                       np.empty((0, 1)))
     return status_out, math.exp(x), math.exp(y[0])
 
 
