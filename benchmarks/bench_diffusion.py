@@ -30,11 +30,11 @@ import collections
 import functools
 import math
 import os
-import statistics
 import time
 
 import numpy as np
 from scipy_reference_diffusion import _Wind, solve_reference  # this script's folder
+from timing import median_ms  # this script's folder
 
 import windsolve
 from windsolve import _diffusion as B
@@ -52,16 +52,6 @@ GOAL_MS = 50.0
 GOAL_RATIO = 30.0
 GOAL_FAMILY_S = 5.0
 GOAL_AGREE = 1e-7
-
-
-def median_ms(fn, n):
-    """Median wall time of ``fn()`` over ``n`` calls [ms], and its last result."""
-    times = []
-    for _ in range(n):
-        t0 = time.perf_counter()
-        out = fn()
-        times.append(time.perf_counter() - t0)
-    return 1e3 * statistics.median(times), out
 
 
 def windsolve_shots(P, O, L_ph, T_eff, rtol):

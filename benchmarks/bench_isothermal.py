@@ -28,7 +28,6 @@ whole shooting root-find.  Timings are medians of ``time.perf_counter``.
 import functools
 import math
 import os
-import statistics
 import subprocess
 import sys
 import time
@@ -36,6 +35,7 @@ import time
 import numpy as np
 from scipy.special import lambertw
 from scipy_reference import effective_opacity, solve_reference  # this script's folder
+from timing import median_ms  # this script's folder
 
 from windsolve.core import isothermal as iso
 from windsolve.core import opacity as op
@@ -105,16 +105,6 @@ def opacity_agreement():
                         k_sp = effective_opacity(O, rho, T, r)
                         worst = max(worst, abs(k_sp / k_ws - 1.0))
     return worst
-
-
-def median_ms(fn, n):
-    """Median wall time of ``fn()`` over ``n`` calls [ms], and its last result."""
-    times = []
-    for _ in range(n):
-        t0 = time.perf_counter()
-        out = fn()
-        times.append(time.perf_counter() - t0)
-    return 1e3 * statistics.median(times), out
 
 
 def import_time_s():

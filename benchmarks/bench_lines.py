@@ -15,7 +15,6 @@ Measures, in one run:
   -- goal: widths add <= 20 % to the run time.
 """
 
-import statistics
 import subprocess
 import sys
 import tempfile
@@ -23,6 +22,7 @@ import time
 from pathlib import Path
 
 import numpy as np
+from timing import median_ms  # this script's folder
 
 import windsolve
 from windsolve.lines import LineSettings, line_widths
@@ -33,22 +33,13 @@ ROOT = Path(__file__).resolve().parent.parent
 DEMO = ROOT / "configs" / "demo.toml"
 
 
-def median_ms(fn, n):
-    times = []
-    for _ in range(n):
-        t0 = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t0)
-    return 1e3 * statistics.median(times)
-
-
 def main():
     settings = LineSettings()
     for name, path in (("demo (Model A)", DEMO), ("bump wind (Model B)",
                                                   ROOT / "configs" / "bump_wind.toml")):
         result = windsolve.solve(windsolve.load_model(path))
         line_widths(result, settings)  # compile / warm
-        t = median_ms(lambda result=result: line_widths(result, settings), 30)
+        t = median_ms(lambda result=result: line_widths(result, settings), 30)[0]
         print(f"line profile + widths, {name}: {t:.2f} ms median (goal <= 20 ms)")
     with tempfile.TemporaryDirectory() as tmp:
         tmp = Path(tmp)
@@ -73,7 +64,7 @@ def main():
             table, attrs = read_sweep_table(out)
             return sweep_chi2(table, read_observed(obs))
 
-        t = median_ms(chi2, 5)
+        t = median_ms(chi2, 5)[0]
         print(f"chi^2 over a {len(sweep)}-row sweep table (read + compute): {t:.1f} ms "
               f"(goal <= 2000 ms)")
         small = tmp / "small.toml"
