@@ -420,15 +420,15 @@ def run_batch(base, items, profiles=False, observables=None):
     from .solve import solve
 
     out = []
-    key = json.dumps(base, sort_keys=True)
+    base_key = json.dumps(base, sort_keys=True)
     for row, changes in items:
         t0 = time.perf_counter()
         record = {"row": row}
         try:
-            if key not in _BASE_CACHE:  # parse the base once per worker
+            if base_key not in _BASE_CACHE:  # parse the base once per worker
                 _BASE_CACHE.clear()
-                _BASE_CACHE[key] = model_from_dict(base, source="sweep base")
-            result = solve(apply_changes(_BASE_CACHE[key], changes),
+                _BASE_CACHE[base_key] = model_from_dict(base, source="sweep base")
+            result = solve(apply_changes(_BASE_CACHE[base_key], changes),
                            profile=profiles or observables is not None)
             record["converged"] = bool(result.converged)
             record["status"] = result.status

@@ -87,6 +87,7 @@ SONIC_GAP = 1e-3  # |v^2 - a^2| / a^2 below which a turning flow is singular
 DENSE_MARGIN = 10.0  # an inward leg stops once ln rho > ln rho0 + this
 LN_RANGE = 690.0  # Mdot is searched down to Mdot_max * exp(-LN_RANGE)
 MAX_SHOTS = 400
+MIN_WALK = 1e-6  # smallest step [in ln Mdot] of the walk toward a sign change
 
 
 @njit(cache=True, error_model="numpy")
@@ -305,6 +306,24 @@ def survey(P, O, x_lo, x_hi, codes):
 
 
 @njit(cache=True, error_model="numpy")
+def dense_estimate(x, y, Q, O, ln_rho0):
+    """g at R0 extrapolated from an inward leg stopped as too dense at (x, y).
+
+    ln rho(x) - ln rho0 + |d ln rho / d ln r| (x - ln R0): an estimate (about
+    a lower bound, since rho climbs ever faster inward in a near-hydrostatic
+    layer), always above DENSE_MARGIN, used only to steer the root-find.
+    """
+    r = math.exp(x)
+    v = math.exp(y[0])
+    g_stop = math.log(density(r, v, Q)) - ln_rho0
+    dydx = r * force_balance(r, v, Q, O) / (v * v - Q[I_A2])
+    steep = 2.0 + dydx  # -d ln rho / d ln r
+    if not (steep > 0.0 and math.isfinite(steep)):
+        return g_stop
+    return g_stop + steep * (x - math.log(Q[I_R0]))
+
+
+@njit(cache=True, error_model="numpy")
 def shoot(ln_mdot, P, O, rtol, delta):
     """One trial: (code, ln rho(R0) - ln rho0, r_c, slope) for this Mdot."""
     Q = set_mass_loss_rate(P, ln_mdot)
@@ -329,7 +348,11 @@ def shoot(ln_mdot, P, O, rtol, delta):
         g = math.log(density(R0, math.exp(y[0]), Q)) - ln_rho0
         return OK, g, rc, slope
     if status == STOP_DENSE:
-        return OK, DENSE_MARGIN, rc, slope
+        # Far too dense already: g > DENSE_MARGIN for certain.  Only its sign
+        # matters for the bracket, but a value that keeps growing with Mdot
+        # lets the root-find interpolate instead of bisecting: extrapolate
+        # ln rho linearly in ln r from the stop down to R0.
+        return OK, dense_estimate(x, y, Q, O, ln_rho0), rc, slope
     if status == STEP_TOO_SMALL and left_table(x, y, Q, O):
         return LEFT_TABLE, math.nan, math.exp(x), slope
     if status == STOP_SINGULAR or status == STEP_TOO_SMALL:
@@ -365,204 +388,169 @@ def first_guess(P, O):
 
 
 @njit(cache=True, error_model="numpy")
-def solve(P, O, rtol, delta):
-    """Find the mass-loss rate of the transonic solution through rho(R0) = rho0.
+def find_admissible(P, O, rtol, delta, guess, x_min, x_max, shots):
+    """An admissible Mdot (a saddle, and a leg that reaches R0) near ``guess``.
 
-    Returns ``(code, ln_mdot, r_c, slope, n_shots, reason)`` where ``reason``
-    is the first failure met while searching (useful when code != OK).
+    Returns ``(found, x, g, rc, slope, shots, reason)``.  The failures on
+    either side of the admissible window usually differ (porosity: too
+    little Mdot leaves the base super-Eddington at the sonic density, too
+    much buries the critical point below R0), so bisect between two trials
+    that failed for different reasons; fall back on a widening search
+    around the guess.
     """
-    guess, x_max = first_guess(P, O)
-    x_min = x_max - LN_RANGE
-    x_max = x_max - 1e-9
     xtol_b = 1e-9
-    step0 = 1.0
-    # 0. When N(R0, a) changes sign with Mdot (density-dependent opacity,
-    #    porosity, tiring), the admissible window starts where the saddle
-    #    sits on the base.  Start just inside it (SPEC section 8): there
-    #    rho(R0) is the sonic density, below rho0, and ln rho(R0) climbs
-    #    steeply, so the walk starts with small steps.  N costs nanoseconds;
-    #    a shot costs microseconds.
-    n_lo = base_sonic_balance(x_min, P, O)
-    n_hi = base_sonic_balance(x_max, P, O)
-    if (n_lo > 0.0) != (n_hi > 0.0) and n_lo != 0.0 and n_hi != 0.0:
-        xb = refine_base(x_min, x_max, n_lo, n_hi, P, O, 1e-14)
-        side = 1.0 if n_hi < 0.0 else -1.0
-        guess = min(max(xb + side * 1e-6 * (1.0 + abs(xb)), x_min), x_max)
-        step0 = 0.02
-    shots = 1
+    shots += 1
     code, g, rc, slope = shoot(guess, P, O, rtol, delta)
     reason = code
+    if code == OK:
+        return True, guess, g, rc, slope, shots, reason
+    xs = np.array([x_min, guess, x_max])
+    cs = np.array([OK, code, OK])
+    gs = np.array([math.nan, g, math.nan])
+    rcs = np.array([math.nan, rc, math.nan])
+    ss = np.array([math.nan, slope, math.nan])
+    for k in (0, 2):
+        cs[k], gs[k], rcs[k], ss[k] = shoot(xs[k], P, O, rtol, delta)
+        shots += 1
+    for k in (0, 2):
+        if cs[k] == OK:
+            return True, xs[k], gs[k], rcs[k], ss[k], shots, reason
+    for k in (0, 1):
+        left = xs[k]
+        right = xs[k + 1]
+        c_left = cs[k]
+        if c_left == cs[k + 1]:
+            continue
+        while right - left > xtol_b and shots < MAX_SHOTS:
+            m = 0.5 * (left + right)
+            c2, g2, rc2, s2 = shoot(m, P, O, rtol, delta)
+            shots += 1
+            if c2 == OK:
+                return True, m, g2, rc2, s2, shots, reason
+            if c2 == c_left:
+                left = m
+            else:
+                right = m
+    step = 0.5
     x = guess
-    # 1. Find any admissible Mdot (one that has a saddle and reaches R0).
-    #    The failures on either side of the admissible window usually differ
-    #    (porosity: too little Mdot leaves the base super-Eddington at the
-    #    sonic density, too much buries the critical point below R0), so
-    #    bisect between two trials that failed for different reasons; fall
-    #    back on a widening search around the guess.
-    if code != OK:
-        xs = np.array([x_min, guess, x_max])
-        cs = np.array([OK, code, OK])
-        gs = np.array([math.nan, g, math.nan])
-        for k in (0, 2):
-            cs[k], gs[k], rc2, s2 = shoot(xs[k], P, O, rtol, delta)
-            shots += 1
-        found = False
-        for k in (0, 2):
-            if cs[k] == OK:
-                x = xs[k]
-                g = gs[k]
-                found = True
-        for k in (0, 1):
-            if found:
-                break
-            left = xs[k]
-            right = xs[k + 1]
-            c_left = cs[k]
-            if c_left == cs[k + 1]:
+    while step < 2.0 * LN_RANGE:
+        for sgn in (1.0, -1.0):
+            xt = x + sgn * step
+            if xt >= x_max or xt <= x_min:
                 continue
-            while right - left > xtol_b and shots < MAX_SHOTS:
-                m = 0.5 * (left + right)
-                c2, g2, rc2, s2 = shoot(m, P, O, rtol, delta)
+            c2, g2, rc2, s2 = shoot(xt, P, O, rtol, delta)
+            shots += 1
+            if c2 == OK:
+                return True, xt, g2, rc2, s2, shots, reason
+        step *= 2.0
+    return False, x, math.nan, math.nan, math.nan, shots, reason
+
+
+@njit(cache=True, error_model="numpy")
+def converge(P, O, rtol, delta, x, g, rc, slope, step0, x_min, x_max, shots, reason):
+    """From an admissible trial (x, g): walk to a sign change of g, then Brent.
+
+    Returns ``(code, ln_mdot, r_c, slope, shots, reason, seen_ok)``;
+    ``seen_ok`` is False when no trial of the walk was admissible (the start
+    may have been a boundary value computed without a shot).
+
+    The walk: each step is the secant prediction of the root from the last
+    two trials (Newton with unit slope from the first one: for a constant
+    opacity g = ln Mdot + const exactly); from a start on the admissible
+    boundary, where g is steep and unknown, the first step is ``step0``.
+    The step is kept between MIN_WALK and 4x the previous one.  A trial
+    that lands within the tolerance ends the search; one that fails (no
+    saddle, no reach) means the admissible boundary lies in between:
+    bisect onto it.
+    """
+    xtol_b = 1e-9
+    seen_ok = shots > 0
+    if seen_ok and abs(g) < rtol:
+        return OK, x, rc, slope, shots, reason, seen_ok
+    sgn = 1.0 if g < 0.0 else -1.0  # walk toward larger g when g < 0
+    x_prev = math.nan
+    g_prev = math.nan
+    step = step0 if step0 < 1.0 else min(max(abs(g), MIN_WALK), 2.0)
+    bracket = False
+    x_far = math.nan
+    g_far = math.nan
+    rc_far = math.nan
+    slope_far = math.nan
+    while not bracket:
+        if not math.isnan(x_prev):
+            d = -g * (x - x_prev) / (g - g_prev)
+            if math.isfinite(d) and d * sgn > 0.0:
+                step = min(max(abs(d), MIN_WALK), 4.0 * step)
+            else:
+                step *= 2.0
+        xt = min(max(x + sgn * step, x_min), x_max)
+        if xt == x:
+            break
+        c2, g2, rc2, s2 = shoot(xt, P, O, rtol, delta)
+        shots += 1
+        if c2 == OK:
+            seen_ok = True
+            if abs(g2) < rtol:
+                return OK, xt, rc2, s2, shots, reason, seen_ok
+            if (g2 > 0.0) == (g > 0.0):
+                x_prev, g_prev = x, g
+                x, g, rc, slope = xt, g2, rc2, s2
+            else:
+                x_far, g_far, rc_far, slope_far = xt, g2, rc2, s2
+                bracket = True
+        else:
+            reason = c2
+            bad = xt
+            while abs(bad - x) > xtol_b and shots < MAX_SHOTS:
+                m = 0.5 * (x + bad)
+                c3, g3, rc3, s3 = shoot(m, P, O, rtol, delta)
                 shots += 1
-                if c2 == OK:
-                    x = m
-                    g = g2
-                    found = True
-                    break
-                if c2 == c_left:
-                    left = m
-                else:
-                    right = m
-        step = 0.5
-        while step < 2.0 * LN_RANGE and not found:
-            for sgn in (1.0, -1.0):
-                xt = x + sgn * step
-                if xt >= x_max or xt <= x_min:
+                if c3 != OK:
+                    bad = m
                     continue
-                c2, g2, rc2, s2 = shoot(xt, P, O, rtol, delta)
-                shots += 1
-                if c2 == OK:
-                    x = xt
-                    g = g2
-                    found = True
+                seen_ok = True
+                if abs(g3) < rtol:
+                    return OK, m, rc3, s3, shots, reason, seen_ok
+                if (g3 > 0.0) != (g > 0.0):
+                    x_far, g_far, rc_far, slope_far = m, g3, rc3, s3
+                    bracket = True
                     break
-            step *= 2.0
-        if not found:
-            return reason, math.nan, math.nan, math.nan, shots, reason
-    # 2. Walk to a sign change of g, bisecting onto the admissible boundary.
-    lo = math.nan
-    hi = math.nan
-    g_lo = math.nan
-    g_hi = math.nan
-    if g > 0.0:
-        hi = x
-        g_hi = g
-        step = step0
-        while math.isnan(lo):
-            xt = hi - step
-            if xt < x_min:
-                return NO_BRACKET_DENSE, math.nan, math.nan, math.nan, shots, reason
-            c2, g2, rc2, s2 = shoot(xt, P, O, rtol, delta)
-            shots += 1
-            if c2 == OK:
-                if g2 <= 0.0:
-                    lo = xt
-                    g_lo = g2
-                else:
-                    hi = xt
-                    g_hi = g2
-                    step *= 2.0
-            else:
-                reason = c2
-                bad = xt
-                while hi - bad > xtol_b and shots < MAX_SHOTS:
-                    m = 0.5 * (hi + bad)
-                    c3, g3, rc3, s3 = shoot(m, P, O, rtol, delta)
-                    shots += 1
-                    if c3 != OK:
-                        bad = m
-                    elif g3 <= 0.0:
-                        lo = m
-                        g_lo = g3
-                        break
-                    else:
-                        hi = m
-                        g_hi = g3
-                if math.isnan(lo):
-                    return NO_BRACKET_DENSE, math.nan, math.nan, math.nan, shots, reason
-    else:
-        lo = x
-        g_lo = g
-        step = step0
-        while math.isnan(hi):
-            if lo >= x_max:
-                return NO_BRACKET_THIN, math.nan, math.nan, math.nan, shots, reason
-            xt = min(lo + step, x_max)
-            c2, g2, rc2, s2 = shoot(xt, P, O, rtol, delta)
-            shots += 1
-            if c2 == OK:
-                if g2 >= 0.0:
-                    hi = xt
-                    g_hi = g2
-                else:
-                    lo = xt
-                    g_lo = g2
-                    step *= 2.0
-            else:
-                reason = c2
-                bad = xt
-                while bad - lo > xtol_b and shots < MAX_SHOTS:
-                    m = 0.5 * (lo + bad)
-                    c3, g3, rc3, s3 = shoot(m, P, O, rtol, delta)
-                    shots += 1
-                    if c3 != OK:
-                        bad = m
-                    elif g3 >= 0.0:
-                        hi = m
-                        g_hi = g3
-                        break
-                    else:
-                        lo = m
-                        g_lo = g3
-                if math.isnan(hi):
-                    return NO_BRACKET_THIN, math.nan, math.nan, math.nan, shots, reason
-    # 3. Brent's method on ln Mdot (Brent 1973, ch. 4; the layout of scipy's
-    #    brentq).  The tolerance stays above the integration noise.
+                x_prev, g_prev = x, g
+                x, g, rc, slope = m, g3, rc3, s3
+            if not bracket:
+                break
+        if x <= x_min or x >= x_max or shots >= MAX_SHOTS:
+            break
+    if not bracket:
+        code = NO_BRACKET_DENSE if g > 0.0 else NO_BRACKET_THIN
+        return code, math.nan, math.nan, math.nan, shots, reason, seen_ok
+    # Brent's method on ln Mdot (Brent 1973, ch. 4; the layout of scipy's
+    # brentq), keeping r_c and the slope of every trial so that the answer
+    # needs no extra shot.  It stops when the bracket or the interpolated
+    # step falls below xtol = 0.1 rtol (a relative tolerance on Mdot), or
+    # once |g| < rtol (the mismatch is within the integration noise).
     xtol = 0.1 * rtol
-    xpre = lo
-    xcur = hi
-    fpre = g_lo
-    fcur = g_hi
+    tol = 0.5 * xtol
+    xpre, fpre, rpre, spre_ = x, g, rc, slope
+    xcur, fcur, rcur, scur_ = x_far, g_far, rc_far, slope_far
     xblk = 0.0
     fblk = 0.0
+    rblk = math.nan
+    sblk_ = math.nan
     spre = 0.0
     scur = 0.0
-    if fpre == 0.0:
-        xcur = xpre
-        fcur = fpre
-    last_x = math.nan
-    last_rc = math.nan
-    last_slope = math.nan
-    while fcur != 0.0:
+    while True:
         if shots >= MAX_SHOTS:
-            return ROOT_NOT_CONVERGED, xcur, math.nan, math.nan, shots, reason
-        if fpre != 0.0 and fcur != 0.0 and (fpre < 0.0) != (fcur < 0.0):
-            xblk = xpre
-            fblk = fpre
+            return ROOT_NOT_CONVERGED, xcur, math.nan, math.nan, shots, reason, seen_ok
+        if (fpre < 0.0) != (fcur < 0.0):
+            xblk, fblk, rblk, sblk_ = xpre, fpre, rpre, spre_
             spre = xcur - xpre
             scur = spre
         if abs(fblk) < abs(fcur):
-            xpre = xcur
-            xcur = xblk
-            xblk = xpre
-            fpre = fcur
-            fcur = fblk
-            fblk = fpre
-        tol = 0.5 * xtol  # absolute in ln Mdot: a relative tolerance on Mdot
+            xpre, fpre, rpre, spre_ = xcur, fcur, rcur, scur_
+            xcur, fcur, rcur, scur_ = xblk, fblk, rblk, sblk_
+            xblk, fblk, rblk, sblk_ = xpre, fpre, rpre, spre_
         sbis = 0.5 * (xblk - xcur)
-        # Stop on a small bracket, or once the base-density mismatch is
-        # within the integration noise (|g| < rtol): further steps would
-        # only bisect on that noise.
         if abs(sbis) < tol or abs(fcur) < rtol:
             break
         if abs(spre) > tol and abs(fcur) < abs(fpre):
@@ -575,29 +563,63 @@ def solve(P, O, rtol, delta):
             if 2.0 * abs(stry) < min(abs(spre), 3.0 * abs(sbis) - tol):
                 spre = scur
                 scur = stry
+                if abs(stry) < tol:
+                    break  # the interpolated root is within xtol of xcur
             else:
                 spre = sbis
                 scur = sbis
         else:
             spre = sbis
             scur = sbis
-        xpre = xcur
-        fpre = fcur
+        xpre, fpre, rpre, spre_ = xcur, fcur, rcur, scur_
         if abs(scur) > tol:
             xcur += scur
         else:
             xcur += tol if sbis > 0.0 else -tol
-        c4, fcur, rc4, s4 = shoot(xcur, P, O, rtol, delta)
+        c4, fcur, rcur, scur_ = shoot(xcur, P, O, rtol, delta)
         shots += 1
         if c4 != OK:
-            return c4, xcur, math.nan, math.nan, shots, c4
-        last_x = xcur
-        last_rc = rc4
-        last_slope = s4
-    if xcur != last_x:
-        code, g, last_rc, last_slope = shoot(xcur, P, O, rtol, delta)
-        shots += 1
-    return OK, xcur, last_rc, last_slope, shots, reason
+            return c4, xcur, math.nan, math.nan, shots, c4, seen_ok
+    return OK, xcur, rcur, scur_, shots, reason, seen_ok
+
+
+@njit(cache=True, error_model="numpy")
+def solve(P, O, rtol, delta):
+    """Find the mass-loss rate of the transonic solution through rho(R0) = rho0.
+
+    Returns ``(code, ln_mdot, r_c, slope, n_shots, reason)`` where ``reason``
+    is the first failure met while searching (useful when code != OK).
+    """
+    guess, ln_mdot_max = first_guess(P, O)
+    x_min = ln_mdot_max - LN_RANGE
+    x_max = ln_mdot_max - 1e-9
+    shots = 0
+    # 0. When N(R0, a) changes sign with Mdot (density-dependent opacity,
+    #    porosity, tiring), the admissible window starts where the saddle
+    #    sits on the base (SPEC section 8).  There v(R0) = a, so
+    #    g = ln rho(R0) - ln rho0 = ln Mdot - ln(4 pi R0^2 rho0 a) is known
+    #    without a shot; ln rho(R0) climbs steeply inside the window, so the
+    #    walk starts from the boundary with a small step.  N costs
+    #    nanoseconds; a shot costs microseconds.
+    n_lo = base_sonic_balance(x_min, P, O)
+    n_hi = base_sonic_balance(x_max, P, O)
+    if (n_lo > 0.0) != (n_hi > 0.0) and n_lo != 0.0 and n_hi != 0.0:
+        xb = refine_base(x_min, x_max, n_lo, n_hi, P, O, 1e-14)
+        res = converge(P, O, rtol, delta, xb, xb - ln_mdot_max, P[I_R0], math.nan,
+                       0.02, x_min, x_max, 0, OK)
+        if res[6]:
+            return res[0], res[1], res[2], res[3], res[4], res[5]
+        # Nothing admissible next to the boundary: search as below.
+        shots = res[4]
+        side = 1.0 if n_hi < 0.0 else -1.0
+        guess = min(max(xb + side * 1e-6 * (1.0 + abs(xb)), x_min), x_max)
+    # 1. Find any admissible Mdot; 2. walk to a sign change and refine.
+    found, x, g, rc, slope, shots, reason = find_admissible(P, O, rtol, delta, guess,
+                                                            x_min, x_max, shots)
+    if not found:
+        return reason, math.nan, math.nan, math.nan, shots, reason
+    res = converge(P, O, rtol, delta, x, g, rc, slope, 1.0, x_min, x_max, shots, reason)
+    return res[0], res[1], res[2], res[3], res[4], res[5]
 
 
 @njit(cache=True, error_model="numpy")
