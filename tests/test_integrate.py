@@ -23,6 +23,11 @@ def test_tableau_matches_scipy():
     np.testing.assert_array_equal(T.C, scipy_dop853.C[:n])
     np.testing.assert_array_equal(T.E3, scipy_dop853.E3)
     np.testing.assert_array_equal(T.E5, scipy_dop853.E5)
+    # dense output: the three extra stages and the interpolation coefficients
+    np.testing.assert_array_equal(T.A_EXTRA, scipy_dop853.A[n + 1:])
+    np.testing.assert_array_equal(T.C_EXTRA, scipy_dop853.C[n + 1:])
+    np.testing.assert_array_equal(T.D, scipy_dop853.D)
+    assert T.INTERPOLATOR_POWER == scipy_dop853.INTERPOLATOR_POWER
 
 
 @njit
@@ -92,3 +97,27 @@ def test_singularity_gives_step_too_small():
                                  1e-8, 1e-8, 1e-3, np.inf, np.empty(0), np.empty((0, 1)))
     assert status == STEP_TOO_SMALL
     assert abs(x - 1.0) < 1e-6  # stops at the singular point x = 1
+
+
+@pytest.mark.parametrize("direction", [1.0, -1.0])
+def test_dense_output_between_steps(direction):
+    # Interpolated points of the 7th-order dense output (Hairer, Norsett &
+    # Wanner 1993, II.6/II.10) against y = cos(w x): as accurate as the steps.
+    w = 3.0
+    P = np.array([w * w])
+    rtol = 1e-10
+    xs = np.empty(5000)
+    ys = np.empty((5000, 2))
+    status, x, y, n, _ = oscillate(0.0, np.array([1.0, 0.0]), direction * 10.0, P, P, rtol,
+                                   rtol, 1e-3, np.inf, xs, ys, 0.01)
+    assert status == REACHED_END and x == direction * 10.0
+    xs, ys = xs[:n], ys[:n]
+    assert np.all(direction * np.diff(xs) > 0)  # ordered, steps and grid merged
+    on_grid = np.isclose(xs / 0.01, np.round(xs / 0.01), rtol=0, atol=1e-9)
+    assert on_grid.sum() >= 1000  # every 0.01 of the 10 covered
+    steps = np.empty(5000)
+    _, _, _, n_steps, _ = oscillate(0.0, np.array([1.0, 0.0]), direction * 10.0, P, P,
+                                    rtol, rtol, 1e-3, np.inf, steps, np.empty((5000, 2)))
+    assert n_steps < 200 and n > 1000  # the grid did not shorten the steps
+    err = np.abs(ys[:, 0] - np.cos(w * xs)) / (rtol + rtol * np.abs(np.cos(w * xs)))
+    assert err.max() < 300

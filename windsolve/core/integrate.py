@@ -27,7 +27,20 @@ import math
 import numpy as np
 from numba import njit
 
-from ._dop853_tableau import E3, E5, ERROR_ESTIMATOR_ORDER, N_STAGES, A, B, C
+from ._dop853_tableau import (
+    A_EXTRA,
+    C_EXTRA,
+    E3,
+    E5,
+    ERROR_ESTIMATOR_ORDER,
+    INTERPOLATOR_POWER,
+    N_STAGES,
+    N_STAGES_EXTENDED,
+    A,
+    B,
+    C,
+    D,
+)
 
 SAFETY = 0.9  # multiply the optimal step by this
 MIN_FACTOR = 0.2  # never shrink a step by more than this
@@ -62,8 +75,52 @@ def error_norm(K, h, y, y_new, rtol, atol):
     return abs(h) * err5 / math.sqrt(denom * n)
 
 
+@njit(cache=True, error_model="numpy")
+def interpolate(F, y_old, t, out_y, row):
+    """out_y[row] = the dense-output polynomial F at t = (x - x_old) / h."""
+    n = y_old.shape[0]
+    for j in range(n):
+        acc = 0.0
+        for i in range(INTERPOLATOR_POWER - 1, -1, -1):
+            acc += F[i, j]
+            if (INTERPOLATOR_POWER - 1 - i) % 2 == 0:
+                acc *= t
+            else:
+                acc *= 1.0 - t
+        out_y[row, j] = acc + y_old[j]
+
+
 def make_integrator(rhs, monitor):
     """Return a compiled ``integrate`` closed over ``rhs`` and ``monitor``."""
+
+    @njit(cache=True, error_model="numpy")
+    def dense_coefficients(x, y, y_new, f_new, h, P, O, K, F, y_stage, f_stage):
+        """The step's 7th-order interpolant (DOP853 dense output) into F.
+
+        Three more stages go into K[13:16]; the polynomial is evaluated by
+        :func:`interpolate` (layout of scipy's ``DOP853`` dense output).
+        """
+        n = y.shape[0]
+        for e in range(N_STAGES_EXTENDED - N_STAGES - 1):
+            s = N_STAGES + 1 + e
+            for j in range(n):
+                acc = 0.0
+                for m in range(s):
+                    acc += A_EXTRA[e, m] * K[m, j]
+                y_stage[j] = y[j] + h * acc
+            rhs(x + C_EXTRA[e] * h, y_stage, P, O, f_stage)
+            for j in range(n):
+                K[s, j] = f_stage[j]
+        for j in range(n):
+            dy = y_new[j] - y[j]
+            F[0, j] = dy
+            F[1, j] = h * K[0, j] - dy
+            F[2, j] = 2.0 * dy - h * (f_new[j] + K[0, j])
+            for i in range(INTERPOLATOR_POWER - 3):
+                acc = 0.0
+                for m in range(N_STAGES_EXTENDED):
+                    acc += D[i, m] * K[m, j]
+                F[3 + i, j] = h * acc
 
     @njit(cache=True, error_model="numpy")
     def dop853_step(x, y, f, h, P, O, K, y_new, f_new, y_stage, f_stage):
@@ -93,7 +150,7 @@ def make_integrator(rhs, monitor):
 
     @njit(cache=True, error_model="numpy")
     def integrate(x0, y0, x_end, P, O, rtol, atol, h_start, max_step,
-                  out_x, out_y):
+                  out_x, out_y, dx_out=0.0):
         """Integrate y' = rhs(x, y) from x0 to x_end (either direction).
 
         Parameters
@@ -112,6 +169,11 @@ def make_integrator(rhs, monitor):
         out_x, out_y : float64[m], float64[m, n]
             Storage for accepted points, starting with (x0, y0).  Pass arrays of
             length 0 to store nothing.  Storage stops silently when full.
+        dx_out : float
+            0 (default): store every accepted step.  > 0: store, besides
+            the steps, the points x0 + k dx_out (in the direction of
+            integration) from the steps' 7th-order dense output, so that
+            the output is at least that fine without limiting the steps.
 
         Returns
         -------
@@ -132,7 +194,8 @@ def make_integrator(rhs, monitor):
         f = np.empty(n)
         rhs(x, y, P, O, f)
         nfev = 1
-        K = np.empty((N_STAGES + 1, n))
+        K = np.empty((N_STAGES_EXTENDED, n))
+        F = np.empty((INTERPOLATOR_POWER, n))
         y_new = np.empty(n)
         f_new = np.empty(n)
         y_stage = np.empty(n)
@@ -144,6 +207,8 @@ def make_integrator(rhs, monitor):
             for j in range(n):
                 out_y[0, j] = y[j]
             n_out = 1
+        dense = dx_out > 0.0
+        k_next = 1  # index of the next dense output point x0 + k dx_out
         h_abs = min(abs(h_start), max_step)
         steps = 0
         while direction * (x_end - x) > 0.0:
@@ -187,16 +252,27 @@ def make_integrator(rhs, monitor):
                 else:
                     h_abs *= max(MIN_FACTOR, SAFETY * en ** ERROR_EXPONENT)
                     rejected = True
+            if dense and n_out < capacity:
+                x_k = x0 + direction * k_next * dx_out
+                if direction * (x_new - x_k) > 0.0:
+                    dense_coefficients(x, y, y_new, f_new, h, P, O, K, F, y_stage, f_stage)
+                    nfev += N_STAGES_EXTENDED - N_STAGES - 1
+                while direction * (x_new - x_k) > 0.0 and n_out < capacity:
+                    interpolate(F, y, (x_k - x) / h, out_y, n_out)
+                    out_x[n_out] = x_k
+                    n_out += 1
+                    k_next += 1
+                    x_k = x0 + direction * k_next * dx_out
             x = x_new
             for j in range(n):
                 y[j] = y_new[j]
                 f[j] = f_new[j]
+            code = monitor(x, y, P, O)
             if n_out < capacity:
                 out_x[n_out] = x
                 for j in range(n):
                     out_y[n_out, j] = y[j]
                 n_out += 1
-            code = monitor(x, y, P, O)
             if code != 0:
                 return code, x, y, n_out, nfev
         return REACHED_END, x, y, n_out, nfev

@@ -14,8 +14,10 @@ This is Parker's (1958, ApJ 128, 664) isothermal wind with a radiative force;
 photon tiring (the luminosity spent lifting the flow) follows Owocki &
 Gayley (1997, ASP Conf. Ser. 120, 121; reference from memory), porosity
 Owocki, Gayley & Shaviv (2004, ApJ 616, 525).
-The kernels integrate y = ln v against x = ln r, because v spans many decades
-below the sonic point.
+The kernels integrate y = ln v, because v spans many decades below the sonic
+point: against x = ln r outward (the wind spans decades in r) and against r
+itself inward (the subsonic layer is usually thin, and r costs two
+exponentials less per evaluation than ln r).
 
 The mass-loss rate is the eigenvalue: for a trial Mdot the innermost saddle
 (v = a, N = 0) beyond the base is found, the solution is started a small
@@ -59,7 +61,8 @@ I_ROUT = 7  # outer radius [cm]
 I_MDOT = 8  # trial mass-loss rate [g s-1] (set by the shooting)
 I_V0 = 9  # base velocity Mdot / (4 pi R0^2 rho0) [cm s-1] (set with Mdot)
 I_LNRHO_STOP = 10  # inward legs stop once ln rho exceeds this
-N_PARAMS = 11
+I_RHO_STOP = 11  # ... that is, once rho exceeds this [g cm-3]
+N_PARAMS = 12
 
 # --- status codes (the user layer has the words) ---------------------------
 OK = 0
@@ -87,6 +90,8 @@ SONIC_GAP = 1e-3  # |v^2 - a^2| / a^2 below which a turning flow is singular
 DENSE_MARGIN = 10.0  # an inward leg stops once ln rho > ln rho0 + this
 LN_RANGE = 690.0  # Mdot is searched down to Mdot_max * exp(-LN_RANGE)
 MAX_SHOTS = 400
+SUBSONIC_POINTS = 100  # a stored profile has at least this many points below r_c
+PROFILE_STEPS = 2000  # room for the integration steps of one stored leg
 MIN_WALK = 1e-6  # smallest step [in ln Mdot] of the walk toward a sign change
 
 
@@ -98,6 +103,7 @@ def set_mass_loss_rate(P, ln_mdot):
     Q[I_MDOT] = mdot
     Q[I_V0] = mdot / (FOUR_PI * P[I_R0] ** 2 * P[I_RHO0])
     Q[I_LNRHO_STOP] = math.log(P[I_RHO0]) + DENSE_MARGIN
+    Q[I_RHO_STOP] = P[I_RHO0] * math.exp(DENSE_MARGIN)
     return Q
 
 
@@ -158,6 +164,19 @@ def rhs(x, y, P, O, dydx):
 
 
 @njit(cache=True, error_model="numpy")
+def rhs_radius(x, y, P, O, dydx):
+    """d ln v / d r = N / (v^2 - a^2): the inward legs, with x = r itself.
+
+    Below the sonic point the flow spans a short range of r (often a few
+    per cent of R0), so r serves as well as ln r as the variable and saves
+    two exponentials per evaluation.
+    """
+    v = math.exp(y[0])
+    n = force_balance_inv(x, 1.0 / x, v, math.exp(-y[0]), P, O)
+    dydx[0] = n / (v * v - P[I_A2])
+
+
+@njit(cache=True, error_model="numpy")
 def monitor_outward(x, y, P, O):
     """Stop the supersonic leg when tiring exhausts L or v falls back to a."""
     r = math.exp(x)
@@ -171,10 +190,10 @@ def monitor_outward(x, y, P, O):
 
 @njit(cache=True, error_model="numpy")
 def monitor_inward(x, y, P, O):
-    """Stop the subsonic leg when it turns back to v = a or is far too dense."""
-    r = math.exp(x)
+    """Stop the subsonic leg (x = r) when it turns back to v = a or is far too dense."""
+    r = x
     v = math.exp(y[0])
-    if math.log(density(r, v, P)) > P[I_LNRHO_STOP]:
+    if density(r, v, P) > P[I_RHO_STOP]:
         return STOP_DENSE
     if v * v - P[I_A2] > -SONIC_GAP * P[I_A2] and force_balance(r, v, P, O) > 0.0:
         return STOP_SINGULAR
@@ -206,7 +225,7 @@ def left_table(x, y, P, O):
 
 
 integrate_outward = make_integrator(rhs, monitor_outward)
-integrate_inward = make_integrator(rhs, monitor_inward)
+integrate_inward = make_integrator(rhs_radius, monitor_inward)  # x = r, y = ln v
 refine_sonic = make_root_refiner(sonic_force_balance)
 refine_base = make_root_refiner(base_sonic_balance)
 
@@ -341,9 +360,9 @@ def shoot(ln_mdot, P, O, rtol, delta):
     y0[0] = math.log(a - slope * delta * rc)
     no_x = np.empty(0)
     no_y = np.empty((0, 1))
-    status, x, y, n_out, nfev = integrate_inward(
-        math.log(rc * (1.0 - delta)), y0, math.log(R0),
-        Q, O, 0.0, rtol, delta, np.inf, no_x, no_y)
+    status, r, y, n_out, nfev = integrate_inward(
+        rc * (1.0 - delta), y0, R0, Q, O, 0.0, rtol, delta * rc, np.inf, no_x, no_y)
+    x = math.log(r)
     if status == REACHED_END:
         g = math.log(density(R0, math.exp(y[0]), Q)) - ln_rho0
         return OK, g, rc, slope
@@ -623,17 +642,18 @@ def solve(P, O, rtol, delta):
 
 
 @njit(cache=True, error_model="numpy")
-def outward_leg(Q, O, rc, slope, rtol, delta, max_step, xo, yo):
+def outward_leg(Q, O, rc, slope, rtol, delta, dx_out, xo, yo):
     """The wind branch from just outside r_c to r_out: (status, x, y, n_stored).
 
     status is OK, STALLED, OUTWARD_SINGULAR, LEFT_TABLE or INTEGRATION_FAILED;
-    (x, y) is the last accepted point.
+    (x, y) is the last accepted point.  With ``dx_out`` > 0 the points stored
+    in (xo, yo) are dx_out apart in ln r (dense output), else every step.
     """
     y0 = np.empty(1)
     y0[0] = math.log(math.sqrt(Q[I_A2]) + slope * delta * rc)
     st, x, y, no, nfev = integrate_outward(
         math.log(rc * (1.0 + delta)), y0, math.log(Q[I_ROUT]),
-        Q, O, 0.0, rtol, delta, max_step, xo, yo)
+        Q, O, 0.0, rtol, delta, np.inf, xo, yo, dx_out)
     status = OK
     if st == STEP_TOO_SMALL and left_table(x, y, Q, O):
         status = LEFT_TABLE
@@ -652,31 +672,51 @@ def profile(ln_mdot, P, O, rtol, delta, max_step, capacity):
 
     Returns ``(status_in, status_out, r, v)``; ``status_out`` is OK,
     OUTWARD_SINGULAR or STALLED (the profile then ends where the flow did).
+    Besides the integration steps, points are stored (from the integrator's
+    dense output, so the steps themselves are not limited) every
+    ``max_step`` in ln r outward and every min(max_step R0, (r_c - R0) /
+    SUBSONIC_POINTS) in r inward, so that a thin subsonic layer is resolved
+    too; at most ``capacity`` points a leg.
     """
     Q = set_mass_loss_rate(P, ln_mdot)
     code, rc, slope = innermost_saddle(Q, O)
     a = math.sqrt(Q[I_A2])
     R0 = Q[I_R0]
-    xi = np.empty(capacity)
-    yi = np.empty((capacity, 1))
-    xo = np.empty(capacity)
-    yo = np.empty((capacity, 1))
+    dr_in = max_step * R0
+    if rc > R0:
+        dr_in = min(dr_in, (rc - R0) / SUBSONIC_POINTS)
+    # Grid points, plus the integration steps (a few tens; capacity caps them).
+    n_in = min(capacity, int((rc - R0) / dr_in) + PROFILE_STEPS) if rc > R0 else 1
+    n_out = min(capacity, int(math.log(Q[I_ROUT] / rc) / max_step) + PROFILE_STEPS)
+    xi = np.empty(max(n_in, 1))
+    yi = np.empty((max(n_in, 1), 1))
+    xo = np.empty(max(n_out, 1))
+    yo = np.empty((max(n_out, 1), 1))
     y0 = np.empty(1)
     ni = 0
     status_in = OK
     if rc * (1.0 - delta) > R0:
         y0[0] = math.log(a - slope * delta * rc)
-        st, x, y, ni, nfev = integrate_inward(
-            math.log(rc * (1.0 - delta)), y0, math.log(R0),
-            Q, O, 0.0, rtol, delta, max_step, xi, yi)
+        st, r_last, y, ni, nfev = integrate_inward(
+            rc * (1.0 - delta), y0, R0, Q, O, 0.0, rtol, delta * rc, np.inf, xi, yi, dr_in)
+        if ni == xi.shape[0] and ni < capacity:  # full: once more with all the room
+            xi = np.empty(capacity)
+            yi = np.empty((capacity, 1))
+            st, r_last, y, ni, nfev = integrate_inward(
+                rc * (1.0 - delta), y0, R0, Q, O, 0.0, rtol, delta * rc, np.inf, xi, yi, dr_in)
         if st != REACHED_END:
-            status_in = LEFT_TABLE if left_table(x, y, Q, O) else INWARD_SINGULAR
+            status_in = (LEFT_TABLE if left_table(math.log(r_last), y, Q, O)
+                         else INWARD_SINGULAR)
     status_out, x, y, no = outward_leg(Q, O, rc, slope, rtol, delta, max_step, xo, yo)
+    if no == xo.shape[0] and no < capacity:  # full: once more with all the room
+        xo = np.empty(capacity)
+        yo = np.empty((capacity, 1))
+        status_out, x, y, no = outward_leg(Q, O, rc, slope, rtol, delta, max_step, xo, yo)
     n = ni + 1 + no
     r = np.empty(n)
     v = np.empty(n)
     for i in range(ni):
-        r[i] = math.exp(xi[ni - 1 - i])
+        r[i] = xi[ni - 1 - i]
         v[i] = math.exp(yi[ni - 1 - i, 0])
     if ni > 0:
         r[0] = R0
@@ -697,7 +737,7 @@ def end_state(ln_mdot, P, O, rtol, delta):
     """
     Q = set_mass_loss_rate(P, ln_mdot)
     code, rc, slope = innermost_saddle(Q, O)
-    status_out, x, y, no = outward_leg(Q, O, rc, slope, rtol, delta, np.inf, np.empty(0),
+    status_out, x, y, no = outward_leg(Q, O, rc, slope, rtol, delta, 0.0, np.empty(0),
                                        np.empty((0, 1)))
     return status_out, math.exp(x), math.exp(y[0])
 
