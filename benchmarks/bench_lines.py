@@ -8,11 +8,15 @@ Measures, in one run:
 
 * a synthetic emission line with its measured widths from a solved model
   (the demo, Model A; and configs/bump_wind.toml, Model B) -- goal <= 20 ms;
+* ``widths_cgs`` alone (what a sweep worker calls: cgs arrays, no astropy)
+  on the same profiles, median of 2,000 calls -- goal <= 60 us on the demo;
 * chi^2 of a 10,000-row sweep table against observed widths (the table is
   written with the sweep's own writer from synthetic rows, so no solve runs)
   -- goal <= 2 s, timed as ``windsolve compare`` does it (read + chi^2);
 * a 1,000-model sweep with and without an [observables] table (1 worker)
-  -- goal: widths add <= 20 % to the run time.
+  -- goal: widths add <= 20 % to the run time; printed for the whole run
+  (start-up included) and per model (the difference between 2,000- and
+  1,000-model sweeps, so that start-up cancels).
 """
 
 import subprocess
@@ -25,11 +29,12 @@ import numpy as np
 from timing import median_ms  # this script's folder
 
 import windsolve
-from windsolve.lines import LineSettings, line_widths
+from windsolve.lines import LineSettings, _core_radius, _read_profile, line_widths, widths_cgs
 from windsolve.observe import read_observed, sweep_chi2
 from windsolve.sweep import load_sweep, read_sweep_table, write_sweep_table
 
 ROOT = Path(__file__).resolve().parent.parent
+REPEATS = 3  # sweep wall times are medians of this many runs
 DEMO = ROOT / "configs" / "demo.toml"
 
 
@@ -41,6 +46,13 @@ def main():
         line_widths(result, settings)  # compile / warm
         t = median_ms(lambda result=result: line_widths(result, settings), 30)[0]
         print(f"line profile + widths, {name}: {t:.2f} ms median (goal <= 20 ms)")
+        r, v, rho = _read_profile(result, "bench")  # + the thin flow of Model B
+        Rc = _core_radius(result, None, r, "bench")
+        widths_cgs(r, v, rho, settings, Rc)
+        t = median_ms(lambda r=r, v=v, rho=rho, Rc=Rc: widths_cgs(r, v, rho, settings, Rc),
+                      2000)[0]
+        goal = " (goal <= 60 us)" if path == DEMO else ""
+        print(f"widths_cgs alone, {name}: {1e3 * t:.1f} us median{goal}")
     with tempfile.TemporaryDirectory() as tmp:
         tmp = Path(tmp)
         big = tmp / "big.toml"
@@ -67,27 +79,40 @@ def main():
         t = median_ms(chi2, 5)[0]
         print(f"chi^2 over a {len(sweep)}-row sweep table (read + compute): {t:.1f} ms "
               f"(goal <= 2000 ms)")
-        small = tmp / "small.toml"
-        body = (f'[sweep]\nbase = "{DEMO}"\ndesign = "grid"\n[[axis]]\n'
-                f'key = "star.luminosity"\nstart = "2.5e6 Lsun"\nstop = "8e6 Lsun"\nnum = 50\n'
-                f'spacing = "log"\n[[axis]]\nkey = "porosity.length"\nstart = "1 Rsun"\n'
-                f'stop = "100 Rsun"\nnum = 20\nspacing = "log"\n')
-        small.write_text(body)
-        widths = tmp / "widths.toml"
-        widths.write_text(body + "[observables]\nemissivity_power = 2\n")
+        def grid(n_l):
+            return (f'[sweep]\nbase = "{DEMO}"\ndesign = "grid"\n[[axis]]\n'
+                    f'key = "star.luminosity"\nstart = "2.5e6 Lsun"\nstop = "8e6 Lsun"\n'
+                    f'num = {n_l}\nspacing = "log"\n[[axis]]\nkey = "porosity.length"\n'
+                    f'start = "1 Rsun"\nstop = "100 Rsun"\nnum = 20\nspacing = "log"\n')
 
         def run(path):
-            t0 = time.perf_counter()
-            subprocess.run([sys.executable, "-m", "windsolve", "sweep", str(path), "-o",
-                            str(path.with_suffix(".h5")), "--workers", "1", "-q"], check=True)
-            return time.perf_counter() - t0
+            times = []
+            for _ in range(REPEATS):
+                t0 = time.perf_counter()
+                subprocess.run([sys.executable, "-m", "windsolve", "sweep", str(path), "-o",
+                                str(path.with_suffix(".h5")), "--workers", "1", "-q"],
+                               check=True)
+                times.append(time.perf_counter() - t0)
+            return sorted(times)[len(times) // 2]
 
-        run(widths)  # warm every kernel cache
-        t_plain = run(small)
-        t_widths = run(widths)
-        print(f"1000-model Model A sweep, 1 worker: {t_plain:.2f} s without widths, "
-              f"{t_widths:.2f} s with widths: +{100 * (t_widths / t_plain - 1):.0f} % "
+        walls = {}
+        for n_l in (50, 100):  # 1000 and 2000 models
+            for label, extra in (("plain", ""), ("widths", "[observables]\nemissivity_power = 2\n")):
+                path = tmp / f"{label}{n_l}.toml"
+                path.write_text(grid(n_l) + extra)
+                if not walls:
+                    run(path)  # warm every kernel cache
+                walls[label, n_l] = run(path)
+        t_plain, t_widths = walls["plain", 50], walls["widths", 50]
+        print(f"1000-model Model A sweep, 1 worker (median of {REPEATS}): {t_plain:.2f} s "
+              f"without widths, {t_widths:.2f} s with widths: "
+              f"+{100 * (t_widths / t_plain - 1):.0f} % of the whole run, start-up included "
               f"(goal <= 20 %)")
+        # Per model, start-up cancelling: (2000-model run - 1000-model run) / 1000.
+        m_plain = (walls["plain", 100] - walls["plain", 50]) / 1000
+        m_widths = (walls["widths", 100] - walls["widths", 50]) / 1000
+        print(f"  marginal cost per model: {1e3 * m_plain:.3f} ms without widths, "
+              f"{1e3 * m_widths:.3f} ms with: +{100 * (m_widths / m_plain - 1):.0f} % per model")
         body_b = (f'[sweep]\nbase = "{ROOT / "configs" / "bump_wind.toml"}"\n'
                   f'design = "grid"\nbatch = 10\n[[axis]]\n'
                   f'key = "boundary.photosphere_temperature"\nstart = "3e4 K"\n'
@@ -96,7 +121,7 @@ def main():
         small_b.write_text(body_b)
         widths_b = tmp / "widths_b.toml"
         widths_b.write_text(body_b + "[observables]\nemissivity_power = 2\n")
-        run(widths_b)
+        run(widths_b)  # warm
         t_plain_b = run(small_b)
         t_widths_b = run(widths_b)
         print(f"200-model Model B sweep, 1 worker: {t_plain_b:.2f} s without widths, "

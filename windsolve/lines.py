@@ -83,8 +83,10 @@ speeds of w = 0 are not reliable.
 Normalisation.  Emission: continuum 0, the line's peak = 1.  P Cygni:
 continuum 1 (F / F_c, F_c the core's flux).
 
-Measurements (all on the final, broadened profile; linear interpolation
-between grid points; NaN when not measurable):
+Measurements (on the final, broadened profile; NaN when not measurable).
+FWHM and HWZI are read off the grid profile with linear interpolation
+between grid points; the blue edge, without broadening, on the exact
+profile (below):
 
 FWHM
     Full width at half maximum of the emission line: w_+ - w_-, where w_-
@@ -100,7 +102,28 @@ Blue-edge velocity
     Of the P Cygni profile: the most negative w at which the absorption
     depth 1 - F/F_c reaches ``edge_depth`` (a negative number; about
     -v_infinity for a strong line).  NaN when the trough never reaches
-    ``edge_depth``, and for an emission profile.
+    ``edge_depth``, and for an emission profile.  Without broadening it is
+    measured on the exact (unsampled) Sobolev profile: scanning from -v_max
+    (beyond which F = F_c exactly) inward -- at -v_max + g/2^j, j = 24 ... 1,
+    g the distance to the first grid point inside -v_max, then at the grid
+    points -- the first point with depth >= ``edge_depth`` brackets the edge
+    with the point before it, and the crossing between them is found to
+    1e-9 v_max (kernel :func:`windsolve.core.lines.pcygni_edge`).  So a
+    strong line's edge lies just inside -v_max, not up to a grid step
+    beyond it as linear interpolation across the jump at -v_max would put
+    it.  With broadening the profile exists only on the grid, and the edge
+    is linearly interpolated between the first grid point that reaches
+    ``edge_depth`` and the one before it.  Either way a dip that reaches
+    ``edge_depth`` only between two scan points is not seen.
+
+One implementation.  :func:`emission_profile`, :func:`pcygni_profile`,
+:func:`line_widths` (and so ``windsolve lines``, ``compare`` and sweeps)
+measure with the same kernels; :func:`line_widths` resolves its input and
+calls :func:`widths_cgs`, the astropy-free entry point for sweep workers.
+The emission profile is a suffix sum of exact per-sub-interval integrals
+when v(r) rises outward (O(m + N_w log m) for m sub-intervals and N_w
+velocities), the general loop otherwise; the blue edge evaluates the
+Sobolev profile only where the search needs it.
 """
 
 import math
@@ -109,6 +132,7 @@ import os
 from collections.abc import Mapping
 from dataclasses import dataclass
 from pathlib import Path
+from typing import NamedTuple
 
 import astropy.units as u
 import numpy as np
@@ -117,14 +141,17 @@ from ._units import to_quantity
 from .core import lines as kernels
 from .core.constants import C_LIGHT
 from .errors import ModelError, OutputError
-from .result import WindResult
+from .result import PROFILE_UNITS, WindResult
 
 __all__ = [
     "LineSettings",
+    "LineSettingsCGS",
     "LineProfile",
     "emission_profile",
     "pcygni_profile",
     "line_widths",
+    "widths_cgs",
+    "optical_core_radius_cgs",
     "broaden",
     "FWHM_PER_SIGMA",
 ]
@@ -132,8 +159,8 @@ __all__ = [
 KM_S = u.km / u.s
 CM_PER_KM = 1e5
 FWHM_PER_SIGMA = 2.0 * math.sqrt(2.0 * math.log(2.0))  # 2.3548: Gaussian FWHM / sigma
-GRID_MARGIN = 1.2  # the grid spans this many v_max ...
-BROADENING_MARGIN = 2.0  # ... plus this many broadening FWHM (about 4.7 sigma)
+GRID_MARGIN = kernels.GRID_MARGIN  # the grid spans this many v_max ...
+BROADENING_MARGIN = kernels.BROADENING_MARGIN  # ... plus this many broadening FWHM
 MONOTONIC_RTOL = 1e-6  # an outward fall of v by less than this * v_max is noise
 MIN_POINTS = 21
 
@@ -148,6 +175,23 @@ class _NotMonotonic(ModelError):
 
 def _nan_speed():
     return np.nan * KM_S
+
+
+class LineSettingsCGS(NamedTuple):
+    """A :class:`LineSettings` as plain floats in cgs (what :func:`widths_cgs` uses).
+
+    Built once when a LineSettings is made (``settings.cgs``), so workers
+    that call :func:`widths_cgs` many times pay no astropy cost per call.
+    """
+
+    emissivity_power: float
+    occultation: bool
+    broadening_fwhm: float  # cm/s: turbulence and instrument in quadrature
+    broadening_sigma: float  # cm/s: broadening_fwhm / 2.3548
+    hwzi_fraction: float
+    edge_depth: float
+    line_strength: float
+    n_velocity: int
 
 
 @dataclass(frozen=True)
@@ -226,6 +270,15 @@ class LineSettings:
             raise ModelError(f"LineSettings.n_velocity = {npts!r}: must be a whole number "
                              f">= {MIN_POINTS}")
         set_(self, "n_velocity", int(npts))
+        fwhm = float(self.broadening_fwhm.to_value(KM_S)) * CM_PER_KM
+        set_(self, "_cgs", LineSettingsCGS(
+            float(self.emissivity_power), self.occultation, fwhm, fwhm / FWHM_PER_SIGMA,
+            self.hwzi_fraction, self.edge_depth, self.line_strength, self.n_velocity))
+
+    @property
+    def cgs(self):
+        """These settings as a :class:`LineSettingsCGS` (floats, cgs; computed once)."""
+        return self._cgs
 
     @property
     def instrument_fwhm(self):
@@ -318,7 +371,13 @@ class LineProfile:
 
 # -- input ------------------------------------------------------------------
 
-_INPUT_UNITS = (("radius", u.cm), ("velocity", u.cm / u.s), ("density", u.g / u.cm**3))
+_INPUT_UNITS = tuple((key, PROFILE_UNITS[key]) for key in ("radius", "velocity", "density"))
+
+
+def _values_in(q, unit):
+    """q in ``unit`` as an ndarray; no conversion when q already carries that unit object
+    (profiles made by :func:`windsolve.solve` do)."""
+    return q.value if q.unit is unit else q.to_value(unit)
 
 
 def _read_profile(source, what):
@@ -338,10 +397,10 @@ def _read_profile(source, what):
         if key not in profile:
             raise ModelError(f"{what}: the profile has no '{key}'")
         q = profile[key]
-        if not isinstance(q, u.Quantity) or not q.unit.is_equivalent(unit):
+        if not isinstance(q, u.Quantity) or not (q.unit is unit or q.unit.is_equivalent(unit)):
             raise ModelError(f"{what}: profile['{key}'] must be a Quantity array in units of "
                              f"{unit.physical_type} (e.g. {unit.to_string()})")
-        a = np.asarray(q.to_value(unit), dtype=np.float64)
+        a = np.asarray(_values_in(q, unit), dtype=np.float64)
         if a.ndim != 1:
             raise ModelError(f"{what}: profile['{key}'] must be one-dimensional")
         if not np.all(np.isfinite(a)) or not np.all(a > 0):
@@ -392,6 +451,29 @@ def _thin_extension(result, r, v, rho):
             np.concatenate([rho, rho_out]))
 
 
+def optical_core_radius_cgs(r, rho, kappa):
+    """Radius [cm] where tau = integral of kappa rho dr from outside reaches 2/3, or None.
+
+    Parameters
+    ----------
+    r, rho, kappa : ndarray
+        Radius [cm] (increasing), density [g/cm3] and opacity [cm2/g] of a
+        profile, float64.
+
+    Returns
+    -------
+    float or None
+        The tau = 2/3 radius (trapezoid sum from the outer end inward, linear
+        interpolation in r), the default core radius of a Model A result;
+        None if the whole profile is optically thin (tau(r[0]) <= 2/3).
+        Kernel :func:`windsolve.core.lines.optical_core_radius`.
+    """
+    rc = kernels.optical_core_radius(np.ascontiguousarray(r, dtype=np.float64),
+                                     np.ascontiguousarray(rho, dtype=np.float64),
+                                     np.ascontiguousarray(kappa, dtype=np.float64))
+    return None if math.isnan(rc) else float(rc)
+
+
 def _optical_core(result):
     """Radius where tau = integral of kappa rho dr from outside reaches 2/3, or None.
 
@@ -399,22 +481,13 @@ def _optical_core(result):
     where the gas becomes optically thick; for an isothermal (Model A)
     result that is not the base R0 when the wind itself is opaque near the
     base.  Uses the profile's own opacity; None if the whole profile is
-    optically thin (tau(R0) < 2/3).
+    optically thin (tau(R0) < 2/3).  See :func:`optical_core_radius_cgs`.
     """
     p = result.profile
     if "opacity" not in p or "density" not in p:
         return None
-    r = p["radius"].to_value(u.cm)
-    dtau = p["opacity"].to_value(u.cm**2 / u.g) * p["density"].to_value(u.g / u.cm**3)
-    # cumulative trapezoid from the outer end inward
-    seg = 0.5 * (dtau[1:] + dtau[:-1]) * np.diff(r)
-    tau = np.concatenate([np.cumsum(seg[::-1])[::-1], [0.0]])
-    if not tau[0] > 2.0 / 3.0:
-        return None
-    i = int(np.flatnonzero(tau >= 2.0 / 3.0)[-1])
-    # linear interpolation between r[i] (tau >= 2/3) and r[i+1] (tau < 2/3)
-    t0, t1 = tau[i], tau[i + 1]
-    return float(r[i] + (t0 - 2.0 / 3.0) / (t0 - t1) * (r[i + 1] - r[i]))
+    return optical_core_radius_cgs(*(_values_in(p[key], PROFILE_UNITS[key])
+                                     for key in ("radius", "density", "opacity")))
 
 
 def _core_radius(source, core_radius, r, what):
@@ -450,11 +523,9 @@ def _check_settings(settings):
     return settings
 
 
-def _velocity_grid(v, settings):
-    """Evenly spaced w [cm/s] over +-(1.2 v_max + 2 FWHM_broadening)."""
-    fwhm = settings.broadening_fwhm.to_value(KM_S) * CM_PER_KM
-    half = GRID_MARGIN * float(v.max()) + BROADENING_MARGIN * fwhm
-    return np.linspace(-half, half, settings.n_velocity), fwhm / FWHM_PER_SIGMA
+def _velocity_grid(v, c):
+    """Evenly spaced w [cm/s] over +-(1.2 v_max + 2 FWHM_broadening); c = settings.cgs."""
+    return kernels.velocity_grid(float(v.max()), c.broadening_fwhm, c.n_velocity)
 
 
 def _no_gas(what, Rc, r):
@@ -513,19 +584,15 @@ def emission_profile(result_or_profile, settings=LineSettings(), core_radius=Non
     Rc = _core_radius(result_or_profile, core_radius, r, what)
     if settings.occultation and Rc >= r[-1]:
         raise _no_gas(what, Rc, r)
-    w, sigma = _velocity_grid(v, settings)
-    F = kernels.emission_flux(r, v, rho, float(settings.emissivity_power), Rc,
-                              settings.occultation, w)
-    F = kernels.gaussian_broaden(F, w[1] - w[0], sigma, 0.0)
-    peak = F.max()
-    if not peak > 0:
+    c = settings.cgs
+    w = _velocity_grid(v, c)
+    f, fwhm, hwzi, ok = kernels.emission_line(r, v, rho, c.emissivity_power, Rc,
+                                              c.occultation, w, c.broadening_sigma,
+                                              c.hwzi_fraction)
+    if not ok:
         raise _no_gas(what, Rc, r)
-    f = F / peak
-    lo, hi = kernels.outermost_crossings(w, f, 0.5)
-    zlo, zhi = kernels.outermost_crossings(w, f, settings.hwzi_fraction)
     return LineProfile(velocity=(w / CM_PER_KM) << KM_S, flux=f, kind="emission",
-                       fwhm=((hi - lo) / CM_PER_KM) * KM_S,
-                       hwzi=(float(np.maximum(-zlo, zhi)) / CM_PER_KM) * KM_S,
+                       fwhm=(fwhm / CM_PER_KM) * KM_S, hwzi=(hwzi / CM_PER_KM) * KM_S,
                        edge_velocity=_nan_speed())
 
 
@@ -579,13 +646,13 @@ def pcygni_profile(result_or_profile, settings=LineSettings(), core_radius=None)
     if Rc >= r[-1]:
         raise _no_gas(what, Rc, r)
     v = _monotonic_outside(r, v, Rc, what)
-    w, sigma = _velocity_grid(v, settings)
-    v_max = float(v.max())
-    rho_ref = float(np.median(r * r * rho * v)) / (Rc * Rc * v_max)
-    K = settings.line_strength * v_max / (Rc * rho_ref)
-    F = kernels.pcygni_flux(r, v, rho, K, Rc, settings.occultation, w)
-    F = kernels.gaussian_broaden(F, w[1] - w[0], sigma, 1.0)
-    edge, _ = kernels.outermost_crossings(w, 1.0 - F, settings.edge_depth)
+    c = settings.cgs
+    w = _velocity_grid(v, c)
+    K = kernels.sobolev_strength(r, v, rho, Rc, c.line_strength)
+    F = kernels.pcygni_flux(r, v, rho, K, Rc, c.occultation, w)
+    F = kernels.gaussian_broaden(F, w[1] - w[0], c.broadening_sigma, 1.0)
+    edge = kernels.pcygni_edge(r, v, rho, K, Rc, c.occultation, w, c.broadening_sigma,
+                               c.edge_depth)
     return LineProfile(velocity=(w / CM_PER_KM) << KM_S, flux=F, kind="pcygni",
                        fwhm=_nan_speed(), hwzi=_nan_speed(),
                        edge_velocity=(edge / CM_PER_KM) * KM_S)
@@ -593,21 +660,15 @@ def pcygni_profile(result_or_profile, settings=LineSettings(), core_radius=None)
 
 def _monotonic_outside(r, v, Rc, what):
     """v with outward noise below MONOTONIC_RTOL v_max removed; ModelError for a real fall."""
-    i0 = max(int(np.searchsorted(r, Rc, side="right")) - 1, 0)
-    tail = v[i0:]
-    running = np.maximum.accumulate(tail)
-    drop = running - tail
-    if np.any(drop > MONOTONIC_RTOL * v.max()):
-        k = int(np.argmax(drop > MONOTONIC_RTOL * v.max()))
+    clean, i0, k = kernels.monotonic_outside(r, v, Rc, MONOTONIC_RTOL)
+    if k >= 0:
         rsun = u.Rsun.to(u.cm)
         raise _NotMonotonic(
-            f"{what}: v(r) falls outward outside the core radius (to {tail[k] / 1e5:.4g} km/s "
-            f"at r = {r[i0 + k] / rsun:.4g} Rsun after {running[k] / 1e5:.4g} km/s further "
-            f"in); the Sobolev profile here needs v rising outward outside the core radius "
-            f"(one resonance point per ray)")
-    v = v.copy()
-    v[i0:] = running
-    return v
+            f"{what}: v(r) falls outward outside the core radius (to {v[i0 + k] / 1e5:.4g} "
+            f"km/s at r = {r[i0 + k] / rsun:.4g} Rsun after {clean[i0 + k - 1] / 1e5:.4g} "
+            f"km/s further in); the Sobolev profile here needs v rising outward outside the "
+            f"core radius (one resonance point per ray)")
+    return clean
 
 
 def line_widths(result, settings=LineSettings(), core_radius=None):
@@ -636,18 +697,17 @@ def line_widths(result, settings=LineSettings(), core_radius=None):
     ------
     ModelError
         Unusable input or settings.
+
+    Notes
+    -----
+    Reads the arrays (appending Model B's thin flow), resolves the core
+    radius, then calls :func:`widths_cgs`: the numbers are those of a sweep
+    worker calling :func:`widths_cgs` on the same arrays.
     """
     settings = _check_settings(settings)
-    out = {"fwhm": _nan_speed(), "hwzi": _nan_speed(), "edge_velocity": _nan_speed()}
-    try:
-        em = emission_profile(result, settings, core_radius)
-        out["fwhm"], out["hwzi"] = em.fwhm, em.hwzi
-    except _NoGasOutsideCore:
-        pass
-    try:
-        out["edge_velocity"] = pcygni_profile(result, settings, core_radius).edge_velocity
-    except (_NoGasOutsideCore, _NotMonotonic):
-        pass
+    fwhm, hwzi, edge = result_widths_cgs(result, settings, core_radius)
+    out = {"fwhm": (fwhm / CM_PER_KM) * KM_S, "hwzi": (hwzi / CM_PER_KM) * KM_S,
+           "edge_velocity": (edge / CM_PER_KM) * KM_S}
     if isinstance(result, WindResult):
         vinf = result.summary.get("terminal_velocity")
     else:
@@ -657,6 +717,61 @@ def line_widths(result, settings=LineSettings(), core_radius=None):
     else:
         out["terminal_velocity"] = _nan_speed()
     return out
+
+
+def result_widths_cgs(result, settings, core_radius=None):
+    """(fwhm, hwzi, edge_velocity) [cm/s] of a result: :func:`line_widths` without units.
+
+    Reads the arrays (appending Model B's thin flow) and resolves the core
+    radius exactly as :func:`line_widths`, then calls :func:`widths_cgs`;
+    what a sweep worker records.
+    """
+    what = "line_widths"
+    r, v, rho = _read_profile(result, what)
+    Rc = _core_radius(result, core_radius, r, what)
+    return widths_cgs(r, v, rho, settings, Rc)
+
+
+def widths_cgs(r, v, rho, settings, core_radius):
+    """The widths of :func:`line_widths` from plain cgs arrays, without astropy.
+
+    For sweep workers: one compiled call (kernel
+    :func:`windsolve.core.lines.line_widths`), no unit handling and no
+    checks of the arrays beyond what the kernels need.
+    :func:`line_widths` resolves its input and calls this, so both give
+    identical numbers.
+
+    Parameters
+    ----------
+    r, v, rho : ndarray
+        float64 radius [cm] (strictly increasing), velocity [cm/s] (> 0) and
+        density [g/cm3] (> 0), finite, at least 3 points; for a Model B
+        result the optically thin flow above the photosphere must already be
+        appended (as :func:`line_widths` does; module docstring).
+    settings : LineSettings or LineSettingsCGS
+        The settings, or their ``settings.cgs`` (computed once when the
+        LineSettings is made: nothing derived from the settings is
+        recomputed per call).
+    core_radius : float
+        R_c [cm] (e.g. the photosphere, :func:`optical_core_radius_cgs`, or
+        the base radius; see :func:`line_widths`).
+
+    Returns
+    -------
+    (fwhm, hwzi, edge_velocity) : floats [cm/s]
+        As defined in the module docstring; nan where not measurable: fwhm
+        and hwzi when (with occultation) no point lies outside R_c or the
+        line has no flux; edge_velocity when no point lies outside R_c, when
+        v(r) falls outward outside R_c (by more than 1e-6 v_max), or when the
+        trough never reaches ``edge_depth``.
+    """
+    c = settings._cgs if isinstance(settings, LineSettings) else settings
+    if not isinstance(c, LineSettingsCGS):
+        raise ModelError(f"settings must be a LineSettings, not {type(settings).__name__}")
+    return kernels.line_widths(r, v, rho, float(core_radius), c.emissivity_power,
+                               c.occultation, c.broadening_fwhm, c.broadening_sigma,
+                               c.hwzi_fraction, c.edge_depth, c.line_strength, c.n_velocity,
+                               MONOTONIC_RTOL)
 
 
 def broaden(velocity, flux, fwhm, continuum=0.0):

@@ -12,17 +12,19 @@ import numpy as np
 
 from .core import isothermal as K
 from .core.critical import KIND_NAMES
-from .result import WindResult
+from .result import PROFILE_UNITS, WindResult
 
 __all__ = ["solve", "SOLVERS"]
 
 FOUR_PI = 4.0 * math.pi
 # Units built once: composing them on every call costs more than a solve.
+# (the profile's are the very objects of PROFILE_UNITS: readers that find
+# them can skip the conversion)
 G_S = u.g / u.s
-CM_S = u.cm / u.s
-G_CM3 = u.g / u.cm**3
-CM2_G = u.cm**2 / u.g
-ERG_S = u.erg / u.s
+CM_S = PROFILE_UNITS["velocity"]
+G_CM3 = PROFILE_UNITS["density"]
+CM2_G = PROFILE_UNITS["opacity"]
+ERG_S = PROFILE_UNITS["luminosity"]
 DELTA = 1e-6  # start this fraction of r_c off the critical point (SPEC section 8)
 MAX_STEP = 0.02  # largest step in ln r of a stored profile (~115 points per decade)
 CAPACITY = 200000  # stored points per leg

@@ -406,6 +406,19 @@ def _in_unit(q, unit):
     return float(q.value) * hit[2]
 
 
+_SETTINGS_CACHE = []  # [(observables, LineSettings)] of the last sweep seen
+
+
+def _line_settings(observables):
+    """The LineSettings of an [observables] table, built once per worker."""
+    if _SETTINGS_CACHE and _SETTINGS_CACHE[0][0] == observables:
+        return _SETTINGS_CACHE[0][1]
+    from .lines import LineSettings
+    settings = LineSettings(**observables)
+    _SETTINGS_CACHE[:] = [(observables, settings)]
+    return settings
+
+
 def run_batch(base, items, profiles=False, observables=None):
     """Solve a batch of rows in a worker: base model file, [(row, changes)] -> records.
 
@@ -440,12 +453,9 @@ def run_batch(base, items, profiles=False, observables=None):
                 for name in WIDTH_COLUMNS:
                     record[name] = math.nan
                 if result.converged:
-                    from .lines import LineSettings, line_widths
-                    widths = line_widths(result, LineSettings(**observables))
-                    for name in WIDTH_COLUMNS:
-                        q = widths.get(name)
-                        if q is not None:
-                            record[name] = float(q.to_value(SUMMARY_UNITS["terminal_velocity"]))
+                    from .lines import result_widths_cgs
+                    fwhm, hwzi, edge = result_widths_cgs(result, _line_settings(observables))
+                    record["fwhm"], record["hwzi"], record["edge_velocity"] = fwhm, hwzi, edge
             if profiles and result.profile:
                 record["profile"] = {k: q.to_value(PROFILE_UNITS[k]).tolist()
                                      for k, q in result.profile.items()}

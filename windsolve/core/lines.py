@@ -38,6 +38,8 @@ N_MU = 16  # Gauss-Legendre nodes of the angle averages in the escape probabilit
 TAU_SATURATED = 40.0  # 1 - exp(-tau) == 1 to double precision above this
 TAU_THIN = 1e-8  # (1 - exp(-tau)) / tau == 1 - tau/2 below this
 KERNEL_SIGMAS = 7.0  # the broadening kernel is cut this many sigma out
+N_EDGE_SCAN = 24  # P Cygni edge: points at -v_max + gap / 2^j, j = 24..1, before the grid
+EDGE_XTOL = 1e-9  # ... and the crossing is located to this fraction of v_max
 
 _x, _wt = np.polynomial.legendre.leggauss(N_MU)
 MU_NODES = 0.5 * (_x + 1.0)  # Gauss-Legendre on [0, 1]
@@ -51,9 +53,20 @@ def refine(r, v, rho, r_start, nsub):
     Returns ``(rf, vf, lnrho_f)``; ln v and ln rho are linear in r inside
     each tabulated interval.  Empty arrays when ``r_start >= r[-1]``.
     """
+    rf, vf, lf, _ = _refine(r, v, rho, r_start, nsub)
+    return rf, vf, lf
+
+
+@njit(cache=True, error_model="numpy")
+def _refine(r, v, rho, r_start, nsub):
+    """:func:`refine`, also returning ln v at the fine nodes.
+
+    Inside a whole tabulated interval the sub-nodes are evenly spaced, so v
+    there is v[i] q^j with q = (v[i+1] / v[i])^(1/nsub): one exp per interval.
+    """
     n = r.shape[0]
     if r_start >= r[n - 1]:
-        return np.empty(0), np.empty(0), np.empty(0)
+        return np.empty(0), np.empty(0), np.empty(0), np.empty(0)
     i0 = 0
     if r_start > r[0]:
         while r[i0 + 1] <= r_start:
@@ -64,26 +77,43 @@ def refine(r, v, rho, r_start, nsub):
     rf = np.empty(m)
     vf = np.empty(m)
     lf = np.empty(m)
+    lv = np.empty(m)
     k = 0
+    lb = math.log(rho[i0])
+    lvb = math.log(v[i0])
     for i in range(i0, n - 1):
         a = r[i]
         b = r[i + 1]
-        la = math.log(rho[i])
+        la = lb
         lb = math.log(rho[i + 1])
-        lva = math.log(v[i])
+        lva = lvb
         lvb = math.log(v[i + 1])
-        lo = r_start if i == i0 else a
-        for j in range(nsub):
-            x = lo + (b - lo) * j / nsub
-            f = (x - a) / (b - a)
-            rf[k] = x
-            vf[k] = math.exp(lva + f * (lvb - lva))
-            lf[k] = la + f * (lb - la)
-            k += 1
+        if i == i0 and r_start > a:
+            lo = r_start
+            for j in range(nsub):
+                x = lo + (b - lo) * j / nsub
+                f = (x - a) / (b - a)
+                rf[k] = x
+                lv[k] = lva + f * (lvb - lva)
+                vf[k] = math.exp(lv[k])
+                lf[k] = la + f * (lb - la)
+                k += 1
+        else:
+            q = math.exp((lvb - lva) / nsub)
+            vj = v[i]
+            for j in range(nsub):
+                f = j / nsub
+                rf[k] = a + (b - a) * j / nsub
+                lv[k] = lva + f * (lvb - lva)
+                vf[k] = vj
+                vj *= q
+                lf[k] = la + f * (lb - la)
+                k += 1
     rf[k] = r[n - 1]
     vf[k] = v[n - 1]
-    lf[k] = math.log(rho[n - 1])
-    return rf, vf, lf
+    lf[k] = lb
+    lv[k] = lvb
+    return rf, vf, lf, lv
 
 
 @njit(cache=True, error_model="numpy")
@@ -133,6 +163,201 @@ def _occultation_crossing(ra, rb, va, vb, Rc, w):
 
 
 @njit(cache=True, error_model="numpy")
+def _emission_nodes(rf, vf, lf, lv, n, Rc, occult):
+    """ln(j r^2 / v), the occultation edge hi(r) and the whole-sub-interval integrals."""
+    m = rf.shape[0]
+    lg = np.empty(m)
+    hi = np.empty(m)
+    for i in range(m):
+        lg[i] = n * lf[i] + 2.0 * math.log(rf[i]) - lv[i]
+        if occult:
+            q = 1.0 - (Rc / rf[i]) ** 2
+            hi[i] = vf[i] * math.sqrt(q) if q > 0.0 else 0.0
+        else:
+            hi[i] = vf[i]
+    full = np.empty(max(m - 1, 0))  # the whole sub-interval, computed once
+    ga = math.exp(lg[0]) if m > 0 else 0.0
+    for i in range(m - 1):
+        # = _loglinear_integral(dr, lg[i], lg[i + 1], 0, 1), sharing exp(lg) between intervals
+        gb = math.exp(lg[i + 1])
+        x = lg[i + 1] - lg[i]
+        dr = rf[i + 1] - rf[i]
+        full[i] = dr * ga if abs(x) < 1e-12 else dr * ga * math.expm1(x) / x
+        ga = gb
+    return lg, hi, full
+
+
+@njit(cache=True, error_model="numpy")
+def _emission_loop(rf, vf, lg, hi, full, Rc, occult, w):
+    """F(w) visiting every sub-interval for every w (any v(r))."""
+    m = rf.shape[0]
+    out = np.zeros(w.shape[0])
+    for k in range(w.shape[0]):
+        wk = w[k]
+        acc = 0.0
+        for i in range(m - 1):
+            # visible where -v(t) - w < 0 and w - w_max(t) < 0
+            t0, t1 = _clip_negative(-vf[i] - wk, -vf[i + 1] - wk, 0.0, 1.0)
+            if t1 <= t0:
+                continue
+            fa = wk - hi[i]
+            fb = wk - hi[i + 1]
+            if occult and (fa < 0.0) != (fb < 0.0):
+                # the occultation edge v sqrt(1 - (Rc/r)^2) is far from linear
+                # just outside Rc: find where it equals w on the exact curve
+                tc = _occultation_crossing(rf[i], rf[i + 1], vf[i], vf[i + 1], Rc, wk)
+                if fa < 0.0:
+                    t1 = min(t1, tc)
+                else:
+                    t0 = max(t0, tc)
+            else:
+                t0, t1 = _clip_negative(fa, fb, t0, t1)
+            if t1 <= t0:
+                continue
+            if t0 == 0.0 and t1 == 1.0:
+                acc += full[i]
+            else:
+                acc += _loglinear_integral(rf[i + 1] - rf[i], lg[i], lg[i + 1], t0, t1)
+        out[k] = TWO_PI * acc
+    return out
+
+
+@njit(cache=True, error_model="numpy")
+def _occultation_root(ra, rb, va, vb, Rc, w, t_guess):
+    """t in [0, 1] where v(t) sqrt(1 - (Rc / r(t))^2) = w, by safeguarded Newton.
+
+    The same crossing as :func:`_occultation_crossing` (v and r linear in t),
+    found as the root of the smooth polynomial
+    P(t) = v^2 (x^2 - 1) - w^2 x^2, x = r / Rc (P has the sign of the edge
+    minus w and no square-root singularity at r = Rc).  Expects the edge
+    <= w at t = 0 and > w at t = 1; keeps a bracket and bisects whenever a
+    Newton step would leave it.
+    """
+    xa = ra / Rc
+    dx = (rb - ra) / Rc
+    ea = (ra - Rc) / Rc  # x - 1 at t = 0, without cancellation
+    dv = vb - va
+    w2 = w * w
+    lo = 0.0
+    hi = 1.0
+    # start from the straight line through the end values of P
+    p0 = va * va * ea * (xa + 1.0) - w2 * xa * xa
+    x1 = xa + dx
+    p1 = vb * vb * (ea + dx) * (x1 + 1.0) - w2 * x1 * x1
+    if p0 >= 0.0:
+        return 0.0
+    if p1 <= 0.0:
+        return 1.0
+    t = t_guess if 0.0 < t_guess < 1.0 else p0 / (p0 - p1)
+    for _ in range(60):
+        x = xa + t * dx
+        e = ea + t * dx
+        v = va + t * dv
+        p = v * v * e * (x + 1.0) - w2 * x * x
+        dp = 2.0 * v * dv * e * (x + 1.0) + v * v * 2.0 * x * dx - 2.0 * w2 * x * dx
+        if p > 0.0:
+            hi = t
+        elif p < 0.0:
+            lo = t
+        else:
+            return t
+        tn = t - p / dp if dp > 0.0 else 0.5 * (lo + hi)
+        if not (lo < tn < hi):
+            tn = 0.5 * (lo + hi)
+        if abs(tn - t) <= 1e-12 or hi - lo <= 1e-15:
+            # converging quadratically: one more Newton step from here is exact
+            x = xa + tn * dx
+            e = ea + tn * dx
+            v = va + tn * dv
+            p = v * v * e * (x + 1.0) - w2 * x * x
+            dp = 2.0 * v * dv * e * (x + 1.0) + v * v * 2.0 * x * dx - 2.0 * w2 * x * dx
+            if dp > 0.0:
+                tf = tn - p / dp
+                if lo <= tf <= hi:
+                    return tf
+            return tn
+        t = tn
+    return t
+
+
+@njit(cache=True, error_model="numpy")
+def _emission_prefix(rf, vf, lg, hi, full, Rc, occult, w):
+    """F(w) as a suffix sum + one partial sub-interval (v and hi non-decreasing)."""
+    m = rf.shape[0]
+    out = np.zeros(w.shape[0])
+    suffix = np.empty(m)  # suffix[i] = sum of full[i:]
+    suffix[m - 1] = 0.0
+    for i in range(m - 2, -1, -1):
+        suffix[i] = suffix[i + 1] + full[i]
+    for k in range(w.shape[0]):
+        wk = w[k]
+        red = occult and wk >= 0.0
+        # seen where g(r) > a: g = v, a = |w| (blue side, or no occultation)
+        # or g = hi, a = w (red side behind the core); g non-decreasing, so
+        # that is everything outside the last node with g <= a
+        a = wk if red else abs(wk)
+        g = hi if red else vf
+        if g[0] > a:
+            out[k] = TWO_PI * suffix[0]
+            continue
+        if g[m - 1] <= a:
+            continue
+        lo = 0
+        up = m - 1  # g[lo] <= a < g[up]
+        while up - lo > 1:
+            mid = (lo + up) // 2
+            if g[mid] <= a:
+                lo = mid
+            else:
+                up = mid
+        i = lo
+        if red:
+            tc = _occultation_root(rf[i], rf[i + 1], vf[i], vf[i + 1], Rc, a,
+                                   (a - hi[i]) / (hi[i + 1] - hi[i]))
+        else:
+            fa = a - vf[i]
+            tc = fa / (fa - (a - vf[i + 1]))
+        if tc <= 0.0:
+            part = full[i]
+        elif tc >= 1.0:
+            part = 0.0
+        else:
+            part = _loglinear_integral(rf[i + 1] - rf[i], lg[i], lg[i + 1], tc, 1.0)
+        out[k] = TWO_PI * (suffix[i + 1] + part)
+    return out
+
+
+@njit(cache=True, error_model="numpy")
+def nondecreasing(a):
+    """True when a[i+1] >= a[i] everywhere."""
+    for i in range(a.shape[0] - 1):
+        if a[i + 1] < a[i]:
+            return False
+    return True
+
+
+@njit(cache=True, error_model="numpy")
+def emission_flux_general(r, v, rho, n, Rc, occult, w):
+    """:func:`emission_flux` by the general loop (every w x every sub-interval)."""
+    rf, vf, lf, lv = _refine(r, v, rho, Rc if occult else r[0], NSUB)
+    if rf.shape[0] < 2:
+        return np.zeros(w.shape[0])
+    lg, hi, full = _emission_nodes(rf, vf, lf, lv, n, Rc, occult)
+    return _emission_loop(rf, vf, lg, hi, full, Rc, occult, w)
+
+
+@njit(cache=True, error_model="numpy")
+def emission_flux_monotonic(r, v, rho, n, Rc, occult, w):
+    """:func:`emission_flux` by suffix sums; only valid when v is non-decreasing
+    outside the start radius (no check: :func:`emission_flux` checks)."""
+    rf, vf, lf, lv = _refine(r, v, rho, Rc if occult else r[0], NSUB)
+    if rf.shape[0] < 2:
+        return np.zeros(w.shape[0])
+    lg, hi, full = _emission_nodes(rf, vf, lf, lv, n, Rc, occult)
+    return _emission_prefix(rf, vf, lg, hi, full, Rc, occult, w)
+
+
+@njit(cache=True, error_model="numpy")
 def emission_flux(r, v, rho, n, Rc, occult, w):
     """Optically thin line flux F(w) for an emissivity j = rho^n (per unit volume).
 
@@ -167,53 +392,29 @@ def emission_flux(r, v, rho, n, Rc, occult, w):
     occultation edge w < v sqrt(1 - (Rc/r)^2) is found on the exact curve,
     and j r^2 / v is exponential in r, so each piece is integrated exactly
     and F(w) is continuous in w.  A constant-velocity shell is exact.
+
+    Two evaluations of the same sum: when v(r) and the occultation edge are
+    non-decreasing outward on the sub-divided grid (the normal case) the
+    region seen at w is one outer part of the grid, and F(w) is a suffix sum
+    of the per-sub-interval integrals plus one partial sub-interval found by
+    binary search (:func:`emission_flux_monotonic`, O(m + N_w log m));
+    otherwise every velocity visits every sub-interval
+    (:func:`emission_flux_general`, O(m N_w)).  Both give the same numbers
+    to rounding.
     """
-    r_start = Rc if occult else r[0]
-    rf, vf, lf = refine(r, v, rho, r_start, NSUB)
-    m = rf.shape[0]
-    out = np.zeros(w.shape[0])
-    if m < 2:
-        return out
-    lg = np.empty(m)
-    hi = np.empty(m)
-    for i in range(m):
-        lg[i] = n * lf[i] + 2.0 * math.log(rf[i]) - math.log(vf[i])
-        if occult:
-            q = 1.0 - (Rc / rf[i]) ** 2
-            hi[i] = vf[i] * math.sqrt(q) if q > 0.0 else 0.0
-        else:
-            hi[i] = vf[i]
-    full = np.empty(m - 1)  # the whole sub-interval, computed once
-    for i in range(m - 1):
-        full[i] = _loglinear_integral(rf[i + 1] - rf[i], lg[i], lg[i + 1], 0.0, 1.0)
-    for k in range(w.shape[0]):
-        wk = w[k]
-        acc = 0.0
-        for i in range(m - 1):
-            # visible where -v(t) - w < 0 and w - w_max(t) < 0
-            t0, t1 = _clip_negative(-vf[i] - wk, -vf[i + 1] - wk, 0.0, 1.0)
-            if t1 <= t0:
-                continue
-            fa = wk - hi[i]
-            fb = wk - hi[i + 1]
-            if occult and (fa < 0.0) != (fb < 0.0):
-                # the occultation edge v sqrt(1 - (Rc/r)^2) is far from linear
-                # just outside Rc: find where it equals w on the exact curve
-                tc = _occultation_crossing(rf[i], rf[i + 1], vf[i], vf[i + 1], Rc, wk)
-                if fa < 0.0:
-                    t1 = min(t1, tc)
-                else:
-                    t0 = max(t0, tc)
-            else:
-                t0, t1 = _clip_negative(fa, fb, t0, t1)
-            if t1 <= t0:
-                continue
-            if t0 == 0.0 and t1 == 1.0:
-                acc += full[i]
-            else:
-                acc += _loglinear_integral(rf[i + 1] - rf[i], lg[i], lg[i + 1], t0, t1)
-        out[k] = TWO_PI * acc
-    return out
+    rf, vf, lf, lv = _refine(r, v, rho, Rc if occult else r[0], NSUB)
+    return _emission_flux_refined(rf, vf, lf, lv, n, Rc, occult, w)
+
+
+@njit(cache=True, error_model="numpy")
+def _emission_flux_refined(rf, vf, lf, lv, n, Rc, occult, w):
+    """:func:`emission_flux` on a grid from :func:`_refine` (started at Rc if occult)."""
+    if rf.shape[0] < 2:
+        return np.zeros(w.shape[0])
+    lg, hi, full = _emission_nodes(rf, vf, lf, lv, n, Rc, occult)
+    if nondecreasing(vf) and nondecreasing(hi):
+        return _emission_prefix(rf, vf, lg, hi, full, Rc, occult, w)
+    return _emission_loop(rf, vf, lg, hi, full, Rc, occult, w)
 
 
 @njit(cache=True, error_model="numpy")
@@ -223,6 +424,8 @@ def _escape(tau):
         return 1.0 - 0.5 * tau
     if tau == np.inf:
         return 0.0
+    if tau > TAU_SATURATED:  # 1 - exp(-tau) == 1 exactly: skip expm1
+        return 1.0 / tau
     return -math.expm1(-tau) / tau
 
 
@@ -342,13 +545,36 @@ def pcygni_flux(r, v, rho, K, Rc, occult, w):
     if m < 2:
         return out
     dv_tab = velocity_gradient(r, v)
-    # the gradient at the fine nodes, linear in r between tabulated points
     df = np.empty(m)
     rhof = np.empty(m)
     s = np.empty(m)
-    j = 0
-    for i in range(m):
-        while j < r.shape[0] - 2 and r[j + 1] < rf[i]:
+    _pcygni_nodes(r, dv_tab, rf, vf, lf, K, Rc, df, rhof, s, 0, m)
+    for k in range(w.shape[0]):
+        out[k] = _pcygni_at(w[k], 0, rf, vf, lf, df, rhof, s, K, Rc, occult)
+    return out
+
+
+@njit(cache=True, error_model="numpy")
+def _pcygni_nodes(r, dv_tab, rf, vf, lf, K, Rc, df, rhof, s, lo, hi):
+    """Fill the gradient, density and source function S/I_c at fine nodes lo..hi-1.
+
+    The gradient is linear in r between tabulated points; S / I_c =
+    beta_c / beta (:func:`escape_probabilities`), the dilution factor where
+    beta = 0.
+    """
+    n = r.shape[0]
+    # tabulated interval of node lo: the first j with r[j+1] >= rf[lo], at most n - 2
+    a = 0
+    b = n - 1
+    while a < b:
+        mid = (a + b) // 2
+        if r[mid] < rf[lo]:
+            a = mid + 1
+        else:
+            b = mid
+    j = min(max(a - 1, 0), n - 2)
+    for i in range(lo, hi):
+        while j < n - 2 and r[j + 1] < rf[i]:
             j += 1
         f = (rf[i] - r[j]) / (r[j + 1] - r[j])
         df[i] = max(0.0, dv_tab[j] + f * (dv_tab[j + 1] - dv_tab[j]))
@@ -359,68 +585,270 @@ def pcygni_flux(r, v, rho, K, Rc, occult, w):
         else:
             q = 1.0 - (Rc / rf[i]) ** 2
             s[i] = 0.5 * (1.0 - (math.sqrt(q) if q > 0.0 else 0.0))
+
+
+@njit(cache=True, error_model="numpy")
+def _pcygni_at(wk, i_first, rf, vf, lf, df, rhof, s, K, Rc, occult):
+    """F(w) / F_c at one velocity, summing the resonance surface from node i_first.
+
+    Sub-intervals before i_first must lie wholly at v <= |w| (off the
+    surface); node values df, rhof, s are needed from i_first on.
+    """
+    m = rf.shape[0]
     Rc2 = Rc * Rc
-    for k in range(w.shape[0]):
-        aw = abs(w[k])
-        front = w[k] < 0.0
-        acc = 0.0
-        have = False  # node i values valid (on the surface)
-        pa = 0.0
-        sa = 0.0
-        ga = 0.0
-        for i in range(m - 1):
-            vb = vf[i + 1]
-            if aw >= vb:
-                have = False
-                continue
-            # values at node i+1
-            mu2 = (aw / vb) ** 2
-            pb = rf[i + 1] ** 2 * (1.0 - mu2)
-            Q = mu2 * df[i + 1] + (1.0 - mu2) * vb / rf[i + 1]
-            tau = K * rhof[i + 1] / Q if Q > 0.0 else np.inf
-            gb = 1.0 if tau > TAU_SATURATED else -math.expm1(-tau)
-            sb = s[i + 1]
-            if not have:
-                # start where v(t) = |w| (p = 0), or at node i if it is already on
-                va = vf[i]
-                if aw < va:
-                    t = 0.0
-                else:
-                    t = (aw - va) / (vb - va)
-                rt = rf[i] + t * (rf[i + 1] - rf[i])
-                vt = va + t * (vb - va)
-                dt = df[i] + t * (df[i + 1] - df[i])
-                rhot = math.exp(lf[i] + t * (lf[i + 1] - lf[i]))
-                mu2 = (aw / vt) ** 2 if aw < vt else 1.0
-                pa = rt * rt * (1.0 - mu2)
-                Q = mu2 * dt + (1.0 - mu2) * vt / rt
-                tau = K * rhot / Q if Q > 0.0 else np.inf
-                ga = 1.0 if tau > TAU_SATURATED else -math.expm1(-tau)
-                sa = s[i] + t * (s[i + 1] - s[i])
-            # trapezoid in p^2 on the inner (p < Rc) and outer parts
-            if pb <= Rc2 or pa >= Rc2:
-                if pa < Rc2:  # wholly over the core
-                    if front:
-                        acc += 0.5 * ((sa - 1.0) * ga + (sb - 1.0) * gb) * (pb - pa)
-                    elif not occult:
-                        acc += 0.5 * (sa * ga + sb * gb) * (pb - pa)
-                else:
+    aw = abs(wk)
+    front = wk < 0.0
+    acc = 0.0
+    have = False  # node i values valid (on the surface)
+    pa = 0.0
+    sa = 0.0
+    ga = 0.0
+    for i in range(i_first, m - 1):
+        vb = vf[i + 1]
+        if aw >= vb:
+            have = False
+            continue
+        # values at node i+1
+        mu2 = (aw / vb) ** 2
+        pb = rf[i + 1] ** 2 * (1.0 - mu2)
+        Q = mu2 * df[i + 1] + (1.0 - mu2) * vb / rf[i + 1]
+        tau = K * rhof[i + 1] / Q if Q > 0.0 else np.inf
+        gb = 1.0 if tau > TAU_SATURATED else -math.expm1(-tau)
+        sb = s[i + 1]
+        if not have:
+            # start where v(t) = |w| (p = 0), or at node i if it is already on
+            va = vf[i]
+            if aw < va:
+                t = 0.0
+            else:
+                t = (aw - va) / (vb - va)
+            rt = rf[i] + t * (rf[i + 1] - rf[i])
+            vt = va + t * (vb - va)
+            dt = df[i] + t * (df[i + 1] - df[i])
+            rhot = math.exp(lf[i] + t * (lf[i + 1] - lf[i]))
+            mu2 = (aw / vt) ** 2 if aw < vt else 1.0
+            pa = rt * rt * (1.0 - mu2)
+            Q = mu2 * dt + (1.0 - mu2) * vt / rt
+            tau = K * rhot / Q if Q > 0.0 else np.inf
+            ga = 1.0 if tau > TAU_SATURATED else -math.expm1(-tau)
+            sa = s[i] + t * (s[i + 1] - s[i])
+        # trapezoid in p^2 on the inner (p < Rc) and outer parts
+        if pb <= Rc2 or pa >= Rc2:
+            if pa < Rc2:  # wholly over the core
+                if front:
+                    acc += 0.5 * ((sa - 1.0) * ga + (sb - 1.0) * gb) * (pb - pa)
+                elif not occult:
                     acc += 0.5 * (sa * ga + sb * gb) * (pb - pa)
             else:
-                lam = (Rc2 - pa) / (pb - pa)
-                sc = sa + lam * (sb - sa)
-                gc = ga + lam * (gb - ga)
-                if front:
-                    acc += 0.5 * ((sa - 1.0) * ga + (sc - 1.0) * gc) * (Rc2 - pa)
-                elif not occult:
-                    acc += 0.5 * (sa * ga + sc * gc) * (Rc2 - pa)
-                acc += 0.5 * (sc * gc + sb * gb) * (pb - Rc2)
-            pa = pb
-            sa = sb
-            ga = gb
-            have = True
-        out[k] = 1.0 + acc / Rc2
-    return out
+                acc += 0.5 * (sa * ga + sb * gb) * (pb - pa)
+        else:
+            lam = (Rc2 - pa) / (pb - pa)
+            sc = sa + lam * (sb - sa)
+            gc = ga + lam * (gb - ga)
+            if front:
+                acc += 0.5 * ((sa - 1.0) * ga + (sc - 1.0) * gc) * (Rc2 - pa)
+            elif not occult:
+                acc += 0.5 * (sa * ga + sc * gc) * (Rc2 - pa)
+            acc += 0.5 * (sc * gc + sb * gb) * (pb - Rc2)
+        pa = pb
+        sa = sb
+        ga = gb
+        have = True
+    return 1.0 + acc / Rc2
+
+
+@njit(cache=True, error_model="numpy")
+def _first_on_surface(vf, aw):
+    """The first sub-interval i with vf[i+1] > aw (vf non-decreasing); m - 1 if none."""
+    m = vf.shape[0]
+    a = 0
+    b = m - 1
+    while a < b:
+        mid = (a + b) // 2
+        if vf[mid + 1] > aw:
+            b = mid
+        else:
+            a = mid + 1
+    return a
+
+
+@njit(cache=True, error_model="numpy")
+def pcygni_edge(r, v, rho, K, Rc, occult, w, sigma, depth):
+    """Blue-edge velocity [cm/s] of the Sobolev P Cygni profile (nan if not reached).
+
+    Parameters
+    ----------
+    r, v, rho, K, Rc, occult
+        As for :func:`pcygni_flux`; v must be non-decreasing outside ``Rc``
+        (as :func:`monotonic_outside` makes it).
+    w : ndarray
+        The evenly spaced velocity grid [cm/s] of the profile.
+    sigma : float
+        Gaussian broadening [cm/s] (standard deviation); 0 for none.
+    depth : float
+        The absorption depth 1 - F/F_c that defines the edge.
+
+    Returns
+    -------
+    float
+        The most negative w at which 1 - F/F_c reaches ``depth``:
+
+        * ``sigma == 0``: the exact (unsampled) profile of
+          :func:`pcygni_flux` is scanned from -v_max (beyond which F = F_c
+          exactly) inward, at -v_max + g / 2^j (j = 24, ..., 1; g the
+          distance from -v_max to the first grid point inside it) and then
+          at the grid points up to w = 0 (the red side is never below the
+          continuum); the first scan point with depth >= ``depth``
+          brackets the edge with the point before it, and the crossing
+          between them is found by a safeguarded regula falsi (Illinois)
+          to 1e-9 v_max;
+        * ``sigma > 0``: the broadened profile exists only on the grid, so
+          the crossing is linearly interpolated between w_{k-1} and w_k of
+          ``gaussian_broaden(pcygni_flux(...))``, as
+          :func:`outermost_crossings` does.
+
+        nan when no grid point reaches ``depth`` (or the first one does).
+
+    Notes
+    -----
+    Same numbers as measuring the full grid profile, for a fraction of the
+    cost: the profile is evaluated only at the velocities the search needs
+    (beyond -v_max it is exactly 1), each evaluation sums only the part of
+    the resonance surface with v(r) > |w| (an outer part of the grid when v
+    is non-decreasing), and the source function at a node is computed the
+    first time a velocity reaches it.
+    """
+    rf, vf, lf = refine(r, v, rho, Rc, NSUB)
+    return _pcygni_edge_refined(rf, vf, lf, r, v, K, Rc, occult, w, sigma, depth)
+
+
+@njit(cache=True, error_model="numpy")
+def _pcygni_edge_refined(rf, vf, lf, r, v, K, Rc, occult, w, sigma, depth):
+    """:func:`pcygni_edge` on the grid of ``refine(r, v, rho, Rc, NSUB)``."""
+    m = rf.shape[0]
+    N = w.shape[0]
+    if m < 2 or N < 2:
+        return np.nan
+    dv_tab = velocity_gradient(r, v)
+    df = np.empty(m)
+    rhof = np.empty(m)
+    s = np.empty(m)
+    mono = nondecreasing(vf)
+    if mono:
+        ready = m  # nodes ready..m-1 hold df, rhof, s
+        vtop = vf[m - 1]
+    else:  # not the documented use: evaluate every node, sum from the start
+        _pcygni_nodes(r, dv_tab, rf, vf, lf, K, Rc, df, rhof, s, 0, m)
+        ready = 0
+        vtop = vf.max()
+    if sigma <= 0.0:
+        # scan from -v_max inward: first geometrically closer points in the
+        # first grid cell inside -v_max, then the grid points
+        k = 0
+        while k < N and -w[k] >= vtop:
+            k += 1
+        if k == 0 or k == N:
+            return np.nan
+        a = -vtop  # depth(-v_max) = 0 exactly
+        fa = -depth
+        gap = w[k] + vtop
+        for j in range(N_EDGE_SCAN + (N - k)):
+            if j < N_EDGE_SCAN:
+                b = -vtop + gap * 0.5 ** (N_EDGE_SCAN - j)
+                if not b > a:
+                    continue
+            else:
+                b = w[k + j - N_EDGE_SCAN]
+                if b >= 0.0:
+                    break  # the red side is at or above the continuum (emission only)
+            Fb, ready = _pcygni_lazy(b, rf, vf, lf, r, dv_tab, df, rhof, s, K, Rc, occult,
+                                     mono, ready)
+            fb = (1.0 - Fb) - depth
+            if fb >= 0.0:
+                return _edge_root(a, fa, b, fb, depth, EDGE_XTOL * vtop, rf, vf, lf, r,
+                                  dv_tab, df, rhof, s, K, Rc, occult, mono, ready)
+            a = b
+            fa = fb
+        return np.nan
+    # broadened: the grid profile, evaluated lazily, convolved point by point
+    wts = gaussian_weights(w[1] - w[0], sigma)
+    half = (wts.shape[0] - 1) // 2
+    F = np.ones(N)
+    known = np.zeros(N, dtype=np.bool_)
+    dprev = 0.0
+    for i in range(N):
+        acc = 0.0
+        for kk in range(-half, half + 1):
+            j = i - kk
+            if 0 <= j < N:
+                if not known[j]:
+                    if -w[j] < vtop:
+                        F[j], ready = _pcygni_lazy(w[j], rf, vf, lf, r, dv_tab, df, rhof, s,
+                                                   K, Rc, occult, mono, ready)
+                    known[j] = True
+                if F[j] != 1.0:
+                    acc += wts[kk + half] * (F[j] - 1.0)
+        di = 1.0 - (1.0 + acc)
+        if di >= depth:
+            if i == 0:
+                return np.nan
+            return w[i - 1] + (depth - dprev) / (di - dprev) * (w[i] - w[i - 1])
+        dprev = di
+    return np.nan
+
+
+@njit(cache=True, error_model="numpy")
+def _pcygni_lazy(wk, rf, vf, lf, r, dv_tab, df, rhof, s, K, Rc, occult, mono, ready):
+    """F(w)/F_c at one w, preparing the nodes it needs; returns (F, new ready)."""
+    if not mono:
+        return _pcygni_at(wk, 0, rf, vf, lf, df, rhof, s, K, Rc, occult), ready
+    i0 = _first_on_surface(vf, abs(wk))
+    if i0 < ready:
+        _pcygni_nodes(r, dv_tab, rf, vf, lf, K, Rc, df, rhof, s, i0, ready)
+        ready = i0
+    return _pcygni_at(wk, i0, rf, vf, lf, df, rhof, s, K, Rc, occult), ready
+
+
+@njit(cache=True, error_model="numpy")
+def _edge_root(a, fa, b, fb, depth, xtol, rf, vf, lf, r, dv_tab, df, rhof, s, K, Rc,
+               occult, mono, ready):
+    """Crossing of 1 - F(w)/F_c = depth in [a, b] (fa < 0 <= fb): Illinois regula
+    falsi, with a bisection step whenever two steps have not halved the bracket."""
+    if fb == 0.0:
+        return b
+    side = 0
+    width = b - a
+    count = 0
+    for _ in range(200):
+        if b - a <= xtol:
+            break
+        c = b - fb * (b - a) / (fb - fa)
+        count += 1
+        if count == 3:  # safeguard: the bracket must halve every two steps
+            if b - a > 0.5 * width:
+                c = 0.5 * (a + b)
+            width = b - a
+            count = 1
+        if not (a < c < b):
+            c = 0.5 * (a + b)
+        Fc, ready = _pcygni_lazy(c, rf, vf, lf, r, dv_tab, df, rhof, s, K, Rc, occult, mono,
+                                 ready)
+        fc = (1.0 - Fc) - depth
+        if fc >= 0.0:
+            b = c
+            fb = fc
+            if side == 1:
+                fa *= 0.5
+            side = 1
+            if fc == 0.0:
+                return c
+        else:
+            a = c
+            fa = fc
+            if side == -1:
+                fb *= 0.5
+            side = -1
+    return 0.5 * (a + b)
 
 
 @njit(cache=True, error_model="numpy")
@@ -470,7 +898,7 @@ def gaussian_broaden(f, dw, sigma, continuum):
         acc = 0.0
         for k in range(-half, half + 1):
             j = i - k
-            if 0 <= j < n:
+            if 0 <= j < n and f[j] != continuum:  # (skipping exact zeros changes nothing)
                 acc += wts[k + half] * (f[j] - continuum)
         out[i] = continuum + acc
     return out
@@ -498,3 +926,152 @@ def outermost_crossings(w, f, level):
     if 0 <= hi < n - 1:
         w_hi = w[hi] + (f[hi] - level) / (f[hi] - f[hi + 1]) * (w[hi + 1] - w[hi])
     return w_lo, w_hi
+
+
+# -- the pieces shared by the profiles and the widths ------------------------------
+
+GRID_MARGIN = 1.2  # the velocity grid spans this many v_max ...
+BROADENING_MARGIN = 2.0  # ... plus this many broadening FWHM (about 4.7 sigma)
+
+
+@njit(cache=True, error_model="numpy")
+def velocity_grid(v_max, fwhm, n):
+    """n evenly spaced w [cm/s] over +-(1.2 v_max + 2 fwhm) (fwhm of the broadening)."""
+    half = GRID_MARGIN * v_max + BROADENING_MARGIN * fwhm
+    return np.linspace(-half, half, n)
+
+
+@njit(cache=True, error_model="numpy")
+def emission_line(r, v, rho, n, Rc, occult, w, sigma, hwzi_fraction):
+    """The emission line on the grid w and its widths.
+
+    Returns ``(f, fwhm, hwzi, ok)``: the broadened profile f normalised to
+    peak 1, FWHM = w_+ - w_- of the outermost crossings of f = 0.5, HWZI =
+    max(-w_-, w_+) at f = ``hwzi_fraction`` (nan when a crossing is off the
+    grid), all by :func:`outermost_crossings`; ``ok`` is False (and the
+    widths nan) when the line has no flux.
+    """
+    rf, vf, lf, lv = _refine(r, v, rho, Rc if occult else r[0], NSUB)
+    return _emission_line_refined(rf, vf, lf, lv, n, Rc, occult, w, sigma, hwzi_fraction)
+
+
+@njit(cache=True, error_model="numpy")
+def _emission_line_refined(rf, vf, lf, lv, n, Rc, occult, w, sigma, hwzi_fraction):
+    """:func:`emission_line` on a grid from :func:`_refine`."""
+    F = _emission_flux_refined(rf, vf, lf, lv, n, Rc, occult, w)
+    F = gaussian_broaden(F, w[1] - w[0], sigma, 0.0)
+    peak = F.max()
+    if not peak > 0.0:
+        return F, np.nan, np.nan, False
+    f = F / peak
+    lo, hi = outermost_crossings(w, f, 0.5)
+    zlo, zhi = outermost_crossings(w, f, hwzi_fraction)
+    hwzi = np.nan if (np.isnan(zlo) or np.isnan(zhi)) else max(-zlo, zhi)
+    return f, hi - lo, hwzi, True
+
+
+@njit(cache=True, error_model="numpy")
+def monotonic_outside(r, v, Rc, rtol):
+    """v with outward falls below rtol * max(v) outside Rc removed (running maximum).
+
+    Returns ``(v_clean, i0, k)``: the tail from tabulated point i0 (the
+    interval holding Rc) is replaced by its running maximum; k = -1, or the
+    index into the tail of the first point that falls by more than
+    rtol * max(v) below the running maximum (then v(r) really falls outward).
+    """
+    n = r.shape[0]
+    a = 0
+    b = n
+    while a < b:  # searchsorted(r, Rc, side="right")
+        mid = (a + b) // 2
+        if r[mid] <= Rc:
+            a = mid + 1
+        else:
+            b = mid
+    i0 = max(a - 1, 0)
+    tol = rtol * v.max()
+    out = v.copy()
+    running = v[i0]
+    for i in range(i0, n):
+        if v[i] > running:
+            running = v[i]
+        if running - v[i] > tol:
+            return out, i0, i - i0
+        out[i] = running
+    return out, i0, -1
+
+
+@njit(cache=True, error_model="numpy")
+def sobolev_strength(r, v, rho, Rc, k0):
+    """K = k0 v_max / (Rc rho_ref), rho_ref = median(r^2 rho v) / (Rc^2 v_max).
+
+    The line strength of :func:`sobolev_tau` for the dimensionless k0 of
+    :mod:`windsolve.lines` (radially tau = k0 / (x^2 w dw/dx) in a steady wind).
+    """
+    v_max = v.max()
+    rho_ref = np.median(r * r * rho * v) / (Rc * Rc * v_max)
+    return k0 * v_max / (Rc * rho_ref)
+
+
+@njit(cache=True, error_model="numpy")
+def optical_core_radius(r, rho, kappa):
+    """Radius where tau = integral of kappa rho dr from the outer end reaches 2/3; nan if
+    tau(r[0]) <= 2/3.  Trapezoid sum from outside inward, linear interpolation in r."""
+    n = r.shape[0]
+    tau = np.empty(n)
+    tau[n - 1] = 0.0
+    acc = 0.0
+    for i in range(n - 2, -1, -1):
+        acc += 0.5 * (kappa[i + 1] * rho[i + 1] + kappa[i] * rho[i]) * (r[i + 1] - r[i])
+        tau[i] = acc
+    target = 2.0 / 3.0
+    if not tau[0] > target:
+        return np.nan
+    i = n - 1
+    while not tau[i] >= target:
+        i -= 1
+    t0 = tau[i]
+    t1 = tau[i + 1]
+    return r[i] + (t0 - target) / (t0 - t1) * (r[i + 1] - r[i])
+
+
+@njit(cache=True, error_model="numpy")
+def line_widths(r, v, rho, Rc, n, occult, fwhm, sigma, hwzi_fraction, edge_depth, k0,
+                n_velocity, rtol):
+    """(FWHM, HWZI, blue-edge velocity) [cm/s] of one profile, nan where not measurable.
+
+    The whole of :func:`windsolve.lines.line_widths` after units: the grid of
+    :func:`velocity_grid`; the emission line of :func:`emission_line` (nan
+    widths when ``occult`` and Rc >= r[-1], or no flux); the P Cygni edge of
+    :func:`pcygni_edge` with K from :func:`sobolev_strength`, nan when
+    Rc >= r[-1] or v(r) falls outward outside Rc (:func:`monotonic_outside`).
+    """
+    w = velocity_grid(v.max(), fwhm, n_velocity)
+    outside = Rc < r[r.shape[0] - 1]
+    e_fwhm = np.nan
+    e_hwzi = np.nan
+    # the sub-divided grid from Rc, shared by both lines when they start there
+    rf, vf, lf, lv = _refine(r, v, rho, Rc, NSUB)
+    if occult:
+        if outside:
+            _, e_fwhm, e_hwzi, _ = _emission_line_refined(rf, vf, lf, lv, n, Rc, occult, w,
+                                                          sigma, hwzi_fraction)
+    else:
+        _, e_fwhm, e_hwzi, _ = emission_line(r, v, rho, n, Rc, occult, w, sigma,
+                                             hwzi_fraction)
+    edge = np.nan
+    if outside:
+        vc, i0, bad = monotonic_outside(r, v, Rc, rtol)
+        if bad < 0:
+            K = sobolev_strength(r, vc, rho, Rc, k0)
+            same = True  # v was already non-decreasing: the shared grid is the same
+            for i in range(i0, r.shape[0]):
+                if vc[i] != v[i]:
+                    same = False
+                    break
+            if same:
+                edge = _pcygni_edge_refined(rf, vf, lf, r, vc, K, Rc, occult, w, sigma,
+                                            edge_depth)
+            else:
+                edge = pcygni_edge(r, vc, rho, K, Rc, occult, w, sigma, edge_depth)
+    return e_fwhm, e_hwzi, edge

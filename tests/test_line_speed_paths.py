@@ -1,0 +1,245 @@
+"""The fast paths of the line widths agree with the slow, general computations.
+
+(f) internal consistency: the suffix-sum emission kernel against the general
+loop, the lazily evaluated P Cygni blue edge against a dense sampling of the
+full Sobolev profile, and the cgs entry point of sweep workers against
+``line_widths``.
+"""
+
+import math
+import pathlib
+
+import astropy.units as u
+import numpy as np
+import pytest
+
+import windsolve
+from windsolve import lines
+from windsolve.core import lines as kernels
+
+KM_S = u.km / u.s
+R = 7e11  # cm
+V_INF = 1e8  # cm/s
+CONFIGS = pathlib.Path(__file__).parent.parent / "configs"
+
+
+@pytest.fixture(scope="module")
+def demo():
+    return windsolve.solve(windsolve.load_model(windsolve.demo_model_path()))
+
+
+def demo_arrays(result):
+    r, v, rho = lines._read_profile(result, "test")
+    return r, v, rho, lines._core_radius(result, None, r, "test")
+
+
+def beta_law(beta=1.0, n=300, outer=100.0):
+    """v = v_inf (1 - 0.99 R / r)^beta, rho from continuity."""
+    r = R * np.geomspace(1.0, outer, n)
+    v = V_INF * (1.0 - 0.99 * R / r) ** beta
+    return r, v, 1e-12 * (R / r) ** 2 * (V_INF / v)
+
+
+def exponential_base(n=250):
+    """A nearly hydrostatic base (v grows exponentially) joining a beta law: the demo's
+    shape, where the dense slow gas dominates an optically thin line."""
+    r = R * np.geomspace(1.0, 30.0, n)
+    v = 1e5 * np.exp((r / R - 1.0) / 0.05)
+    v = np.minimum(v, V_INF * (1.0 - 0.99 * R / r) ** 0.8)
+    v = np.maximum.accumulate(v)
+    return r, v, 1e-9 * (R / r) ** 2 * (v[0] / v)
+
+
+SYNTHETIC = {"beta1": beta_law(), "beta3": beta_law(3.0), "base": exponential_base()}
+
+
+# -- emission: suffix sums == the general loop -----------------------------------------
+
+def _compare_emission(r, v, rho, Rc):
+    w = np.linspace(-1.2, 1.2, 401) * v.max()
+    for occult in (True, False):
+        for n in (1.0, 2.0):
+            slow = kernels.emission_flux_general(r, v, rho, n, Rc, occult, w)
+            fast = kernels.emission_flux_monotonic(r, v, rho, n, Rc, occult, w)
+            np.testing.assert_allclose(fast, slow, rtol=1e-10, atol=1e-10 * slow.max())
+            assert slow.max() > 0
+            # the dispatcher takes the fast path here and gives the same numbers
+            np.testing.assert_array_equal(kernels.emission_flux(r, v, rho, n, Rc, occult, w),
+                                          fast)
+
+
+def test_fast_emission_equals_general_loop_on_the_demo(demo):
+    r, v, rho, Rc = demo_arrays(demo)
+    assert r[0] < Rc < r[-1]  # an occulting core inside the grid
+    _compare_emission(r, v, rho, Rc)
+
+
+@pytest.mark.parametrize("name", sorted(SYNTHETIC))
+@pytest.mark.parametrize("core", [1.0, 1.37, 8.2])
+def test_fast_emission_equals_general_loop_on_synthetic_winds(name, core):
+    r, v, rho = SYNTHETIC[name]
+    _compare_emission(r, v, rho, core * R)
+
+
+def test_emission_falls_back_to_the_general_loop_when_v_falls_outward():
+    # A decelerating outer wind: the seen region at w is no longer one outer
+    # part of the grid, so the suffix sums are wrong there and the dispatcher
+    # must use the general loop.
+    r, v, rho = beta_law()
+    v = v * np.where(r > 5 * R, (5 * R / r) ** 0.8, 1.0)
+    w = np.linspace(-1.2, 1.2, 401) * v.max()
+    slow = kernels.emission_flux_general(r, v, rho, 2.0, R, True, w)
+    np.testing.assert_array_equal(kernels.emission_flux(r, v, rho, 2.0, R, True, w), slow)
+    wrong = kernels.emission_flux_monotonic(r, v, rho, 2.0, R, True, w)
+    assert np.max(np.abs(wrong - slow)) > 1e-3 * slow.max()
+
+
+def test_occultation_root_finds_the_bisection_crossing():
+    # The Newton root of v^2 (x^2 - 1) = w^2 x^2 is the crossing of
+    # v sqrt(1 - (Rc/r)^2) = w that the general loop finds by bisection,
+    # including the first sub-interval, which starts on the core (infinite slope).
+    rng = np.random.default_rng(3)
+    Rc = 1e12
+    for ra_over in (1.0, 1.0 + 1e-9, 1.01, 1.5, 20.0):
+        for _ in range(20):
+            ra = ra_over * Rc
+            rb = ra * (1.0 + rng.uniform(1e-4, 0.3))
+            va, vb = np.sort(rng.uniform(1e6, 1e8, 2))
+            edge = lambda r, v: v * math.sqrt(max(1.0 - (Rc / r) ** 2, 0.0))  # noqa: E731
+            wk = rng.uniform(edge(ra, va), edge(rb, vb))
+            t_bis = kernels._occultation_crossing(ra, rb, va, vb, Rc, wk)
+            t_new = kernels._occultation_root(ra, rb, va, vb, Rc, wk, 0.5)
+            assert abs(t_new - t_bis) < 1e-12
+
+
+# -- P Cygni: the lazy edge == a dense sampling of the full profile ----------------------
+
+def _grid_edge(r, v, rho, K, Rc, n_w, sigma=0.0, depth=0.1, half=None):
+    half = 1.2 * v.max() if half is None else half
+    w = np.linspace(-half, half, n_w)
+    F = kernels.gaussian_broaden(kernels.pcygni_flux(r, v, rho, K, Rc, True, w), w[1] - w[0],
+                                 sigma, 1.0)
+    return kernels.outermost_crossings(w, 1.0 - F, depth)[0], w
+
+
+@pytest.mark.parametrize("source", ["demo", "beta1", "beta3"])
+@pytest.mark.parametrize("k0", [100.0, 1.0])
+def test_exact_edge_agrees_with_a_dense_grid(demo, source, k0):
+    # The edge found on the exact profile must agree with the linearly
+    # interpolated crossing on a 40,001-point grid to within 1.5 of its steps
+    # (linear interpolation misplaces a crossing by less than one step).
+    if source == "demo":
+        r, v, rho, Rc = demo_arrays(demo)
+    else:
+        (r, v, rho), Rc = SYNTHETIC[source], R
+    K = kernels.sobolev_strength(r, v, rho, Rc, k0)
+    dense, wd = _grid_edge(r, v, rho, K, Rc, 40001)
+    w = np.linspace(-1.2, 1.2, 401) * v.max()
+    fast = kernels.pcygni_edge(r, v, rho, K, Rc, True, w, 0.0, 0.1)
+    assert np.isfinite(dense)
+    assert abs(fast - dense) <= 1.5 * (wd[1] - wd[0])
+    # beyond the fastest gas nothing absorbs: F = F_c for w < -v_max
+    # (Lamers & Cassinelli 1999, ch. 8, from memory), so the exact edge lies inside it
+    assert -v.max() < fast < 0
+
+
+def test_exact_edge_is_a_crossing_of_the_profile(demo):
+    # 1 - F/F_c reaches edge_depth at the edge, and not just outside it.
+    r, v, rho, Rc = demo_arrays(demo)
+    K = kernels.sobolev_strength(r, v, rho, Rc, 100.0)
+    w = np.linspace(-1.2, 1.2, 401) * v.max()
+    for depth in (0.1, 0.5):
+        edge = kernels.pcygni_edge(r, v, rho, K, Rc, True, w, 0.0, depth)
+        tol = 1e-8 * v.max()
+        F = kernels.pcygni_flux(r, v, rho, K, Rc, True, np.array([edge - tol, edge + tol]))
+        assert 1.0 - F[0] < depth <= 1.0 - F[1]
+
+
+@pytest.mark.parametrize("fwhm_kms", [0.05, 20.0, 60.0])
+def test_broadened_edge_equals_the_grid_measurement(demo, fwhm_kms):
+    # With broadening the edge is measured on the broadened grid profile:
+    # the lazy evaluation must give exactly the number of the full profile.
+    r, v, rho, Rc = demo_arrays(demo)
+    K = kernels.sobolev_strength(r, v, rho, Rc, 30.0)
+    fwhm = fwhm_kms * 1e5
+    sigma = fwhm / lines.FWHM_PER_SIGMA
+    w = kernels.velocity_grid(v.max(), fwhm, 401)
+    grid, _ = _grid_edge(r, v, rho, K, Rc, 401, sigma, half=w[-1])
+    fast = kernels.pcygni_edge(r, v, rho, K, Rc, True, w, sigma, 0.1)
+    assert np.isfinite(grid) and fast == grid
+
+
+def test_weak_line_has_no_edge():
+    # A trough shallower than edge_depth everywhere: nan, as on the grid.
+    r, v, rho = beta_law()
+    K = kernels.sobolev_strength(r, v, rho, R, 1e-3)
+    w = np.linspace(-1.2, 1.2, 401) * v.max()
+    grid, _ = _grid_edge(r, v, rho, K, R, 401)
+    assert np.isnan(grid)
+    assert np.isnan(kernels.pcygni_edge(r, v, rho, K, R, True, w, 0.0, 0.1))
+    F = kernels.pcygni_flux(r, v, rho, K, R, True, w)
+    assert 0.0 < np.max(1.0 - F) < 0.1  # there is a trough, just a shallow one
+
+
+# -- one implementation: widths_cgs == line_widths == the profiles -------------------------
+
+@pytest.mark.parametrize("kwargs", [{}, {"turbulence": "20 km/s", "resolution": 5000},
+                                    {"emissivity_power": 1, "occultation": False},
+                                    {"line_strength": 2.0, "edge_depth": 0.3}])
+def test_widths_cgs_equals_line_widths_and_the_profiles(demo, kwargs):
+    settings = lines.LineSettings(**kwargs)
+    r, v, rho, Rc = demo_arrays(demo)
+    got = lines.widths_cgs(r, v, rho, settings, Rc)
+    assert got == lines.widths_cgs(r, v, rho, settings.cgs, Rc)
+    widths = lines.line_widths(demo, settings)
+    em = lines.emission_profile(demo, settings)
+    pc = lines.pcygni_profile(demo, settings)
+    for value, key, profile in zip(got, ("fwhm", "hwzi", "edge_velocity"), (em, em, pc),
+                                     strict=True):
+        assert np.isfinite(value)
+        assert widths[key].to_value(u.cm / u.s) == pytest.approx(value, rel=1e-15)
+        assert getattr(profile, key).to_value(u.cm / u.s) == pytest.approx(value, rel=1e-15)
+
+
+def test_widths_cgs_of_model_b_with_its_thin_flow():
+    # The caller appends the thin flow (here: as line_widths does); the edge
+    # is nan because that flow decelerates, as line_widths says.
+    result = windsolve.solve(windsolve.load_model(CONFIGS / "bump_wind.toml"))
+    r, v, rho, Rc = demo_arrays(result)
+    fwhm, hwzi, edge = lines.widths_cgs(r, v, rho, lines.LineSettings(), Rc)
+    widths = lines.line_widths(result)
+    assert fwhm == widths["fwhm"].to_value(u.cm / u.s) and np.isfinite(fwhm)
+    assert hwzi == widths["hwzi"].to_value(u.cm / u.s)
+    assert np.isnan(edge) and np.isnan(widths["edge_velocity"].value)
+    # no gas outside the core: all nan
+    assert all(np.isnan(x) for x in lines.widths_cgs(r, v, rho, lines.LineSettings(),
+                                                     2 * r[-1]))
+
+
+def test_settings_cgs_are_computed_once_in_cgs():
+    # FWHM in quadrature (common practice), sigma = FWHM / 2 sqrt(2 ln 2) (definition).
+    s = lines.LineSettings(turbulence="30 km/s", resolution="40 km/s", emissivity_power=1)
+    c = s.cgs
+    assert c is s.cgs
+    assert math.isclose(c.broadening_fwhm, 50e5, rel_tol=1e-12)
+    assert math.isclose(c.broadening_sigma, 50e5 / (2 * math.sqrt(2 * math.log(2))),
+                        rel_tol=1e-12)
+    assert (c.emissivity_power, c.occultation, c.n_velocity) == (1.0, True, 401)
+    with pytest.raises(windsolve.errors.ModelError, match="LineSettings"):
+        lines.widths_cgs(np.ones(3), np.ones(3), np.ones(3), {"turbulence": 0}, 1.0)
+
+
+def test_optical_core_radius_cgs(demo):
+    # tau = int kappa rho dr from outside reaches 2/3 (the usual photosphere
+    # definition, common practice): a trapezoid sum recomputed here; None when thin.
+    p = demo.profile
+    r = p["radius"].to_value(u.cm)
+    rho = p["density"].to_value(u.g / u.cm**3)
+    kappa = p["opacity"].to_value(u.cm**2 / u.g)
+    seg = 0.5 * (kappa[1:] * rho[1:] + kappa[:-1] * rho[:-1]) * np.diff(r)
+    tau = np.concatenate([np.cumsum(seg[::-1])[::-1], [0.0]])
+    expected = np.interp(2 / 3, tau[::-1], r[::-1])
+    got = lines.optical_core_radius_cgs(r, rho, kappa)
+    assert math.isclose(got, expected, rel_tol=1e-12)
+    assert got == lines._optical_core(demo)
+    assert lines.optical_core_radius_cgs(r, rho * 1e-30, kappa) is None
