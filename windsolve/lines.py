@@ -483,11 +483,17 @@ def _optical_core(result):
     base.  Uses the profile's own opacity; None if the whole profile is
     optically thin (tau(R0) < 2/3).  See :func:`optical_core_radius_cgs`.
     """
+    arrays = _optical_arrays(result)
+    return None if arrays is None else optical_core_radius_cgs(*arrays)
+
+
+def _optical_arrays(result):
+    """(radius, density, opacity) of a result's profile in cgs, or None without opacity."""
     p = result.profile
     if "opacity" not in p or "density" not in p:
         return None
-    return optical_core_radius_cgs(*(_values_in(p[key], PROFILE_UNITS[key])
-                                     for key in ("radius", "density", "opacity")))
+    return tuple(_values_in(p[key], PROFILE_UNITS[key]) for key in ("radius", "density",
+                                                                    "opacity"))
 
 
 def _core_radius(source, core_radius, r, what):
@@ -500,18 +506,33 @@ def _core_radius(source, core_radius, r, what):
             raise ModelError(f"{what}: core_radius = {q:g} must be > 0")
         return float(q.value)
     if isinstance(source, WindResult):
-        q = source.summary.get("photosphere_radius")
-        if q is not None and np.isfinite(q.value):
-            return float(q.to_value(u.cm))
-        rc = _optical_core(source)
+        def cgs(q):
+            return float(q.to_value(u.cm)) if isinstance(q, u.Quantity) else math.nan
+        return default_core_radius_cgs(
+            r, _optical_arrays(source), cgs(source.summary.get("photosphere_radius")),
+            cgs(getattr(source.model, "radius", None)), cgs(source.summary.get("base_radius")))
+    return float(r[0])
+
+
+def default_core_radius_cgs(r, optical, photosphere_radius, model_radius, base_radius):
+    """The default R_c [cm] of a solved wind (rules of :func:`line_widths`).
+
+    The photosphere when finite (Model B); else the tau = 2/3 radius of
+    ``optical`` = (radius, density, opacity) arrays of the profile (Model A,
+    :func:`optical_core_radius_cgs`; None to skip); else the model's radius;
+    else ``base_radius``; else r[0].  Plain floats (NaN = absent), for sweep
+    workers as well as :func:`line_widths`.
+    """
+    if math.isfinite(photosphere_radius):
+        return photosphere_radius
+    if optical is not None:
+        rc = optical_core_radius_cgs(*optical)
         if rc is not None:
             return rc
-        R0 = getattr(source.model, "radius", None)
-        if isinstance(R0, u.Quantity):
-            return float(R0.to_value(u.cm))
-        q = source.summary.get("base_radius")
-        if q is not None and np.isfinite(q.value):
-            return float(q.to_value(u.cm))
+    if math.isfinite(model_radius):
+        return model_radius
+    if math.isfinite(base_radius):
+        return base_radius
     return float(r[0])
 
 

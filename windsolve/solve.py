@@ -12,7 +12,7 @@ import numpy as np
 
 from .core import isothermal as K
 from .core.critical import KIND_NAMES
-from .result import PROFILE_UNITS, WindResult
+from .result import PROFILE_UNITS, SUMMARY_UNITS, WindResult
 
 __all__ = ["solve", "SOLVERS"]
 
@@ -69,21 +69,32 @@ def _isothermal_failure(code, model):
                       f"numerics.rtol")
 
 
-def solve_isothermal(model, profile=True):
-    """Solve Model A (:class:`~windsolve.models.IsothermalWind`)."""
+def solve_isothermal_cgs(model, profile=True, critical=True):
+    """Model A in plain cgs floats: what :func:`solve_isothermal` wraps in units.
+
+    Returns a dict with ``converged``, ``status``, ``message``, ``summary``
+    (floats in the cgs units of :data:`~windsolve.result.SUMMARY_UNITS`),
+    ``profile`` (float arrays in those of ``PROFILE_UNITS``; empty without
+    ``profile``), ``critical`` (the critical points, only with
+    ``critical``) and ``counters``.  Sweep workers use it directly, so that
+    a model's row costs no unit handling.
+    """
     t0 = time.perf_counter()
     P, O = model.kernel_arrays
     rtol = model.rtol
     code, ln_mdot, rc, slope, shots, reason = K.solve(P, O, rtol, DELTA)
     R0 = model.cgs("radius")
+    nan = math.nan
     summary = {
-        "mass_loss_rate": np.nan * G_S,
-        "terminal_velocity": np.nan * CM_S,
-        "sonic_radius": np.nan * u.cm,
-        "sonic_velocity": model.a * CM_S,
-        "outer_radius": model.outer_radius.to(u.cm),
-        "base_eddington_factor": K.base_eddington_factor(P, O) * u.one,
+        "mass_loss_rate": nan,
+        "terminal_velocity": nan,
+        "sonic_radius": nan,
+        "sonic_velocity": model.a,
+        "outer_radius": model.cgs("outer_radius"),
+        "base_eddington_factor": K.base_eddington_factor(P, O),
     }
+    out = {"converged": False, "summary": summary, "profile": {}, "critical": [],
+           "counters": {"shots": int(shots)}}
     if code != K.OK:
         if code in (K.NO_CRITICAL_POINT_BOUND, K.NO_CRITICAL_POINT_UNBOUND):
             # The search met no saddle; say so more precisely when some
@@ -93,9 +104,9 @@ def solve_isothermal(model, profile=True):
             K.survey(P, O, x_max - K.LN_RANGE, x_max, codes)
             if np.any(codes == K.NO_SADDLE):
                 code = K.NO_SADDLE
-        status, message = _isothermal_failure(code, model)
-        return WindResult(model, False, status, message, summary,
-                          counters={"shots": int(shots), "seconds": time.perf_counter() - t0})
+        out["status"], out["message"] = _isothermal_failure(code, model)
+        out["counters"]["seconds"] = time.perf_counter() - t0
+        return out
     if profile:
         st_in, st_out, r, v = K.profile(ln_mdot, P, O, rtol, DELTA, MAX_STEP, CAPACITY)
     else:  # the outer end only (sweeps): no stored profile
@@ -105,59 +116,66 @@ def solve_isothermal(model, profile=True):
         v = np.array([math.exp(ln_mdot) / (FOUR_PI * R0**2 * model.cgs("base_density")),
                       v_end])
     rho, L, kappa, gamma = K.profile_quantities(ln_mdot, r, v, P, O)
-    mdot = math.exp(ln_mdot)
-    summary["mass_loss_rate"] = mdot * G_S
-    summary["sonic_radius"] = rc * u.cm
-    summary["base_eddington_factor"] = gamma[0] * u.one
-    profile = {} if not profile else {
-        "radius": r << u.cm,
-        "velocity": v << CM_S,
-        "density": rho << G_CM3,
-        "temperature": np.full_like(r, model.T) << u.K,
-        "luminosity": L << ERG_S,
-        "opacity": kappa << CM2_G,
-        "eddington_factor": gamma << u.one,
-    }
-    Q = K.set_mass_loss_rate(P, ln_mdot)
-    cr = np.empty(64)
-    ck = np.empty(64, dtype=np.int64)
-    cpp = np.empty(64)
-    cpm = np.empty(64)
-    n = K.critical_points(Q, O, cr, ck, cpp, cpm)
-    critical = [{"radius": float(cr[i]), "kind": KIND_NAMES[int(ck[i])],
-                 "slope_plus": float(cpp[i]), "slope_minus": float(cpm[i])} for i in range(n)]
+    summary["mass_loss_rate"] = math.exp(ln_mdot)
+    summary["sonic_radius"] = rc
+    summary["base_eddington_factor"] = float(gamma[0])
+    if profile:
+        out["profile"] = {"radius": r, "velocity": v, "density": rho,
+                          "temperature": np.full_like(r, model.T), "luminosity": L,
+                          "opacity": kappa, "eddington_factor": gamma}
+    if critical:
+        Q = K.set_mass_loss_rate(P, ln_mdot)
+        cr = np.empty(64)
+        ck = np.empty(64, dtype=np.int64)
+        cpp = np.empty(64)
+        cpm = np.empty(64)
+        n = K.critical_points(Q, O, cr, ck, cpp, cpm)
+        out["critical"] = [{"radius": float(cr[i]), "kind": KIND_NAMES[int(ck[i])],
+                            "slope_plus": float(cpp[i]), "slope_minus": float(cpm[i])}
+                           for i in range(n)]
     r_end = r[-1] / R0
+    converged = False
     if st_in != K.OK:
         # The shooting reached R0 with this Mdot; a profile that does not is
         # an integration problem, not physics: say so rather than guess.
-        converged, status = False, "failed"
+        status = "failed"
         message = ("the stored inward profile did not reach R0 although the shooting "
                    "did; tighten numerics.rtol")
     elif st_out == K.OK:
         converged, status = True, "converged"
-        summary["terminal_velocity"] = v[-1] * CM_S
+        summary["terminal_velocity"] = float(v[-1])
         message = (f"converged: transonic solution through the saddle at "
                    f"r_c = {rc / R0:.5g} R0")
     elif st_out == K.STALLED:
-        converged, status = False, "stalled"
+        status = "stalled"
         message = (f"photon tiring uses up the luminosity at r = {r_end:.5g} R0: the flow "
                    f"stalls there and does not reach the outer radius")
     elif st_out == K.LEFT_TABLE:
-        converged, status = False, "off_table"
+        status = "off_table"
         message = (f"the outward solution leaves the opacity table at r = {r_end:.5g} R0 "
                    f"(rho = {rho[-1]:.4g} g/cm3, T = {model.T:.4g} K); extend the table or "
                    f"set [opacity] clamp = true")
     elif st_out == K.OUTWARD_SINGULAR:
-        converged, status = False, "second_singular_point"
+        status = "second_singular_point"
         message = (f"the supersonic solution falls back to the sound speed at "
                    f"r = {r_end:.5g} R0 (a second singular point, N != 0); the profile "
                    f"ends there")
     else:
-        converged, status = False, "failed"
+        status = "failed"
         message = f"the outward integration failed at r = {r_end:.5g} R0"
-    seconds = time.perf_counter() - t0
-    return WindResult(model, converged, status, message, summary, profile, critical,
-                      {"shots": int(shots), "seconds": seconds})
+    out.update(converged=converged, status=status, message=message)
+    out["counters"]["seconds"] = time.perf_counter() - t0
+    return out
+
+
+def solve_isothermal(model, profile=True):
+    """Solve Model A (:class:`~windsolve.models.IsothermalWind`)."""
+    raw = solve_isothermal_cgs(model, profile)
+    summary = {key: value * SUMMARY_UNITS[key] for key, value in raw["summary"].items()}
+    summary["outer_radius"] = model.outer_radius.to(u.cm)
+    prof = {key: a << PROFILE_UNITS[key] for key, a in raw["profile"].items()}
+    return WindResult(model, raw["converged"], raw["status"], raw["message"], summary,
+                      prof, raw["critical"], raw["counters"])
 
 
 def _diffusion_failure_result(model, summary, code, text, t0):
@@ -288,8 +306,9 @@ def solve(model, profile=True):
         ``IsothermalWind(...)``.
     profile : bool
         Store the profiles (default).  Sweeps that only need the summary
-        pass False, which skips the stored, step-limited integration; the
-        summary values agree to the integration tolerance.
+        pass False, which skips the stored profile (Model A: the second
+        inward integration and the dense output); the summary values agree
+        to the integration tolerance.
 
     Returns
     -------

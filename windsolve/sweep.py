@@ -406,6 +406,36 @@ def _in_unit(q, unit):
     return float(q.value) * hit[2]
 
 
+def _isothermal_row(model, record, observables):
+    """Fill a sweep row of a Model A model from the cgs solver (no units on the way).
+
+    The same numbers as ``solve(model)`` and ``line_widths`` give: the
+    summary in the cgs units of SUMMARY_UNITS, the widths from the same
+    arrays and core radius (:func:`windsolve.lines.default_core_radius_cgs`).
+    """
+    from .solve import solve_isothermal_cgs
+
+    raw = solve_isothermal_cgs(model, profile=observables is not None, critical=False)
+    record["converged"] = raw["converged"]
+    record["status"] = raw["status"]
+    record["message"] = raw["message"]
+    summary = raw["summary"]
+    for key in SUMMARY_COLUMNS:
+        record[key] = summary.get(key, math.nan)
+    if observables is None:
+        return
+    for name in WIDTH_COLUMNS:
+        record[name] = math.nan
+    if raw["converged"]:
+        from .lines import default_core_radius_cgs, widths_cgs
+        p = raw["profile"]
+        r, v, rho = p["radius"], p["velocity"], p["density"]
+        Rc = default_core_radius_cgs(r, (r, rho, p["opacity"]), math.nan,
+                                     model.cgs("radius"), math.nan)
+        record["fwhm"], record["hwzi"], record["edge_velocity"] = widths_cgs(
+            r, v, rho, _line_settings(observables), Rc)
+
+
 _SETTINGS_CACHE = []  # [(observables, LineSettings)] of the last sweep seen
 
 
@@ -441,8 +471,14 @@ def run_batch(base, items, profiles=False, observables=None):
             if base_key not in _BASE_CACHE:  # parse the base once per worker
                 _BASE_CACHE.clear()
                 _BASE_CACHE[base_key] = model_from_dict(base, source="sweep base")
-            result = solve(apply_changes(_BASE_CACHE[base_key], changes),
-                           profile=profiles or observables is not None)
+            model = apply_changes(_BASE_CACHE[base_key], changes)
+            if model.kind == "isothermal" and not profiles:
+                # Model A without stored profiles: plain floats all the way.
+                _isothermal_row(model, record, observables)
+                record["seconds"] = time.perf_counter() - t0
+                out.append(record)
+                continue
+            result = solve(model, profile=profiles or observables is not None)
             record["converged"] = bool(result.converged)
             record["status"] = result.status
             record["message"] = result.message
