@@ -12,7 +12,12 @@ from numba import njit
 from scipy.integrate._ivp import dop853_coefficients as scipy_dop853
 
 from windsolve.core import _dop853_tableau as T
-from windsolve.core.integrate import REACHED_END, STEP_TOO_SMALL, make_integrator
+from windsolve.core.integrate import (
+    REACHED_END,
+    STEP_TOO_SMALL,
+    make_integrator,
+    make_scalar_integrator,
+)
 
 
 def test_tableau_matches_scipy():
@@ -121,3 +126,40 @@ def test_dense_output_between_steps(direction):
     assert n_steps < 200 and n > 1000  # the grid did not shorten the steps
     err = np.abs(ys[:, 0] - np.cos(w * xs)) / (rtol + rtol * np.abs(np.cos(w * xs)))
     assert err.max() < 300
+
+
+@njit
+def _decay(x, y, P, O, dydx):
+    dydx[0] = -P[0] * y[0] * (1.0 + math.sin(x))
+
+
+@njit
+def _decay_scalar(x, y, P, O):
+    return -P[0] * y * (1.0 + math.sin(x))
+
+
+@njit
+def _never_scalar(x, y, P, O):
+    return 0
+
+
+decay = make_integrator(_decay, _never)
+decay_scalar = make_scalar_integrator(_decay_scalar, _never_scalar)
+
+
+@pytest.mark.parametrize("dx_out", [0.0, 0.05])
+def test_scalar_integrator_matches_general_one(dx_out):
+    # The one-equation specialisation is the same method: the same steps and
+    # values to rounding, stored points included; and both match the exact
+    # y = exp(-k (x + 1 - cos x)).
+    P = np.array([0.7])
+    n = 2000
+    xs, ys = np.empty(n), np.empty((n, 1))
+    xs1, ys1 = np.empty(n), np.empty(n)
+    a = decay(0.0, np.array([1.0]), 6.0, P, P, 1e-9, 1e-12, 1e-4, np.inf, xs, ys, dx_out)
+    b = decay_scalar(0.0, 1.0, 6.0, P, P, 1e-9, 1e-12, 1e-4, np.inf, xs1, ys1, dx_out)
+    assert a[0] == b[0] == REACHED_END and a[3] == b[3] and a[4] == b[4]
+    np.testing.assert_array_equal(xs[:a[3]], xs1[:b[3]])
+    np.testing.assert_allclose(ys[:a[3], 0], ys1[:b[3]], rtol=1e-14, atol=0)
+    exact = np.exp(-0.7 * (xs1[:b[3]] + 1.0 - np.cos(xs1[:b[3]])))
+    assert np.max(np.abs(ys1[:b[3]] / exact - 1.0)) < 1e-7

@@ -270,9 +270,9 @@ def test_second_singular_point_detected_by_monitor():
     P, O = model.kernel_arrays
     Q = K.set_mass_loss_rate(P, math.log(1e10))
     r_inside = 0.5 * rc  # N(r, a) < 0 inside r_c for the Parker wind
-    y = np.array([math.log(a * 1.0001)])
+    y = math.log(a * 1.0001)
     assert K.monitor_outward(math.log(r_inside), y, Q, O) == K.STOP_SINGULAR
-    y = np.array([math.log(a * 1.1)])
+    y = math.log(a * 1.1)
     assert K.monitor_outward(math.log(r_inside), y, Q, O) == 0
 
 

@@ -76,6 +76,29 @@ def error_norm(K, h, y, y_new, rtol, atol):
 
 
 @njit(cache=True, error_model="numpy")
+def next_step(en, h_abs, rejected):
+    """Step-size control after a trial step with error norm ``en``.
+
+    Returns ``(h_abs, accepted, rejected)``: the next step size, whether the
+    trial step is accepted, and whether a step has been rejected since the
+    last accepted one (then the step may not grow; Hairer, Norsett & Wanner
+    1993, II.4).  A non-finite norm (e.g. a stage across a singular point)
+    is an infinitely bad step.
+    """
+    if not math.isfinite(en):
+        return h_abs * MIN_FACTOR, False, True
+    if en < 1.0:
+        if en == 0.0:
+            factor = MAX_FACTOR
+        else:
+            factor = min(MAX_FACTOR, SAFETY * en ** ERROR_EXPONENT)
+        if rejected:
+            factor = min(1.0, factor)
+        return h_abs * factor, True, rejected
+    return h_abs * max(MIN_FACTOR, SAFETY * en ** ERROR_EXPONENT), False, True
+
+
+@njit(cache=True, error_model="numpy")
 def interpolate(F, y_old, t, out_y, row):
     """out_y[row] = the dense-output polynomial F at t = (x - x_old) / h."""
     n = y_old.shape[0]
@@ -234,24 +257,7 @@ def make_integrator(rhs, monitor):
                 dop853_step(x, y, f, h, P, O, K, y_new, f_new, y_stage, f_stage)
                 nfev += N_STAGES
                 en = error_norm(K, h, y, y_new, rtol, atol)
-                # A non-finite stage (e.g. a step across a singular point) is an
-                # infinitely bad step: shrink and retry.
-                if not math.isfinite(en):
-                    h_abs *= MIN_FACTOR
-                    rejected = True
-                    continue
-                if en < 1.0:
-                    if en == 0.0:
-                        factor = MAX_FACTOR
-                    else:
-                        factor = min(MAX_FACTOR, SAFETY * en ** ERROR_EXPONENT)
-                    if rejected:
-                        factor = min(1.0, factor)
-                    h_abs *= factor
-                    accepted = True
-                else:
-                    h_abs *= max(MIN_FACTOR, SAFETY * en ** ERROR_EXPONENT)
-                    rejected = True
+                h_abs, accepted, rejected = next_step(en, h_abs, rejected)
             if dense and n_out < capacity:
                 x_k = x0 + direction * k_next * dx_out
                 if direction * (x_new - x_k) > 0.0:
@@ -272,6 +278,138 @@ def make_integrator(rhs, monitor):
                 out_x[n_out] = x
                 for j in range(n):
                     out_y[n_out, j] = y[j]
+                n_out += 1
+            if code != 0:
+                return code, x, y, n_out, nfev
+        return REACHED_END, x, y, n_out, nfev
+
+    return integrate
+
+
+def make_scalar_integrator(rhs, monitor):
+    """:func:`make_integrator` for one equation, with plain floats for the state.
+
+    ``rhs(x, y, P, O) -> dy/dx`` and ``monitor(x, y, P, O) -> int`` take a
+    float ``y``; the returned ``integrate`` has the signature and results of
+    the general one with ``y0``, ``y`` floats and ``out_y`` one-dimensional.
+    Same method, same step-size control, the same numbers to rounding; but
+    no arrays in the inner loop, which makes a Model A leg about a third
+    cheaper.
+    """
+
+    @njit(cache=True, error_model="numpy")
+    def step(x, y, f, h, P, O, K):
+        """One DOP853 step from (x, y) with derivative f: (y_new, f_new); fills K."""
+        K[0] = f
+        for s in range(1, N_STAGES):
+            acc = 0.0
+            for m in range(s):
+                acc += A[s, m] * K[m]
+            K[s] = rhs(x + C[s] * h, y + h * acc, P, O)
+        acc = 0.0
+        for m in range(N_STAGES):
+            acc += B[m] * K[m]
+        y_new = y + h * acc
+        f_new = rhs(x + h, y_new, P, O)
+        K[N_STAGES] = f_new
+        return y_new, f_new
+
+    @njit(cache=True, error_model="numpy")
+    def dense(x, y, y_new, f_new, h, P, O, K, F):
+        """The step's interpolant into F (as ``dense_coefficients``, one component)."""
+        for e in range(N_STAGES_EXTENDED - N_STAGES - 1):
+            s = N_STAGES + 1 + e
+            acc = 0.0
+            for m in range(s):
+                acc += A_EXTRA[e, m] * K[m]
+            K[s] = rhs(x + C_EXTRA[e] * h, y + h * acc, P, O)
+        dy = y_new - y
+        F[0] = dy
+        F[1] = h * K[0] - dy
+        F[2] = 2.0 * dy - h * (f_new + K[0])
+        for i in range(INTERPOLATOR_POWER - 3):
+            acc = 0.0
+            for m in range(N_STAGES_EXTENDED):
+                acc += D[i, m] * K[m]
+            F[3 + i] = h * acc
+
+    @njit(cache=True, error_model="numpy")
+    def integrate(x0, y0, x_end, P, O, rtol, atol, h_start, max_step,
+                  out_x, out_y, dx_out=0.0):
+        """Integrate y' = rhs(x, y) for one float y (see ``make_integrator``)."""
+        direction = 1.0 if x_end >= x0 else -1.0
+        x = x0
+        y = y0
+        f = rhs(x, y, P, O)
+        nfev = 1
+        K = np.empty(N_STAGES_EXTENDED)
+        F = np.empty(INTERPOLATOR_POWER)
+        capacity = out_x.shape[0]
+        n_out = 0
+        if capacity > 0:
+            out_x[0] = x
+            out_y[0] = y
+            n_out = 1
+        k_next = 1
+        h_abs = min(abs(h_start), max_step)
+        steps = 0
+        while direction * (x_end - x) > 0.0:
+            min_step = 10.0 * abs(np.nextafter(x, direction * np.inf) - x)
+            if h_abs > max_step:
+                h_abs = max_step
+            elif h_abs < min_step:
+                h_abs = min_step
+            accepted = False
+            rejected = False
+            while not accepted:
+                steps += 1
+                if steps > MAX_STEPS:
+                    return TOO_MANY_STEPS, x, y, n_out, nfev
+                if h_abs < min_step:
+                    return STEP_TOO_SMALL, x, y, n_out, nfev
+                x_new = x + h_abs * direction
+                if direction * (x_new - x_end) > 0.0:
+                    x_new = x_end
+                h = x_new - x
+                h_abs = abs(h)
+                y_new, f_new = step(x, y, f, h, P, O, K)
+                nfev += N_STAGES
+                # DOP853's blended error norm (error_norm, one component)
+                scale = atol + max(abs(y), abs(y_new)) * rtol
+                e5 = 0.0
+                e3 = 0.0
+                for m in range(N_STAGES + 1):
+                    e5 += K[m] * E5[m]
+                    e3 += K[m] * E3[m]
+                err5 = (e5 / scale) ** 2
+                err3 = (e3 / scale) ** 2
+                en = 0.0
+                if err5 != 0.0 or err3 != 0.0:
+                    en = h_abs * err5 / math.sqrt(err5 + 0.01 * err3)
+                h_abs, accepted, rejected = next_step(en, h_abs, rejected)
+            if dx_out > 0.0 and n_out < capacity:
+                x_k = x0 + direction * k_next * dx_out
+                if direction * (x_new - x_k) > 0.0:
+                    dense(x, y, y_new, f_new, h, P, O, K, F)
+                    nfev += N_STAGES_EXTENDED - N_STAGES - 1
+                while direction * (x_new - x_k) > 0.0 and n_out < capacity:
+                    t = (x_k - x) / h
+                    acc = 0.0
+                    for i in range(INTERPOLATOR_POWER - 1, -1, -1):
+                        acc += F[i]
+                        acc *= t if (INTERPOLATOR_POWER - 1 - i) % 2 == 0 else 1.0 - t
+                    out_x[n_out] = x_k
+                    out_y[n_out] = acc + y
+                    n_out += 1
+                    k_next += 1
+                    x_k = x0 + direction * k_next * dx_out
+            x = x_new
+            y = y_new
+            f = f_new
+            code = monitor(x, y, P, O)
+            if n_out < capacity:
+                out_x[n_out] = x
+                out_y[n_out] = y
                 n_out += 1
             if code != 0:
                 return code, x, y, n_out, nfev

@@ -35,7 +35,7 @@ from numba import njit
 
 from .constants import C_LIGHT
 from .critical import SADDLE, classify, make_root_refiner
-from .integrate import REACHED_END, STEP_TOO_SMALL, make_integrator
+from .integrate import REACHED_END, STEP_TOO_SMALL, make_scalar_integrator
 from .opacity import (
     LAW_ELECTRON_SCATTERING,
     SLOT_H0,
@@ -98,7 +98,12 @@ MIN_WALK = 1e-6  # smallest step [in ln Mdot] of the walk toward a sign change
 @njit(cache=True, error_model="numpy")
 def set_mass_loss_rate(P, ln_mdot):
     """Copy of P with the trial Mdot and the quantities that follow from it."""
-    Q = P.copy()
+    return fill_mass_loss_rate(P.copy(), P, ln_mdot)
+
+
+@njit(cache=True, error_model="numpy")
+def fill_mass_loss_rate(Q, P, ln_mdot):
+    """:func:`set_mass_loss_rate` into the work vector Q (a copy of P); returns Q."""
     mdot = math.exp(ln_mdot)
     Q[I_MDOT] = mdot
     Q[I_V0] = mdot / (FOUR_PI * P[I_R0] ** 2 * P[I_RHO0])
@@ -154,33 +159,33 @@ def sonic_force_balance(x, P, O):
     return force_balance(math.exp(x), math.sqrt(P[I_A2]), P, O)
 
 
-@njit(cache=True, error_model="numpy")
-def rhs(x, y, P, O, dydx):
-    """d ln v / d ln r = r N / (v^2 - a^2)."""
+@njit(cache=True, error_model="numpy", inline="always")
+def rhs(x, y, P, O):
+    """d ln v / d ln r = r N / (v^2 - a^2), y = ln v."""
     r = math.exp(x)
-    v = math.exp(y[0])
-    n = force_balance_inv(r, math.exp(-x), v, math.exp(-y[0]), P, O)
-    dydx[0] = r * n / (v * v - P[I_A2])
+    v = math.exp(y)
+    n = force_balance_inv(r, math.exp(-x), v, math.exp(-y), P, O)
+    return r * n / (v * v - P[I_A2])
 
 
-@njit(cache=True, error_model="numpy")
-def rhs_radius(x, y, P, O, dydx):
+@njit(cache=True, error_model="numpy", inline="always")
+def rhs_radius(x, y, P, O):
     """d ln v / d r = N / (v^2 - a^2): the inward legs, with x = r itself.
 
     Below the sonic point the flow spans a short range of r (often a few
     per cent of R0), so r serves as well as ln r as the variable and saves
     two exponentials per evaluation.
     """
-    v = math.exp(y[0])
-    n = force_balance_inv(x, 1.0 / x, v, math.exp(-y[0]), P, O)
-    dydx[0] = n / (v * v - P[I_A2])
+    v = math.exp(y)
+    n = force_balance_inv(x, 1.0 / x, v, math.exp(-y), P, O)
+    return n / (v * v - P[I_A2])
 
 
 @njit(cache=True, error_model="numpy")
 def monitor_outward(x, y, P, O):
     """Stop the supersonic leg when tiring exhausts L or v falls back to a."""
     r = math.exp(x)
-    v = math.exp(y[0])
+    v = math.exp(y)
     if P[I_TIRING] > 0.0 and luminosity(r, v, P) <= 0.0:
         return STOP_STALL
     if v * v - P[I_A2] < SONIC_GAP * P[I_A2] and force_balance(r, v, P, O) < 0.0:
@@ -192,7 +197,7 @@ def monitor_outward(x, y, P, O):
 def monitor_inward(x, y, P, O):
     """Stop the subsonic leg (x = r) when it turns back to v = a or is far too dense."""
     r = x
-    v = math.exp(y[0])
+    v = math.exp(y)
     if density(r, v, P) > P[I_RHO_STOP]:
         return STOP_DENSE
     if v * v - P[I_A2] > -SONIC_GAP * P[I_A2] and force_balance(r, v, P, O) > 0.0:
@@ -221,11 +226,11 @@ def left_table(x, y, P, O):
     edge.
     """
     r = math.exp(x)
-    return table_margin(O, density(r, math.exp(y[0]), P), P[I_T]) < TABLE_EDGE
+    return table_margin(O, density(r, math.exp(y), P), P[I_T]) < TABLE_EDGE
 
 
-integrate_outward = make_integrator(rhs, monitor_outward)
-integrate_inward = make_integrator(rhs_radius, monitor_inward)  # x = r, y = ln v
+integrate_outward = make_scalar_integrator(rhs, monitor_outward)  # x = ln r, y = ln v
+integrate_inward = make_scalar_integrator(rhs_radius, monitor_inward)  # x = r, y = ln v
 refine_sonic = make_root_refiner(sonic_force_balance)
 refine_base = make_root_refiner(base_sonic_balance)
 
@@ -333,7 +338,7 @@ def dense_estimate(x, y, Q, O, ln_rho0):
     layer), always above DENSE_MARGIN, used only to steer the root-find.
     """
     r = math.exp(x)
-    v = math.exp(y[0])
+    v = math.exp(y)
     g_stop = math.log(density(r, v, Q)) - ln_rho0
     dydx = r * force_balance(r, v, Q, O) / (v * v - Q[I_A2])
     steep = 2.0 + dydx  # -d ln rho / d ln r
@@ -345,7 +350,14 @@ def dense_estimate(x, y, Q, O, ln_rho0):
 @njit(cache=True, error_model="numpy")
 def shoot(ln_mdot, P, O, rtol, delta):
     """One trial: (code, ln rho(R0) - ln rho0, r_c, slope) for this Mdot."""
-    Q = set_mass_loss_rate(P, ln_mdot)
+    return shoot_work(ln_mdot, P, O, rtol, delta, P.copy(), np.empty(0))
+
+
+@njit(cache=True, error_model="numpy")
+def shoot_work(ln_mdot, P, O, rtol, delta, Q, none):
+    """:func:`shoot` with the work vector Q (a copy of P, overwritten) and an
+    empty array ``none`` given: a search allocates them once, not per shot."""
+    fill_mass_loss_rate(Q, P, ln_mdot)
     code, rc, slope = innermost_saddle(Q, O)
     if code != OK:
         return code, math.nan, rc, slope
@@ -356,15 +368,12 @@ def shoot(ln_mdot, P, O, rtol, delta):
         # The sonic point sits (within delta) on the base.
         v_base = a - slope * (rc - R0)
         return OK, math.log(density(R0, v_base, Q)) - ln_rho0, rc, slope
-    y0 = np.empty(1)
-    y0[0] = math.log(a - slope * delta * rc)
-    no_x = np.empty(0)
-    no_y = np.empty((0, 1))
+    y0 = math.log(a - slope * delta * rc)
     status, r, y, n_out, nfev = integrate_inward(
-        rc * (1.0 - delta), y0, R0, Q, O, 0.0, rtol, delta * rc, np.inf, no_x, no_y)
+        rc * (1.0 - delta), y0, R0, Q, O, 0.0, rtol, delta * rc, np.inf, none, none)
     x = math.log(r)
     if status == REACHED_END:
-        g = math.log(density(R0, math.exp(y[0]), Q)) - ln_rho0
+        g = math.log(density(R0, math.exp(y), Q)) - ln_rho0
         return OK, g, rc, slope
     if status == STOP_DENSE:
         # Far too dense already: g > DENSE_MARGIN for certain.  Only its sign
@@ -418,8 +427,10 @@ def find_admissible(P, O, rtol, delta, guess, x_min, x_max, shots):
     around the guess.
     """
     xtol_b = 1e-9
+    Q = P.copy()
+    none = np.empty(0)
     shots += 1
-    code, g, rc, slope = shoot(guess, P, O, rtol, delta)
+    code, g, rc, slope = shoot_work(guess, P, O, rtol, delta, Q, none)
     reason = code
     if code == OK:
         return True, guess, g, rc, slope, shots, reason
@@ -429,7 +440,7 @@ def find_admissible(P, O, rtol, delta, guess, x_min, x_max, shots):
     rcs = np.array([math.nan, rc, math.nan])
     ss = np.array([math.nan, slope, math.nan])
     for k in (0, 2):
-        cs[k], gs[k], rcs[k], ss[k] = shoot(xs[k], P, O, rtol, delta)
+        cs[k], gs[k], rcs[k], ss[k] = shoot_work(xs[k], P, O, rtol, delta, Q, none)
         shots += 1
     for k in (0, 2):
         if cs[k] == OK:
@@ -442,7 +453,7 @@ def find_admissible(P, O, rtol, delta, guess, x_min, x_max, shots):
             continue
         while right - left > xtol_b and shots < MAX_SHOTS:
             m = 0.5 * (left + right)
-            c2, g2, rc2, s2 = shoot(m, P, O, rtol, delta)
+            c2, g2, rc2, s2 = shoot_work(m, P, O, rtol, delta, Q, none)
             shots += 1
             if c2 == OK:
                 return True, m, g2, rc2, s2, shots, reason
@@ -457,7 +468,7 @@ def find_admissible(P, O, rtol, delta, guess, x_min, x_max, shots):
             xt = x + sgn * step
             if xt >= x_max or xt <= x_min:
                 continue
-            c2, g2, rc2, s2 = shoot(xt, P, O, rtol, delta)
+            c2, g2, rc2, s2 = shoot_work(xt, P, O, rtol, delta, Q, none)
             shots += 1
             if c2 == OK:
                 return True, xt, g2, rc2, s2, shots, reason
@@ -483,6 +494,8 @@ def converge(P, O, rtol, delta, x, g, rc, slope, step0, x_min, x_max, shots, rea
     bisect onto it.
     """
     xtol_b = 1e-9
+    Q = P.copy()
+    none = np.empty(0)
     seen_ok = shots > 0
     if seen_ok and abs(g) < rtol:
         return OK, x, rc, slope, shots, reason, seen_ok
@@ -505,7 +518,7 @@ def converge(P, O, rtol, delta, x, g, rc, slope, step0, x_min, x_max, shots, rea
         xt = min(max(x + sgn * step, x_min), x_max)
         if xt == x:
             break
-        c2, g2, rc2, s2 = shoot(xt, P, O, rtol, delta)
+        c2, g2, rc2, s2 = shoot_work(xt, P, O, rtol, delta, Q, none)
         shots += 1
         if c2 == OK:
             seen_ok = True
@@ -522,7 +535,7 @@ def converge(P, O, rtol, delta, x, g, rc, slope, step0, x_min, x_max, shots, rea
             bad = xt
             while abs(bad - x) > xtol_b and shots < MAX_SHOTS:
                 m = 0.5 * (x + bad)
-                c3, g3, rc3, s3 = shoot(m, P, O, rtol, delta)
+                c3, g3, rc3, s3 = shoot_work(m, P, O, rtol, delta, Q, none)
                 shots += 1
                 if c3 != OK:
                     bad = m
@@ -595,7 +608,7 @@ def converge(P, O, rtol, delta, x, g, rc, slope, step0, x_min, x_max, shots, rea
             xcur += scur
         else:
             xcur += tol if sbis > 0.0 else -tol
-        c4, fcur, rcur, scur_ = shoot(xcur, P, O, rtol, delta)
+        c4, fcur, rcur, scur_ = shoot_work(xcur, P, O, rtol, delta, Q, none)
         shots += 1
         if c4 != OK:
             return c4, xcur, math.nan, math.nan, shots, c4, seen_ok
@@ -649,8 +662,7 @@ def outward_leg(Q, O, rc, slope, rtol, delta, dx_out, xo, yo):
     (x, y) is the last accepted point.  With ``dx_out`` > 0 the points stored
     in (xo, yo) are dx_out apart in ln r (dense output), else every step.
     """
-    y0 = np.empty(1)
-    y0[0] = math.log(math.sqrt(Q[I_A2]) + slope * delta * rc)
+    y0 = math.log(math.sqrt(Q[I_A2]) + slope * delta * rc)
     st, x, y, no, nfev = integrate_outward(
         math.log(rc * (1.0 + delta)), y0, math.log(Q[I_ROUT]),
         Q, O, 0.0, rtol, delta, np.inf, xo, yo, dx_out)
@@ -689,19 +701,19 @@ def profile(ln_mdot, P, O, rtol, delta, max_step, capacity):
     n_in = min(capacity, int((rc - R0) / dr_in) + PROFILE_STEPS) if rc > R0 else 1
     n_out = min(capacity, int(math.log(Q[I_ROUT] / rc) / max_step) + PROFILE_STEPS)
     xi = np.empty(max(n_in, 1))
-    yi = np.empty((max(n_in, 1), 1))
+    yi = np.empty(max(n_in, 1))
     xo = np.empty(max(n_out, 1))
-    yo = np.empty((max(n_out, 1), 1))
-    y0 = np.empty(1)
+    yo = np.empty(max(n_out, 1))
+    y0 = 0.0
     ni = 0
     status_in = OK
     if rc * (1.0 - delta) > R0:
-        y0[0] = math.log(a - slope * delta * rc)
+        y0 = math.log(a - slope * delta * rc)
         st, r_last, y, ni, nfev = integrate_inward(
             rc * (1.0 - delta), y0, R0, Q, O, 0.0, rtol, delta * rc, np.inf, xi, yi, dr_in)
         if ni == xi.shape[0] and ni < capacity:  # full: once more with all the room
             xi = np.empty(capacity)
-            yi = np.empty((capacity, 1))
+            yi = np.empty(capacity)
             st, r_last, y, ni, nfev = integrate_inward(
                 rc * (1.0 - delta), y0, R0, Q, O, 0.0, rtol, delta * rc, np.inf, xi, yi, dr_in)
         if st != REACHED_END:
@@ -710,21 +722,21 @@ def profile(ln_mdot, P, O, rtol, delta, max_step, capacity):
     status_out, x, y, no = outward_leg(Q, O, rc, slope, rtol, delta, max_step, xo, yo)
     if no == xo.shape[0] and no < capacity:  # full: once more with all the room
         xo = np.empty(capacity)
-        yo = np.empty((capacity, 1))
+        yo = np.empty(capacity)
         status_out, x, y, no = outward_leg(Q, O, rc, slope, rtol, delta, max_step, xo, yo)
     n = ni + 1 + no
     r = np.empty(n)
     v = np.empty(n)
     for i in range(ni):
         r[i] = xi[ni - 1 - i]
-        v[i] = math.exp(yi[ni - 1 - i, 0])
+        v[i] = math.exp(yi[ni - 1 - i])
     if ni > 0:
         r[0] = R0
     r[ni] = rc
     v[ni] = a
     for i in range(no):
         r[ni + 1 + i] = math.exp(xo[i])
-        v[ni + 1 + i] = math.exp(yo[i, 0])
+        v[ni + 1 + i] = math.exp(yo[i])
     return status_in, status_out, r, v
 
 
@@ -738,8 +750,8 @@ def end_state(ln_mdot, P, O, rtol, delta):
     Q = set_mass_loss_rate(P, ln_mdot)
     code, rc, slope = innermost_saddle(Q, O)
     status_out, x, y, no = outward_leg(Q, O, rc, slope, rtol, delta, 0.0, np.empty(0),
-                                       np.empty((0, 1)))
-    return status_out, math.exp(x), math.exp(y[0])
+                                       np.empty(0))
+    return status_out, math.exp(x), math.exp(y)
 
 
 @njit(cache=True, error_model="numpy")
