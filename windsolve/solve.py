@@ -31,6 +31,10 @@ CAPACITY = 200000  # stored points per leg
 SURVEY_POINTS = 400  # trial mass-loss rates scanned to explain a failure
 
 
+INWARD_PROFILE_FAILED = ("the stored inward profile did not reach R0 although the shooting "
+                         "did; tighten numerics.rtol")
+
+
 def _isothermal_failure(code, model):
     """(status, message) for a Model A kernel failure code."""
     if code == K.NO_CRITICAL_POINT_BOUND:
@@ -74,10 +78,12 @@ def solve_isothermal_cgs(model, profile=True, critical=True):
 
     Returns a dict with ``converged``, ``status``, ``message``, ``summary``
     (floats in the cgs units of :data:`~windsolve.result.SUMMARY_UNITS`),
-    ``profile`` (float arrays in those of ``PROFILE_UNITS``; empty without
-    ``profile``), ``critical`` (the critical points, only with
-    ``critical``) and ``counters``.  Sweep workers use it directly, so that
-    a model's row costs no unit handling.
+    ``profile`` (float arrays in those of ``PROFILE_UNITS``, temperature
+    left out as it is the model's T; empty without ``profile``; with
+    ``profile="outward"`` only its part from r_c out, the same points),
+    ``critical`` (the critical points, only with ``critical``), ``ln_mdot``
+    and ``counters``.  Sweep workers use it directly, so that a model's row
+    costs no unit handling.
     """
     t0 = time.perf_counter()
     P, O = model.kernel_arrays
@@ -107,21 +113,28 @@ def solve_isothermal_cgs(model, profile=True, critical=True):
         out["status"], out["message"] = _isothermal_failure(code, model)
         out["counters"]["seconds"] = time.perf_counter() - t0
         return out
-    if profile:
+    out["ln_mdot"] = ln_mdot
+    v0 = math.exp(ln_mdot) / (FOUR_PI * R0**2 * model.cgs("base_density"))
+    if profile == "outward":  # from r_c out (sweeps measuring line widths)
+        st_in = K.OK
+        st_out, r, v = K.outward_profile(ln_mdot, P, O, rtol, DELTA, MAX_STEP, CAPACITY)
+    elif profile:
         st_in, st_out, r, v = K.profile(ln_mdot, P, O, rtol, DELTA, MAX_STEP, CAPACITY)
     else:  # the outer end only (sweeps): no stored profile
         st_in = K.OK
         st_out, r_end, v_end = K.end_state(ln_mdot, P, O, rtol, DELTA)
         r = np.array([R0, r_end])
-        v = np.array([math.exp(ln_mdot) / (FOUR_PI * R0**2 * model.cgs("base_density")),
-                      v_end])
+        v = np.array([v0, v_end])
     rho, L, kappa, gamma = K.profile_quantities(ln_mdot, r, v, P, O)
     summary["mass_loss_rate"] = math.exp(ln_mdot)
     summary["sonic_radius"] = rc
-    summary["base_eddington_factor"] = float(gamma[0])
+    if profile == "outward":
+        gamma0 = K.profile_quantities(ln_mdot, np.array([R0]), np.array([v0]), P, O)[3][0]
+    else:
+        gamma0 = gamma[0]
+    summary["base_eddington_factor"] = float(gamma0)
     if profile:
-        out["profile"] = {"radius": r, "velocity": v, "density": rho,
-                          "temperature": np.full_like(r, model.T), "luminosity": L,
+        out["profile"] = {"radius": r, "velocity": v, "density": rho, "luminosity": L,
                           "opacity": kappa, "eddington_factor": gamma}
     if critical:
         Q = K.set_mass_loss_rate(P, ln_mdot)
@@ -138,9 +151,7 @@ def solve_isothermal_cgs(model, profile=True, critical=True):
     if st_in != K.OK:
         # The shooting reached R0 with this Mdot; a profile that does not is
         # an integration problem, not physics: say so rather than guess.
-        status = "failed"
-        message = ("the stored inward profile did not reach R0 although the shooting "
-                   "did; tighten numerics.rtol")
+        status, message = "failed", INWARD_PROFILE_FAILED
     elif st_out == K.OK:
         converged, status = True, "converged"
         summary["terminal_velocity"] = float(v[-1])
@@ -174,6 +185,11 @@ def solve_isothermal(model, profile=True):
     summary = {key: value * SUMMARY_UNITS[key] for key, value in raw["summary"].items()}
     summary["outer_radius"] = model.outer_radius.to(u.cm)
     prof = {key: a << PROFILE_UNITS[key] for key, a in raw["profile"].items()}
+    if prof:  # isothermal: T is the model's everywhere
+        prof = {"radius": prof["radius"], "velocity": prof["velocity"],
+                "density": prof["density"],
+                "temperature": np.full_like(raw["profile"]["radius"], model.T) << u.K,
+                **prof}
     return WindResult(model, raw["converged"], raw["status"], raw["message"], summary,
                       prof, raw["critical"], raw["counters"])
 

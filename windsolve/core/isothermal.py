@@ -692,52 +692,79 @@ def profile(ln_mdot, P, O, rtol, delta, max_step, capacity):
     """
     Q = set_mass_loss_rate(P, ln_mdot)
     code, rc, slope = innermost_saddle(Q, O)
+    status_in, ri, vi = inward_part(Q, O, rc, slope, rtol, delta, max_step, capacity)
+    status_out, ro, vo = outward_part(Q, O, rc, slope, rtol, delta, max_step, capacity)
+    return status_in, status_out, np.concatenate((ri, ro)), np.concatenate((vi, vo))
+
+
+@njit(cache=True, error_model="numpy")
+def outward_profile(ln_mdot, P, O, rtol, delta, max_step, capacity):
+    """The part of :func:`profile` from r_c out: ``(status_out, r, v)``, the same points."""
+    Q = set_mass_loss_rate(P, ln_mdot)
+    code, rc, slope = innermost_saddle(Q, O)
+    return outward_part(Q, O, rc, slope, rtol, delta, max_step, capacity)
+
+
+@njit(cache=True, error_model="numpy")
+def inward_profile(ln_mdot, P, O, rtol, delta, max_step, capacity):
+    """The part of :func:`profile` below r_c: ``(status_in, r, v)``, the same points."""
+    Q = set_mass_loss_rate(P, ln_mdot)
+    code, rc, slope = innermost_saddle(Q, O)
+    return inward_part(Q, O, rc, slope, rtol, delta, max_step, capacity)
+
+
+@njit(cache=True, error_model="numpy")
+def inward_part(Q, O, rc, slope, rtol, delta, max_step, capacity):
+    """:func:`profile` below r_c: ``(status_in, r, v)`` from R0 up to, not including, r_c."""
     a = math.sqrt(Q[I_A2])
     R0 = Q[I_R0]
-    dr_in = max_step * R0
-    if rc > R0:
-        dr_in = min(dr_in, (rc - R0) / SUBSONIC_POINTS)
+    if not rc * (1.0 - delta) > R0:
+        return OK, np.empty(0), np.empty(0)
+    dr_in = min(max_step * R0, (rc - R0) / SUBSONIC_POINTS)
     # Grid points, plus the integration steps (a few tens; capacity caps them).
-    n_in = min(capacity, int((rc - R0) / dr_in) + PROFILE_STEPS) if rc > R0 else 1
-    n_out = min(capacity, int(math.log(Q[I_ROUT] / rc) / max_step) + PROFILE_STEPS)
-    xi = np.empty(max(n_in, 1))
-    yi = np.empty(max(n_in, 1))
-    xo = np.empty(max(n_out, 1))
-    yo = np.empty(max(n_out, 1))
-    y0 = 0.0
-    ni = 0
-    status_in = OK
-    if rc * (1.0 - delta) > R0:
-        y0 = math.log(a - slope * delta * rc)
+    n_in = min(capacity, int((rc - R0) / dr_in) + PROFILE_STEPS)
+    xi = np.empty(n_in)
+    yi = np.empty(n_in)
+    y0 = math.log(a - slope * delta * rc)
+    st, r_last, y, ni, nfev = integrate_inward(
+        rc * (1.0 - delta), y0, R0, Q, O, 0.0, rtol, delta * rc, np.inf, xi, yi, dr_in)
+    if ni == xi.shape[0] and ni < capacity:  # full: once more with all the room
+        xi = np.empty(capacity)
+        yi = np.empty(capacity)
         st, r_last, y, ni, nfev = integrate_inward(
             rc * (1.0 - delta), y0, R0, Q, O, 0.0, rtol, delta * rc, np.inf, xi, yi, dr_in)
-        if ni == xi.shape[0] and ni < capacity:  # full: once more with all the room
-            xi = np.empty(capacity)
-            yi = np.empty(capacity)
-            st, r_last, y, ni, nfev = integrate_inward(
-                rc * (1.0 - delta), y0, R0, Q, O, 0.0, rtol, delta * rc, np.inf, xi, yi, dr_in)
-        if st != REACHED_END:
-            status_in = (LEFT_TABLE if left_table(math.log(r_last), y, Q, O)
-                         else INWARD_SINGULAR)
-    status_out, x, y, no = outward_leg(Q, O, rc, slope, rtol, delta, max_step, xo, yo)
-    if no == xo.shape[0] and no < capacity:  # full: once more with all the room
-        xo = np.empty(capacity)
-        yo = np.empty(capacity)
-        status_out, x, y, no = outward_leg(Q, O, rc, slope, rtol, delta, max_step, xo, yo)
-    n = ni + 1 + no
-    r = np.empty(n)
-    v = np.empty(n)
+    status_in = OK
+    if st != REACHED_END:
+        status_in = LEFT_TABLE if left_table(math.log(r_last), y, Q, O) else INWARD_SINGULAR
+    r = np.empty(ni)
+    v = np.empty(ni)
     for i in range(ni):
         r[i] = xi[ni - 1 - i]
         v[i] = math.exp(yi[ni - 1 - i])
     if ni > 0:
         r[0] = R0
-    r[ni] = rc
-    v[ni] = a
+    return status_in, r, v
+
+
+@njit(cache=True, error_model="numpy")
+def outward_part(Q, O, rc, slope, rtol, delta, max_step, capacity):
+    """:func:`profile` from r_c (v = a, the first point) out: ``(status_out, r, v)``."""
+    n_out = min(capacity, int(math.log(Q[I_ROUT] / rc) / max_step) + PROFILE_STEPS)
+    xo = np.empty(n_out)
+    yo = np.empty(n_out)
+    status_out, x, y, no = outward_leg(Q, O, rc, slope, rtol, delta, max_step, xo, yo)
+    if no == xo.shape[0] and no < capacity:  # full: once more with all the room
+        xo = np.empty(capacity)
+        yo = np.empty(capacity)
+        status_out, x, y, no = outward_leg(Q, O, rc, slope, rtol, delta, max_step, xo, yo)
+    r = np.empty(no + 1)
+    v = np.empty(no + 1)
+    r[0] = rc
+    v[0] = math.sqrt(Q[I_A2])
     for i in range(no):
-        r[ni + 1 + i] = math.exp(xo[i])
-        v[ni + 1 + i] = math.exp(yo[i])
-    return status_in, status_out, r, v
+        r[1 + i] = math.exp(xo[i])
+        v[1 + i] = math.exp(yo[i])
+    return status_out, r, v
 
 
 @njit(cache=True, error_model="numpy")

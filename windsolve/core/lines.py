@@ -289,6 +289,10 @@ def _emission_prefix(rf, vf, lg, hi, full, Rc, occult, w):
     suffix[m - 1] = 0.0
     for i in range(m - 2, -1, -1):
         suffix[i] = suffix[i + 1] + full[i]
+    # last node with g <= a, for g = v and g = hi: found by walking from the
+    # previous w's answer (w is sorted, so each walk is a step or two)
+    at_v = m - 1
+    at_hi = 0
     for k in range(w.shape[0]):
         wk = w[k]
         red = occult and wk >= 0.0
@@ -302,15 +306,15 @@ def _emission_prefix(rf, vf, lg, hi, full, Rc, occult, w):
             continue
         if g[m - 1] <= a:
             continue
-        lo = 0
-        up = m - 1  # g[lo] <= a < g[up]
-        while up - lo > 1:
-            mid = (lo + up) // 2
-            if g[mid] <= a:
-                lo = mid
-            else:
-                up = mid
-        i = lo
+        i = at_hi if red else at_v  # g[0] <= a < g[m - 1] here
+        while g[i] > a:
+            i -= 1
+        while g[i + 1] <= a:
+            i += 1
+        if red:
+            at_hi = i
+        else:
+            at_v = i
         if red:
             tc = _occultation_root(rf[i], rf[i + 1], vf[i], vf[i + 1], Rc, a,
                                    (a - hi[i]) / (hi[i + 1] - hi[i]))
