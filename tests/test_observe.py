@@ -167,3 +167,35 @@ def test_compare_without_widths_in_the_sweep_says_what_to_do(tmp_path, capsys):
     obs = csv_file(tmp_path, "S,fwhm,-,500,5,km/s\n")
     assert cli.main(["compare", str(out), str(obs)]) == 2
     assert "[observables]" in capsys.readouterr().err
+
+
+@pytest.mark.parametrize("settings", [{}, {"occultation": False}, {"resolution": 3000}])
+def test_sweep_rows_give_the_widths_of_line_widths(settings):
+    # A worker measures Model A widths from plain arrays, and (with
+    # occultation) from the profile beyond r_c alone when the optical core
+    # lies there; every row must equal line_widths on the full solve, for
+    # cores both beyond and below r_c.
+    from windsolve.lines import LineSettings, line_widths
+    from windsolve.sweep import apply_changes, run_batch
+
+    base = windsolve.load_model(DEMO)
+    lengths = ["1 Rsun", "10 Rsun", "60 Rsun", "100 Rsun"]
+    items = [(i, {"porosity.length": h}) for i, h in enumerate(lengths)]
+    records = run_batch(base.to_dict(), items, False, settings)
+    beyond = 0
+    for (i, changes), record in zip(items, records):
+        result = windsolve.solve(apply_changes(base, changes))
+        assert record["converged"] and result.converged
+        widths = line_widths(result, LineSettings(**settings))
+        for key in ("fwhm", "hwzi", "edge_velocity"):
+            expected = widths[key].to_value(u.cm / u.s)
+            assert (math.isnan(expected) and math.isnan(record[key])) or \
+                math.isclose(record[key], expected, rel_tol=1e-12), (changes, key)
+        beyond += lines_core_beyond_sonic_point(result)
+    assert 0 < beyond < len(lengths)  # both cases were met
+
+
+def lines_core_beyond_sonic_point(result):
+    from windsolve.lines import _optical_core
+    rc = _optical_core(result)
+    return rc is not None and rc > result.summary["sonic_radius"].to_value(u.cm)
