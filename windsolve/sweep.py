@@ -12,9 +12,10 @@ both a local process pool and a ``dask.distributed`` client
 cluster.  Rows are sent in batches so the per-task overhead stays small.
 
 Nothing finished is lost: every finished batch is appended to a journal next
-to the output (``OUT.h5.partial``, JSON lines, flushed and fsynced), so a
-killed sweep loses at most the batches in flight, and ``--resume`` runs only
-the missing rows.  The HDF5 file is written from the journal at the end
+to the output (``OUT.h5.partial``, JSON lines, flushed after every batch, so a
+killed sweep loses at most the batches in flight, and fsynced at least once a
+second, so a machine that crashes loses at most about a second more), and
+``--resume`` runs only the missing rows.  The HDF5 file is written from the journal at the end
 (under a temporary name, then renamed), rows in design order, so a resumed
 sweep gives the same table as an uninterrupted one.
 """
@@ -44,6 +45,7 @@ SWEEP_KEYS = ("base", "design", "samples", "seed", "profiles", "batch")
 AXIS_KEYS = ("key", "values", "start", "stop", "num", "spacing")
 DEFAULT_BATCH = 25
 JOURNAL_SUFFIX = ".partial"
+FSYNC_INTERVAL = 1.0  # [s] the journal is flushed every batch, written to disk this often
 
 
 def _summary_columns():
@@ -473,6 +475,17 @@ def _line_settings(observables):
     return settings
 
 
+def journal_batch(base, items, profiles=False, observables=None):
+    """:func:`run_batch` as the journal's JSON lines: ``(text, n_rows, n_converged)``.
+
+    Serialising in the worker keeps that work off the main process, which
+    only appends the text to the journal.
+    """
+    records = run_batch(base, items, profiles, observables)
+    text = "".join(json.dumps(record) + "\n" for record in records)
+    return text, len(records), sum(1 for record in records if record.get("converged"))
+
+
 def run_batch(base, items, profiles=False, observables=None):
     """Solve a batch of rows in a worker: base model file, [(row, changes)] -> records.
 
@@ -570,6 +583,7 @@ def run_sweep(sweep, out, workers=None, scheduler=None, resume=False, quiet=Fals
         from tqdm import tqdm
         bar = tqdm(total=len(sweep), initial=len(done), unit="model", desc="sweep")
     converged = sum(1 for r in done.values() if r.get("converged"))
+    n_done = len(done)
     interrupted = False
     with open(journal, "a", encoding="utf-8") as jf:
         if jf.tell() == 0:
@@ -578,6 +592,7 @@ def run_sweep(sweep, out, workers=None, scheduler=None, resume=False, quiet=Fals
             jf.flush()
         pending = set()
         queue = iter(batches)
+        synced = time.monotonic()
         # Keep a bounded number of batches in flight, so memory stays flat.
         limit = max(2 * (workers or os.cpu_count() or 1), 4)
         try:
@@ -586,7 +601,7 @@ def run_sweep(sweep, out, workers=None, scheduler=None, resume=False, quiet=Fals
                     b = next(queue, None)
                     if b is None:
                         break
-                    pending.add(executor.submit(run_batch, sweep.base,
+                    pending.add(executor.submit(journal_batch, sweep.base,
                                                 [(i, sweep.rows[i]) for i in b],
                                                 sweep.profiles, sweep.observables))
                 if not pending:
@@ -594,29 +609,36 @@ def run_sweep(sweep, out, workers=None, scheduler=None, resume=False, quiet=Fals
                 finished, pending = wait(pending, return_when=FIRST_COMPLETED)
                 for fut in finished:
                     try:
-                        records = fut.result()
+                        text, n, n_converged = fut.result()
                     except BrokenExecutor as error:
                         raise WindsolveError(
                             f"a worker process died ({error}); the models finished so far "
                             f"are kept: rerun with --resume") from None
-                    for record in records:
-                        jf.write(json.dumps(record) + "\n")
-                        done[record["row"]] = record
-                        converged += bool(record.get("converged"))
-                    jf.flush()
-                    os.fsync(jf.fileno())
+                    jf.write(text)
+                    n_done += n
+                    converged += n_converged
+                    jf.flush()  # in the OS's hands: a killed sweep keeps it
+                    now = time.monotonic()
+                    if now - synced >= FSYNC_INTERVAL:  # on the disk: a crash keeps it
+                        os.fsync(jf.fileno())
+                        synced = now
                     if bar is not None:
-                        bar.update(len(records))
-                        failed = len(done) - converged
+                        bar.update(n)
+                        failed = n_done - converged
                         bar.set_postfix(converged=converged, failed=failed, refresh=False)
         except KeyboardInterrupt:
             interrupted = True
             for fut in pending:
                 fut.cancel()
         finally:
+            jf.flush()
+            os.fsync(jf.fileno())
             if bar is not None:
                 bar.close()
             close()
+    # The rows were written to the journal as JSON by the workers; the main
+    # process only counted them, so it stays light while they run.
+    done = _read_journal(journal, sweep)
     if interrupted:
         return done, True
     write_sweep_table(sweep, done, out)
