@@ -97,7 +97,8 @@ def main():
 
         walls = {}
         for n_l in (50, 100):  # 1000 and 2000 models
-            for label, extra in (("plain", ""), ("widths", "[observables]\nemissivity_power = 2\n")):
+            for label, extra in (("plain", ""),
+                                 ("widths", "[observables]\nemissivity_power = 2\n")):
                 path = tmp / f"{label}{n_l}.toml"
                 path.write_text(grid(n_l) + extra)
                 if not walls:

@@ -183,7 +183,7 @@ def test_sweep_rows_give_the_widths_of_line_widths(settings):
     items = [(i, {"porosity.length": h}) for i, h in enumerate(lengths)]
     records = run_batch(base.to_dict(), items, False, settings)
     beyond = 0
-    for (i, changes), record in zip(items, records):
+    for (_, changes), record in zip(items, records, strict=True):
         result = windsolve.solve(apply_changes(base, changes))
         assert record["converged"] and result.converged
         widths = line_widths(result, LineSettings(**settings))

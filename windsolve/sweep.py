@@ -24,6 +24,7 @@ import hashlib
 import itertools
 import json
 import math
+import operator
 import os
 import time
 from concurrent.futures import FIRST_COMPLETED, BrokenExecutor, wait
@@ -476,14 +477,16 @@ def _line_settings(observables):
 
 
 def journal_batch(base, items, profiles=False, observables=None):
-    """:func:`run_batch` as the journal's JSON lines: ``(text, n_rows, n_converged)``.
+    """:func:`run_batch` and its rows as the journal's JSON lines:
+    ``(text, records, n_converged)``.
 
     Serialising in the worker keeps that work off the main process, which
-    only appends the text to the journal.
+    appends the text to the journal and keeps the records (unpickling them
+    costs it far less than parsing the JSON would).
     """
     records = run_batch(base, items, profiles, observables)
     text = "".join(json.dumps(record) + "\n" for record in records)
-    return text, len(records), sum(1 for record in records if record.get("converged"))
+    return text, records, sum(1 for record in records if record.get("converged"))
 
 
 def run_batch(base, items, profiles=False, observables=None):
@@ -538,6 +541,11 @@ def run_batch(base, items, profiles=False, observables=None):
             record.update(converged=False, status="error",
                           message=f"{type(error).__name__}: {error}")
         record["seconds"] = time.perf_counter() - t0
+        for key in SUMMARY_COLUMNS:  # every row has every column (failed ones NaN)
+            record.setdefault(key, math.nan)
+        if observables is not None:
+            for key in WIDTH_COLUMNS:
+                record.setdefault(key, math.nan)
         out.append(record)
     return out
 
@@ -609,12 +617,15 @@ def run_sweep(sweep, out, workers=None, scheduler=None, resume=False, quiet=Fals
                 finished, pending = wait(pending, return_when=FIRST_COMPLETED)
                 for fut in finished:
                     try:
-                        text, n, n_converged = fut.result()
+                        text, records, n_converged = fut.result()
                     except BrokenExecutor as error:
                         raise WindsolveError(
                             f"a worker process died ({error}); the models finished so far "
                             f"are kept: rerun with --resume") from None
                     jf.write(text)
+                    for record in records:
+                        done[record["row"]] = record
+                    n = len(records)
                     n_done += n
                     converged += n_converged
                     jf.flush()  # in the OS's hands: a killed sweep keeps it
@@ -636,9 +647,6 @@ def run_sweep(sweep, out, workers=None, scheduler=None, resume=False, quiet=Fals
             if bar is not None:
                 bar.close()
             close()
-    # The rows were written to the journal as JSON by the workers; the main
-    # process only counted them, so it stays light while they run.
-    done = _read_journal(journal, sweep)
     if interrupted:
         return done, True
     write_sweep_table(sweep, done, out)
@@ -686,9 +694,20 @@ def write_sweep_table(sweep, records, out):
     from .result import SUMMARY_UNITS, _unit_text, write_profile
 
     n = len(sweep)
+    keys = list(SUMMARY_COLUMNS) + ["seconds"]
+    if sweep.observables is not None:
+        keys += list(WIDTH_COLUMNS)
+    rows = [records[i] for i in range(n)]
+    try:  # one C-level lookup a row when every row has every column (as run_batch makes them)
+        get = operator.itemgetter(*keys)
+        data = np.array([get(row) for row in rows], dtype=float).reshape(n, len(keys))
+    except KeyError:
+        data = np.array([[row.get(key, math.nan) for key in keys] for row in rows],
+                        dtype=float).reshape(n, len(keys))
+    index = {key: j for j, key in enumerate(keys)}
 
     def column(key):
-        return np.array([records[i].get(key, math.nan) for i in range(n)], dtype=float)
+        return data[:, index[key]]
 
     def write(tmp):
         with h5py.File(tmp, "w") as f:
@@ -706,14 +725,13 @@ def write_sweep_table(sweep, records, out):
                 for key in WIDTH_COLUMNS:
                     dataset(g, key, column(key), "cm / s")
                 f.attrs["observables"] = json.dumps(sweep.observables)
-            dataset(g, "converged", np.array([bool(records[i].get("converged"))
-                                              for i in range(n)]), "1")
+            dataset(g, "converged", np.array([bool(row.get("converged")) for row in rows]), "1")
             for key in ("status", "message"):
-                strings(g, key, (records[i].get(key, "") for i in range(n)))
+                strings(g, key, (row.get(key, "") for row in rows))
             dataset(g, "seconds", column("seconds"), "s")
-            for i in range(n):
-                if records[i].get("profile"):
-                    write_profile(f.create_group(f"profiles/{i}"), records[i]["profile"])
+            for i, row in enumerate(rows):
+                if row.get("profile"):
+                    write_profile(f.create_group(f"profiles/{i}"), row["profile"])
 
     return atomic_write(out, write)
 
