@@ -37,6 +37,13 @@ def kind_of(unit):
     return f"quantity in {unit.to_string()}"
 
 
+# Parsed value strings: a sweep's rows repeat the same few axis values, and
+# parsing one costs tens of microseconds.  (Quantities are never changed in
+# place here, so sharing them is safe.)
+_PARSED = {}
+PARSED_CACHE_SIZE = 4096
+
+
 def to_quantity(value, unit, where, convert=True):
     """Return ``value`` as a Quantity in ``unit`` (cgs), or raise ModelError.
 
@@ -54,11 +61,16 @@ def to_quantity(value, unit, where, convert=True):
     if isinstance(value, u.Quantity):
         q = value
     elif isinstance(value, str):
-        try:
-            q = u.Quantity(value)
-        except (TypeError, ValueError):
-            raise ModelError(f"{where} = \"{value}\" is not a number with a unit; "
-                             f"write e.g. \"{example_for(unit)}\"") from None
+        q = _PARSED.get(value)
+        if q is None:
+            try:
+                q = u.Quantity(value)
+            except (TypeError, ValueError):
+                raise ModelError(f"{where} = \"{value}\" is not a number with a unit; "
+                                 f"write e.g. \"{example_for(unit)}\"") from None
+            if len(_PARSED) >= PARSED_CACHE_SIZE:
+                _PARSED.clear()
+            _PARSED[value] = q
     elif isinstance(value, numbers.Real):
         if unit == u.dimensionless_unscaled:
             q = value * u.dimensionless_unscaled

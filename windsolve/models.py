@@ -17,6 +17,7 @@ and variants with :meth:`WindModel.replace`.
 
 import dataclasses
 import math
+import threading
 from dataclasses import dataclass, field
 from functools import cached_property
 from pathlib import Path
@@ -115,6 +116,11 @@ def param(key, kind, doc, default=REQUIRED, check=""):
     return field(default=None, metadata=meta)
 
 
+# The fields WindModel.replace copies unchanged from a checked model (per
+# thread: dask workers may build models in several threads at once).
+_REPLACING = threading.local()
+
+
 class WindModel:
     """Shared machinery of the model dataclasses (not a model itself)."""
 
@@ -142,8 +148,15 @@ class WindModel:
 
     # -- construction -----------------------------------------------------
     def _read_fields(self):
-        """Convert every declared field in place (called by __post_init__)."""
+        """Convert every declared field in place (called by __post_init__).
+
+        Fields that :meth:`replace` copied from an already-checked model are
+        taken as they are (the cross-field checks of __post_init__ still run).
+        """
+        trusted = getattr(_REPLACING, "unchanged", ())
         for name, p in self.params().items():
+            if name in trusted:
+                continue
             value = getattr(self, name)
             if value is None:
                 if p.default is REQUIRED:
@@ -202,10 +215,18 @@ class WindModel:
         return cls(**kwargs)
 
     def replace(self, **changes):
-        """A copy with some fields changed (validated again)."""
+        """A copy with some fields changed (validated again).
+
+        Only the changed fields are read again; the cross-field checks run on
+        the whole.  A sweep builds every row this way, so it is kept cheap.
+        """
         values = {f.name: getattr(self, f.name) for f in dataclasses.fields(self)}
         values.update(changes)
-        return type(self)(**values)
+        _REPLACING.unchanged = frozenset(values).difference(changes)
+        try:
+            return type(self)(**values)
+        finally:
+            _REPLACING.unchanged = ()
 
     def cgs(self, name):
         """Field ``name`` as a plain float in cgs (NaN when unset)."""
