@@ -16,7 +16,8 @@ Builds a Model A grid sweep of N models (default 2000) around the demo model
 Wall times are the shortest of REPEATS runs: on this two-core virtual
 machine a single run varies by 10 % and more.  What two cores can give at
 best is measured too: two independent processes solving the demo in a loop,
-against one.  Per-model costs are marginal costs -- the
+against one, doing exactly what a worker does (``run_batch`` on the sweep's
+rows) without the pool and the journal.  Per-model costs are marginal costs -- the
 difference between a sweep and one of half its size, divided by the
 difference in models -- so that start-up and other fixed costs cancel.
 
@@ -24,6 +25,7 @@ Goals (sweep issue): speed-up >= 1.8x on 2 cores; per-model overhead <= 10 %
 of a Model A solve; memory flat as the sweep grows.
 """
 
+import math
 import os
 import resource
 import subprocess
@@ -74,18 +76,29 @@ spacing = "log"
 """
 
 
-REPEATS = 3  # every wall time is the shortest of this many runs (noise only adds time)
+REPEATS = 4  # every wall time is the shortest of this many runs (noise only adds time)
+
+
+def run_once(path, out, workers):
+    Path(out).unlink(missing_ok=True)
+    t0 = time.perf_counter()
+    subprocess.run([sys.executable, "-m", "windsolve", "sweep", str(path), "-o", str(out),
+                    "--workers", str(workers), "-q"], check=True)
+    return time.perf_counter() - t0
+
+
+def run_interleaved(runs):
+    """Shortest wall time of each (path, out, workers) run, the runs taken in turn
+    REPEATS times, so that a slow spell of the machine hits all of them alike."""
+    best = [math.inf] * len(runs)
+    for _ in range(REPEATS):
+        for k, run in enumerate(runs):
+            best[k] = min(best[k], run_once(*run))
+    return best
 
 
 def run_cli(path, out, workers):
-    times = []
-    for _ in range(REPEATS):
-        Path(out).unlink(missing_ok=True)
-        t0 = time.perf_counter()
-        subprocess.run([sys.executable, "-m", "windsolve", "sweep", str(path), "-o", str(out),
-                        "--workers", str(workers), "-q"], check=True)
-        times.append(time.perf_counter() - t0)
-    return min(times)
+    return run_interleaved([(path, out, workers)])[0]
 
 
 def peak_rss_mb(path, out):
@@ -103,22 +116,25 @@ def peak_rss_mb(path, out):
 
 
 SCALING_CODE = """
-import time
-import windsolve
-m = windsolve.load_model(windsolve.demo_model_path())
-windsolve.solve(m, profile=False)
+import sys, time
+from windsolve.sweep import load_sweep, run_batch
+sweep = load_sweep(sys.argv[1])
+items = [(i, sweep.rows[i]) for i in range(len(sweep))]
+run_batch(sweep.base, items[:50])
 t0 = time.perf_counter(); n = 0
 while time.perf_counter() - t0 < 5.0:
-    windsolve.solve(m, profile=False); n += 1
+    k = n % len(items)
+    run_batch(sweep.base, items[k:k + 50]); n += 50
 print(n)
 """
 
 
-def machine_scaling():
-    """Throughput of two independent solve loops over one: the ceiling for 2 workers."""
+def machine_scaling(path):
+    """Rows per second of two independent processes doing a worker's job (run_batch on
+    the sweep's rows, no pool, no journal) over one: what two cores give this work."""
     def run(k):
-        procs = [subprocess.Popen([sys.executable, "-c", SCALING_CODE], stdout=subprocess.PIPE,
-                                  text=True) for _ in range(k)]
+        procs = [subprocess.Popen([sys.executable, "-c", SCALING_CODE, str(path)],
+                                  stdout=subprocess.PIPE, text=True) for _ in range(k)]
         return sum(int(p.communicate()[0]) for p in procs)
     return run(2) / run(1)
 
@@ -137,31 +153,29 @@ def main():
         # build each row's model from the base and solve it, summary only.
         base = model_from_dict(sweep.base)
         windsolve.solve(apply_changes(base, sweep.rows[0]), profile=False)
-        loops = []
-        for _ in range(REPEATS):
+        def loop_once():
             t0 = time.perf_counter()
             for changes in sweep.rows:
                 windsolve.solve(apply_changes(base, changes), profile=False)
-            loops.append(time.perf_counter() - t0)
-        loop = min(loops)
-        per_model = loop / total
+            return time.perf_counter() - t0
+
+        loop = min(loop_once() for _ in range(REPEATS))
         # Start-up (spawn the workers, import, load the kernels) measured for
         # each worker count: three processes share two cores while it lasts.
         one = tmp / "one.toml"
         one.write_text(sweep_text(1, 1))
-        startup = run_cli(one, tmp / "one.h5", 1)
         two = tmp / "two.toml"
         two.write_text(sweep_text(1, 2).replace("batch = 50", "batch = 1"))
-        startup2 = run_cli(two, tmp / "two.h5", 2)
-        t1 = run_cli(path, tmp / "w1.h5", 1)
-        t2 = run_cli(path, tmp / "w2.h5", 2)
         # Fixed costs (start-up, first kernel loads, the final file) cancel in
         # the difference between a sweep and one of half its size.
         half = tmp / "half.toml"
         half.write_text(sweep_text(max(1, n_l // 2), n_h))
         n_half = len(load_sweep(half))
-        h1 = run_cli(half, tmp / "h1.h5", 1)
-        h2 = run_cli(half, tmp / "h2.h5", 2)
+        startup, startup2, t1, t2, h1, h2 = run_interleaved([
+            (one, tmp / "one.h5", 1), (two, tmp / "two.h5", 2), (path, tmp / "w1.h5", 1),
+            (path, tmp / "w2.h5", 2), (half, tmp / "h1.h5", 1), (half, tmp / "h2.h5", 2)])
+        loop = min([loop, *(loop_once() for _ in range(REPEATS))])  # before and after
+        per_model = loop / total
         slope1 = (t1 - h1) / (total - n_half)
         slope2 = (t2 - h2) / (total - n_half)
         print(f"{total} Model A models (demo grid: luminosity x porosity length)")
@@ -178,8 +192,8 @@ def main():
         print(f"  speed-up 2 vs 1 worker (marginal): {speedup:.2f}x   (goal >= 1.8x; raw "
               f"{t1 / t2:.2f}x, start-up subtracted "
               f"{(t1 - startup) / (t2 - startup2):.2f}x)")
-        print(f"  two independent solve loops on this machine: {machine_scaling():.2f}x one "
-              f"(the ceiling for 2 workers)")
+        print(f"  two independent processes doing the workers' job (run_batch, no sweep "
+              f"machinery): {machine_scaling(path):.2f}x one -- what 2 cores give this work here")
         print(f"  per-model overhead of the sweep machinery, 1 worker (marginal): "
               f"{100 * overhead:+.1f} % of a solve   (goal <= 10 %)")
         # Model B: photosphere-anchored optically thick winds.

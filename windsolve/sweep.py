@@ -602,7 +602,7 @@ def run_sweep(sweep, out, workers=None, scheduler=None, resume=False, quiet=Fals
         queue = iter(batches)
         synced = time.monotonic()
         # Keep a bounded number of batches in flight, so memory stays flat.
-        limit = max(2 * (workers or os.cpu_count() or 1), 4)
+        limit = max(4 * (workers or os.cpu_count() or 1), 8)
         try:
             while True:
                 while len(pending) < limit:
