@@ -92,6 +92,7 @@ LN_RANGE = 690.0  # Mdot is searched down to Mdot_max * exp(-LN_RANGE)
 MAX_SHOTS = 400
 SUBSONIC_POINTS = 100  # a stored profile has at least this many points below r_c
 PROFILE_STEPS = 2000  # room for the integration steps of one stored leg
+FIRST_STEP = 10.0  # the inward leg's first trial step, in units of its offset delta r_c
 MIN_WALK = 1e-6  # smallest step [in ln Mdot] of the walk toward a sign change
 
 
@@ -370,7 +371,7 @@ def shoot_work(ln_mdot, P, O, rtol, delta, Q, none):
         return OK, math.log(density(R0, v_base, Q)) - ln_rho0, rc, slope
     y0 = math.log(a - slope * delta * rc)
     status, r, y, n_out, nfev = integrate_inward(
-        rc * (1.0 - delta), y0, R0, Q, O, 0.0, rtol, delta * rc, np.inf, none, none)
+        rc * (1.0 - delta), y0, R0, Q, O, 0.0, rtol, FIRST_STEP * delta * rc, np.inf, none, none)
     x = math.log(r)
     if status == REACHED_END:
         g = math.log(density(R0, math.exp(y), Q)) - ln_rho0
@@ -727,12 +728,12 @@ def inward_part(Q, O, rc, slope, rtol, delta, max_step, capacity):
     yi = np.empty(n_in)
     y0 = math.log(a - slope * delta * rc)
     st, r_last, y, ni, nfev = integrate_inward(
-        rc * (1.0 - delta), y0, R0, Q, O, 0.0, rtol, delta * rc, np.inf, xi, yi, dr_in)
+        rc * (1.0 - delta), y0, R0, Q, O, 0.0, rtol, FIRST_STEP * delta * rc, np.inf, xi, yi, dr_in)
     if ni == xi.shape[0] and ni < capacity:  # full: once more with all the room
         xi = np.empty(capacity)
         yi = np.empty(capacity)
         st, r_last, y, ni, nfev = integrate_inward(
-            rc * (1.0 - delta), y0, R0, Q, O, 0.0, rtol, delta * rc, np.inf, xi, yi, dr_in)
+            rc * (1.0 - delta), y0, R0, Q, O, 0.0, rtol, FIRST_STEP * delta * rc, np.inf, xi, yi, dr_in)
     status_in = OK
     if st != REACHED_END:
         status_in = LEFT_TABLE if left_table(math.log(r_last), y, Q, O) else INWARD_SINGULAR
