@@ -370,8 +370,11 @@ def shoot_work(ln_mdot, P, O, rtol, delta, Q, none):
         v_base = a - slope * (rc - R0)
         return OK, math.log(density(R0, v_base, Q)) - ln_rho0, rc, slope
     y0 = math.log(a - slope * delta * rc)
+    # (dx_out given, not left to its default: numba would compile a second
+    # copy of the integrator for the call without it)
     status, r, y, n_out, nfev = integrate_inward(
-        rc * (1.0 - delta), y0, R0, Q, O, 0.0, rtol, FIRST_STEP * delta * rc, np.inf, none, none)
+        rc * (1.0 - delta), y0, R0, Q, O, 0.0, rtol, FIRST_STEP * delta * rc, np.inf, none, none,
+        0.0)
     x = math.log(r)
     if status == REACHED_END:
         g = math.log(density(R0, math.exp(y), Q)) - ln_rho0
