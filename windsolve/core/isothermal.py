@@ -567,25 +567,25 @@ def converge(P, O, rtol, delta, x, g, rc, slope, step0, x_min, x_max, shots, rea
     # once |g| < rtol (the mismatch is within the integration noise).
     xtol = 0.1 * rtol
     tol = 0.5 * xtol
-    xpre, fpre, rpre, spre_ = x, g, rc, slope
-    xcur, fcur, rcur, scur_ = x_far, g_far, rc_far, slope_far
+    xpre, fpre, rpre, slope_pre = x, g, rc, slope
+    xcur, fcur, rcur, slope_cur = x_far, g_far, rc_far, slope_far
     xblk = 0.0
     fblk = 0.0
     rblk = math.nan
-    sblk_ = math.nan
+    slope_blk = math.nan
     spre = 0.0
     scur = 0.0
     while True:
         if shots >= MAX_SHOTS:
             return ROOT_NOT_CONVERGED, xcur, math.nan, math.nan, shots, reason, seen_ok
         if (fpre < 0.0) != (fcur < 0.0):
-            xblk, fblk, rblk, sblk_ = xpre, fpre, rpre, spre_
+            xblk, fblk, rblk, slope_blk = xpre, fpre, rpre, slope_pre
             spre = xcur - xpre
             scur = spre
         if abs(fblk) < abs(fcur):
-            xpre, fpre, rpre, spre_ = xcur, fcur, rcur, scur_
-            xcur, fcur, rcur, scur_ = xblk, fblk, rblk, sblk_
-            xblk, fblk, rblk, sblk_ = xpre, fpre, rpre, spre_
+            xpre, fpre, rpre, slope_pre = xcur, fcur, rcur, slope_cur
+            xcur, fcur, rcur, slope_cur = xblk, fblk, rblk, slope_blk
+            xblk, fblk, rblk, slope_blk = xpre, fpre, rpre, slope_pre
         sbis = 0.5 * (xblk - xcur)
         if abs(sbis) < tol or abs(fcur) < rtol:
             break
@@ -607,16 +607,16 @@ def converge(P, O, rtol, delta, x, g, rc, slope, step0, x_min, x_max, shots, rea
         else:
             spre = sbis
             scur = sbis
-        xpre, fpre, rpre, spre_ = xcur, fcur, rcur, scur_
+        xpre, fpre, rpre, slope_pre = xcur, fcur, rcur, slope_cur
         if abs(scur) > tol:
             xcur += scur
         else:
             xcur += tol if sbis > 0.0 else -tol
-        c4, fcur, rcur, scur_ = shoot_work(xcur, P, O, rtol, delta, Q, none)
+        c4, fcur, rcur, slope_cur = shoot_work(xcur, P, O, rtol, delta, Q, none)
         shots += 1
         if c4 != OK:
             return c4, xcur, math.nan, math.nan, shots, c4, seen_ok
-    return OK, xcur, rcur, scur_, shots, reason, seen_ok
+    return OK, xcur, rcur, slope_cur, shots, reason, seen_ok
 
 
 @njit(cache=True, error_model="numpy")
@@ -736,7 +736,8 @@ def inward_part(Q, O, rc, slope, rtol, delta, max_step, capacity):
         xi = np.empty(capacity)
         yi = np.empty(capacity)
         st, r_last, y, ni, nfev = integrate_inward(
-            rc * (1.0 - delta), y0, R0, Q, O, 0.0, rtol, FIRST_STEP * delta * rc, np.inf, xi, yi, dr_in)
+            rc * (1.0 - delta), y0, R0, Q, O, 0.0, rtol, FIRST_STEP * delta * rc, np.inf, xi, yi,
+            dr_in)
     status_in = OK
     if st != REACHED_END:
         status_in = LEFT_TABLE if left_table(math.log(r_last), y, Q, O) else INWARD_SINGULAR
