@@ -15,9 +15,9 @@ Nothing finished is lost: every finished batch is appended to a journal next
 to the output (``OUT.h5.partial``, JSON lines, flushed after every batch, so a
 killed sweep loses at most the batches in flight, and fsynced at least once a
 second, so a machine that crashes loses at most about a second more), and
-``--resume`` runs only the missing rows.  The HDF5 file is written from the journal at the end
-(under a temporary name, then renamed), rows in design order, so a resumed
-sweep gives the same table as an uninterrupted one.
+``--resume`` runs only the missing rows.  The HDF5 file is written at the end
+from the finished rows (under a temporary name, then renamed), in design
+order, so a resumed sweep gives the same table as an uninterrupted one.
 """
 
 import hashlib
