@@ -46,7 +46,6 @@ def sweep_text(n_l, n_h):
     return f"""[sweep]
 base = "{DEMO}"
 design = "grid"
-batch = 50
 [[axis]]
 key = "star.luminosity"
 start = "2.5e6 Lsun"
@@ -165,7 +164,7 @@ def main():
         one = tmp / "one.toml"
         one.write_text(sweep_text(1, 1))
         two = tmp / "two.toml"
-        two.write_text(sweep_text(1, 2).replace("batch = 50", "batch = 1"))
+        two.write_text(sweep_text(1, 2).replace('design = "grid"', 'design = "grid"\nbatch = 1'))
         # Fixed costs (start-up, first kernel loads, the final file) cancel in
         # the difference between a sweep and one of half its size.
         half = tmp / "half.toml"

@@ -267,3 +267,14 @@ def test_csv_export_and_plot(tmp_path, capsys):
     assert cli.main(["plot", str(out), "-o", str(png)]) == 0
     assert png.read_bytes()[:4] == b"\x89PNG"
     assert json.loads(json.dumps(header))  # plain strings
+
+
+def test_default_batch_keeps_every_worker_busy():
+    # common practice: at least a few tasks per worker, and tasks long enough
+    # that the per-task cost stays small -- the limits by model kind.
+    from windsolve.sweep import BATCH_LIMIT, TASKS_PER_WORKER, _default_batch
+    assert _default_batch("isothermal", 100_000, 2, None) == BATCH_LIMIT["isothermal"]
+    assert _default_batch("diffusion", 100_000, 2, None) == BATCH_LIMIT["diffusion"]
+    small = _default_batch("isothermal", 120, 2, None)
+    assert -(-120 // small) >= TASKS_PER_WORKER * 2
+    assert _default_batch("isothermal", 1, 8, None) == 1

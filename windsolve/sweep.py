@@ -44,7 +44,11 @@ DESIGNS = ("grid", "random", "latin")
 SPACINGS = ("linear", "log")
 SWEEP_KEYS = ("base", "design", "samples", "seed", "profiles", "batch")
 AXIS_KEYS = ("key", "values", "start", "stop", "num", "spacing")
-DEFAULT_BATCH = 25
+# Models per task when the sweep file does not say: enough that a task is
+# tens of milliseconds of work (each task costs the main process a few
+# hundred microseconds), and at least four tasks per worker.
+BATCH_LIMIT = {"isothermal": 200, "diffusion": 10}
+TASKS_PER_WORKER = 4
 JOURNAL_SUFFIX = ".partial"
 FSYNC_INTERVAL = 1.0  # [s] the journal is flushed every batch, written to disk this often
 
@@ -79,7 +83,7 @@ class Sweep:
     base: dict  # the base model file (nested dicts)
     rows: list  # per row: {dotted key: value as written in a model file}
     profiles: bool = False
-    batch: int = DEFAULT_BATCH
+    batch: int = None  # models per task; None: chosen when the sweep runs
     axis_table: np.ndarray = field(default=None)  # (n_rows, n_axes) cgs
     observables: dict = None  # line settings: widths are measured in the workers
 
@@ -317,8 +321,9 @@ def load_sweep(path):
     profiles = spec.get("profiles", False)
     if not isinstance(profiles, bool):
         _fail(path, "profiles = true or false")
-    batch = spec.get("batch", DEFAULT_BATCH)
-    if not isinstance(batch, int) or isinstance(batch, bool) or batch < 1:
+    batch = spec.get("batch")
+    if batch is not None and (not isinstance(batch, int) or isinstance(batch, bool)
+                              or batch < 1):
         _fail(path, "batch = a whole number >= 1 (models per task)")
     out_axes = [Axis(a[0], [row[a[0]] for row in rows], numbers[:, j],
                      "" if a[3] is None else a[3].to_string())
@@ -584,8 +589,9 @@ def run_sweep(sweep, out, workers=None, scheduler=None, resume=False, quiet=Fals
                           f"finish it, or delete it to start again")
     done = _read_journal(journal, sweep) if (resume and journal.exists()) else {}
     todo = [i for i in range(len(sweep)) if i not in done]
-    batches = [todo[k:k + sweep.batch] for k in range(0, len(todo), sweep.batch)]
     executor, close = _executor(workers, scheduler)
+    batch = sweep.batch or _default_batch(sweep.kind, len(todo), workers, scheduler)
+    batches = [todo[k:k + batch] for k in range(0, len(todo), batch)]
     bar = None
     if not quiet:
         from tqdm import tqdm
@@ -652,6 +658,14 @@ def run_sweep(sweep, out, workers=None, scheduler=None, resume=False, quiet=Fals
     write_sweep_table(sweep, done, out)
     journal.unlink()
     return done, False
+
+
+def _default_batch(kind, n_todo, workers, scheduler):
+    """Models per task: BATCH_LIMIT for the model, fewer when that would leave
+    workers idle (fewer than TASKS_PER_WORKER tasks each)."""
+    n_workers = workers or (8 if scheduler is not None else os.cpu_count() or 1)
+    spread = -(-n_todo // (TASKS_PER_WORKER * n_workers))  # ceil
+    return max(1, min(BATCH_LIMIT.get(kind, 25), spread))
 
 
 def _executor(workers, scheduler):
