@@ -184,12 +184,10 @@ def solve_isothermal(model, profile=True):
     raw = solve_isothermal_cgs(model, profile)
     summary = {key: value * SUMMARY_UNITS[key] for key, value in raw["summary"].items()}
     summary["outer_radius"] = model.outer_radius.to(u.cm)
-    prof = {key: a << PROFILE_UNITS[key] for key, a in raw["profile"].items()}
-    if prof:  # isothermal: T is the model's everywhere
-        prof = {"radius": prof["radius"], "velocity": prof["velocity"],
-                "density": prof["density"],
-                "temperature": np.full_like(raw["profile"]["radius"], model.T) << u.K,
-                **prof}
+    prof = {}
+    if raw["profile"]:  # isothermal: T is the model's everywhere
+        arrays = dict(raw["profile"], temperature=np.full_like(raw["profile"]["radius"], model.T))
+        prof = {key: arrays[key] << unit for key, unit in PROFILE_UNITS.items() if key in arrays}
     return WindResult(model, raw["converged"], raw["status"], raw["message"], summary,
                       prof, raw["critical"], raw["counters"])
 

@@ -482,16 +482,14 @@ def _line_settings(observables):
 
 
 def journal_batch(base, items, profiles=False, observables=None):
-    """:func:`run_batch` and its rows as the journal's JSON lines:
-    ``(text, records, n_converged)``.
+    """:func:`run_batch` and its rows as the journal's JSON lines: ``(text, records)``.
 
     Serialising in the worker keeps that work off the main process, which
     appends the text to the journal and keeps the records (unpickling them
     costs it far less than parsing the JSON would).
     """
     records = run_batch(base, items, profiles, observables)
-    text = "".join(json.dumps(record) + "\n" for record in records)
-    return text, records, sum(1 for record in records if record.get("converged"))
+    return "".join(json.dumps(record) + "\n" for record in records), records
 
 
 def run_batch(base, items, profiles=False, observables=None):
@@ -597,7 +595,6 @@ def run_sweep(sweep, out, workers=None, scheduler=None, resume=False, quiet=Fals
         from tqdm import tqdm
         bar = tqdm(total=len(sweep), initial=len(done), unit="model", desc="sweep")
     converged = sum(1 for r in done.values() if r.get("converged"))
-    n_done = len(done)
     interrupted = False
     with open(journal, "a", encoding="utf-8") as jf:
         if jf.tell() == 0:
@@ -623,7 +620,7 @@ def run_sweep(sweep, out, workers=None, scheduler=None, resume=False, quiet=Fals
                 finished, pending = wait(pending, return_when=FIRST_COMPLETED)
                 for fut in finished:
                     try:
-                        text, records, n_converged = fut.result()
+                        text, records = fut.result()
                     except BrokenExecutor as error:
                         raise WindsolveError(
                             f"a worker process died ({error}); the models finished so far "
@@ -631,17 +628,15 @@ def run_sweep(sweep, out, workers=None, scheduler=None, resume=False, quiet=Fals
                     jf.write(text)
                     for record in records:
                         done[record["row"]] = record
-                    n = len(records)
-                    n_done += n
-                    converged += n_converged
+                        converged += bool(record.get("converged"))
                     jf.flush()  # in the OS's hands: a killed sweep keeps it
                     now = time.monotonic()
                     if now - synced >= FSYNC_INTERVAL:  # on the disk: a crash keeps it
                         os.fsync(jf.fileno())
                         synced = now
                     if bar is not None:
-                        bar.update(n)
-                        failed = n_done - converged
+                        bar.update(len(records))
+                        failed = len(done) - converged
                         bar.set_postfix(converged=converged, failed=failed, refresh=False)
         except KeyboardInterrupt:
             interrupted = True
