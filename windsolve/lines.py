@@ -121,7 +121,7 @@ One implementation.  :func:`emission_profile`, :func:`pcygni_profile`,
 measure with the same kernels; :func:`line_widths` resolves its input and
 calls :func:`widths_cgs`, the astropy-free entry point for sweep workers.
 The emission profile is a suffix sum of exact per-sub-interval integrals
-when v(r) rises outward (O(m + N_w log m) for m sub-intervals and N_w
+when v(r) rises outward (O(m + N_w) for m sub-intervals and N_w
 velocities), the general loop otherwise; the blue edge evaluates the
 Sobolev profile only where the search needs it.
 """

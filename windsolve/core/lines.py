@@ -33,6 +33,7 @@ from numba import njit
 TWO_PI = 2.0 * math.pi
 SQRT_TWO_PI = math.sqrt(2.0 * math.pi)
 SQRT_TWO = math.sqrt(2.0)
+BY_EITHER, BY_SUFFIX, BY_LOOP = 0, 1, 2  # how _emission_flux_refined sums
 NSUB = 4  # sub-intervals per tabulated interval (converged to < 1e-4 on the demo)
 N_MU = 16  # Gauss-Legendre nodes of the angle averages in the escape probabilities
 TAU_SATURATED = 40.0  # 1 - exp(-tau) == 1 to double precision above this
@@ -344,10 +345,7 @@ def nondecreasing(a):
 def emission_flux_general(r, v, rho, n, Rc, occult, w):
     """:func:`emission_flux` by the general loop (every w x every sub-interval)."""
     rf, vf, lf, lv = _refine(r, v, rho, Rc if occult else r[0], NSUB)
-    if rf.shape[0] < 2:
-        return np.zeros(w.shape[0])
-    lg, hi, full = _emission_nodes(rf, vf, lf, lv, n, Rc, occult)
-    return _emission_loop(rf, vf, lg, hi, full, Rc, occult, w)
+    return _emission_flux_refined(rf, vf, lf, lv, n, Rc, occult, w, BY_LOOP)
 
 
 @njit(cache=True, error_model="numpy")
@@ -355,10 +353,7 @@ def emission_flux_monotonic(r, v, rho, n, Rc, occult, w):
     """:func:`emission_flux` by suffix sums; only valid when v is non-decreasing
     outside the start radius (no check: :func:`emission_flux` checks)."""
     rf, vf, lf, lv = _refine(r, v, rho, Rc if occult else r[0], NSUB)
-    if rf.shape[0] < 2:
-        return np.zeros(w.shape[0])
-    lg, hi, full = _emission_nodes(rf, vf, lf, lv, n, Rc, occult)
-    return _emission_prefix(rf, vf, lg, hi, full, Rc, occult, w)
+    return _emission_flux_refined(rf, vf, lf, lv, n, Rc, occult, w, BY_SUFFIX)
 
 
 @njit(cache=True, error_model="numpy")
@@ -400,23 +395,26 @@ def emission_flux(r, v, rho, n, Rc, occult, w):
     Two evaluations of the same sum: when v(r) and the occultation edge are
     non-decreasing outward on the sub-divided grid (the normal case) the
     region seen at w is one outer part of the grid, and F(w) is a suffix sum
-    of the per-sub-interval integrals plus one partial sub-interval found by
-    binary search (:func:`emission_flux_monotonic`, O(m + N_w log m));
+    of the per-sub-interval integrals plus one partial sub-interval, found by
+    walking from the previous velocity's (:func:`emission_flux_monotonic`,
+    O(m + N_w));
     otherwise every velocity visits every sub-interval
     (:func:`emission_flux_general`, O(m N_w)).  Both give the same numbers
     to rounding.
     """
     rf, vf, lf, lv = _refine(r, v, rho, Rc if occult else r[0], NSUB)
-    return _emission_flux_refined(rf, vf, lf, lv, n, Rc, occult, w)
+    return _emission_flux_refined(rf, vf, lf, lv, n, Rc, occult, w, BY_EITHER)
 
 
 @njit(cache=True, error_model="numpy")
-def _emission_flux_refined(rf, vf, lf, lv, n, Rc, occult, w):
-    """:func:`emission_flux` on a grid from :func:`_refine` (started at Rc if occult)."""
+def _emission_flux_refined(rf, vf, lf, lv, n, Rc, occult, w, method):
+    """:func:`emission_flux` on a grid from :func:`_refine` (started at Rc if occult);
+    ``method`` BY_EITHER (suffix sums when they apply), BY_SUFFIX or BY_LOOP."""
     if rf.shape[0] < 2:
         return np.zeros(w.shape[0])
     lg, hi, full = _emission_nodes(rf, vf, lf, lv, n, Rc, occult)
-    if nondecreasing(vf) and nondecreasing(hi):
+    if method == BY_SUFFIX or (method == BY_EITHER and nondecreasing(vf)
+                               and nondecreasing(hi)):
         return _emission_prefix(rf, vf, lg, hi, full, Rc, occult, w)
     return _emission_loop(rf, vf, lg, hi, full, Rc, occult, w)
 
@@ -962,7 +960,7 @@ def emission_line(r, v, rho, n, Rc, occult, w, sigma, hwzi_fraction):
 @njit(cache=True, error_model="numpy")
 def _emission_line_refined(rf, vf, lf, lv, n, Rc, occult, w, sigma, hwzi_fraction):
     """:func:`emission_line` on a grid from :func:`_refine`."""
-    F = _emission_flux_refined(rf, vf, lf, lv, n, Rc, occult, w)
+    F = _emission_flux_refined(rf, vf, lf, lv, n, Rc, occult, w, BY_EITHER)
     F = gaussian_broaden(F, w[1] - w[0], sigma, 0.0)
     peak = F.max()
     if not peak > 0.0:
