@@ -76,6 +76,56 @@ def error_norm(K, h, y, y_new, rtol, atol):
 
 
 @njit(cache=True, error_model="numpy")
+def step_bounds(x, direction, h_abs, max_step):
+    """(min_step, h_abs): the smallest step resolvable at x, and h_abs kept within
+    [min_step, max_step] before a step is tried."""
+    min_step = 10.0 * abs(np.nextafter(x, direction * np.inf) - x)
+    if h_abs > max_step:
+        h_abs = max_step
+    elif h_abs < min_step:
+        h_abs = min_step
+    return min_step, h_abs
+
+
+@njit(cache=True, error_model="numpy")
+def trial_point(x, h_abs, direction, x_end):
+    """(x_new, h) of a trial step of size h_abs, not past x_end."""
+    x_new = x + h_abs * direction
+    if direction * (x_new - x_end) > 0.0:
+        x_new = x_end
+    return x_new, x_new - x
+
+
+@njit(cache=True, error_model="numpy")
+def error_norm_scalar(K, h, y, y_new, rtol, atol):
+    """:func:`error_norm` for one component (K one-dimensional)."""
+    scale = atol + max(abs(y), abs(y_new)) * rtol
+    e5 = 0.0
+    e3 = 0.0
+    for m in range(N_STAGES + 1):
+        e5 += K[m] * E5[m]
+        e3 += K[m] * E3[m]
+    err5 = (e5 / scale) ** 2
+    err3 = (e3 / scale) ** 2
+    if err5 == 0.0 and err3 == 0.0:
+        return 0.0
+    return abs(h) * err5 / math.sqrt(err5 + 0.01 * err3)
+
+
+@njit(cache=True, error_model="numpy")
+def interpolate_scalar(F, y_old, t):
+    """:func:`interpolate` for one component: the dense-output value at t."""
+    acc = 0.0
+    for i in range(INTERPOLATOR_POWER - 1, -1, -1):
+        acc += F[i]
+        if (INTERPOLATOR_POWER - 1 - i) % 2 == 0:
+            acc *= t
+        else:
+            acc *= 1.0 - t
+    return acc + y_old
+
+
+@njit(cache=True, error_model="numpy")
 def next_step(en, h_abs, rejected):
     """Step-size control after a trial step with error norm ``en``.
 
@@ -235,11 +285,7 @@ def make_integrator(rhs, monitor):
         h_abs = min(abs(h_start), max_step)
         steps = 0
         while direction * (x_end - x) > 0.0:
-            min_step = 10.0 * abs(np.nextafter(x, direction * np.inf) - x)
-            if h_abs > max_step:
-                h_abs = max_step
-            elif h_abs < min_step:
-                h_abs = min_step
+            min_step, h_abs = step_bounds(x, direction, h_abs, max_step)
             accepted = False
             rejected = False
             while not accepted:
@@ -248,11 +294,7 @@ def make_integrator(rhs, monitor):
                     return TOO_MANY_STEPS, x, y, n_out, nfev
                 if h_abs < min_step:
                     return STEP_TOO_SMALL, x, y, n_out, nfev
-                h = h_abs * direction
-                x_new = x + h
-                if direction * (x_new - x_end) > 0.0:
-                    x_new = x_end
-                h = x_new - x
+                x_new, h = trial_point(x, h_abs, direction, x_end)
                 h_abs = abs(h)
                 dop853_step(x, y, f, h, P, O, K, y_new, f_new, y_stage, f_stage)
                 nfev += N_STAGES
@@ -354,11 +396,7 @@ def make_scalar_integrator(rhs, monitor):
         h_abs = min(abs(h_start), max_step)
         steps = 0
         while direction * (x_end - x) > 0.0:
-            min_step = 10.0 * abs(np.nextafter(x, direction * np.inf) - x)
-            if h_abs > max_step:
-                h_abs = max_step
-            elif h_abs < min_step:
-                h_abs = min_step
+            min_step, h_abs = step_bounds(x, direction, h_abs, max_step)
             accepted = False
             rejected = False
             while not accepted:
@@ -367,25 +405,11 @@ def make_scalar_integrator(rhs, monitor):
                     return TOO_MANY_STEPS, x, y, n_out, nfev
                 if h_abs < min_step:
                     return STEP_TOO_SMALL, x, y, n_out, nfev
-                x_new = x + h_abs * direction
-                if direction * (x_new - x_end) > 0.0:
-                    x_new = x_end
-                h = x_new - x
+                x_new, h = trial_point(x, h_abs, direction, x_end)
                 h_abs = abs(h)
                 y_new, f_new = step(x, y, f, h, P, O, K)
                 nfev += N_STAGES
-                # DOP853's blended error norm (error_norm, one component)
-                scale = atol + max(abs(y), abs(y_new)) * rtol
-                e5 = 0.0
-                e3 = 0.0
-                for m in range(N_STAGES + 1):
-                    e5 += K[m] * E5[m]
-                    e3 += K[m] * E3[m]
-                err5 = (e5 / scale) ** 2
-                err3 = (e3 / scale) ** 2
-                en = 0.0
-                if err5 != 0.0 or err3 != 0.0:
-                    en = h_abs * err5 / math.sqrt(err5 + 0.01 * err3)
+                en = error_norm_scalar(K, h, y, y_new, rtol, atol)
                 h_abs, accepted, rejected = next_step(en, h_abs, rejected)
             if dx_out > 0.0 and n_out < capacity:
                 x_k = x0 + direction * k_next * dx_out
@@ -393,13 +417,8 @@ def make_scalar_integrator(rhs, monitor):
                     dense(x, y, y_new, f_new, h, P, O, K, F)
                     nfev += N_STAGES_EXTENDED - N_STAGES - 1
                 while direction * (x_new - x_k) > 0.0 and n_out < capacity:
-                    t = (x_k - x) / h
-                    acc = 0.0
-                    for i in range(INTERPOLATOR_POWER - 1, -1, -1):
-                        acc += F[i]
-                        acc *= t if (INTERPOLATOR_POWER - 1 - i) % 2 == 0 else 1.0 - t
                     out_x[n_out] = x_k
-                    out_y[n_out] = acc + y
+                    out_y[n_out] = interpolate_scalar(F, y, (x_k - x) / h)
                     n_out += 1
                     k_next += 1
                     x_k = x0 + direction * k_next * dx_out
