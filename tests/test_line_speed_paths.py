@@ -112,6 +112,33 @@ def test_occultation_root_finds_the_bisection_crossing():
             assert abs(t_new - t_bis) < 1e-12
 
 
+# -- emission widths: a few bisected values == the whole grid profile -------------------
+
+@pytest.mark.parametrize("name", sorted(SYNTHETIC) + ["demo"])
+@pytest.mark.parametrize("core", [1.0, 1.37, 8.2])
+def test_sparse_emission_widths_equal_the_whole_grid(demo, name, core):
+    # Unbroadened widths are measured from about 40 values of F found by
+    # bisection; they must be the numbers outermost_crossings gives on the
+    # whole grid profile, for odd and even grids (w = 0 on the grid or not).
+    r, v, rho = demo_arrays(demo)[:3] if name == "demo" else SYNTHETIC[name]
+    Rc = core * r[0]
+    for occult in (True, False):
+        for n in (1.0, 2.0):
+            for n_w in (401, 400, 37):
+                w = kernels.velocity_grid(v.max(), 0.0, n_w)
+                rf, vf, lf, lv = kernels._refine(r, v, rho, Rc if occult else r[0], 1)
+                lg, hi, full = kernels._emission_nodes(rf, vf, lf, lv, n, Rc, occult)
+                assert kernels.nondecreasing(vf) and kernels.nondecreasing(hi)
+                for level in (0.05, 0.2):
+                    f, fwhm, hwzi, ok = kernels._emission_line_refined(
+                        rf, vf, lf, lv, n, Rc, occult, w, 0.0, level)
+                    got = kernels._emission_widths_sparse(rf, vf, lg, hi, full, Rc, occult,
+                                                          w, level)
+                    assert ok and got[2]
+                    assert got[0] == fwhm and np.isfinite(fwhm)
+                    assert got[1] == hwzi or (np.isnan(got[1]) and np.isnan(hwzi))
+
+
 # -- P Cygni: the lazy edge == a dense sampling of the full profile ----------------------
 
 def _grid_edge(r, v, rho, K, Rc, n_w, sigma=0.0, depth=0.1, half=None):

@@ -73,17 +73,22 @@ def _isothermal_failure(code, model):
                       f"numerics.rtol")
 
 
-def solve_isothermal_cgs(model, profile=True, critical=True):
+def solve_isothermal_cgs(model, profile=True, critical=True, widths=None):
     """Model A in plain cgs floats: what :func:`solve_isothermal` wraps in units.
 
     Returns a dict with ``converged``, ``status``, ``message``, ``summary``
     (floats in the cgs units of :data:`~windsolve.result.SUMMARY_UNITS`),
     ``profile`` (float arrays in those of ``PROFILE_UNITS``, temperature
-    left out as it is the model's T; empty without ``profile``; with
-    ``profile="outward"`` only its part from r_c out, the same points),
+    left out as it is the model's T; empty without ``profile``),
     ``critical`` (the critical points, only with ``critical``), ``ln_mdot``
     and ``counters``.  Sweep workers use it directly, so that a model's row
     costs no unit handling.
+
+    With ``widths`` (a :class:`~windsolve.lines.LineSettingsCGS`) and no
+    ``profile``, a converged result also has ``widths``: (FWHM, HWZI, blue
+    edge) [cm/s], the numbers ``line_widths(solve(model), settings)`` gives,
+    measured in one compiled call
+    (:func:`windsolve.core.isothermal_lines.outer_state_and_widths`).
     """
     t0 = time.perf_counter()
     P, O = model.kernel_arrays
@@ -115,11 +120,18 @@ def solve_isothermal_cgs(model, profile=True, critical=True):
         return out
     out["ln_mdot"] = ln_mdot
     v0 = math.exp(ln_mdot) / (FOUR_PI * R0**2 * model.cgs("base_density"))
-    if profile == "outward":  # from r_c out (sweeps measuring line widths)
-        st_in = K.OK
-        st_out, r, v = K.outward_profile(ln_mdot, P, O, rtol, DELTA, MAX_STEP, CAPACITY)
-    elif profile:
+    if profile:
         st_in, st_out, r, v = K.profile(ln_mdot, P, O, rtol, DELTA, MAX_STEP, CAPACITY)
+    elif widths is not None:  # the outer end and the widths (sweeps measuring lines)
+        from .core.isothermal_lines import outer_state_and_widths
+        from .lines import MONOTONIC_RTOL
+        c = widths
+        st_in, st_out, r_end, v_end, *measured = outer_state_and_widths(
+            ln_mdot, P, O, rtol, DELTA, MAX_STEP, CAPACITY, c.emissivity_power,
+            c.occultation, c.broadening_fwhm, c.broadening_sigma, c.hwzi_fraction,
+            c.edge_depth, c.line_strength, c.n_velocity, MONOTONIC_RTOL)
+        r = np.array([R0, r_end])
+        v = np.array([v0, v_end])
     else:  # the outer end only (sweeps): no stored profile
         st_in = K.OK
         st_out, r_end, v_end = K.end_state(ln_mdot, P, O, rtol, DELTA)
@@ -128,11 +140,7 @@ def solve_isothermal_cgs(model, profile=True, critical=True):
     rho, L, kappa, gamma = K.profile_quantities(ln_mdot, r, v, P, O)
     summary["mass_loss_rate"] = math.exp(ln_mdot)
     summary["sonic_radius"] = rc
-    if profile == "outward":
-        gamma0 = K.profile_quantities(ln_mdot, np.array([R0]), np.array([v0]), P, O)[3][0]
-    else:
-        gamma0 = gamma[0]
-    summary["base_eddington_factor"] = float(gamma0)
+    summary["base_eddington_factor"] = float(gamma[0])
     if profile:
         out["profile"] = {"radius": r, "velocity": v, "density": rho, "luminosity": L,
                           "opacity": kappa, "eddington_factor": gamma}
@@ -155,6 +163,8 @@ def solve_isothermal_cgs(model, profile=True, critical=True):
     elif st_out == K.OK:
         converged, status = True, "converged"
         summary["terminal_velocity"] = float(v[-1])
+        if widths is not None and not profile:
+            out["widths"] = tuple(measured)
         message = (f"converged: transonic solution through the saddle at "
                    f"r_c = {rc / R0:.5g} R0")
     elif st_out == K.STALLED:

@@ -418,54 +418,25 @@ def _isothermal_row(model, record, observables):
     """Fill a sweep row of a Model A model from the cgs solver (no units on the way).
 
     The same numbers as ``solve(model)`` and ``line_widths`` give: the
-    summary in the cgs units of SUMMARY_UNITS, the widths from the same
-    arrays and core radius (:func:`windsolve.lines.default_core_radius_cgs`).
+    summary in the cgs units of SUMMARY_UNITS and, with ``observables``, the
+    widths measured in the same compiled call that finishes the solution
+    (:func:`windsolve.solve.solve_isothermal_cgs` with ``widths``).
     """
     from .solve import solve_isothermal_cgs
 
-    settings = None if observables is None else _line_settings(observables)
-    # With occultation a line sees nothing inside the core radius; when the
-    # optical core lies beyond r_c, the part of the profile from r_c out
-    # gives the same widths as the whole (the optical depth is summed from
-    # outside), so the subsonic part is computed only when needed.
-    mode = False if settings is None else ("outward" if settings.occultation else True)
-    raw = solve_isothermal_cgs(model, profile=mode, critical=False)
+    settings = None if observables is None else _line_settings(observables).cgs
+    raw = solve_isothermal_cgs(model, profile=False, critical=False, widths=settings)
     record["converged"] = raw["converged"]
     record["status"] = raw["status"]
     record["message"] = raw["message"]
     summary = raw["summary"]
     for key in SUMMARY_COLUMNS:
         record[key] = summary.get(key, math.nan)
-    if observables is None:
-        return
-    for name in WIDTH_COLUMNS:
-        record[name] = math.nan
-    if raw["converged"]:
-        from .lines import default_core_radius_cgs, optical_core_radius_cgs, widths_cgs
-        p = raw["profile"]
-        r, v, rho, kappa = p["radius"], p["velocity"], p["density"], p["opacity"]
-        Rc = None
-        if mode == "outward":
-            Rc = optical_core_radius_cgs(r, rho, kappa)
-            if Rc is None or not Rc > r[0]:  # the core lies below r_c: add that part
-                Rc = None
-                from .core import isothermal as K
-                from .solve import CAPACITY, DELTA, INWARD_PROFILE_FAILED, MAX_STEP
-                P, O = model.kernel_arrays
-                st_in, ri, vi = K.inward_profile(raw["ln_mdot"], P, O, model.rtol, DELTA,
-                                                 MAX_STEP, CAPACITY)
-                if st_in != K.OK:  # as solve() says it
-                    record.update(converged=False, status="failed",
-                                  message=INWARD_PROFILE_FAILED, terminal_velocity=math.nan)
-                    return
-                rho_i, _, kappa_i, _ = K.profile_quantities(raw["ln_mdot"], ri, vi, P, O)
-                r, v = np.concatenate((ri, r)), np.concatenate((vi, v))
-                rho, kappa = np.concatenate((rho_i, rho)), np.concatenate((kappa_i, kappa))
-        if Rc is None:
-            Rc = default_core_radius_cgs(r, (r, rho, kappa), math.nan, model.cgs("radius"),
-                                         math.nan)
-        record["fwhm"], record["hwzi"], record["edge_velocity"] = widths_cgs(
-            r, v, rho, settings, Rc)
+    if observables is not None:
+        record["fwhm"], record["hwzi"], record["edge_velocity"] = raw.get("widths", _NO_WIDTHS)
+
+
+_NO_WIDTHS = (math.nan,) * 3
 
 
 _SETTINGS_CACHE = []  # [(observables, LineSettings)] of the last sweep seen

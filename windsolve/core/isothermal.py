@@ -702,22 +702,6 @@ def profile(ln_mdot, P, O, rtol, delta, max_step, capacity):
 
 
 @njit(cache=True, error_model="numpy")
-def outward_profile(ln_mdot, P, O, rtol, delta, max_step, capacity):
-    """The part of :func:`profile` from r_c out: ``(status_out, r, v)``, the same points."""
-    Q = set_mass_loss_rate(P, ln_mdot)
-    code, rc, slope = innermost_saddle(Q, O)
-    return outward_part(Q, O, rc, slope, rtol, delta, max_step, capacity)
-
-
-@njit(cache=True, error_model="numpy")
-def inward_profile(ln_mdot, P, O, rtol, delta, max_step, capacity):
-    """The part of :func:`profile` below r_c: ``(status_in, r, v)``, the same points."""
-    Q = set_mass_loss_rate(P, ln_mdot)
-    code, rc, slope = innermost_saddle(Q, O)
-    return inward_part(Q, O, rc, slope, rtol, delta, max_step, capacity)
-
-
-@njit(cache=True, error_model="numpy")
 def inward_part(Q, O, rc, slope, rtol, delta, max_step, capacity):
     """:func:`profile` below r_c: ``(status_in, r, v)`` from R0 up to, not including, r_c."""
     a = math.sqrt(Q[I_A2])

@@ -17,10 +17,15 @@ shell with r > R_c that is its red part w > v(r) sqrt(1 - (R_c / r)^2).
 Interpolation.  Between tabulated points ln v and ln rho are linear in r
 (exact for the exponential, nearly hydrostatic base of a solved profile,
 where rho v r^2 = const makes v grow exponentially; second-order close to
-linear v where v changes slowly).  Each tabulated interval is cut into
+linear v where v changes slowly).  Each tabulated interval can be cut into
 ``NSUB`` sub-intervals; between those the integration bounds (v, and the
 occultation edge) are linear in r, and the emission integrand j r^2 / v is
-exponential in r.
+exponential in r.  A solved profile is dense enough that ``NSUB = 1`` does:
+on the demo wind with porosity lengths of 1, 10 and 60 Rsun and on
+configs/bump_wind.toml, FWHM and HWZI at NSUB = 1 differ from NSUB = 16 by
+at most 9e-6 and 4e-7 relative, the blue edge by 3e-11, while the
+401-point velocity grid itself moves them by 5e-6 to 6e-5 (against 4001
+points).
 The emitting region is the tabulated profile: nothing is extrapolated
 beyond its last point.
 """
@@ -34,7 +39,7 @@ TWO_PI = 2.0 * math.pi
 SQRT_TWO_PI = math.sqrt(2.0 * math.pi)
 SQRT_TWO = math.sqrt(2.0)
 BY_EITHER, BY_SUFFIX, BY_LOOP = 0, 1, 2  # how _emission_flux_refined sums
-NSUB = 4  # sub-intervals per tabulated interval (converged to < 1e-4 on the demo)
+NSUB = 1  # sub-intervals per tabulated interval (see the module docstring)
 N_MU = 16  # Gauss-Legendre nodes of the angle averages in the escape probabilities
 TAU_SATURATED = 40.0  # 1 - exp(-tau) == 1 to double precision above this
 TAU_THIN = 1e-8  # (1 - exp(-tau)) / tau == 1 - tau/2 below this
@@ -282,14 +287,47 @@ def _occultation_root(ra, rb, va, vb, Rc, w, t_guess):
 
 
 @njit(cache=True, error_model="numpy")
+def _suffix_sums(full):
+    """suffix[i] = sum of full[i:] (m = len(full) + 1 entries, suffix[m - 1] = 0)."""
+    m = full.shape[0] + 1
+    suffix = np.empty(m)
+    suffix[m - 1] = 0.0
+    for i in range(m - 2, -1, -1):
+        suffix[i] = suffix[i + 1] + full[i]
+    return suffix
+
+
+@njit(cache=True, error_model="numpy")
+def _seen_from(i, a, red, rf, vf, lg, hi, full, suffix, Rc):
+    """F(w) / 2 pi when the last node with g <= a is i (g = hi if red else v).
+
+    The suffix sum beyond node i + 1 plus the seen part of sub-interval i:
+    from where v = a (blue side, or no occultation) or where the occultation
+    edge hi = a (red side, on the exact curve) to node i + 1.
+    """
+    if red:
+        # start from hi^2 linear in t (exact as r -> Rc, where hi ~ sqrt(r - Rc))
+        h0 = hi[i] * hi[i]
+        tc = _occultation_root(rf[i], rf[i + 1], vf[i], vf[i + 1], Rc, a,
+                               (a * a - h0) / (hi[i + 1] * hi[i + 1] - h0))
+    else:
+        fa = a - vf[i]
+        tc = fa / (fa - (a - vf[i + 1]))
+    if tc <= 0.0:
+        part = full[i]
+    elif tc >= 1.0:
+        part = 0.0
+    else:
+        part = _loglinear_integral(rf[i + 1] - rf[i], lg[i], lg[i + 1], tc, 1.0)
+    return suffix[i + 1] + part
+
+
+@njit(cache=True, error_model="numpy")
 def _emission_prefix(rf, vf, lg, hi, full, Rc, occult, w):
     """F(w) as a suffix sum + one partial sub-interval (v and hi non-decreasing)."""
     m = rf.shape[0]
     out = np.zeros(w.shape[0])
-    suffix = np.empty(m)  # suffix[i] = sum of full[i:]
-    suffix[m - 1] = 0.0
-    for i in range(m - 2, -1, -1):
-        suffix[i] = suffix[i + 1] + full[i]
+    suffix = _suffix_sums(full)
     # last node with g <= a, for g = v and g = hi: found by walking from the
     # previous w's answer (w is sorted, so each walk is a step or two)
     at_v = m - 1
@@ -316,20 +354,125 @@ def _emission_prefix(rf, vf, lg, hi, full, Rc, occult, w):
             at_hi = i
         else:
             at_v = i
-        if red:
-            tc = _occultation_root(rf[i], rf[i + 1], vf[i], vf[i + 1], Rc, a,
-                                   (a - hi[i]) / (hi[i + 1] - hi[i]))
-        else:
-            fa = a - vf[i]
-            tc = fa / (fa - (a - vf[i + 1]))
-        if tc <= 0.0:
-            part = full[i]
-        elif tc >= 1.0:
-            part = 0.0
-        else:
-            part = _loglinear_integral(rf[i + 1] - rf[i], lg[i], lg[i + 1], tc, 1.0)
-        out[k] = TWO_PI * (suffix[i + 1] + part)
+        out[k] = TWO_PI * _seen_from(i, a, red, rf, vf, lg, hi, full, suffix, Rc)
     return out
+
+
+@njit(cache=True, error_model="numpy")
+def _emission_at(wk, rf, vf, lg, hi, full, suffix, Rc, occult):
+    """One value of :func:`_emission_prefix` (the same number), the node found by bisection."""
+    m = rf.shape[0]
+    red = occult and wk >= 0.0
+    a = wk if red else abs(wk)
+    g = hi if red else vf
+    if g[0] > a:
+        return TWO_PI * suffix[0]
+    if g[m - 1] <= a:
+        return 0.0
+    lo = 0  # g[lo] <= a < g[up]
+    up = m - 1
+    while up - lo > 1:
+        mid = (lo + up) // 2
+        if g[mid] <= a:
+            lo = mid
+        else:
+            up = mid
+    return TWO_PI * _seen_from(lo, a, red, rf, vf, lg, hi, full, suffix, Rc)
+
+
+@njit(cache=True, error_model="numpy")
+def _crossing_index(F, peak, level, k_lo, k_hi, rising, w, rf, vf, lg, hi, full, suffix, Rc,
+                    occult):
+    """On a side where F rises (or falls) toward k_hi (or from k_lo), the index that
+    :func:`outermost_crossings` finds: the first (last) k with F[k] / peak >= level.
+
+    ``F`` caches values (-1 = not yet computed); F[k_hi] (F[k_lo]) / peak >= level.
+    """
+    if rising:  # first k in [k_lo, k_hi] with f >= level
+        if _cached(k_lo, F, w, rf, vf, lg, hi, full, suffix, Rc, occult) / peak >= level:
+            return k_lo
+        a = k_lo  # f[a] < level <= f[b]
+        b = k_hi
+        while b - a > 1:
+            mid = (a + b) // 2
+            if _cached(mid, F, w, rf, vf, lg, hi, full, suffix, Rc, occult) / peak >= level:
+                b = mid
+            else:
+                a = mid
+        return b
+    # last k in [k_lo, k_hi] with f >= level
+    if _cached(k_hi, F, w, rf, vf, lg, hi, full, suffix, Rc, occult) / peak >= level:
+        return k_hi
+    a = k_lo  # f[a] >= level > f[b]
+    b = k_hi
+    while b - a > 1:
+        mid = (a + b) // 2
+        if _cached(mid, F, w, rf, vf, lg, hi, full, suffix, Rc, occult) / peak >= level:
+            a = mid
+        else:
+            b = mid
+    return a
+
+
+@njit(cache=True, error_model="numpy")
+def _cached(k, F, w, rf, vf, lg, hi, full, suffix, Rc, occult):
+    """F[k], computed by :func:`_emission_at` the first time it is asked for."""
+    if F[k] < 0.0:
+        F[k] = _emission_at(w[k], rf, vf, lg, hi, full, suffix, Rc, occult)
+    return F[k]
+
+
+@njit(cache=True, error_model="numpy")
+def _emission_widths_sparse(rf, vf, lg, hi, full, Rc, occult, w, hwzi_fraction):
+    """(FWHM, HWZI, ok) of the unbroadened line as :func:`_emission_line_refined` measures
+    them, evaluating F only where the measurement needs it.
+
+    Valid when v and the occultation edge are non-decreasing (the suffix-sum
+    case): F(w) then never falls as |w| shrinks on either side of w = 0 --
+    the seen region only grows -- so the peak of the grid profile is at one
+    of the two grid points around w = 0, and each crossing of a level is
+    found by bisection over the grid indices, with the values (and the
+    arithmetic) of the full grid: the same widths from about 40 evaluations
+    instead of one per grid point.
+    """
+    N = w.shape[0]
+    suffix = _suffix_sums(full)
+    F = np.full(N, -1.0)
+    k0 = 0  # first grid point at w >= 0
+    while k0 < N and w[k0] < 0.0:
+        k0 += 1
+    kp = -1
+    peak = -1.0
+    for k in (k0 - 1, k0):
+        if 0 <= k < N:
+            fk = _cached(k, F, w, rf, vf, lg, hi, full, suffix, Rc, occult)
+            if fk > peak:
+                peak = fk
+                kp = k
+    if not peak > 0.0:
+        return np.nan, np.nan, False
+    out = np.empty(4)
+    for j in range(2):
+        level = 0.5 if j == 0 else hwzi_fraction
+        lo = _crossing_index(F, peak, level, 0, kp, True, w, rf, vf, lg, hi, full, suffix,
+                             Rc, occult)
+        up = _crossing_index(F, peak, level, kp, N - 1, False, w, rf, vf, lg, hi, full,
+                             suffix, Rc, occult)
+        # as outermost_crossings interpolates (f = F / peak)
+        w_lo = np.nan
+        w_hi = np.nan
+        if lo > 0:
+            f0 = F[lo - 1] / peak
+            f1 = F[lo] / peak
+            w_lo = w[lo - 1] + (level - f0) / (f1 - f0) * (w[lo] - w[lo - 1])
+        if up < N - 1:
+            f0 = F[up] / peak
+            f1 = _cached(up + 1, F, w, rf, vf, lg, hi, full, suffix, Rc, occult) / peak
+            w_hi = w[up] + (f0 - level) / (f0 - f1) * (w[up + 1] - w[up])
+        out[2 * j] = w_lo
+        out[2 * j + 1] = w_hi
+    hwzi = np.nan if (np.isnan(out[2]) or np.isnan(out[3])) else max(-out[2], out[3])
+    return out[1] - out[0], hwzi, True
 
 
 @njit(cache=True, error_model="numpy")
@@ -973,6 +1116,21 @@ def _emission_line_refined(rf, vf, lf, lv, n, Rc, occult, w, sigma, hwzi_fractio
 
 
 @njit(cache=True, error_model="numpy")
+def _emission_widths(rf, vf, lf, lv, n, Rc, occult, w, sigma, hwzi_fraction):
+    """(FWHM, HWZI) of :func:`_emission_line_refined`, without the profile: sparse
+    (:func:`_emission_widths_sparse`) when unbroadened and in the suffix-sum case."""
+    if sigma <= 0.0 and rf.shape[0] >= 2:
+        lg, hi, full = _emission_nodes(rf, vf, lf, lv, n, Rc, occult)
+        if nondecreasing(vf) and nondecreasing(hi):
+            fwhm, hwzi, _ = _emission_widths_sparse(rf, vf, lg, hi, full, Rc, occult, w,
+                                                    hwzi_fraction)
+            return fwhm, hwzi
+    _, fwhm, hwzi, _ = _emission_line_refined(rf, vf, lf, lv, n, Rc, occult, w, sigma,
+                                              hwzi_fraction)
+    return fwhm, hwzi
+
+
+@njit(cache=True, error_model="numpy")
 def monotonic_outside(r, v, Rc, rtol):
     """v with outward falls below rtol * max(v) outside Rc removed (running maximum).
 
@@ -1056,11 +1214,12 @@ def line_widths(r, v, rho, Rc, n, occult, fwhm, sigma, hwzi_fraction, edge_depth
     rf, vf, lf, lv = _refine(r, v, rho, Rc, NSUB)
     if occult:
         if outside:
-            _, e_fwhm, e_hwzi, _ = _emission_line_refined(rf, vf, lf, lv, n, Rc, occult, w,
-                                                          sigma, hwzi_fraction)
-    else:
-        _, e_fwhm, e_hwzi, _ = emission_line(r, v, rho, n, Rc, occult, w, sigma,
-                                             hwzi_fraction)
+            e_fwhm, e_hwzi = _emission_widths(rf, vf, lf, lv, n, Rc, occult, w, sigma,
+                                              hwzi_fraction)
+    else:  # every shell seen whole, from r[0]
+        rf0, vf0, lf0, lv0 = _refine(r, v, rho, r[0], NSUB)
+        e_fwhm, e_hwzi = _emission_widths(rf0, vf0, lf0, lv0, n, Rc, occult, w, sigma,
+                                          hwzi_fraction)
     edge = np.nan
     if outside:
         vc, i0, bad = monotonic_outside(r, v, Rc, rtol)
