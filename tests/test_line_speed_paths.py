@@ -112,31 +112,51 @@ def test_occultation_root_finds_the_bisection_crossing():
             assert abs(t_new - t_bis) < 1e-12
 
 
-# -- emission widths: a few bisected values == the whole grid profile -------------------
+# -- emission widths: exact crossings == the limit of ever finer grids ------------------
 
 @pytest.mark.parametrize("name", sorted(SYNTHETIC) + ["demo"])
 @pytest.mark.parametrize("core", [1.0, 1.37, 8.2])
-def test_sparse_emission_widths_equal_the_whole_grid(demo, name, core):
-    # Unbroadened widths are measured from about 40 values of F found by
-    # bisection; they must be the numbers outermost_crossings gives on the
-    # whole grid profile, for odd and even grids (w = 0 on the grid or not).
+def test_exact_emission_widths_are_where_the_profile_crosses_the_level(demo, name, core):
+    # Unbroadened widths come from the flux sums alone (no grid).  The
+    # grid evaluator (suffix sums) must give exactly level * F(0) at both
+    # crossings, and a 20,001-point grid must find them to within one of
+    # its steps (linear interpolation misplaces a crossing by less).
     r, v, rho = demo_arrays(demo)[:3] if name == "demo" else SYNTHETIC[name]
     Rc = core * r[0]
     for occult in (True, False):
         for n in (1.0, 2.0):
-            for n_w in (401, 400, 37):
-                w = kernels.velocity_grid(v.max(), 0.0, n_w)
-                rf, vf, lf, lv = kernels._refine(r, v, rho, Rc if occult else r[0], 1)
-                lg, hi, full = kernels._emission_nodes(rf, vf, lf, lv, n, Rc, occult)
-                assert kernels.nondecreasing(vf) and kernels.nondecreasing(hi)
-                for level in (0.05, 0.2):
-                    f, fwhm, hwzi, ok = kernels._emission_line_refined(
-                        rf, vf, lf, lv, n, Rc, occult, w, 0.0, level)
-                    got = kernels._emission_widths_sparse(rf, vf, lg, hi, full, Rc, occult,
-                                                          w, level)
-                    assert ok and got[2]
-                    assert got[0] == fwhm and np.isfinite(fwhm)
-                    assert got[1] == hwzi or (np.isnan(got[1]) and np.isnan(hwzi))
+            rf, vf, lf, lv = kernels._refine(r, v, rho, Rc if occult else r[0], 1)
+            lg, hi, full = kernels._emission_nodes(rf, vf, lf, lv, n, Rc, occult)
+            assert kernels.nondecreasing(vf) and kernels.nondecreasing(hi)
+            suffix = kernels._suffix_sums(full)
+            peak = 2 * math.pi * suffix[0]
+            fine = kernels.velocity_grid(v.max(), 0.0, 20001)
+            step = fine[1] - fine[0]
+            for level in (0.5, 0.05, 0.2):
+                w_lo, w_hi = kernels._exact_crossing(level, rf, vf, lg, full, suffix, Rc,
+                                                     occult)
+                assert -v.max() <= w_lo < 0.0 <= w_hi <= v.max()
+                F = kernels._emission_prefix(rf, vf, lg, hi, full, Rc, occult,
+                                             np.array([w_lo, w_hi]))
+                np.testing.assert_allclose(F / peak, level, rtol=1e-9)
+                f = kernels._emission_prefix(rf, vf, lg, hi, full, Rc, occult, fine) / peak
+                g_lo, g_hi = kernels.outermost_crossings(fine, f, level)
+                assert abs(g_lo - w_lo) <= step and abs(g_hi - w_hi) <= step
+                if not occult:  # both sides see the whole shell: symmetric
+                    assert w_hi == -w_lo
+
+
+def test_unbroadened_widths_do_not_depend_on_the_grid():
+    # A core deep in the nearly hydrostatic base: the line is a spike far
+    # narrower than a 401-point grid's step, and its FWHM must still be the
+    # same on 401 and 40,001 points (read off the 401-point grid it came out
+    # about 4x wider).
+    r, v, rho = SYNTHETIC["base"]
+    settings = [lines.LineSettings(n_velocity=n) for n in (401, 40001)]
+    a, b = (lines.widths_cgs(r, v, rho, s, r[0]) for s in settings)
+    step = 2.4 * v.max() / 400
+    assert a[0] < step  # narrower than one step of the coarse grid
+    assert a[0] == b[0] and a[1] == b[1]
 
 
 # -- P Cygni: the lazy edge == a dense sampling of the full profile ----------------------

@@ -76,17 +76,28 @@ Caveat: the slow base.  With continuity (rho v r^2 = const) the emission
 integrand j r^2 / v is proportional to rho^(n-1) / v^2, so dense, slow gas
 just outside the core dominates an optically thin line: a core radius deep
 in a nearly hydrostatic base gives a narrow central spike whose FWHM is set
-by the base.  Likewise the Sobolev approximation fails where v is not much
-larger than the thermal speed, so P Cygni features within a few sound
-speeds of w = 0 are not reliable.
+by the base -- often well under the sound speed, which no line observed
+from gas at that temperature can be: give a ``turbulence`` of about the
+sound speed to stand in for the thermal broadening the model leaves out.
+In a sweep over porosity length, say, the FWHM then drops from hundreds of
+km/s to a few once the optical core reaches the base.  Likewise the
+Sobolev approximation fails where v is not much larger than the thermal
+speed, so P Cygni features within a few sound speeds of w = 0 are not
+reliable.
 
-Normalisation.  Emission: continuum 0, the line's peak = 1.  P Cygni:
+Normalisation.  Emission: continuum 0, the line's peak = 1 (without
+broadening the exact peak F(0), which a grid point need not hit).  P Cygni:
 continuum 1 (F / F_c, F_c the core's flux).
 
 Measurements (on the final, broadened profile; NaN when not measurable).
-FWHM and HWZI are read off the grid profile with linear interpolation
-between grid points; the blue edge, without broadening, on the exact
-profile (below):
+Without broadening they are made on the exact profile, so they do not
+depend on ``n_velocity``: FWHM and HWZI when v(r) and the occultation edge
+rise outward (the normal case; there the flux seen at w is a sum over an
+outer part of the wind, so the radius where it falls to a level follows
+from the sums, and w_- = -v, w_+ = v or the occultation edge there), the
+blue edge always (below).  With broadening, or for FWHM and HWZI when v(r)
+falls somewhere outward, they are read off the grid profile with linear
+interpolation between grid points:
 
 FWHM
     Full width at half maximum of the emission line: w_+ - w_-, where w_-

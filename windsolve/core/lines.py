@@ -359,120 +359,59 @@ def _emission_prefix(rf, vf, lg, hi, full, Rc, occult, w):
 
 
 @njit(cache=True, error_model="numpy")
-def _emission_at(wk, rf, vf, lg, hi, full, suffix, Rc, occult):
-    """One value of :func:`_emission_prefix` (the same number), the node found by bisection."""
+def _exact_crossing(level, rf, vf, lg, full, suffix, Rc, occult):
+    """(w_-, w_+) where the unbroadened line, v and hi non-decreasing, has fallen to
+    ``level`` times its peak: exactly, on the unsampled profile.
+
+    The peak is F(0) (everything from the first node out is seen; F falls
+    on both sides, as the seen region only shrinks with |w|).  At a level
+    the seen region is r > r(t_c) for the same t_c on both sides -- the
+    blue side ends where v = |w|, the red side (with occultation) where
+    the occultation edge v sqrt(1 - (Rc/r)^2) = w -- so t_c follows from the
+    flux alone: the sub-interval j where the suffix sums pass level * F(0),
+    then the fraction q of its (exponential) integrand that must lie
+    beyond t_c, e^(k t_c) = 1 + (e^k - 1)(1 - q).  Then w_- = -v(t_c) and
+    w_+ = v(t_c), or v(t_c) sqrt(1 - (Rc / r(t_c))^2) with occultation
+    (v and r linear in t, as the flux sums take them).
+    """
     m = rf.shape[0]
-    red = occult and wk >= 0.0
-    a = wk if red else abs(wk)
-    g = hi if red else vf
-    if g[0] > a:
-        return TWO_PI * suffix[0]
-    if g[m - 1] <= a:
-        return 0.0
-    lo = 0  # g[lo] <= a < g[up]
+    target = level * suffix[0]
+    lo = 0  # suffix[lo] >= target > suffix[up]; suffix[m - 1] = 0
     up = m - 1
     while up - lo > 1:
         mid = (lo + up) // 2
-        if g[mid] <= a:
+        if suffix[mid] >= target:
             lo = mid
         else:
             up = mid
-    return TWO_PI * _seen_from(lo, a, red, rf, vf, lg, hi, full, suffix, Rc)
+    j = lo
+    q = (target - suffix[j + 1]) / full[j] if full[j] > 0.0 else 1.0
+    q = min(max(q, 0.0), 1.0)
+    k = lg[j + 1] - lg[j]
+    if abs(k) < 1e-12:
+        tc = 1.0 - q
+    else:
+        tc = math.log1p(math.expm1(k) * (1.0 - q)) / k
+    tc = min(max(tc, 0.0), 1.0)
+    vt = vf[j] + tc * (vf[j + 1] - vf[j])
+    if not occult:
+        return -vt, vt
+    rt = rf[j] + tc * (rf[j + 1] - rf[j])
+    x = 1.0 - (Rc / rt) ** 2
+    return -vt, (vt * math.sqrt(x) if x > 0.0 else 0.0)
 
 
 @njit(cache=True, error_model="numpy")
-def _crossing_index(F, peak, level, k_lo, k_hi, rising, w, rf, vf, lg, hi, full, suffix, Rc,
-                    occult):
-    """On a side where F rises (or falls) toward k_hi (or from k_lo), the index that
-    :func:`outermost_crossings` finds: the first (last) k with F[k] / peak >= level.
-
-    ``F`` caches values (-1 = not yet computed); F[k_hi] (F[k_lo]) / peak >= level.
-    """
-    if rising:  # first k in [k_lo, k_hi] with f >= level
-        if _cached(k_lo, F, w, rf, vf, lg, hi, full, suffix, Rc, occult) / peak >= level:
-            return k_lo
-        a = k_lo  # f[a] < level <= f[b]
-        b = k_hi
-        while b - a > 1:
-            mid = (a + b) // 2
-            if _cached(mid, F, w, rf, vf, lg, hi, full, suffix, Rc, occult) / peak >= level:
-                b = mid
-            else:
-                a = mid
-        return b
-    # last k in [k_lo, k_hi] with f >= level
-    if _cached(k_hi, F, w, rf, vf, lg, hi, full, suffix, Rc, occult) / peak >= level:
-        return k_hi
-    a = k_lo  # f[a] >= level > f[b]
-    b = k_hi
-    while b - a > 1:
-        mid = (a + b) // 2
-        if _cached(mid, F, w, rf, vf, lg, hi, full, suffix, Rc, occult) / peak >= level:
-            a = mid
-        else:
-            b = mid
-    return a
-
-
-@njit(cache=True, error_model="numpy")
-def _cached(k, F, w, rf, vf, lg, hi, full, suffix, Rc, occult):
-    """F[k], computed by :func:`_emission_at` the first time it is asked for."""
-    if F[k] < 0.0:
-        F[k] = _emission_at(w[k], rf, vf, lg, hi, full, suffix, Rc, occult)
-    return F[k]
-
-
-@njit(cache=True, error_model="numpy")
-def _emission_widths_sparse(rf, vf, lg, hi, full, Rc, occult, w, hwzi_fraction):
-    """(FWHM, HWZI, ok) of the unbroadened line as :func:`_emission_line_refined` measures
-    them, evaluating F only where the measurement needs it.
-
-    Valid when v and the occultation edge are non-decreasing (the suffix-sum
-    case): F(w) then never falls as |w| shrinks on either side of w = 0 --
-    the seen region only grows -- so the peak of the grid profile is at one
-    of the two grid points around w = 0, and each crossing of a level is
-    found by bisection over the grid indices, with the values (and the
-    arithmetic) of the full grid: the same widths from about 40 evaluations
-    instead of one per grid point.
-    """
-    N = w.shape[0]
+def _exact_widths(rf, vf, lg, full, Rc, occult, hwzi_fraction):
+    """(peak, FWHM, HWZI) of the unbroadened line on the exact profile (v and hi
+    non-decreasing; :func:`_exact_crossing`); FWHM and HWZI nan without flux."""
     suffix = _suffix_sums(full)
-    F = np.full(N, -1.0)
-    k0 = 0  # first grid point at w >= 0
-    while k0 < N and w[k0] < 0.0:
-        k0 += 1
-    kp = -1
-    peak = -1.0
-    for k in (k0 - 1, k0):
-        if 0 <= k < N:
-            fk = _cached(k, F, w, rf, vf, lg, hi, full, suffix, Rc, occult)
-            if fk > peak:
-                peak = fk
-                kp = k
+    peak = TWO_PI * suffix[0]
     if not peak > 0.0:
-        return np.nan, np.nan, False
-    out = np.empty(4)
-    for j in range(2):
-        level = 0.5 if j == 0 else hwzi_fraction
-        lo = _crossing_index(F, peak, level, 0, kp, True, w, rf, vf, lg, hi, full, suffix,
-                             Rc, occult)
-        up = _crossing_index(F, peak, level, kp, N - 1, False, w, rf, vf, lg, hi, full,
-                             suffix, Rc, occult)
-        # as outermost_crossings interpolates (f = F / peak)
-        w_lo = np.nan
-        w_hi = np.nan
-        if lo > 0:
-            f0 = F[lo - 1] / peak
-            f1 = F[lo] / peak
-            w_lo = w[lo - 1] + (level - f0) / (f1 - f0) * (w[lo] - w[lo - 1])
-        if up < N - 1:
-            f0 = F[up] / peak
-            f1 = _cached(up + 1, F, w, rf, vf, lg, hi, full, suffix, Rc, occult) / peak
-            w_hi = w[up] + (f0 - level) / (f0 - f1) * (w[up + 1] - w[up])
-        out[2 * j] = w_lo
-        out[2 * j + 1] = w_hi
-    hwzi = np.nan if (np.isnan(out[2]) or np.isnan(out[3])) else max(-out[2], out[3])
-    return out[1] - out[0], hwzi, True
+        return peak, np.nan, np.nan
+    lo, hi = _exact_crossing(0.5, rf, vf, lg, full, suffix, Rc, occult)
+    zlo, zhi = _exact_crossing(hwzi_fraction, rf, vf, lg, full, suffix, Rc, occult)
+    return peak, hi - lo, max(-zlo, zhi)
 
 
 @njit(cache=True, error_model="numpy")
@@ -1094,7 +1033,10 @@ def emission_line(r, v, rho, n, Rc, occult, w, sigma, hwzi_fraction):
     peak 1, FWHM = w_+ - w_- of the outermost crossings of f = 0.5, HWZI =
     max(-w_-, w_+) at f = ``hwzi_fraction`` (nan when a crossing is off the
     grid), all by :func:`outermost_crossings`; ``ok`` is False (and the
-    widths nan) when the line has no flux.
+    widths nan) when the line has no flux.  Unbroadened (sigma <= 0), with v
+    and the occultation edge non-decreasing outward (the normal case), the
+    widths are those of the exact profile instead (:func:`_exact_crossing`)
+    and f is normalised to its peak F(0), which the grid may miss.
     """
     rf, vf, lf, lv = _refine(r, v, rho, Rc if occult else r[0], NSUB)
     return _emission_line_refined(rf, vf, lf, lv, n, Rc, occult, w, sigma, hwzi_fraction)
@@ -1103,7 +1045,18 @@ def emission_line(r, v, rho, n, Rc, occult, w, sigma, hwzi_fraction):
 @njit(cache=True, error_model="numpy")
 def _emission_line_refined(rf, vf, lf, lv, n, Rc, occult, w, sigma, hwzi_fraction):
     """:func:`emission_line` on a grid from :func:`_refine`."""
-    F = _emission_flux_refined(rf, vf, lf, lv, n, Rc, occult, w, BY_EITHER)
+    if rf.shape[0] < 2:
+        return np.zeros(w.shape[0]), np.nan, np.nan, False
+    lg, hi, full = _emission_nodes(rf, vf, lf, lv, n, Rc, occult)
+    if nondecreasing(vf) and nondecreasing(hi):
+        F = _emission_prefix(rf, vf, lg, hi, full, Rc, occult, w)
+        if sigma <= 0.0:  # measured on the exact profile, normalised to its peak F(0)
+            peak, fwhm, hwzi = _exact_widths(rf, vf, lg, full, Rc, occult, hwzi_fraction)
+            if not peak > 0.0:
+                return F, np.nan, np.nan, False
+            return F / peak, fwhm, hwzi, True
+    else:
+        F = _emission_loop(rf, vf, lg, hi, full, Rc, occult, w)
     F = gaussian_broaden(F, w[1] - w[0], sigma, 0.0)
     peak = F.max()
     if not peak > 0.0:
@@ -1117,13 +1070,12 @@ def _emission_line_refined(rf, vf, lf, lv, n, Rc, occult, w, sigma, hwzi_fractio
 
 @njit(cache=True, error_model="numpy")
 def _emission_widths(rf, vf, lf, lv, n, Rc, occult, w, sigma, hwzi_fraction):
-    """(FWHM, HWZI) of :func:`_emission_line_refined`, without the profile: sparse
-    (:func:`_emission_widths_sparse`) when unbroadened and in the suffix-sum case."""
+    """(FWHM, HWZI) of :func:`_emission_line_refined`, without the grid profile when
+    they are measured on the exact one (unbroadened, v and hi non-decreasing)."""
     if sigma <= 0.0 and rf.shape[0] >= 2:
         lg, hi, full = _emission_nodes(rf, vf, lf, lv, n, Rc, occult)
         if nondecreasing(vf) and nondecreasing(hi):
-            fwhm, hwzi, _ = _emission_widths_sparse(rf, vf, lg, hi, full, Rc, occult, w,
-                                                    hwzi_fraction)
+            _, fwhm, hwzi = _exact_widths(rf, vf, lg, full, Rc, occult, hwzi_fraction)
             return fwhm, hwzi
     _, fwhm, hwzi, _ = _emission_line_refined(rf, vf, lf, lv, n, Rc, occult, w, sigma,
                                               hwzi_fraction)
