@@ -172,7 +172,7 @@ CM_PER_KM = 1e5
 FWHM_PER_SIGMA = 2.0 * math.sqrt(2.0 * math.log(2.0))  # 2.3548: Gaussian FWHM / sigma
 GRID_MARGIN = kernels.GRID_MARGIN  # the grid spans this many v_max ...
 BROADENING_MARGIN = kernels.BROADENING_MARGIN  # ... plus this many broadening FWHM
-MONOTONIC_RTOL = 1e-6  # an outward fall of v by less than this * v_max is noise
+MONOTONIC_RTOL = kernels.MONOTONIC_RTOL  # a fall of v by less than this * v_max is noise
 MIN_POINTS = 21
 
 
@@ -193,6 +193,9 @@ class LineSettingsCGS(NamedTuple):
 
     Built once when a LineSettings is made (``settings.cgs``), so workers
     that call :func:`widths_cgs` many times pay no astropy cost per call.
+    The fields are in the order of the line arguments of the kernels
+    :func:`windsolve.core.lines.line_widths` and
+    :func:`windsolve.core.isothermal_lines.outer_state_and_widths`.
     """
 
     emissivity_power: float

@@ -124,12 +124,8 @@ def solve_isothermal_cgs(model, profile=True, critical=True, widths=None):
         st_in, st_out, r, v = K.profile(ln_mdot, P, O, rtol, DELTA, MAX_STEP, CAPACITY)
     elif widths is not None:  # the outer end and the widths (sweeps measuring lines)
         from .core.isothermal_lines import outer_state_and_widths
-        from .lines import MONOTONIC_RTOL
-        c = widths
         st_in, st_out, r_end, v_end, *measured = outer_state_and_widths(
-            ln_mdot, P, O, rtol, DELTA, MAX_STEP, CAPACITY, c.emissivity_power,
-            c.occultation, c.broadening_fwhm, c.broadening_sigma, c.hwzi_fraction,
-            c.edge_depth, c.line_strength, c.n_velocity, MONOTONIC_RTOL)
+            ln_mdot, P, O, rtol, DELTA, MAX_STEP, CAPACITY, *widths)
         r = np.array([R0, r_end])
         v = np.array([v0, v_end])
     else:  # the outer end only (sweeps): no stored profile

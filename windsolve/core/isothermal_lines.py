@@ -17,7 +17,7 @@ import numpy as np
 from numba import njit
 
 from . import isothermal as K
-from .lines import line_widths, optical_core_radius
+from .lines import MONOTONIC_RTOL, line_widths, optical_core_radius
 
 
 @njit(cache=True, error_model="numpy")
@@ -34,7 +34,7 @@ def _density_opacity(r, v, Q, O):
 
 @njit(cache=True, error_model="numpy")
 def outer_state_and_widths(ln_mdot, P, O, rtol, delta, max_step, capacity, n, occult,
-                           fwhm, sigma, hwzi_fraction, edge_depth, k0, n_velocity, mono_rtol):
+                           fwhm, sigma, hwzi_fraction, edge_depth, k0, n_velocity):
     """The outward leg's end and the line widths of the converged solution ``ln_mdot``.
 
     Returns ``(status_in, status_out, r_end, v_end, fwhm, hwzi, edge)``:
@@ -43,7 +43,8 @@ def outer_state_and_widths(ln_mdot, P, O, rtol, delta, max_step, capacity, n, oc
     same steps); status_in is OK unless the subsonic part was needed and
     did not reach R0.  The widths [cm/s] are nan unless both are OK.  The
     line arguments are those of :func:`windsolve.core.lines.line_widths`;
-    the core radius is the optical core of the profile, else R0.
+    the core radius is the optical core of the profile, else R0, and
+    noise in v(r) is judged with MONOTONIC_RTOL, as there.
     """
     nan = math.nan
     Q = K.set_mass_loss_rate(P, ln_mdot)
@@ -71,5 +72,5 @@ def outer_state_and_widths(ln_mdot, P, O, rtol, delta, max_step, capacity, n, oc
         if math.isnan(Rc):  # optically thin throughout: the base
             Rc = Q[K.I_R0]
     e_fwhm, e_hwzi, edge = line_widths(r, v, rho, Rc, n, occult, fwhm, sigma, hwzi_fraction,
-                                       edge_depth, k0, n_velocity, mono_rtol)
+                                       edge_depth, k0, n_velocity, MONOTONIC_RTOL)
     return K.OK, st_out, r_end, v_end, e_fwhm, e_hwzi, edge

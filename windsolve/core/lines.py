@@ -46,6 +46,7 @@ TAU_THIN = 1e-8  # (1 - exp(-tau)) / tau == 1 - tau/2 below this
 KERNEL_SIGMAS = 7.0  # the broadening kernel is cut this many sigma out
 N_EDGE_SCAN = 24  # P Cygni edge: points at -v_max + gap / 2^j, j = 24..1, before the grid
 EDGE_XTOL = 1e-9  # ... and the crossing is located to this fraction of v_max
+MONOTONIC_RTOL = 1e-6  # an outward fall of v by less than this * v_max is noise
 
 _x, _wt = np.polynomial.legendre.leggauss(N_MU)
 MU_NODES = 0.5 * (_x + 1.0)  # Gauss-Legendre on [0, 1]
