@@ -114,11 +114,11 @@ def main():
             t_plain, t_widths = walls["plain", workers], walls["widths", workers]
             print(f"10,000-model Model A sweep, {workers} worker(s) (best of {REPEATS}): "
                   f"{t_plain:.2f} s without widths, {t_widths:.2f} s with: "
-                  f"+{100 * (t_widths / t_plain - 1):.0f} % (goal <= 20 %)")
+                  f"{100 * (t_widths / t_plain - 1):+.0f} % (goal <= 20 %)")
         w_plain, w_widths = in_worker["plain"], in_worker["widths"]
         print(f"  per model as timed in the worker (1 worker, the table's 'seconds'): "
               f"{1e3 * w_plain:.3f} ms without widths, {1e3 * w_widths:.3f} ms with: "
-              f"+{100 * (w_widths / w_plain - 1):.0f} %")
+              f"{100 * (w_widths / w_plain - 1):+.0f} %")
         body_b = (f'[sweep]\nbase = "{ROOT / "configs" / "bump_wind.toml"}"\n'
                   f'design = "grid"\nbatch = 10\n[[axis]]\n'
                   f'key = "boundary.photosphere_temperature"\nstart = "3e4 K"\n'
@@ -133,7 +133,7 @@ def main():
             t_plain_b = min(t_plain_b, run_once(small_b))
             t_widths_b = min(t_widths_b, run_once(widths_b))
         print(f"200-model Model B sweep, 1 worker: {t_plain_b:.2f} s without widths, "
-              f"{t_widths_b:.2f} s with widths: +{100 * (t_widths_b / t_plain_b - 1):.0f} % "
+              f"{t_widths_b:.2f} s with widths: {100 * (t_widths_b / t_plain_b - 1):+.0f} % "
               f"(goal <= 20 %)")
 
 
