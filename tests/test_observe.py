@@ -112,6 +112,24 @@ def test_match_says_when_no_value_in_range_can(tmp_path, capsys):
 
 # -- line widths on the command line and inside sweeps ----------------------------
 
+def test_lines_says_when_the_line_is_narrower_than_the_sound_speed(tmp_path, capsys):
+    # Porosity length 60 Rsun: the optical core sits in the hydrostatic base,
+    # and the unbroadened line is a spike well under a = 20 km/s (its widths
+    # are printed to three digits, not as 0.0); with turbulence no note.
+    from windsolve.sweep import apply_changes
+    result = windsolve.solve(apply_changes(windsolve.load_model(DEMO),
+                                           {"porosity.length": "60 Rsun"}))
+    path = tmp_path / "spike.h5"
+    result.to_hdf5(path)
+    assert cli.main(["lines", str(path)]) == 0
+    out = capsys.readouterr().out
+    assert "narrower than the sound speed (20.0 km/s)" in out
+    fwhm = float(out.split("FWHM")[1].split("km/s")[0])
+    assert 0.0 < fwhm < 1.0
+    assert cli.main(["lines", str(path), "--turbulence", "20 km/s"]) == 0
+    assert "narrower" not in capsys.readouterr().out
+
+
 def test_lines_reads_a_file_windsolve_did_not_write(tmp_path, capsys):
     # Only the SPEC section 7 layout: /profile datasets with units, /summary attributes.
     import h5py

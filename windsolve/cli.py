@@ -317,7 +317,9 @@ def cmd_lines(args):
 
     def kms(q):
         v = q.to_value(u.km / u.s)
-        return "not defined" if not np.isfinite(v) else f"{v:.1f} km/s"
+        if not np.isfinite(v):
+            return "not defined"
+        return f"{v:.1f} km/s" if abs(v) >= 10 else f"{v:.3g} km/s"
 
     print(f"{args.file}: {'P Cygni' if args.pcygni else 'optically thin emission'} line, "
           f"emissivity ~ rho^{settings.emissivity_power}, "
@@ -328,6 +330,12 @@ def cmd_lines(args):
     v_inf = result.summary.get("terminal_velocity")
     if v_inf is not None:
         print(f"  model terminal velocity  {kms(v_inf)}")
+    a = result.summary.get("sonic_velocity")
+    if (not args.pcygni and a is not None and np.isfinite(line.fwhm.value)
+            and line.fwhm < a and settings.broadening_fwhm.value == 0):
+        print(f"  note: the line is narrower than the sound speed ({kms(a)}): it comes from "
+              f"the nearly hydrostatic base; give --turbulence of about the sound speed for "
+              f"a line one could observe")
     if args.output is not None:
         if Path(args.output).suffix.lower() == ".csv":
             line.to_csv(args.output)

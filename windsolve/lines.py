@@ -131,10 +131,15 @@ One implementation.  :func:`emission_profile`, :func:`pcygni_profile`,
 :func:`line_widths` (and so ``windsolve lines``, ``compare`` and sweeps)
 measure with the same kernels; :func:`line_widths` resolves its input and
 calls :func:`widths_cgs`, the astropy-free entry point for sweep workers.
+A Model A sweep worker goes one step further: the kernel that finishes the
+solution also measures its widths
+(:func:`windsolve.core.isothermal_lines.outer_state_and_widths`), from the
+same profile points, so its numbers are those of ``line_widths(solve(m))``.
 The emission profile is a suffix sum of exact per-sub-interval integrals
 when v(r) rises outward (O(m + N_w) for m sub-intervals and N_w
-velocities), the general loop otherwise; the blue edge evaluates the
-Sobolev profile only where the search needs it.
+velocities), the general loop otherwise; the exact widths need only the
+sums (O(m)); the blue edge evaluates the Sobolev profile only where the
+search needs it.
 """
 
 import math
