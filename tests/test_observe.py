@@ -83,7 +83,10 @@ def test_chi2_picks_the_row_the_observations_came_from(tmp_path, capsys):
                      str(png)]) == 0
     text = capsys.readouterr().out
     assert f"row {truth}: chi2 = 0.000" in text
-    assert csv_out.read_text().splitlines()[0] == "row,star.luminosity,chi2"
+    # the best rows in the unit the sweep file used (Lsun), the CSV in the table's cgs
+    lsun = float(table["star.luminosity"][truth] / 3.828e33)  # IAU 2015 nominal L_sun
+    assert f"star.luminosity = {lsun:.5g} Lsun" in text
+    assert csv_out.read_text().splitlines()[0] == "row,star.luminosity [erg / s],chi2"
     assert png.read_bytes()[:4] == b"\x89PNG"
 
 
@@ -128,6 +131,13 @@ def test_lines_says_when_the_line_is_narrower_than_the_sound_speed(tmp_path, cap
     assert 0.0 < fwhm < 1.0
     assert cli.main(["lines", str(path), "--turbulence", "20 km/s"]) == 0
     assert "narrower" not in capsys.readouterr().out
+    # On an even grid no point reaches half the (exact) peak; the plot still marks it.
+    from windsolve.lines import LineSettings, emission_profile
+    from windsolve.plotting import plot_line
+    line = emission_profile(result, LineSettings(n_velocity=400))
+    assert line.flux.max() < 0.5
+    png = plot_line(line, tmp_path / "spike.png")
+    assert Path(png).read_bytes()[:4] == b"\x89PNG"
 
 
 def test_lines_reads_a_file_windsolve_did_not_write(tmp_path, capsys):

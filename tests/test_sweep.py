@@ -252,6 +252,31 @@ def test_dask_cluster_gives_the_local_table(tmp_path):
         np.testing.assert_array_equal(a[key], b[key], err_msg=key)
 
 
+def test_axes_are_shown_in_the_units_the_sweep_file_wrote(tmp_path):
+    # The table keeps cgs (SPEC section 7); prints and plots show each axis
+    # as written, e.g. Lsun (IAU 2015 nominal value, via astropy) and Rsun,
+    # on a log scale when the file asked for log spacing.
+    import astropy.units as u
+
+    from windsolve.sweep import axis_views
+    path = tmp_path / "s.toml"
+    path.write_text(f'[sweep]\nbase = "{DEMO}"\ndesign = "grid"\n'
+                    f'[[axis]]\nkey = "star.luminosity"\nstart = "3e6 Lsun"\n'
+                    f'stop = "5e6 Lsun"\nnum = 2\nspacing = "log"\n'
+                    f'[[axis]]\nkey = "porosity.length"\nvalues = ["5 Rsun", "7e11 cm"]\n'
+                    f'[[axis]]\nkey = "composition.X"\nvalues = [0.7]\n')
+    out = tmp_path / "s.h5"
+    run_sweep(load_sweep(path), out, workers=1, quiet=True)
+    table, _ = read_sweep_table(out)
+    lum, h, x = axis_views(out)
+    assert (lum.unit, lum.cgs_unit, lum.log) == ("Lsun", "erg / s", True)
+    assert math.isclose(table[lum.key][0] * lum.factor, 3e6, rel_tol=1e-12)
+    assert math.isclose(lum.factor, 1 / u.Lsun.to(u.erg / u.s), rel_tol=1e-15)
+    assert (h.unit, h.log, h.label) == ("Rsun", False, "porosity.length [Rsun]")
+    assert math.isclose(table[h.key][1] * h.factor, 7e11 / u.Rsun.to(u.cm), rel_tol=1e-12)
+    assert (x.unit, x.factor, x.label) == ("", 1.0, "composition.X")
+
+
 def test_csv_export_and_plot(tmp_path, capsys):
     path = write(tmp_path, GRID)
     out = tmp_path / "grid.h5"

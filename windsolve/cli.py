@@ -388,10 +388,9 @@ def cmd_compare(args):
             plot_residuals(rows, chi2, args.plot)
             print(f"wrote {args.plot}")
         return EXIT_OK
-    from .sweep import read_sweep_table
+    from .sweep import axis_views, read_sweep_table
     table, attrs = read_sweep_table(args.file)
-    import json
-    axes = json.loads(attrs["axes"])
+    views = axis_views(args.file)
     chi2 = sweep_chi2(table, observations)
     ok = np.isfinite(chi2)
     print(f"{args.file}: {ok.sum()} models compared with {len(observations)} measurements of "
@@ -401,14 +400,15 @@ def cmd_compare(args):
     best = np.argsort(np.where(ok, chi2, np.inf))[:min(5, int(ok.sum()))]
     print("  best models:")
     for i in best:
-        values = ", ".join(f"{a} = {table[a][i]:.5g}" for a in axes)
+        values = ", ".join(f"{v.key} = {table[v.key][i] * v.factor:.5g}"
+                           + (f" {v.unit}" if v.unit else "") for v in views)
         print(f"    row {i}: chi2 = {chi2[i]:.3f}  ({values})")
     if args.output is not None:
-        write_chi2_csv(args.output, axes, table, chi2)
+        write_chi2_csv(args.output, views, table, chi2)
         print(f"wrote {args.output}")
     if args.plot is not None:
         from .plotting import plot_chi2
-        plot_chi2(table, axes, chi2, args.plot)
+        plot_chi2(table, views, chi2, args.plot)
         print(f"wrote {args.plot}")
     return EXIT_OK
 

@@ -204,15 +204,18 @@ def match_parameter(model, key, start, stop, observation, settings=None, num=12,
                      f"give {span[0] / 1e5:.4g} to {span[1] / 1e5:.4g} km/s")
 
 
-def write_chi2_csv(path, axes, table, chi2):
-    """row, axis values (cgs), chi2 -- for a sweep comparison."""
+def write_chi2_csv(path, views, table, chi2):
+    """row, axis values (cgs, as in the sweep table; the unit in the header), chi2 -- for a
+    sweep comparison.  ``views``: :func:`windsolve.sweep.axis_views` of the sweep file."""
     path = Path(path)
     try:
         with open(path, "w", newline="", encoding="utf-8") as f:
             w = csv.writer(f)
-            w.writerow(["row"] + list(axes) + ["chi2"])
+            w.writerow(["row"] + [f"{v.key} [{v.cgs_unit}]" if v.cgs_unit else v.key
+                                  for v in views] + ["chi2"])
             for i in range(len(chi2)):
-                w.writerow([i] + [repr(float(table[a][i])) for a in axes] + [repr(float(chi2[i]))])
+                w.writerow([i] + [repr(float(table[v.key][i])) for v in views]
+                           + [repr(float(chi2[i]))])
     except OSError as error:
         raise OutputError(f"{path}: cannot write ({error})") from None
     return path

@@ -100,16 +100,16 @@ def plot_profile(result, path=None):
 def plot_sweep(path, out):
     """Mdot and v_inf over a sweep: against one axis, or colour maps over two.
 
-    Failed models are marked with grey crosses and counted in the title.
+    Failed models are marked with grey crosses and counted in the title;
+    each axis is shown in the unit the sweep file wrote it in
+    (:func:`windsolve.sweep.axis_views`).
     """
-    import json
-
     plt = pyplot()
 
-    from .sweep import read_sweep_table
+    from .sweep import axis_views, read_sweep_table
 
     table, attrs = read_sweep_table(path)
-    axes_keys = json.loads(attrs["axes"])
+    views = axis_views(path)
     ok = table["converged"].astype(bool)
     mdot = table["mass_loss_rate"] * (u.g / u.s).to(u.Msun / u.yr)
     vinf = table["terminal_velocity"] / 1e5
@@ -118,18 +118,8 @@ def plot_sweep(path, out):
     quantities = [(mdot, r"mass-loss rate  $\dot M$  [M$_\odot$ yr$^{-1}$]", True),
                   (vinf, r"terminal velocity  $v_\infty$  [km s$^{-1}$]", False)]
 
-    def label(key):
-        unit = ""
-        import h5py
-        with h5py.File(path, "r") as f:
-            unit = f["table"][key].attrs.get("units", "")
-        return f"{key}  [{unit}]" if unit not in ("", "1") else key
-
-    def logscale(x):
-        return np.all(x > 0) and x.max() / x.min() > 30
-
-    if len(axes_keys) == 1:
-        x = table[axes_keys[0]]
+    if len(views) == 1:
+        x = table[views[0].key] * views[0].factor
         for ax, (y, ylab, logy) in zip(axs, quantities, strict=True):
             order = np.argsort(x)
             ax.plot(x[order][ok[order]], y[order][ok[order]], "o-", ms=3, color="#1f4e79")
@@ -137,14 +127,15 @@ def plot_sweep(path, out):
                 ymin = np.nanmin(y[ok]) if ok.any() else 1.0
                 ax.plot(x[~ok], np.full(n_bad, ymin), "x", color="0.5", label="no solution")
                 ax.legend(frameon=False)
-            ax.set_xlabel(label(axes_keys[0]))
+            ax.set_xlabel(views[0].label)
             ax.set_ylabel(ylab)
-            ax.set_xscale("log" if logscale(x) else "linear")
+            if views[0].log:
+                _log_scale(ax, "x")
             if logy and ok.any() and np.all(y[ok] > 0):
                 ax.set_yscale("log")
             ax.grid(True, which="both", alpha=0.25)
     else:
-        x, y = table[axes_keys[0]], table[axes_keys[1]]
+        x, y = (table[v.key] * v.factor for v in views[:2])
         for ax, (z, zlab, logz) in zip(axs, quantities, strict=True):
             zz = np.log10(z) if logz and ok.any() and np.all(z[ok] > 0) else z
             sc = ax.scatter(x[ok], y[ok], c=zz[ok], cmap="viridis", s=36, marker="s")
@@ -153,15 +144,35 @@ def plot_sweep(path, out):
                 ax.legend(frameon=False, loc="best")
             cb = fig.colorbar(sc, ax=ax)
             cb.set_label(("log10 " if zz is not z else "") + zlab)
-            ax.set_xlabel(label(axes_keys[0]))
-            ax.set_ylabel(label(axes_keys[1]))
-            ax.set_xscale("log" if logscale(x) else "linear")
-            ax.set_yscale("log" if logscale(y) else "linear")
-        if len(axes_keys) > 2:
-            fig.text(0.01, 0.01, f"(first two of {len(axes_keys)} axes shown)", fontsize=8)
+            ax.set_xlabel(views[0].label)
+            ax.set_ylabel(views[1].label)
+            for which, view in zip("xy", views[:2], strict=True):
+                if view.log:
+                    _log_scale(ax, which)
+        if len(views) > 2:
+            fig.text(0.01, 0.01, f"(first two of {len(views)} axes shown)", fontsize=8)
     fig.suptitle(f"sweep {attrs.get('sweep_file', '')}: {ok.sum()} solutions"
                  + (f", {n_bad} without (x)" if n_bad else ""))
     return save(plt, fig, out)
+
+
+def _log_scale(ax, which):
+    """Log scale on ax's "x" or "y" axis, ticks labelled as plain numbers (3e+06, 40)."""
+    from matplotlib.ticker import LogFormatter
+
+    class Plain(LogFormatter):  # matplotlib picks which ticks to label; we pick the text
+        def _num_to_string(self, x, vmin, vmax):
+            return f"{x:g}"
+
+    getattr(ax, f"set_{which}scale")("log")
+    axis = ax.xaxis if which == "x" else ax.yaxis
+    axis.set_major_formatter(Plain())
+    axis.set_minor_formatter(Plain(labelOnlyBase=False, minor_thresholds=(2, 0.5)))
+
+
+def _speed(x):
+    """km/s for a label: whole numbers, or three digits below 10."""
+    return f"{x:.0f}" if abs(x) >= 10 else f"{x:.3g}"
 
 
 def plot_line(line, path, title=""):
@@ -172,27 +183,32 @@ def plot_line(line, path, title=""):
     ax.set_xlabel(r"velocity  [km s$^{-1}$]  (negative: towards the observer)")
     ax.set_ylabel("normalised flux")
     ax.grid(True, alpha=0.25)
+    if line.kind == "emission":  # peak 1 by definition, even where the grid misses it
+        ax.set_ylim(-0.03, 1.08)
     fwhm = line.fwhm.to_value(u.km / u.s)
     hwzi = line.hwzi.to_value(u.km / u.s)
     edge = line.edge_velocity.to_value(u.km / u.s)
     if np.isfinite(fwhm):
         # the outermost half-maximum crossings (the line can be asymmetric)
         above = np.flatnonzero(line.flux >= 0.5)
-        lo = above[0]
-        w_lo = np.interp(0.5, [line.flux[lo - 1], line.flux[lo]], [w[lo - 1], w[lo]]) \
-            if lo > 0 else w[lo]
+        if above.size:
+            lo = above[0]
+            w_lo = np.interp(0.5, [line.flux[lo - 1], line.flux[lo]], [w[lo - 1], w[lo]]) \
+                if lo > 0 else w[lo]
+        else:  # measured on the exact profile, narrower than the grid: centre it on the peak
+            w_lo = w[int(np.argmax(line.flux))] - 0.5 * fwhm
         w_hi = w_lo + fwhm
         ax.annotate("", xy=(w_lo, 0.5), xytext=(w_hi, 0.5),
                     arrowprops=dict(arrowstyle="<->", color="#b03a2e"))
-        ax.text(0.5 * (w_lo + w_hi), 0.53, f"FWHM {fwhm:.0f} km/s", ha="center",
+        ax.text(0.5 * (w_lo + w_hi), 0.53, f"FWHM {_speed(fwhm)} km/s", ha="center",
                 color="#b03a2e")
     if np.isfinite(hwzi):
         for x in (-hwzi, hwzi):
             ax.axvline(x, color="#7d3c98", ls=":", lw=1)
-        ax.text(hwzi, ax.get_ylim()[1] * 0.9, f" HWZI {hwzi:.0f}", color="#7d3c98")
+        ax.text(hwzi, ax.get_ylim()[1] * 0.9, f" HWZI {_speed(hwzi)}", color="#7d3c98")
     if np.isfinite(edge):
         ax.axvline(edge, color="#196f3d", ls="--", lw=1)
-        ax.text(edge, ax.get_ylim()[0], f" edge {edge:.0f}", color="#196f3d", va="bottom")
+        ax.text(edge, ax.get_ylim()[0], f" edge {_speed(edge)}", color="#196f3d", va="bottom")
     ax.set_title(f"{title} — {line.kind} line".strip(" —"))
     return save(plt, fig, path)
 
@@ -212,12 +228,16 @@ def plot_residuals(rows, chi2, path):
     return save(plt, fig, path)
 
 
-def plot_chi2(table, axes, chi2, path):
-    """chi^2 against one axis, or a map over the first two; failed models marked."""
+def plot_chi2(table, views, chi2, path):
+    """chi^2 against one axis, or a map over the first two; failed models marked.
+
+    ``views``: :func:`windsolve.sweep.axis_views` (each axis in the unit the
+    sweep file wrote it in, on a log scale if it was log-spaced).
+    """
     ok = np.isfinite(chi2)
     plt, (fig, ax) = _figure((7.5, 5))
-    x = table[axes[0]]
-    if len(axes) == 1:
+    x = table[views[0].key] * views[0].factor
+    if len(views) == 1:
         order = np.argsort(x)
         ax.plot(x[order][ok[order]], chi2[order][ok[order]], "o-", ms=3, color="#1f4e79")
         if (~ok).any():
@@ -227,7 +247,7 @@ def plot_chi2(table, axes, chi2, path):
         ax.set_yscale("log")
         ax.set_ylabel(r"$\chi^2$")
     else:
-        y = table[axes[1]]
+        y = table[views[1].key] * views[1].factor
         sc = ax.scatter(x[ok], y[ok], c=np.log10(chi2[ok]), cmap="viridis_r", s=40, marker="s")
         if (~ok).any():
             ax.scatter(x[~ok], y[~ok], marker="x", color="0.5", s=30, label="no solution")
@@ -235,11 +255,11 @@ def plot_chi2(table, axes, chi2, path):
         best = int(np.nanargmin(chi2))
         ax.plot(x[best], y[best], "*", color="#b03a2e", ms=14, label="best")
         fig.colorbar(sc, ax=ax).set_label(r"log$_{10}$ $\chi^2$")
-        ax.set_ylabel(axes[1])
-        if np.all(y > 0) and y.max() / y.min() > 30:
-            ax.set_yscale("log")
-    if np.all(x > 0) and x.max() / x.min() > 30:
-        ax.set_xscale("log")
-    ax.set_xlabel(axes[0])
+        ax.set_ylabel(views[1].label)
+        if views[1].log:
+            _log_scale(ax, "y")
+    if views[0].log:
+        _log_scale(ax, "x")
+    ax.set_xlabel(views[0].label)
     ax.set_title(f"{ok.sum()} models compared, {(~ok).sum()} without a solution")
     return save(plt, fig, path)

@@ -37,7 +37,7 @@ from ._version import __version__
 from .errors import ModelError, OutputError, WindsolveError
 from .opacity import nearest
 
-__all__ = ["Sweep", "load_sweep", "run_sweep", "read_sweep_table", "DESIGNS",
+__all__ = ["Sweep", "load_sweep", "run_sweep", "read_sweep_table", "axis_views", "DESIGNS",
            "SUMMARY_COLUMNS"]
 
 DESIGNS = ("grid", "random", "latin")
@@ -69,6 +69,23 @@ class Axis:
     texts: list  # values as written into each row's model file
     numbers: np.ndarray  # the same values in cgs (floats) for the table
     unit: str  # unit of ``numbers`` ("" for plain numbers)
+    shown_unit: str = ""  # the unit the sweep file wrote them in (for people: prints, plots)
+    log: bool = False  # spacing = "log"
+
+
+@dataclass(frozen=True)
+class AxisView:
+    """How to show one axis of a sweep file: values = table[key] * factor [unit]."""
+
+    key: str
+    factor: float  # from the table's cgs numbers to ``unit``
+    unit: str  # the unit as the sweep file wrote it, else the table's; "" for numbers
+    cgs_unit: str  # the table's unit ("" for numbers)
+    log: bool  # a log axis (spacing = "log", or values over more than a factor 30)
+
+    @property
+    def label(self):
+        return f"{self.key} [{self.unit}]" if self.unit else self.key
 
 
 @dataclass
@@ -195,6 +212,40 @@ def _read_axis(model_cls, table, where, design):
             _fail(axis_where, str(error))
         return key, "values", checked, unit
     return key, "range", (start, stop, spacing, read), unit
+
+
+def _written_unit(table):
+    """The unit of an [[axis]] as written ("Lsun" of start = "3e6 Lsun"); "" if none."""
+    first = table.get("start", (table.get("values") or [None])[0])
+    parts = first.split(None, 1) if isinstance(first, str) else []
+    return parts[1].strip() if len(parts) == 2 else ""
+
+
+def axis_views(path):
+    """[AxisView] of a sweep file's axes, in sweep order (older files: the table's units)."""
+    import astropy.units as u
+
+    from ._io import open_hdf5
+    views = []
+    with open_hdf5(path) as f:
+        for key in json.loads(f.attrs["axes"]):
+            d = f["table"][key]
+            cgs = str(d.attrs.get("units", "1"))
+            cgs = "" if cgs in ("1", "none") else cgs
+            shown = str(d.attrs.get("shown_unit", ""))
+            factor, unit = 1.0, cgs
+            if shown and cgs:
+                try:
+                    factor, unit = float(u.Unit(cgs).to(u.Unit(shown))), shown
+                except (ValueError, u.UnitsError):
+                    pass
+            if "log" in d.attrs:
+                log = bool(d.attrs["log"])
+            else:
+                x = d[()]
+                log = bool(np.all(x > 0) and x.max() > 30 * x.min())
+            views.append(AxisView(key, factor, unit, cgs, log))
+    return views
 
 
 def apply_changes(model, changes):
@@ -326,8 +377,9 @@ def load_sweep(path):
                               or batch < 1):
         _fail(path, "batch = a whole number >= 1 (models per task)")
     out_axes = [Axis(a[0], [row[a[0]] for row in rows], numbers[:, j],
-                     "" if a[3] is None else a[3].to_string())
-                for j, a in enumerate(axes)]
+                     "" if a[3] is None else a[3].to_string(),
+                     "" if a[3] is None else _written_unit(t), t.get("spacing") == "log")
+                for j, (a, t) in enumerate(zip(axes, axes_tables, strict=True))]
     return Sweep(path, text, base_model.kind, design, out_axes, base, rows, profiles, batch,
                  numbers, observables)
 
@@ -698,7 +750,9 @@ def write_sweep_table(sweep, records, out):
             f.attrs["axes"] = json.dumps([a.key for a in sweep.axes])
             g = f.create_group("table")
             for a in sweep.axes:
-                dataset(g, a.key, a.numbers, a.unit or "1")
+                d = dataset(g, a.key, a.numbers, a.unit or "1")
+                d.attrs["shown_unit"] = a.shown_unit
+                d.attrs["log"] = a.log
             for key in SUMMARY_COLUMNS:
                 dataset(g, key, column(key), _unit_text(SUMMARY_UNITS[key]))
             if sweep.observables is not None:
