@@ -157,17 +157,14 @@ def plot_sweep(path, out):
 
 
 def _log_scale(ax, which):
-    """Log scale on ax's "x" or "y" axis, ticks labelled as plain numbers (3e+06, 40)."""
+    """Log scale on ax's "x" or "y" axis, ticks labelled as plain numbers (3e+06, 40),
+    intermediate ticks too when the axis spans little more than a decade."""
     from matplotlib.ticker import LogFormatter
-
-    class Plain(LogFormatter):  # matplotlib picks which ticks to label; we pick the text
-        def _num_to_string(self, x, vmin, vmax):
-            return f"{x:g}"
 
     getattr(ax, f"set_{which}scale")("log")
     axis = ax.xaxis if which == "x" else ax.yaxis
-    axis.set_major_formatter(Plain())
-    axis.set_minor_formatter(Plain(labelOnlyBase=False, minor_thresholds=(2, 0.5)))
+    axis.set_major_formatter(LogFormatter())
+    axis.set_minor_formatter(LogFormatter(labelOnlyBase=False, minor_thresholds=(2, 0.5)))
 
 
 def _speed(x):
