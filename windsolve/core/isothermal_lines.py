@@ -4,11 +4,11 @@ What a sweep row with an ``[observables]`` table needs, without handing
 arrays back and forth to Python: the outward profile stored from r_c
 (:func:`windsolve.core.isothermal.outward_part`), its density and opacity,
 the optical core radius (tau = 2/3 summed from outside), the subsonic part
-only when that radius lies below r_c (or without occultation, when the
-P Cygni edge needs the core of the whole profile), and the widths of
-:func:`windsolve.core.lines.line_widths`.  The arrays, and therefore the
-numbers, are those of ``solve(model)`` followed by ``line_widths``: the same
-points, the same core radius and the same kernel.
+only when that radius does not lie beyond the first interval outside r_c
+(or without occultation, when the P Cygni edge needs the core of the whole
+profile), and the widths of :func:`windsolve.core.lines.line_widths`.  The
+numbers are those of ``solve(model)`` followed by ``line_widths``, to
+rounding: the same points, the same core radius and the same kernel.
 """
 
 import math
@@ -57,9 +57,11 @@ def outer_state_and_widths(ln_mdot, P, O, rtol, delta, max_step, capacity, n, oc
     rho, kappa = _density_opacity(r, v, Q, O)
     # With occultation, when the optical core lies beyond r_c the profile
     # from r_c out gives the same widths as the whole (tau is summed from
-    # outside and nothing inside the core is seen).
+    # outside and nothing inside the core is seen) -- beyond the first
+    # interval, so that the velocity gradients at the points around it are
+    # the centred ones of the whole profile, not one-sided ones at r_c.
     Rc = optical_core_radius(r, rho, kappa) if occult else nan
-    if not Rc > r[0]:
+    if not (r.shape[0] > 2 and Rc > r[1]):
         st_in, ri, vi = K.inward_part(Q, O, rc, slope, rtol, delta, max_step, capacity)
         if st_in != K.OK:
             return st_in, st_out, r_end, v_end, nan, nan, nan
