@@ -276,17 +276,41 @@ def test_settings_cgs_are_computed_once_in_cgs():
         lines.widths_cgs(np.ones(3), np.ones(3), np.ones(3), {"turbulence": 0}, 1.0)
 
 
+def _exponential_tau(r, f):
+    """tau from the outer end, f = kappa rho exponential in r between points."""
+    q = np.log(f[1:] / f[:-1])
+    seg = np.diff(r) * (f[1:] - f[:-1]) / q
+    return np.concatenate([np.cumsum(seg[::-1])[::-1], [0.0]])
+
+
 def test_optical_core_radius_cgs(demo):
     # tau = int kappa rho dr from outside reaches 2/3 (the usual photosphere
-    # definition, common practice): a trapezoid sum recomputed here; None when thin.
+    # definition, common practice), kappa rho exponential between points:
+    # recomputed here with numpy; and the crossing found on that curve
+    # (tau(Rc) = 2/3 to rounding, unlike the linear interpolation).
     p = demo.profile
     r = p["radius"].to_value(u.cm)
     rho = p["density"].to_value(u.g / u.cm**3)
     kappa = p["opacity"].to_value(u.cm**2 / u.g)
-    seg = 0.5 * (kappa[1:] * rho[1:] + kappa[:-1] * rho[:-1]) * np.diff(r)
-    tau = np.concatenate([np.cumsum(seg[::-1])[::-1], [0.0]])
-    expected = np.interp(2 / 3, tau[::-1], r[::-1])
+    f = kappa * rho
+    tau = _exponential_tau(r, f)
     got = lines.optical_core_radius_cgs(r, rho, kappa)
-    assert math.isclose(got, expected, rel_tol=1e-12)
+    i = np.searchsorted(r, got) - 1
+    k = np.log(f[i + 1] / f[i]) / (r[i + 1] - r[i])
+    tau_at = tau[i + 1] + (f[i + 1] - f[i] * np.exp(k * (got - r[i]))) / k
+    assert math.isclose(tau_at, 2 / 3, rel_tol=1e-12)
     assert got == lines._optical_core(demo)
     assert lines.optical_core_radius_cgs(r, rho * 1e-30, kappa) is None
+
+
+def test_optical_core_of_an_exponential_atmosphere_is_exact():
+    # rho = rho0 exp(-(r - R) / H), constant kappa: tau(r) = kappa rho0 H
+    # (exp(-(r - R)/H) - exp(-(r_out - R)/H)) (analytic integral), so
+    # tau = 2/3 at r = R - H ln(2 / (3 kappa rho0 H) + exp(-(r_out - R)/H)),
+    # on a coarse grid too (a trapezoid sum on this grid is off by 0.27 H).
+    R, H, kappa, rho0 = 7e12, 3e10, 0.34, 1e-9
+    r = np.linspace(R, R + 60 * H, 40)
+    rho = rho0 * np.exp(-(r - R) / H)
+    expected = R - H * math.log(2 / (3 * kappa * rho0 * H) + math.exp(-(r[-1] - R) / H))
+    got = lines.optical_core_radius_cgs(r, rho, np.full_like(r, kappa))
+    assert abs(got - expected) < 1e-9 * H

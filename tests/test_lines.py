@@ -288,13 +288,17 @@ def test_emission_profile_matches_kernel(demo):
     # (f) internal: the Quantity layer is the kernel plus units, the default
     # core radius, peak normalisation and the +-1.2 v_max grid.  The default
     # core of a Model A result is where tau = integral of kappa rho dr from
-    # outside reaches 2/3 (recomputed here with a trapezoid sum).
+    # outside reaches 2/3 (recomputed here: kappa rho exponential between
+    # points, the crossing solved for on that curve).
     p = lines.emission_profile(demo)
     r, v, rho = cgs(demo.profile)
     kappa = demo.profile["opacity"].to_value(u.cm**2 / u.g)
-    seg = 0.5 * (kappa[1:] * rho[1:] + kappa[:-1] * rho[:-1]) * np.diff(r)
+    f = kappa * rho
+    seg = np.diff(r) * (f[1:] - f[:-1]) / np.log(f[1:] / f[:-1])
     tau = np.concatenate([np.cumsum(seg[::-1])[::-1], [0.0]])
-    Rc = np.interp(2 / 3, tau[::-1], r[::-1])
+    i = np.flatnonzero(tau >= 2 / 3)[-1]
+    k = np.log(f[i + 1] / f[i]) / (r[i + 1] - r[i])
+    Rc = r[i] + np.log((f[i + 1] - (2 / 3 - tau[i + 1]) * k) / f[i]) / k
     assert tau[0] > 2 / 3 and r[0] < Rc < r[-1]
     w = p.velocity.to_value(u.cm / u.s)
     F = kernels.emission_flux(r, v, rho, 2.0, Rc, True, w)

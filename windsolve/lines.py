@@ -85,6 +85,15 @@ Sobolev approximation fails where v is not much larger than the thermal
 speed, so P Cygni features within a few sound speeds of w = 0 are not
 reliable.
 
+Numerical accuracy.  The widths are exact for the tabulated profile as
+interpolated above; what limits them is the sampling of the profile.  On
+40 demo winds (luminosity 2.5-8e6 Lsun, porosity length 1-100 Rsun),
+against profiles sampled four times more densely than ``solve`` stores
+them, FWHM and HWZI move by a median of 2e-6 and 6e-7 relative (90 % of
+the models below 1e-4), at most 4e-3 for a line tens of km/s wide whose
+core lies just outside the sonic point and 2e-2 for a spike a few km/s
+wide from the subsonic base; the blue edge by less than 1e-6.
+
 Normalisation.  Emission: continuum 0, the line's peak = 1 (without
 broadening the exact peak F(0), which a grid point need not hit).  P Cygni:
 continuum 1 (F / F_c, F_c the core's flux).
@@ -482,8 +491,9 @@ def optical_core_radius_cgs(r, rho, kappa):
     Returns
     -------
     float or None
-        The tau = 2/3 radius (trapezoid sum from the outer end inward, linear
-        interpolation in r), the default core radius of a Model A result;
+        The tau = 2/3 radius (summed from the outer end inward with kappa rho
+        exponential in r between points, as the line kernels interpolate
+        rho), the default core radius of a Model A result;
         None if the whole profile is optically thin (tau(r[0]) <= 2/3).
         Kernel :func:`windsolve.core.lines.optical_core_radius`.
     """
