@@ -264,16 +264,19 @@ def test_axes_are_shown_in_the_units_the_sweep_file_wrote(tmp_path):
                     f'[[axis]]\nkey = "star.luminosity"\nstart = "3e6 Lsun"\n'
                     f'stop = "5e6 Lsun"\nnum = 2\nspacing = "log"\n'
                     f'[[axis]]\nkey = "porosity.length"\nvalues = ["5 Rsun", "7e11 cm"]\n'
+                    f'[[axis]]\nkey = "boundary.base_density"\n'
+                    f'values = ["1e-10 g/cm3", "1e-8 g/cm3"]\n'
                     f'[[axis]]\nkey = "composition.X"\nvalues = [0.7]\n')
     out = tmp_path / "s.h5"
     run_sweep(load_sweep(path), out, workers=1, quiet=True)
     table, _ = read_sweep_table(out)
-    lum, h, x = axis_views(out)
+    lum, h, rho0, x = axis_views(out)
+    assert (rho0.unit, rho0.log) == ("g/cm3", True)  # values over 100x: a log axis
     assert (lum.unit, lum.cgs_unit, lum.log) == ("Lsun", "erg / s", True)
     assert math.isclose(table[lum.key][0] * lum.factor, 3e6, rel_tol=1e-12)
     assert math.isclose(lum.factor, 1 / u.Lsun.to(u.erg / u.s), rel_tol=1e-15)
     assert (h.unit, h.log, h.label) == ("Rsun", False, "porosity.length [Rsun]")
-    assert math.isclose(table[h.key][1] * h.factor, 7e11 / u.Rsun.to(u.cm), rel_tol=1e-12)
+    assert math.isclose(table[h.key].max() * h.factor, 7e11 / u.Rsun.to(u.cm), rel_tol=1e-12)
     assert (x.unit, x.factor, x.label) == ("", 1.0, "composition.X")
 
 

@@ -70,7 +70,7 @@ class Axis:
     numbers: np.ndarray  # the same values in cgs (floats) for the table
     unit: str  # unit of ``numbers`` ("" for plain numbers)
     shown_unit: str = ""  # the unit the sweep file wrote them in (for people: prints, plots)
-    log: bool = False  # spacing = "log"
+    log: bool = False  # shown on a log scale: spacing = "log", or positive values over > 30x
 
 
 @dataclass(frozen=True)
@@ -81,7 +81,7 @@ class AxisView:
     factor: float  # from the table's cgs numbers to ``unit``
     unit: str  # the unit as the sweep file wrote it, else the table's; "" for numbers
     cgs_unit: str  # the table's unit ("" for numbers)
-    log: bool  # a log axis (spacing = "log", or values over more than a factor 30)
+    log: bool  # shown on a log scale (Axis.log; older files: values over more than 30x)
 
     @property
     def label(self):
@@ -221,6 +221,11 @@ def _written_unit(table):
     return parts[1].strip() if len(parts) == 2 else ""
 
 
+def _wide(x):
+    """Positive values over more than a factor 30: shown on a log scale."""
+    return bool(np.all(x > 0) and x.max() > 30 * x.min())
+
+
 def axis_views(path):
     """[AxisView] of a sweep file's axes, in sweep order (older files: the table's units)."""
     import astropy.units as u
@@ -239,11 +244,7 @@ def axis_views(path):
                     factor, unit = float(u.Unit(cgs).to(u.Unit(shown))), shown
                 except (ValueError, u.UnitsError):
                     pass
-            if "log" in d.attrs:
-                log = bool(d.attrs["log"])
-            else:
-                x = d[()]
-                log = bool(np.all(x > 0) and x.max() > 30 * x.min())
+            log = bool(d.attrs["log"]) if "log" in d.attrs else _wide(d[()])
             views.append(AxisView(key, factor, unit, cgs, log))
     return views
 
@@ -378,7 +379,8 @@ def load_sweep(path):
         _fail(path, "batch = a whole number >= 1 (models per task)")
     out_axes = [Axis(a[0], [row[a[0]] for row in rows], numbers[:, j],
                      "" if a[3] is None else a[3].to_string(),
-                     "" if a[3] is None else _written_unit(t), t.get("spacing") == "log")
+                     "" if a[3] is None else _written_unit(t),
+                     t.get("spacing") == "log" or ("values" in t and _wide(numbers[:, j])))
                 for j, (a, t) in enumerate(zip(axes, axes_tables, strict=True))]
     return Sweep(path, text, base_model.kind, design, out_axes, base, rows, profiles, batch,
                  numbers, observables)
