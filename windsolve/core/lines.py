@@ -228,6 +228,17 @@ def _emission_loop(rf, vf, lg, hi, full, Rc, occult, w):
     return out
 
 
+@njit(cache=True, error_model="numpy", inline="always")
+def _edge_polynomial(t, xa, ea, dx, va, dv, w2):
+    """(P, dP/dt) of :func:`_occultation_root` at t: P = v^2 (x^2 - 1) - w^2 x^2."""
+    x = xa + t * dx
+    e = ea + t * dx
+    v = va + t * dv
+    p = v * v * e * (x + 1.0) - w2 * x * x
+    dp = 2.0 * v * dv * e * (x + 1.0) + v * v * 2.0 * x * dx - 2.0 * w2 * x * dx
+    return p, dp
+
+
 @njit(cache=True, error_model="numpy")
 def _occultation_root(ra, rb, va, vb, Rc, w, t_guess):
     """t in [0, 1] where v(t) sqrt(1 - (Rc / r(t))^2) = w, by safeguarded Newton.
@@ -256,11 +267,7 @@ def _occultation_root(ra, rb, va, vb, Rc, w, t_guess):
         return 1.0
     t = t_guess if 0.0 < t_guess < 1.0 else p0 / (p0 - p1)
     for _ in range(60):
-        x = xa + t * dx
-        e = ea + t * dx
-        v = va + t * dv
-        p = v * v * e * (x + 1.0) - w2 * x * x
-        dp = 2.0 * v * dv * e * (x + 1.0) + v * v * 2.0 * x * dx - 2.0 * w2 * x * dx
+        p, dp = _edge_polynomial(t, xa, ea, dx, va, dv, w2)
         if p > 0.0:
             hi = t
         elif p < 0.0:
@@ -272,11 +279,7 @@ def _occultation_root(ra, rb, va, vb, Rc, w, t_guess):
             tn = 0.5 * (lo + hi)
         if abs(tn - t) <= 1e-12 or hi - lo <= 1e-15:
             # converging quadratically: one more Newton step from here is exact
-            x = xa + tn * dx
-            e = ea + tn * dx
-            v = va + tn * dv
-            p = v * v * e * (x + 1.0) - w2 * x * x
-            dp = 2.0 * v * dv * e * (x + 1.0) + v * v * 2.0 * x * dx - 2.0 * w2 * x * dx
+            p, dp = _edge_polynomial(tn, xa, ea, dx, va, dv, w2)
             if dp > 0.0:
                 tf = tn - p / dp
                 if lo <= tf <= hi:
