@@ -1046,18 +1046,24 @@ def emission_line(r, v, rho, n, Rc, occult, w, sigma, hwzi_fraction):
 
 
 @njit(cache=True, error_model="numpy")
-def _emission_line_refined(rf, vf, lf, lv, n, Rc, occult, w, sigma, hwzi_fraction):
-    """:func:`emission_line` on a grid from :func:`_refine`."""
+def _emission_line_refined(rf, vf, lf, lv, n, Rc, occult, w, sigma, hwzi_fraction,
+                           profile=True):
+    """:func:`emission_line` on a grid from :func:`_refine`.  With ``profile`` False
+    only the widths are wanted: when they come from the exact profile, f is left empty
+    (the grid profile is not computed)."""
     if rf.shape[0] < 2:
         return np.zeros(w.shape[0]), np.nan, np.nan, False
     lg, hi, full = _emission_nodes(rf, vf, lf, lv, n, Rc, occult)
-    if nondecreasing(vf) and nondecreasing(hi):
+    mono = nondecreasing(vf) and nondecreasing(hi)
+    if mono and sigma <= 0.0:  # measured on the exact profile, normalised to its peak F(0)
+        peak, fwhm, hwzi = _exact_widths(rf, vf, lg, full, Rc, occult, hwzi_fraction)
+        ok = peak > 0.0
+        if not profile:
+            return np.empty(0), fwhm, hwzi, ok
         F = _emission_prefix(rf, vf, lg, hi, full, Rc, occult, w)
-        if sigma <= 0.0:  # measured on the exact profile, normalised to its peak F(0)
-            peak, fwhm, hwzi = _exact_widths(rf, vf, lg, full, Rc, occult, hwzi_fraction)
-            if not peak > 0.0:
-                return F, np.nan, np.nan, False
-            return F / peak, fwhm, hwzi, True
+        return (F / peak if ok else F), fwhm, hwzi, ok
+    if mono:
+        F = _emission_prefix(rf, vf, lg, hi, full, Rc, occult, w)
     else:
         F = _emission_loop(rf, vf, lg, hi, full, Rc, occult, w)
     F = gaussian_broaden(F, w[1] - w[0], sigma, 0.0)
@@ -1069,20 +1075,6 @@ def _emission_line_refined(rf, vf, lf, lv, n, Rc, occult, w, sigma, hwzi_fractio
     zlo, zhi = outermost_crossings(w, f, hwzi_fraction)
     hwzi = np.nan if (np.isnan(zlo) or np.isnan(zhi)) else max(-zlo, zhi)
     return f, hi - lo, hwzi, True
-
-
-@njit(cache=True, error_model="numpy")
-def _emission_widths(rf, vf, lf, lv, n, Rc, occult, w, sigma, hwzi_fraction):
-    """(FWHM, HWZI) of :func:`_emission_line_refined`, without the grid profile when
-    they are measured on the exact one (unbroadened, v and hi non-decreasing)."""
-    if sigma <= 0.0 and rf.shape[0] >= 2:
-        lg, hi, full = _emission_nodes(rf, vf, lf, lv, n, Rc, occult)
-        if nondecreasing(vf) and nondecreasing(hi):
-            _, fwhm, hwzi = _exact_widths(rf, vf, lg, full, Rc, occult, hwzi_fraction)
-            return fwhm, hwzi
-    _, fwhm, hwzi, _ = _emission_line_refined(rf, vf, lf, lv, n, Rc, occult, w, sigma,
-                                              hwzi_fraction)
-    return fwhm, hwzi
 
 
 @njit(cache=True, error_model="numpy")
@@ -1198,12 +1190,12 @@ def line_widths(r, v, rho, Rc, n, occult, fwhm, sigma, hwzi_fraction, edge_depth
     rf, vf, lf, lv = _refine(r, v, rho, Rc, NSUB)
     if occult:
         if outside:
-            e_fwhm, e_hwzi = _emission_widths(rf, vf, lf, lv, n, Rc, occult, w, sigma,
-                                              hwzi_fraction)
+            _, e_fwhm, e_hwzi, _ = _emission_line_refined(rf, vf, lf, lv, n, Rc, occult, w,
+                                                          sigma, hwzi_fraction, False)
     else:  # every shell seen whole, from r[0]
         rf0, vf0, lf0, lv0 = _refine(r, v, rho, r[0], NSUB)
-        e_fwhm, e_hwzi = _emission_widths(rf0, vf0, lf0, lv0, n, Rc, occult, w, sigma,
-                                          hwzi_fraction)
+        _, e_fwhm, e_hwzi, _ = _emission_line_refined(rf0, vf0, lf0, lv0, n, Rc, occult, w,
+                                                      sigma, hwzi_fraction, False)
     edge = np.nan
     if outside:
         vc, i0, bad = monotonic_outside(r, v, Rc, rtol)
