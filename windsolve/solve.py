@@ -126,11 +126,10 @@ def solve_isothermal_cgs(model, profile=True, critical=True, widths=None):
         from .core.isothermal_lines import outer_state_and_widths
         st_in, st_out, r_end, v_end, *measured = outer_state_and_widths(
             ln_mdot, P, O, rtol, DELTA, MAX_STEP, CAPACITY, *widths)
-        r = np.array([R0, r_end])
-        v = np.array([v0, v_end])
     else:  # the outer end only (sweeps): no stored profile
         st_in = K.OK
         st_out, r_end, v_end = K.end_state(ln_mdot, P, O, rtol, DELTA)
+    if not profile:  # the base and the outer end
         r = np.array([R0, r_end])
         v = np.array([v0, v_end])
     rho, L, kappa, gamma = K.profile_quantities(ln_mdot, r, v, P, O)
