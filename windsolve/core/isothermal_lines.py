@@ -21,18 +21,6 @@ from .lines import MONOTONIC_RTOL, line_widths, optical_core_radius
 
 
 @njit(cache=True, error_model="numpy")
-def _density_opacity(r, v, Q, O):
-    """rho and kappa_eff along (r, v), as :func:`windsolve.core.isothermal.profile_quantities`."""
-    n = r.shape[0]
-    rho = np.empty(n)
-    kappa = np.empty(n)
-    for i in range(n):
-        rho[i] = K.density(r[i], v[i], Q)
-        kappa[i] = K.effective_opacity(O, rho[i], Q[K.I_T], r[i])
-    return rho, kappa
-
-
-@njit(cache=True, error_model="numpy")
 def outer_state_and_widths(ln_mdot, P, O, rtol, delta, max_step, capacity, n, occult,
                            fwhm, sigma, hwzi_fraction, edge_depth, k0, n_velocity):
     """The outward leg's end and the line widths of the converged solution ``ln_mdot``.
@@ -54,7 +42,7 @@ def outer_state_and_widths(ln_mdot, P, O, rtol, delta, max_step, capacity, n, oc
     v_end = v[v.shape[0] - 1]
     if st_out != K.OK:
         return K.OK, st_out, r_end, v_end, nan, nan, nan
-    rho, kappa = _density_opacity(r, v, Q, O)
+    rho, _, kappa, _ = K.profile_quantities(ln_mdot, r, v, P, O)
     # With occultation, when the optical core lies beyond r_c the profile
     # from r_c out gives the same widths as the whole (tau is summed from
     # outside and nothing inside the core is seen) -- beyond the first
@@ -65,7 +53,7 @@ def outer_state_and_widths(ln_mdot, P, O, rtol, delta, max_step, capacity, n, oc
         st_in, ri, vi = K.inward_part(Q, O, rc, slope, rtol, delta, max_step, capacity)
         if st_in != K.OK:
             return st_in, st_out, r_end, v_end, nan, nan, nan
-        rho_i, kappa_i = _density_opacity(ri, vi, Q, O)
+        rho_i, _, kappa_i, _ = K.profile_quantities(ln_mdot, ri, vi, P, O)
         r = np.concatenate((ri, r))
         v = np.concatenate((vi, v))
         rho = np.concatenate((rho_i, rho))
