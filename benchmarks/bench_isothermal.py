@@ -92,7 +92,7 @@ def parker_mass_loss_rate(P, O):
 def opacity_agreement():
     """Largest relative difference between the reference's and the kernel's
     effective opacity, over all three laws with and without porosity."""
-    kes = SIGMA_T / M_U * 0.85
+    kes = SIGMA_T / M_U * (0.7 / 1.008 + 2 * 0.28 / 4.002602 + 0.02 / 2)  # X = 0.7, Z = 0.02
     laws = [(op.LAW_ELECTRON_SCATTERING, ()), (op.LAW_KRAMERS, (3.68e22 * 1.7,)),
             (op.LAW_BUMP, (5.0, 1e-9, 0.5, 5.25, 0.1))]
     worst = 0.0

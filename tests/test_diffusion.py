@@ -103,7 +103,11 @@ def test_photospheric_conditions(solved):
     T_eff = (L[-1] / (4 * np.pi * SIGMA * R**2)) ** 0.25
     assert math.isclose(T[-1], T_eff, rel_tol=1e-9)
     assert math.isclose(T_eff, 5e4, rel_tol=1e-9)
-    kes = (ac.sigma_T / ac.u).cgs.value * 0.85
+    # kappa_es = sigma_T n_e / rho for X = 0.7, Z = 0.02, fully ionised,
+    # electrons counted with the standard atomic weights of H and He (1.008,
+    # 4.002602; IUPAC, from memory) and A/2 electrons per metal atom of mass
+    # A m_u (common practice).
+    kes = (ac.sigma_T / ac.u).cgs.value * (0.7 / 1.008 + 2 * 0.28 / 4.002602 + 0.02 / 2)
     mdot = s["mass_loss_rate"].to_value(u.g / u.s)
     v_inf = s["terminal_velocity"].to_value(u.cm / u.s)
     tau = kes * mdot / (2 * np.pi * R * (v[-1] + v_inf))

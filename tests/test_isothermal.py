@@ -27,7 +27,7 @@ C = ac.c.cgs.value
 def parker_model(gamma, a_kms=100.0, rc_over_r0=4.0, **extra):
     """Electron-scattering wind with Eddington factor ``gamma`` and r_c = 4 R0."""
     M = 10 * u.Msun
-    kappa = physics.electron_scattering_opacity(0.7)
+    kappa = physics.electron_scattering_opacity(0.7, 0.0)
     L = gamma * physics.eddington_luminosity(M, kappa)
     a = a_kms * u.km / u.s
     rc = (ac.G * M * (1 - gamma) / (2 * a**2)).to(u.Rsun)
@@ -168,7 +168,7 @@ def test_eddington_factor_constant_along_electron_scattering_flow():
     result = windsolve.solve(model)
     gamma = result.profile["eddington_factor"].value
     expected = physics.eddington_factor(model.luminosity, model.mass,
-                                        physics.electron_scattering_opacity(0.7))
+                                        physics.electron_scattering_opacity(0.7, 0.0))
     assert np.allclose(gamma, expected, rtol=1e-12, atol=0)
     assert math.isclose(expected, 0.5, rel_tol=1e-12)
 

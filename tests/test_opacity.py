@@ -13,7 +13,7 @@ from windsolve.errors import ModelError
 from windsolve.opacity import opacity_value
 
 X, Z = 0.7, 0.02
-KES = basics.electron_scattering_opacity(X)
+KES = basics.electron_scattering_opacity(X, Z)
 
 
 def test_registry_codes_are_unique_and_named():

@@ -27,7 +27,7 @@ from windsolve.modelfile import dumps
 from windsolve.opacity import opacity_value
 
 X, Z = 0.7, 0.02
-KES = basics.electron_scattering_opacity(X)
+KES = basics.electron_scattering_opacity(X, Z)
 CONFIGS = os.path.join(os.path.dirname(__file__), os.pardir, "configs")
 DEMO_TABLE = os.path.join(CONFIGS, "invented_bump_table.txt")
 # The invented law of configs/invented_bump_table.txt (see its header).

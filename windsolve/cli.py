@@ -71,7 +71,7 @@ def cmd_check(args):
     M = model.cgs("mass")
     R0 = model.cgs("radius")
     L0 = model.cgs("luminosity")
-    kes = basics.electron_scattering_opacity(model.X)
+    kes = basics.electron_scattering_opacity(model.X, model.Z)
     L_edd = basics.eddington_luminosity(M, kes)
     gamma_es = L0 / L_edd
     P, O = model.kernel_arrays
@@ -83,7 +83,8 @@ def cmd_check(args):
         ("model", f"{model.kind} ({source})"),
         ("star", model.name),
         ("mean molecular weight mu", f"{model.mu:.4f}"),
-        ("mean mass per electron mu_e", f"{basics.mean_mass_per_electron(model.X):.4f}"),
+        ("mean mass per electron mu_e",
+         f"{basics.mean_mass_per_electron(model.X, model.Z):.4f}"),
         ("electron-scattering opacity", f"{kes:.4f} cm2/g"),
         ("Eddington luminosity (kappa_es)", f"{(L_edd * u.erg / u.s).to_value(u.Lsun):.4g} Lsun"
                                             f" = {L_edd:.4g} erg/s"),
@@ -138,7 +139,7 @@ def _check_diffusion(model, source):
     M = model.cgs("mass")
     L = (model.cgs("photosphere_luminosity") if model.anchor == "photosphere"
          else model.cgs("luminosity"))
-    kes = basics.electron_scattering_opacity(model.X)
+    kes = basics.electron_scattering_opacity(model.X, model.Z)
     L_edd = basics.eddington_luminosity(M, kes)
     rows = [
         ("model", f"diffusion, anchored at the {model.anchor} ({source})"),

@@ -460,7 +460,7 @@ class DiffusionWind(WindModel):
         P = np.zeros(diff_kernels.N_PARAMS)
         P[diff_kernels.I_GM] = G * self.cgs("mass")
         P[diff_kernels.I_KG] = K_B / (self.mu * M_U)
-        P[diff_kernels.I_KES] = basics.electron_scattering_opacity(self.X)
+        P[diff_kernels.I_KES] = basics.electron_scattering_opacity(self.X, self.Z)
         R0 = self.cgs("radius") if self.radius is not None else 0.0
         P[diff_kernels.I_R_IN] = R0
         if self.anchor == "photosphere" and self.radius is None:

@@ -105,7 +105,8 @@ def _table_block(p, X, Z):
 OPACITY_LAWS = {law.name: law for law in (
     OpacityLaw(
         "electron_scattering", kernels.LAW_ELECTRON_SCATTERING,
-        "kappa = kappa_es = 0.2 (1 + X) cm2/g (Thomson scattering, fully ionized)"),
+        "kappa = kappa_es = sigma_T / (mu_e m_u) ~ 0.2 (1 + X) cm2/g (Thomson scattering, "
+        "fully ionized)"),
     OpacityLaw(
         "kramers", kernels.LAW_KRAMERS,
         "kappa = kappa_es + (C_ff (1 - Z) + C_bf (g/t) Z) (1 + X) rho T^-3.5 (Kramers form)",
@@ -206,7 +207,7 @@ class Opacity:
         one-line ModelError naming it when it is missing or malformed.
         """
         spec = OPACITY_LAWS[self.law]
-        kes = basics.electron_scattering_opacity(X)
+        kes = basics.electron_scattering_opacity(X, Z)
         values = self.cgs()
         return kernels.pack(spec.code, kes, spec.pack(values, X, Z), porosity,
                             spec.extra(values, X, Z))

@@ -48,7 +48,7 @@ def check_composition(X, Z):
 
 @_twin(basics.mean_molecular_weight)
 def mean_molecular_weight(X, Z):
-    """Mean molecular weight mu of a fully ionized gas (dimensionless).
+    """Mean molecular weight mu of a fully ionized gas, in units of m_u.
 
     Parameters
     ----------
@@ -57,31 +57,43 @@ def mean_molecular_weight(X, Z):
 
     Notes
     -----
-    .. math:: \\mu = \\frac{4}{3 + 5X - Z}
+    .. math:: \\frac{1}{\\mu} = \\frac{2X}{A_H} + \\frac{3Y}{A_{He}} + \\frac{Z}{2}
 
-    (Kippenhahn, Weigert & Weiss 2012, Stellar Structure and Evolution,
-    ch. 4, complete ionisation.)
+    with the standard atomic weights A_H = 1.008 and A_He = 4.002602; metals
+    give A/2 electrons per atom of mass A m_u (common practice) and their
+    nuclei are neglected.  With A_H = 1, A_He = 4 this is the textbook
+    mu = 4 / (3 + 5X - Z) (Kippenhahn, Weigert & Weiss 2012, Stellar
+    Structure and Evolution, ch. 4); pure ionised hydrogen has mu = A_H / 2.
     """
     check_composition(X, Z)
     return basics.mean_molecular_weight(X, Z)
 
 
 @_twin(basics.mean_mass_per_electron)
-def mean_mass_per_electron(X):
-    """mu_e = 2 / (1 + X), nucleons per free electron (dimensionless)."""
-    check_composition(X, 0.0)
-    return basics.mean_mass_per_electron(X)
+def mean_mass_per_electron(X, Z):
+    """mu_e, the mass per free electron in units of m_u (dimensionless).
+
+    .. math:: \\frac{1}{\\mu_e} = \\frac{X}{A_H} + \\frac{2Y}{A_{He}} + \\frac{Z}{2}
+
+    (fully ionised; the textbook 2 / (1 + X) when A_H = 1 and A_He = 4).
+    """
+    check_composition(X, Z)
+    return basics.mean_mass_per_electron(X, Z)
 
 
 @_twin(basics.electron_scattering_opacity)
-def electron_scattering_opacity(X):
+def electron_scattering_opacity(X, Z):
     """Thomson electron-scattering opacity of a fully ionized gas [cm2 / g].
 
-    .. math:: \\kappa_{es} = \\frac{\\sigma_T}{m_u} \\frac{1 + X}{2}
+    .. math:: \\kappa_{es} = \\frac{\\sigma_T}{m_u \\mu_e}
               \\approx 0.2 (1 + X)\\ {\\rm cm^2\\,g^{-1}}
+
+    Electrons per gram are counted from the atomic weights of H and He (see
+    :func:`mean_mass_per_electron`): pure hydrogen gives sigma_T / m_H =
+    0.3975 cm2/g, 0.8 % below the textbook 0.2 (1 + X) = 0.4.
     """
-    check_composition(X, 0.0)
-    return basics.electron_scattering_opacity(X) << OPACITY_UNIT
+    check_composition(X, Z)
+    return basics.electron_scattering_opacity(X, Z) << OPACITY_UNIT
 
 
 @_twin(basics.eddington_luminosity)

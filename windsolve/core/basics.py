@@ -8,31 +8,49 @@ import math
 
 from numba import njit
 
-from .constants import C_LIGHT, K_B, M_U, SIGMA_T, G
+from .constants import A_H, A_HE, C_LIGHT, K_B, M_U, SIGMA_T, G
 
 FOUR_PI = 4.0 * math.pi
 
 
+# Particles and electrons per gram of a fully ionised gas are counted from
+# the atomic weights of hydrogen and helium (A_H, A_HE); a metal atom of mass
+# A m_u is taken to give A/2 electrons (A ~ 2 Z_nuc, common practice), so
+# metals add Z/2 electrons and, with their nuclei neglected, Z/2 particles
+# per m_u.  With A_H = 1 and A_HE = 4 these become the textbook forms
+# mu = 4/(3 + 5X - Z) and mu_e = 2/(1 + X) (Kippenhahn, Weigert & Weiss 2012,
+# Stellar Structure and Evolution, 2nd ed., ch. 4), which overcount electrons
+# in hydrogen by 0.8 %.
+
+
+@njit(cache=True, error_model="numpy")
+def electrons_per_unit(X, Z):
+    """Free electrons per m_u of gas: X/A_H + 2Y/A_He + Z/2 (fully ionised)."""
+    Y = 1.0 - X - Z
+    return X / A_H + 2.0 * Y / A_HE + 0.5 * Z
+
+
 @njit(cache=True, error_model="numpy")
 def mean_molecular_weight(X, Z):
-    """Mean mass per particle in units of m_u for a fully ionized gas.
+    """Mean mass per particle (nuclei and electrons) in units of m_u.
 
-    mu = 4 / (3 + 5 X - Z) (e.g. Kippenhahn, Weigert & Weiss 2012, Stellar
-    Structure and Evolution, 2nd ed., eq. 4.30 with complete ionisation).
+    1/mu = 2X/A_H + 3Y/A_He + Z/2 for a fully ionised gas (see the note
+    above on metals).
     """
-    return 4.0 / (3.0 + 5.0 * X - Z)
+    Y = 1.0 - X - Z
+    return 1.0 / (2.0 * X / A_H + 3.0 * Y / A_HE + 0.5 * Z)
 
 
 @njit(cache=True, error_model="numpy")
-def mean_mass_per_electron(X):
-    """mu_e = 2 / (1 + X): nucleons per free electron, fully ionized gas."""
-    return 2.0 / (1.0 + X)
+def mean_mass_per_electron(X, Z):
+    """mu_e: mass per free electron in units of m_u, fully ionised gas."""
+    return 1.0 / electrons_per_unit(X, Z)
 
 
 @njit(cache=True, error_model="numpy")
-def electron_scattering_opacity(X):
-    """kappa_es = (sigma_T / m_u) (1 + X) / 2  [cm2 g-1]."""
-    return SIGMA_T / M_U * 0.5 * (1.0 + X)
+def electron_scattering_opacity(X, Z):
+    """kappa_es = sigma_T n_e / rho = (sigma_T / m_u) / mu_e  [cm2 g-1]."""
+    return SIGMA_T / M_U * electrons_per_unit(X, Z)
 
 
 @njit(cache=True, error_model="numpy")

@@ -20,3 +20,10 @@ R_SUN = 69570000000.0  # Nominal solar radius [cm], IAU 2015 Resolution B 3
 
 A_RAD = 4.0 * SIGMA_SB / C_LIGHT  # radiation constant a = 4 sigma / c [erg cm-3 K-4]
 YEAR = 31557600.0  # Julian year [s], the year of "Msun/yr" (IAU)
+
+# Standard atomic weights (IUPAC 2021 abridged values, Prohaska et al. 2022,
+# Pure Appl. Chem. 94, 573; from memory): the mass of a hydrogen and of a
+# helium atom of natural isotopic composition, in units of m_u.  Electrons
+# and particles per gram are counted with them (windsolve.core.basics).
+A_H = 1.008
+A_HE = 4.002602
