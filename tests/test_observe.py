@@ -44,7 +44,7 @@ def test_shipped_example_is_valid():
 @pytest.mark.parametrize("body, fragment", [
     ("Star X,terminal_velocty,-,450,40,km/s\n", 'did you mean "terminal_velocity"'),
     ("Star X,fwhm,-,450,0,km/s\n", "positive"),
-    ("Star X,fwhm,-,fast,40,km/s\n", "numbers"),
+    ("Star X,fwhm,-,fast,40,km/s\n", "value \"fast\" is not a number"),
     ("Star X,fwhm,-,450,40,K\n", "not a speed"),
     ("Star X,fwhm,-,450,40\n", "fields"),
     ("Star X,fwhm,-,450,40,km/s\nStar Y,fwhm,-,400,40,km/s\n", "--object"),

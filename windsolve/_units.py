@@ -1,8 +1,10 @@
 """Reading values with units: the only place strings become Quantities."""
 
+import math
 import numbers
 
 import astropy.units as u
+import numpy as np
 
 from .errors import ModelError
 
@@ -44,6 +46,70 @@ _PARSED = {}
 PARSED_CACHE_SIZE = 4096
 
 
+def plain(value):
+    """``value`` as an error message shows it: as it would be written in a model file.
+
+    Numbers plainly (``0.5``, never ``np.float64(0.5)``), Quantities as
+    ``50.0 solMass``, strings quoted, flags as true/false, lists and tables in
+    TOML's spelling.
+    """
+    if isinstance(value, u.Quantity):
+        if value.isscalar:
+            return format_quantity(value)
+        return f"{plain(value.value.tolist())} {value.unit.to_string()}".strip()
+    if isinstance(value, bool | np.bool_):
+        return "true" if value else "false"
+    if isinstance(value, numbers.Integral):
+        return str(int(value))
+    if isinstance(value, numbers.Real):
+        return repr(float(value))
+    if isinstance(value, str):
+        return f'"{value}"'
+    if isinstance(value, np.ndarray):
+        return plain(value.tolist())
+    if isinstance(value, list | tuple):
+        return "[" + ", ".join(plain(v) for v in value) + "]"
+    if isinstance(value, dict):
+        return "{" + ", ".join(f"{k} = {plain(v)}" for k, v in value.items()) + "}"
+    return str(value)
+
+
+# id(written unit), id(wanted unit) -> (written, wanted, factor).  Keyed by identity:
+# comparing astropy units costs microseconds, and parsed values share unit objects.
+_SCALES = {}
+
+
+def unit_scale(have, want):
+    """The factor that turns a number in unit ``have`` into one in ``want`` (cached)."""
+    entry = _SCALES.get((id(have), id(want)))
+    if entry is None or entry[0] is not have or entry[1] is not want:
+        entry = (have, want, float(have.to(want)))
+        if len(_SCALES) >= PARSED_CACHE_SIZE:
+            _SCALES.clear()
+        _SCALES[(id(have), id(want))] = entry
+    return entry[2]
+
+
+def fast_cgs(q, unit):
+    """float(q in ``unit``) for a scalar Quantity, without astropy's per-call cost."""
+    return float(q.value) * unit_scale(q.unit, unit)
+
+
+def check_cgs_range(q, unit, where):
+    """Raise ModelError unless ``q`` in ``unit`` is a finite double, and nonzero when
+    ``q`` is (a value whose cgs form over- or underflows cannot be computed with)."""
+    number = float(q.value)
+    value = number * unit_scale(q.unit, unit)
+    if math.isfinite(number) and not math.isfinite(value):
+        raise ModelError(f"{where} = {plain(q)} is out of range: in cgs units "
+                         f"({unit.to_string() or 'a bare number'}) it overflows double "
+                         f"precision (above 1.8e308); check the number and its unit")
+    if number != 0.0 and value == 0.0:
+        raise ModelError(f"{where} = {plain(q)} is out of range: in cgs units "
+                         f"({unit.to_string()}) it underflows to 0; check the number and "
+                         f"its unit")
+
+
 def to_quantity(value, unit, where, convert=True):
     """Return ``value`` as a Quantity in ``unit`` (cgs), or raise ModelError.
 
@@ -55,9 +121,9 @@ def to_quantity(value, unit, where, convert=True):
     setting in messages (e.g. ``"[star] mass"``).
     """
     unit = u.Unit(unit)
-    if isinstance(value, bool):
-        raise ModelError(f"{where} = {value}: expected a {kind_of(unit)}, "
-                         f"e.g. \"{example_for(unit)}\"")
+    if isinstance(value, bool | np.bool_):
+        raise ModelError(f"{where} = {plain(value)}: expected a {kind_of(unit)}, "
+                         f"e.g. {_example(unit)}")
     if isinstance(value, u.Quantity):
         q = value
     elif isinstance(value, str):
@@ -66,8 +132,10 @@ def to_quantity(value, unit, where, convert=True):
             try:
                 q = u.Quantity(value)
             except (TypeError, ValueError):
-                raise ModelError(f"{where} = \"{value}\" is not a number with a unit; "
-                                 f"write e.g. \"{example_for(unit)}\"") from None
+                what = ("not a number" if unit == u.dimensionless_unscaled
+                        else "not a number with a unit")
+                raise ModelError(f"{where} = \"{value}\" is {what}; write e.g. "
+                                 f"{_example(unit)}") from None
             if len(_PARSED) >= PARSED_CACHE_SIZE:
                 _PARSED.clear()
             _PARSED[value] = q
@@ -75,11 +143,11 @@ def to_quantity(value, unit, where, convert=True):
         if unit == u.dimensionless_unscaled:
             q = value * u.dimensionless_unscaled
         else:
-            raise ModelError(f"{where} = {value} has no unit; write it with one, "
-                             f"e.g. \"{value} {example_for(unit).split(' ', 1)[1]}\"")
+            raise ModelError(f"{where} = {plain(value)} has no unit; write it with one, "
+                             f"e.g. \"{plain(value)} {example_for(unit).split(' ', 1)[1]}\"")
     else:
-        raise ModelError(f"{where} = {value!r}: expected a {kind_of(unit)} "
-                         f"such as \"{example_for(unit)}\"")
+        raise ModelError(f"{where} = {plain(value)}: expected a {kind_of(unit)} "
+                         f"such as {_example(unit)}")
     if (q.unit == u.dimensionless_unscaled and unit != u.dimensionless_unscaled
             and not isinstance(value, u.Quantity)):
         raise ModelError(f"{where} = \"{value}\" has no unit; write it with one, "
@@ -89,7 +157,15 @@ def to_quantity(value, unit, where, convert=True):
                          f"is needed, e.g. \"{example_for(unit)}\"")
     if not q.isscalar:
         raise ModelError(f"{where} must be a single value, not an array")
+    check_cgs_range(q, unit, where)
     return q.to(unit) if convert else q
+
+
+def _example(unit):
+    """An example value as a model file writes it: quoted with a unit, or a bare number."""
+    if unit == u.dimensionless_unscaled:
+        return "1.5"
+    return f"\"{example_for(unit)}\""
 
 
 def to_cgs(value, unit, where):

@@ -1,12 +1,16 @@
-"""Command line: ``windsolve run | check | inspect | plot | tabulate``.
+"""Command line: ``windsolve run | check | inspect | plot | lines | compare | match | sweep |
+family | tabulate``.
 
 Every failure the user can fix ends with exit status 2 and one line on
-stderr naming the problem and the fix; no traceback, no output file.
+stderr naming the problem and the fix; no traceback, no output file.  That
+includes bad command lines (unknown commands and options, values argparse
+cannot read), whose usage text argparse would otherwise print.
 """
 
 import argparse
 import math
 import os
+import re
 import sys
 from pathlib import Path
 
@@ -33,12 +37,12 @@ def cmd_run(args):
     if args.output is not None:
         _check_output(args.output, ".h5")
     result = solve(model)
+    if not result.profile:
+        # No solution at all: say why in one line (and only there), write nothing.
+        raise WindsolveError(f"no solution: {result.message}")
     if not args.quiet:
         print(f"model: {source}")
         print(result)
-    if not result.profile:
-        # No solution at all: say why in one line, write nothing.
-        raise WindsolveError(f"no solution: {result.message}")
     if args.output is not None:
         result.to_hdf5(args.output)
         if not args.quiet:
@@ -63,7 +67,8 @@ def cmd_check(args):
 
     from .core import basics
     from .core import isothermal as K
-    from .core.constants import C_LIGHT, G
+    from .core.constants import G
+    from .core.opacity import effective_opacity
 
     model, source = _load(args.model)
     if model.kind == "diffusion":
@@ -76,7 +81,7 @@ def cmd_check(args):
     gamma_es = L0 / L_edd
     P, O = model.kernel_arrays
     gamma_base = K.base_eddington_factor(P, O)
-    kappa_base = gamma_base * 4 * math.pi * G * M * C_LIGHT / L0
+    kappa_base = effective_opacity(O, model.cgs("base_density"), model.T, R0)
     a = model.a
     v_esc = basics.escape_speed(M, R0)
     rows = [
@@ -162,23 +167,29 @@ def _check_diffusion(model, source):
         T_hi = model.cgs("base_temperature") if model.base_temperature is not None else 1e7
     T_base = (model.cgs("base_temperature") if model.base_temperature is not None
               else (T_hi if model.radius is None else None))
-    if T_base is not None:
-        g_base = [OP.opacity(O, d, T_base) / gamma_of for d in np.geomspace(1e-14, 1e-2, 25)]
-        rows.append((f"Gamma at the base temperature {T_base:.3g} K",
-                     f"{np.nanmin(g_base):.4g} .. {np.nanmax(g_base):.4g} "
-                     f"(for rho 1e-14 .. 1e-2 g/cm3)"))
-    elif model.base_density is not None:
-        rho0 = model.cgs("base_density")
-        g_base = [OP.opacity(O, rho0, t) / gamma_of for t in np.geomspace(1e4, 1e7, 25)]
-        rows.append(("Gamma at the base density",
-                     f"{np.nanmin(g_base):.4g} .. {np.nanmax(g_base):.4g} (for T 1e4 .. 1e7 K)"))
     # Largest Gamma the opacity allows between the photosphere and the base
     # temperatures, over densities 1e-16 to 1e-2 g/cm3.
     temps = np.geomspace(T_lo, max(T_hi, T_lo * 1.01), 200)
     dens = np.geomspace(1e-16, 1e-2, 60)
-    kmax = max(OP.opacity(O, d, t) for t in temps for d in dens
-               if np.isfinite(OP.opacity(O, d, t)))
-    gmax = kmax / gamma_of
+    kappas = [k for k in (OP.opacity(O, d, t) for t in temps for d in dens) if np.isfinite(k)]
+    if not kappas:
+        law = model.opacity.law
+        where = (f"[opacity] path = \"{model.opacity.params['path']}\"" if law == "table"
+                 else f"[opacity] law = \"{law}\"")
+        fix = ("extend the table over that range or set [opacity] clamp = true"
+               if law == "table" else "check the law's parameters")
+        raise WindsolveError(f"{where}: no finite opacity anywhere between {T_lo:.3g} K and "
+                             f"{T_hi:.3g} K (densities 1e-16 to 1e-2 g/cm3), where this model "
+                             f"lives; {fix}")
+    gmax = max(kappas) / gamma_of
+    if T_base is not None:
+        g_base = [OP.opacity(O, d, T_base) / gamma_of for d in np.geomspace(1e-14, 1e-2, 25)]
+        rows.append((f"Gamma at the base temperature {T_base:.3g} K",
+                     f"{_span(g_base)} (for rho 1e-14 .. 1e-2 g/cm3)"))
+    elif model.base_density is not None:
+        rho0 = model.cgs("base_density")
+        g_base = [OP.opacity(O, rho0, t) / gamma_of for t in np.geomspace(1e4, 1e7, 25)]
+        rows.append(("Gamma at the base density", f"{_span(g_base)} (for T 1e4 .. 1e7 K)"))
     rows.append((f"largest Gamma for {T_lo:.3g} K < T < {T_hi:.3g} K", f"{gmax:.4g}"))
     width = max(len(k) for k, _ in rows)
     for key, value in rows:
@@ -189,23 +200,50 @@ def _check_diffusion(model, source):
     return EXIT_OK
 
 
+def _span(values):
+    """"lo .. hi" of the finite ``values``, or why there is none."""
+    finite = [v for v in values if math.isfinite(v)]
+    if not finite:
+        return "not defined (no finite opacity there)"
+    return f"{min(finite):.4g} .. {max(finite):.4g}"
+
+
+def _scan_value(text, scan, option):
+    """A --from/--to value of a family: a number in the scan's unit, or a quantity."""
+    from ._units import to_quantity
+    from .family import SCANS
+    unit = SCANS[scan]
+    try:
+        return float(text)
+    except ValueError:
+        return float(to_quantity(text.strip(), unit, option).to_value(unit))
+
+
 def cmd_family(args):
-    from .family import SCANS, plot_family, solve_family
+    from .family import SCANS, check_family, plot_family, solve_family
     model, source = _load(args.model)
+    start = _scan_value(args.start, args.scan, "--from")
+    stop = _scan_value(args.stop, args.scan, "--to")
+    check_family(model, args.scan, start, stop, args.num)
     if args.output is not None:
         _check_output(args.output, ".h5")
     if args.plot is not None:
         _check_output(args.plot, ".png")
     progress = None
+    bar = None
     if not args.quiet:
         from tqdm import tqdm
-        bar = tqdm(total=args.num, desc="family", unit="model", leave=False)
+        # No bar when stderr is not a terminal (disable=None): a log gets no \r junk.
+        bar = tqdm(total=args.num, desc="family", unit="model", leave=False, disable=None)
 
         def progress(done, total):
             bar.update(1)
-    result = solve_family(model, args.scan, args.start, args.stop, args.num, progress)
+    try:
+        result = solve_family(model, args.scan, start, stop, args.num, progress)
+    finally:
+        if bar is not None:
+            bar.close()  # before any message, so that no error shares the bar's line
     if not args.quiet:
-        bar.close()
         print(f"family of {source} along {args.scan} [{SCANS[args.scan].to_string()}]")
         print("\n".join(result.lines()))
         if result.ends:
@@ -254,8 +292,26 @@ def cmd_sweep(args):
     return EXIT_OK
 
 
+# LineSettings fields -> the command-line options that set them (for messages).
+_LINE_OPTIONS = {"emissivity_power": "--emissivity-power", "occultation": "--no-occultation",
+                 "turbulence": "--turbulence", "resolution": "--resolution",
+                 "hwzi_fraction": "--hwzi-fraction", "edge_depth": "--edge-depth",
+                 "line_strength": "--line-strength"}
+
+
 def _line_settings(args):
-    """LineSettings from the shared line options (one-line errors)."""
+    """LineSettings from the shared line options (one-line errors naming the option)."""
+    from .errors import ModelError
+    try:
+        return _make_line_settings(args)
+    except ModelError as error:
+        text = str(error)
+        for name, option in _LINE_OPTIONS.items():
+            text = text.replace(f"LineSettings.{name}", option)
+        raise ModelError(text) from None
+
+
+def _make_line_settings(args):
     from .lines import LineSettings
     kwargs = {}
     if getattr(args, "emissivity_power", None) is not None:
@@ -566,28 +622,54 @@ TABULATE_LOG_T = ("3.8", "7.0", "65")  # 0.05 dex in log10 T
 TABULATE_LOG_R = ("-8.0", "1.0", "19")  # 0.5 dex in log10 R
 
 
+def _whole_number(text):
+    """int of "20", "1e8" or "20.0"; ValueError for anything else."""
+    try:
+        return int(text)
+    except ValueError:
+        value = float(text)
+        if not (math.isfinite(value) and value == int(value)):
+            raise ValueError(text) from None
+        return int(value)
+
+
+def _count(text):
+    """argparse type of a count option: a whole number ("1e3" too)."""
+    try:
+        return _whole_number(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"\"{text}\" is not a whole number") from None
+
+
 def _grid_option(values, option):
-    from .tables import grid
+    from .tables import MAX_LOG_T, grid
     start, stop, num = values
     try:
         start, stop = float(start), float(stop)
     except ValueError:
         raise WindsolveError(f"{option} START STOP NUM: START and STOP must be numbers "
-                             f"(got {values[0]!r}, {values[1]!r})") from None
+                             f"(got \"{values[0]}\", \"{values[1]}\")") from None
+    if option == "--log-t" and stop > MAX_LOG_T:
+        raise WindsolveError(f"{option} START STOP NUM: STOP = {values[1]} is not a log10 "
+                             f"temperature; give log10 T [K], e.g. 7.0")
     try:
-        num = int(num)
+        num = _whole_number(num)
     except ValueError:
         raise WindsolveError(f"{option} START STOP NUM: NUM must be a whole number "
-                             f"(got {values[2]!r})") from None
+                             f"(got \"{values[2]}\")") from None
     return grid(start, stop, num, option)
 
 
 def cmd_tabulate(args):
-    from .tables import HDF5_SUFFIXES, TEXT_LAYOUT, tabulate, write_table
+    from .tables import HDF5_SUFFIXES, MAX_TABLE_NODES, TEXT_LAYOUT, tabulate, write_table
     model, source = _load(args.model)
     _check_output(args.output, ".txt")
     log_T = _grid_option(args.log_t, "--log-t")
     log_R = _grid_option(args.log_r, "--log-r")
+    if log_T.size * log_R.size > MAX_TABLE_NODES:
+        raise WindsolveError(f"--log-t and --log-r: {log_T.size} x {log_R.size} = "
+                             f"{log_T.size * log_R.size} nodes is more than the "
+                             f"{MAX_TABLE_NODES} a table may have; use fewer nodes")
     table = tabulate(model.opacity, log_T, log_R, model.X, model.Z)
     description = (f"Made with: windsolve tabulate {source} -o {Path(args.output).name} "
                    f"--log-t {' '.join(args.log_t)} --log-r {' '.join(args.log_r)}",
@@ -602,9 +684,38 @@ def cmd_tabulate(args):
     return EXIT_OK
 
 
+class _Parser(argparse.ArgumentParser):
+    """argparse with the project's one-line errors: ``windsolve: error: ...``, exit 2."""
+
+    def error(self, message):
+        from .opacity import nearest
+        choice = re.match(r"argument (.+?): invalid choice: '(.*)' \(choose from (.*)\)$",
+                          message)
+        if choice:
+            name, value, choices = choice.groups()
+            options = [c.strip().strip("'") for c in choices.split(",")]
+            message = (f"unknown command \"{value}\"" if name == "COMMAND" else
+                       f"{name} \"{value}\" is not a choice")
+            message += f"{nearest(value, options)}; choose one of {', '.join(options)}"
+        dashed = re.match(r"argument (\S+?)(/\S+)?: expected one argument$", message)
+        if dashed:
+            message += (f"; a value that starts with '-' is written {dashed.group(1)}=VALUE, "
+                        f"e.g. {dashed.group(1)}=-1")
+        command = self.prog.partition(" ")[2]
+        if not command and message.startswith("unrecognized arguments"):
+            # Raised by the top parser for a command's stray argument: name that command.
+            commands = getattr(self, "commands", ())
+            given = [a for a in getattr(self, "argv", None) or () if a in commands]
+            command = given[0] if given else ""
+        where = f"{command}: " if command else ""
+        self.exit(EXIT_BAD_INPUT, f"windsolve: error: {where}{message} (see windsolve "
+                                  f"{command + ' ' if command else ''}--help)\n")
+
+
 def build_parser():
     from ._version import __version__
-    parser = argparse.ArgumentParser(prog="windsolve", description=DESCRIPTION)
+    from .family import MAX_MEMBERS
+    parser = _Parser(prog="windsolve", description=DESCRIPTION)
     parser.add_argument("--version", action="version", version=f"windsolve {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
 
@@ -718,12 +829,13 @@ def build_parser():
     p.add_argument("--scan", required=True,
                    choices=["photosphere_temperature", "photosphere_radius", "mass_loss_rate"],
                    help="quantity to scan (units: K, Rsun, Msun/yr)")
-    p.add_argument("--from", dest="start", type=float, required=True, metavar="START",
-                   help="first value of the scan, in the scan's unit")
-    p.add_argument("--to", dest="stop", type=float, required=True, metavar="STOP",
-                   help="last value of the scan, in the scan's unit")
-    p.add_argument("--num", type=int, default=20, help="number of members (log-spaced; "
-                                                       "default 20)")
+    p.add_argument("--from", dest="start", required=True, metavar="START",
+                   help="first value of the scan: a number in the scan's unit, or a value "
+                        "with a unit (\"2e4 K\")")
+    p.add_argument("--to", dest="stop", required=True, metavar="STOP",
+                   help="last value of the scan, the same way")
+    p.add_argument("--num", type=_count, default=20,
+                   help=f"number of members (log-spaced; default 20, at most {MAX_MEMBERS})")
     p.add_argument("-o", "--output", metavar="FAMILY.h5", help="write the table to HDF5")
     p.add_argument("--profiles", action="store_true",
                    help="also store each member's profile in the HDF5 file")
@@ -753,14 +865,20 @@ def build_parser():
                         f"(default: {' '.join(TABULATE_LOG_R)}; NUM >= 4)")
     p.add_argument("-q", "--quiet", action="store_true", help="print nothing on success")
     p.set_defaults(func=cmd_tabulate)
+    parser.commands = list(sub.choices)
     return parser
 
 
 def main(argv=None):
     parser = build_parser()
-    args = parser.parse_args(argv)
+    parser.argv = list(sys.argv[1:] if argv is None else argv)
+    try:
+        args = parser.parse_args(argv)
+    except SystemExit as done:  # --help, --version, or the one line of _Parser.error
+        return done.code
     if args.command is None:
-        parser.print_help()
+        print(f"windsolve: error: give a command, one of {', '.join(parser.commands)} "
+              f"(see windsolve --help)", file=sys.stderr)
         return EXIT_BAD_INPUT
     try:
         return args.func(args)

@@ -4,7 +4,7 @@ A photosphere-anchored model fixes L_ph and T_eff.  Keeping L_ph and moving
 along one other quantity -- the effective temperature, the photospheric
 radius, or the mass-loss rate itself -- gives the sequence of photospherically
 consistent regular solutions that modellers fit observed stars against
-(SPEC section 5, "family").  Each member is a full photosphere-anchored solve;
+(README, "Families").  Each member is a full photosphere-anchored solve;
 members that fail keep their status and message, so the table shows where
 the family ends and why.
 """
@@ -17,7 +17,12 @@ import numpy as np
 
 from .errors import ModelError
 
-__all__ = ["SCANS", "FamilyResult", "solve_family", "plot_family"]
+__all__ = ["SCANS", "FamilyResult", "solve_family", "check_family", "plot_family",
+           "MAX_MEMBERS"]
+
+# Most members a family may have: each is a full solve (~0.01-0.1 s), so this is
+# minutes to an hour of work, and the table and plot stay readable.
+MAX_MEMBERS = 10_000
 
 # Quantities a family can be scanned in, with the unit of --from/--to.
 SCANS = {
@@ -139,17 +144,9 @@ def solve_family(model, scan, start, stop, num, progress=None):
     ``start``/``stop`` are numbers in the unit of ``SCANS[scan]`` (K, Rsun,
     Msun/yr); members are spaced logarithmically.
     """
-    from .models import DiffusionWind
     from .solve import solve
 
-    if not isinstance(model, DiffusionWind) or model.anchor != "photosphere":
-        raise ModelError("a family keeps the photosphere luminosity fixed: give a diffusion "
-                         "model anchored at the photosphere ([boundary] "
-                         "photosphere_luminosity and photosphere_temperature)")
-    if scan not in SCANS:
-        raise ModelError(f"--scan {scan}: choose one of {', '.join(SCANS)}")
-    if not (start > 0 and stop > 0 and num >= 2):
-        raise ModelError("--from and --to must be positive and --num at least 2")
+    check_family(model, scan, start, stop, num)
     values = np.geomspace(start, stop, int(num))
     L_ph = model.photosphere_luminosity
     sigma = 5.6703744191844314e-05
@@ -178,6 +175,24 @@ def solve_family(model, scan, start, stop, num, progress=None):
     result = FamilyResult(model, scan, values, members)
     result.ends = _ends(result)
     return result
+
+
+def check_family(model, scan, start, stop, num):
+    """Raise a one-line ModelError unless :func:`solve_family` can run these arguments."""
+    from .models import DiffusionWind
+    if not isinstance(model, DiffusionWind) or model.anchor != "photosphere":
+        raise ModelError("a family keeps the photosphere luminosity fixed: give a diffusion "
+                         "model anchored at the photosphere ([boundary] "
+                         "photosphere_luminosity and photosphere_temperature)")
+    if scan not in SCANS:
+        raise ModelError(f"--scan {scan}: choose one of {', '.join(SCANS)}")
+    for option, value in (("--from", start), ("--to", stop)):
+        if not (math.isfinite(value) and value > 0):
+            raise ModelError(f"{option} {float(value)!r}: the members are log-spaced; give a "
+                             f"finite positive value in {SCANS[scan].to_string()}")
+    if not 2 <= num <= MAX_MEMBERS:
+        raise ModelError(f"--num {num}: a family has from 2 to {MAX_MEMBERS} members (each "
+                         f"one a full solve)")
 
 
 def _failed(model, message):

@@ -162,7 +162,7 @@ from typing import NamedTuple
 import astropy.units as u
 import numpy as np
 
-from ._units import to_quantity
+from ._units import plain, to_quantity
 from .core import lines as kernels
 from .core.constants import C_LIGHT
 from .errors import ModelError, OutputError
@@ -266,39 +266,47 @@ class LineSettings:
         set_ = object.__setattr__
         n = self.emissivity_power
         if isinstance(n, bool) or not isinstance(n, numbers.Integral) or n not in (1, 2):
-            raise ModelError(f"LineSettings.emissivity_power = {n!r}: must be 1 (j ~ rho) "
+            raise ModelError(f"LineSettings.emissivity_power = {plain(n)}: must be 1 (j ~ rho) "
                              f"or 2 (j ~ rho**2)")
         set_(self, "emissivity_power", int(n))
         if not isinstance(self.occultation, bool | np.bool_):
-            raise ModelError(f"LineSettings.occultation = {self.occultation!r}: must be "
+            raise ModelError(f"LineSettings.occultation = {plain(self.occultation)}: must be "
                              f"True or False")
         set_(self, "occultation", bool(self.occultation))
         turbulence = to_quantity(self.turbulence, KM_S, "LineSettings.turbulence")
         if not (np.isfinite(turbulence.value) and turbulence.value >= 0):
-            raise ModelError(f"LineSettings.turbulence = {turbulence:g}: must be a FWHM "
+            raise ModelError(f"LineSettings.turbulence = {plain(turbulence)}: must be a FWHM "
                              f">= 0, e.g. \"10 km/s\"")
+        if not turbulence.value * CM_PER_KM < C_LIGHT:
+            raise ModelError(f"LineSettings.turbulence = {plain(turbulence)}: a FWHM faster "
+                             f"than the speed of light (299792 km/s) broadens nothing real; "
+                             f"give e.g. \"20 km/s\"")
         set_(self, "turbulence", turbulence)
         set_(self, "resolution", _check_resolution(self.resolution))
         for name in ("hwzi_fraction", "edge_depth"):
             value = getattr(self, name)
             if (isinstance(value, bool) or not isinstance(value, numbers.Real)
                     or not 0.0 < value < 1.0):
-                raise ModelError(f"LineSettings.{name} = {value!r}: must be a number "
+                raise ModelError(f"LineSettings.{name} = {plain(value)}: must be a number "
                                  f"between 0 and 1 (exclusive)")
             set_(self, name, float(value))
         k0 = self.line_strength
         if (isinstance(k0, bool) or not isinstance(k0, numbers.Real)
                 or not (math.isfinite(k0) and k0 > 0)):
-            raise ModelError(f"LineSettings.line_strength = {k0!r}: must be a positive "
+            raise ModelError(f"LineSettings.line_strength = {plain(k0)}: must be a positive "
                              f"number (k_0 >> 1 for a strong line)")
         set_(self, "line_strength", float(k0))
         npts = self.n_velocity
         if (isinstance(npts, bool) or not isinstance(npts, numbers.Integral)
                 or npts < MIN_POINTS):
-            raise ModelError(f"LineSettings.n_velocity = {npts!r}: must be a whole number "
+            raise ModelError(f"LineSettings.n_velocity = {plain(npts)}: must be a whole number "
                              f">= {MIN_POINTS}")
         set_(self, "n_velocity", int(npts))
         fwhm = float(self.broadening_fwhm.to_value(KM_S)) * CM_PER_KM
+        if not fwhm < C_LIGHT:
+            raise ModelError(f"LineSettings.turbulence and LineSettings.resolution together "
+                             f"broaden by a FWHM of {fwhm / CM_PER_KM:.6g} km/s, faster than "
+                             f"the speed of light; lower them")
         set_(self, "_cgs", LineSettingsCGS(
             float(self.emissivity_power), self.occultation, fwhm, fwhm / FWHM_PER_SIGMA,
             self.hwzi_fraction, self.edge_depth, self.line_strength, self.n_velocity))
@@ -340,13 +348,21 @@ def _check_resolution(value):
     if isinstance(value, u.Quantity):
         q = to_quantity(value, KM_S, where)
         if not (np.isfinite(q.value) and q.value > 0):
-            raise ModelError(f"{where} = {q:g}: an instrumental FWHM must be > 0")
+            raise ModelError(f"{where} = {plain(q)}: an instrumental FWHM must be > 0")
+        if not q.value * CM_PER_KM < C_LIGHT:
+            raise ModelError(f"{where} = {plain(q)}: an instrumental FWHM faster than the "
+                             f"speed of light (299792 km/s) resolves nothing; give e.g. "
+                             f"\"30 km/s\" or a resolving power such as 20000")
         return q
     if isinstance(value, bool) or not isinstance(value, numbers.Real):
-        raise ModelError(f"{where} = {value!r}: give a FWHM such as \"30 km/s\" or a "
+        raise ModelError(f"{where} = {plain(value)}: give a FWHM such as \"30 km/s\" or a "
                          f"resolving power such as 20000")
     if not (math.isfinite(value) and value > 0):
-        raise ModelError(f"{where} = {value!r}: a resolving power R must be > 0")
+        raise ModelError(f"{where} = {plain(value)}: a resolving power R must be > 0")
+    if not value > 1:
+        raise ModelError(f"{where} = {plain(value)}: a resolving power R <= 1 means an "
+                         f"instrumental FWHM c/R of at least the speed of light; give R > 1, "
+                         f"e.g. 20000 (or a FWHM such as \"30 km/s\")")
     return float(value)
 
 

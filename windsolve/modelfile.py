@@ -9,6 +9,7 @@ import math
 import tomllib
 from pathlib import Path
 
+from ._units import plain
 from .errors import ModelError
 from .opacity import nearest
 
@@ -25,8 +26,12 @@ def read_model_file(path):
                          f"(see configs/ for examples)") from None
     except IsADirectoryError:
         raise ModelError(f"{path} is a directory, not a model file") from None
-    except (OSError, UnicodeDecodeError) as error:
-        raise ModelError(f"{path}: cannot read ({error})") from None
+    except UnicodeDecodeError as error:
+        raise ModelError(f"{path}: cannot read: not a UTF-8 text file (byte "
+                         f"0x{error.object[error.start]:02x} at position {error.start}); a model "
+                         f"file is TOML text, saved as UTF-8") from None
+    except OSError as error:
+        raise ModelError(f"{path}: cannot read ({error.strerror or error})") from None
     try:
         return tomllib.loads(text)
     except tomllib.TOMLDecodeError as error:
@@ -40,6 +45,9 @@ def model_from_dict(data, source="model"):
     if kind is None:
         raise ModelError(f"{source}: the top-level key model is missing; add e.g. "
                          f"model = \"isothermal\" (one of: {', '.join(MODELS)})")
+    if not isinstance(kind, str):
+        raise ModelError(f"{source}: model = {plain(kind)}: write the model kind as a quoted "
+                         f"string, one of: {', '.join(MODELS)}")
     if kind not in MODELS:
         raise ModelError(f"{source}: model = \"{kind}\" is not known{nearest(str(kind), MODELS)}; "
                          f"choose one of: {', '.join(MODELS)}")

@@ -25,11 +25,11 @@ from pathlib import Path
 import astropy.units as u
 import numpy as np
 
-from ._units import format_quantity, to_quantity
+from ._units import fast_cgs, format_quantity, plain, to_quantity
 from .core import basics
 from .core import diffusion as diff_kernels
 from .core import isothermal as iso_kernels
-from .core.constants import K_B, M_U, SIGMA_SB, G
+from .core.constants import C_LIGHT, K_B, M_U, SIGMA_SB, G
 from .errors import ModelError
 from .opacity import Opacity, nearest
 from .physics import check_composition
@@ -37,6 +37,8 @@ from .physics import check_composition
 __all__ = ["WindModel", "IsothermalWind", "DiffusionWind", "Param", "param"]
 
 REQUIRED = object()
+RHO = u.g / u.cm**3  # unit objects made once: fast_cgs caches by identity
+LUM = u.erg / u.s
 
 
 @dataclass(frozen=True)
@@ -66,30 +68,30 @@ class Param:
         where = self.where
         if self.kind is bool:
             if not isinstance(value, bool):
-                raise ModelError(f"{where} = {value!r}: write true or false")
+                raise ModelError(f"{where} = {plain(value)}: write true or false")
             return value
         if self.kind is str:
             if not isinstance(value, str):
-                raise ModelError(f"{where} = {value!r}: write a quoted string")
+                raise ModelError(f"{where} = {plain(value)}: write a quoted string")
             return value
         if self.kind is float:
             if isinstance(value, bool) or not isinstance(value, (int, float)):
-                raise ModelError(f"{where} = {value!r}: write a plain number")
+                raise ModelError(f"{where} = {plain(value)}: write a plain number")
             value = float(value)
             number = value
         else:
             value = to_quantity(value, self.kind, where, convert=False)
             number = float(value.value)
         if not math.isfinite(number):
-            raise ModelError(f"{where} = {number}: must be finite")
+            raise ModelError(f"{where} = {plain(value)}: must be finite")
         if self.check == "positive" and not number > 0:
             raise ModelError(f"{where} = {format_value(value)}: must be positive")
         if self.check == "nonnegative" and not number >= 0:
             raise ModelError(f"{where} = {format_value(value)}: must not be negative")
         if self.check == "fraction" and not 0.0 <= number <= 1.0:
-            raise ModelError(f"{where} = {number}: a mass fraction lies between 0 and 1")
+            raise ModelError(f"{where} = {plain(number)}: a mass fraction lies between 0 and 1")
         if self.check == "rtol" and not 1e-13 <= number <= 1e-3:
-            raise ModelError(f"{where} = {number}: choose a relative tolerance "
+            raise ModelError(f"{where} = {plain(number)}: choose a relative tolerance "
                              f"between 1e-13 and 1e-3 (1e-8 is the default)")
         return value
 
@@ -107,7 +109,7 @@ class Param:
 
 
 def format_value(value):
-    return format_quantity(value) if isinstance(value, u.Quantity) else repr(value)
+    return plain(value)
 
 
 def param(key, kind, doc, default=REQUIRED, check=""):
@@ -130,9 +132,14 @@ class WindModel:
     # -- declarations -----------------------------------------------------
     @classmethod
     def params(cls):
-        """``{field name: Param}`` for every declared parameter."""
-        return {f.name: f.metadata["param"] for f in dataclasses.fields(cls)
-                if "param" in f.metadata}
+        """``{field name: Param}`` for every declared parameter (built once per class;
+        do not change it)."""
+        found = cls.__dict__.get("_param_declarations")
+        if found is None:
+            found = {f.name: f.metadata["param"] for f in dataclasses.fields(cls)
+                     if "param" in f.metadata}
+            cls._param_declarations = found
+        return found
 
     @classmethod
     def keys(cls):
@@ -183,6 +190,13 @@ class WindModel:
         for top, value in data.items():
             if top == "model":
                 continue
+            if isinstance(value, dict) and top in by_key:
+                kwargs[by_key[top]] = value  # a table where a value belongs: read() says so
+                continue
+            if not isinstance(value, dict) and top in cls.sections:
+                raise ModelError(f"{source}: {top} = {plain(value)}: [{top}] is a table, not "
+                                 f"a value; write the line [{top}] and below it its keys "
+                                 f"({', '.join(cls._table_keys(top, by_key))})")
             if isinstance(value, dict):
                 if top not in cls.sections:
                     raise ModelError(f"{source}: unknown table [{top}]"
@@ -208,11 +222,32 @@ class WindModel:
                     kwargs[by_key[dotted]] = item
             else:
                 if top not in by_key:
+                    owners = [k.rpartition(".")[0] for k in by_key if k.endswith("." + top)]
+                    if top in cls.opacity_parameter_names() or top == "law":
+                        owners.append("opacity")
+                    if owners:
+                        raise ModelError(f"{source}: unknown key \"{top}\" at the top level: "
+                                         f"it belongs in [{owners[0]}]; write it below the "
+                                         f"[{owners[0]}] line (a key above every table "
+                                         f"line is a top-level key)")
                     tops = ["model"] + [k for k in by_key if "." not in k]
                     hint = nearest(top, tops + list(cls.sections))
-                    raise ModelError(f"{source}: unknown key \"{top}\"{hint}")
+                    raise ModelError(f"{source}: unknown key \"{top}\"{hint}; the top level "
+                                     f"takes {', '.join(tops)} and the tables "
+                                     f"{', '.join('[' + s + ']' for s in cls.sections)}")
                 kwargs[by_key[top]] = value
-        return cls(**kwargs)
+        try:
+            return cls(**kwargs)
+        except ModelError as error:  # name the file too
+            if source == "model" or str(error).startswith(source):
+                raise
+            raise ModelError(f"{source}: {error}") from None
+
+    @staticmethod
+    def _table_keys(section, by_key):
+        if section == "opacity":
+            return ["law", "and the law's parameters"]
+        return [k.rpartition(".")[2] for k in by_key if k.startswith(section + ".")]
 
     def replace(self, **changes):
         """A copy with some fields changed (validated again).
@@ -232,6 +267,18 @@ class WindModel:
         """Field ``name`` as a plain float in cgs (NaN when unset)."""
         value = getattr(self, name)
         return math.nan if value is None else self.params()[name].cgs(value)
+
+    # -- derived checks -----------------------------------------------------
+    def _check_outside_horizon(self, r, what, fix):
+        """A Newtonian wind needs radius ``r`` [cm] outside 2GM/c^2 (escape speed below c);
+        also catches a radius whose escape speed overflows (r tiny or 0).  ``what()``
+        gives the message's subject (built only when needed)."""
+        rs = 2.0 * G * fast_cgs(self.mass, u.g) / (C_LIGHT * C_LIGHT)
+        if not r > rs:
+            raise ModelError(f"{what()} lies inside the Schwarzschild radius 2GM/c^2 = "
+                             f"{rs:.4g} cm of [star] mass = {plain(self.mass)}: the escape "
+                             f"speed there is faster than the speed of light, where a "
+                             f"Newtonian wind has no meaning; {fix}")
 
     # -- output -------------------------------------------------------------
     def to_dict(self):
@@ -263,7 +310,8 @@ class IsothermalWind(WindModel):
     molecular weight of the composition); the radiative force uses the
     flux-mean opacity of the chosen law, optionally reduced by porosity, and
     the luminosity is constant or, with photon tiring, reduced by the work
-    done lifting the flow.  See ``SPEC`` section 4 and the README.
+    done lifting the flow.  See the README ("The physics in brief") and
+    :mod:`windsolve.core.isothermal`.
     """
 
     kind = "isothermal"
@@ -312,6 +360,22 @@ class IsothermalWind(WindModel):
         if not self.outer_radius > self.radius:
             raise ModelError(f"[numerics] outer_radius = {format_quantity(self.outer_radius)} "
                              f"must exceed [star] radius = {format_quantity(self.radius)}")
+        R0 = fast_cgs(self.radius, u.cm)
+        self._check_outside_horizon(R0, lambda: f"[star] radius = {plain(self.radius)}",
+                                    "give a radius far outside it")
+        if not self.a < C_LIGHT:
+            if self.sound_speed is not None:
+                raise ModelError(f"[gas] sound_speed = {plain(self.sound_speed)} is not below "
+                                 f"the speed of light (299792 km/s); give e.g. \"20 km/s\"")
+            raise ModelError(f"[gas] temperature = {plain(self.temperature)} gives a sound "
+                             f"speed sqrt(kT/(mu m_u)) = {self.a / 1e5:.4g} km/s, faster than "
+                             f"the speed of light; give e.g. \"3e4 K\"")
+        if not math.isfinite(4.0 * math.pi * R0 * R0 * fast_cgs(self.base_density, RHO)
+                             * self.a):
+            raise ModelError(f"[boundary] base_density = {plain(self.base_density)} at [star] "
+                             f"radius = {plain(self.radius)}: the base mass flux "
+                             f"4 pi R0^2 rho0 a overflows double precision; give a physical "
+                             f"density, e.g. \"1e-9 g/cm3\"")
 
     # -- derived values (cgs floats) ----------------------------------------
     @cached_property
@@ -361,7 +425,8 @@ class DiffusionWind(WindModel):
     ``[boundary] base_temperature`` or ``base_density``) or at the photosphere
     (``[boundary] photosphere_luminosity`` and ``photosphere_temperature``;
     the profile then runs inward to ``[star] radius`` if given, else down to
-    ``base_temperature``, default 1e6 K).  See SPEC section 5 and the README.
+    ``base_temperature``, default 1e6 K).  See the README ("The physics in
+    brief") and :mod:`windsolve.core.diffusion`.
     """
 
     kind = "diffusion"
@@ -404,10 +469,15 @@ class DiffusionWind(WindModel):
         self._read_fields()
         check_composition(self.X, self.Z)
         photo = (self.photosphere_luminosity, self.photosphere_temperature)
+        if self.radius is not None:
+            self._check_outside_horizon(fast_cgs(self.radius, u.cm),
+                                        lambda: f"[star] radius = {plain(self.radius)}",
+                                        "give a radius far outside it")
         if any(v is not None for v in photo):
             if any(v is None for v in photo):
                 raise ModelError("[boundary] a photosphere anchor needs both "
                                  "photosphere_luminosity and photosphere_temperature")
+            self._check_photosphere()
             if self.luminosity is not None or self.base_density is not None:
                 extra = "[star] luminosity" if self.luminosity is not None else \
                     "[boundary] base_density"
@@ -435,6 +505,28 @@ class DiffusionWind(WindModel):
                     "the base ([star] radius and luminosity with exactly one of [boundary] "
                     "base_temperature or base_density)"
                     + (f"; missing {', '.join(missing)}" if missing else ""))
+
+    MAX_PHOTOSPHERE_RADIUS = 1e30  # cm (1.4e19 Rsun): larger than any star, or the universe
+
+    def _check_photosphere(self):
+        """L_ph and T_eff must put the photosphere where its radius and T^4 can be computed."""
+        L = fast_cgs(self.photosphere_luminosity, LUM)
+        T = fast_cgs(self.photosphere_temperature, u.K)
+        log_r = 0.5 * (math.log(L) - math.log(4.0 * math.pi * SIGMA_SB)) - 2.0 * math.log(T)
+        r = math.exp(log_r) if log_r < 700.0 else math.inf
+
+        def where():
+            return (f"[boundary] photosphere_luminosity = "
+                    f"{plain(self.photosphere_luminosity)} and photosphere_temperature = "
+                    f"{plain(self.photosphere_temperature)}")
+        if not r < self.MAX_PHOTOSPHERE_RADIUS:
+            raise ModelError(f"{where()} put the photosphere at R = sqrt(L/(4 pi sigma T^4)) = "
+                             f"{r / 6.957e10:.4g} Rsun, larger than any star (the limit is "
+                             f"{self.MAX_PHOTOSPHERE_RADIUS:.0e} cm); raise the temperature "
+                             f"or lower the luminosity")
+        self._check_outside_horizon(
+            r, lambda: f"{where()} put the photosphere at {r:.4g} cm, which",
+            "lower the temperature or raise the luminosity")
 
     @property
     def anchor(self):

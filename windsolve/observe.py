@@ -46,54 +46,47 @@ class Observation:
         return f"{self.quantity}" + (f" ({self.line})" if self.line not in ("", "-") else "")
 
 
+C_KM_S = 299792.458  # speed of light [km/s]
+
+
 def read_observed(path, object_name=None):
-    """Validated observations from an observed-widths CSV (one-line errors)."""
+    """Validated observations from an observed-widths CSV (one-line errors).
+
+    Every row must hold a finite value, below the speed of light, with the sign
+    its quantity has (``edge_velocity`` negative, the others positive), a
+    positive finite uncertainty and a speed unit.  A byte-order mark
+    (as spreadsheet programs write) is ignored.
+    """
     path = Path(path)
     try:
-        text = path.read_text(encoding="utf-8")
+        text = path.read_text(encoding="utf-8-sig")
     except FileNotFoundError:
         raise ModelError(f"{path}: no such file; give an observed-widths CSV "
                          f"(see configs/observed_widths.csv)") from None
-    except (OSError, UnicodeDecodeError) as error:
-        raise ModelError(f"{path}: cannot read ({error})") from None
+    except IsADirectoryError:
+        raise ModelError(f"{path} is a directory, not an observed-widths CSV") from None
+    except UnicodeDecodeError as error:
+        raise ModelError(f"{path}: cannot read: not a UTF-8 text file (byte "
+                         f"0x{error.object[error.start]:02x} at position {error.start}); save "
+                         f"the CSV as UTF-8") from None
+    except OSError as error:
+        raise ModelError(f"{path}: cannot read ({error.strerror or error})") from None
     lines = [(i + 1, line) for i, line in enumerate(text.splitlines())
              if line.strip() and not line.lstrip().startswith("#")]
     if not lines:
-        raise ModelError(f"{path}: no header and no measurements")
-    reader = csv.reader([line for _, line in lines])
-    rows = list(reader)
-    header = [h.strip() for h in rows[0]]
+        raise ModelError(f"{path}: no header and no measurements; the first line must be "
+                         f"{','.join(COLUMNS)}")
+    # One line, one record: a stray quote must not swallow the lines after it.
+    header = [h.strip() for h in next(csv.reader([lines[0][1]]))]
     if header != list(COLUMNS):
         missing = [c for c in COLUMNS if c not in header]
         hint = f"; missing {', '.join(missing)}" if missing else ""
         raise ModelError(f"{path} line {lines[0][0]}: the header must be "
                          f"{','.join(COLUMNS)}{hint}")
     out = []
-    for (lineno, _), row in zip(lines[1:], rows[1:], strict=True):
-        where = f"{path} line {lineno}"
-        if len(row) != len(COLUMNS):
-            raise ModelError(f"{where}: {len(row)} fields, expected {len(COLUMNS)} "
-                             f"({','.join(COLUMNS)})")
-        obj, quantity, line, value, sigma, unit = (x.strip() for x in row)
-        if quantity not in QUANTITIES:
-            raise ModelError(f"{where}: quantity \"{quantity}\" is not known"
-                             f"{nearest(quantity, QUANTITIES)}; choose one of "
-                             f"{', '.join(QUANTITIES)}")
-        try:
-            value, sigma = float(value), float(sigma)
-        except ValueError:
-            raise ModelError(f"{where}: value and uncertainty must be numbers") from None
-        if not (math.isfinite(value) and math.isfinite(sigma)) or sigma <= 0:
-            raise ModelError(f"{where}: the uncertainty must be a positive number "
-                             f"(got {sigma})")
-        try:
-            unit_obj = u.Unit(unit)
-        except ValueError:
-            raise ModelError(f"{where}: unit \"{unit}\" is not a unit; write e.g. km/s") from None
-        if not unit_obj.is_equivalent(u.cm / u.s):
-            raise ModelError(f"{where}: unit \"{unit}\" is not a speed; write e.g. km/s")
-        scale = float(unit_obj.to(u.cm / u.s))
-        out.append(Observation(obj, quantity, line, value * scale, sigma * scale, lineno))
+    for lineno, text_line in lines[1:]:
+        row = next(csv.reader([text_line]))
+        out.append(_observation(row, f"{path} line {lineno}", lineno))
     if not out:
         raise ModelError(f"{path}: no measurements below the header")
     objects = sorted({o.object for o in out})
@@ -106,6 +99,48 @@ def read_observed(path, object_name=None):
         raise ModelError(f"{path} holds several objects ({', '.join(objects)}); choose one "
                          f"with --object")
     return out
+
+
+def _observation(row, where, lineno):
+    """One checked row of an observed-widths CSV."""
+    if len(row) != len(COLUMNS):
+        raise ModelError(f"{where}: {len(row)} fields, expected {len(COLUMNS)} "
+                         f"({','.join(COLUMNS)})")
+    obj, quantity, line, value_text, sigma_text, unit = (x.strip() for x in row)
+    if quantity not in QUANTITIES:
+        raise ModelError(f"{where}: quantity \"{quantity}\" is not known"
+                         f"{nearest(quantity, QUANTITIES)}; choose one of "
+                         f"{', '.join(QUANTITIES)}")
+    numbers = []
+    for name, text in (("value", value_text), ("uncertainty", sigma_text)):
+        try:
+            number = float(text)
+        except ValueError:
+            raise ModelError(f"{where}: {name} \"{text}\" is not a number") from None
+        if not math.isfinite(number):
+            raise ModelError(f"{where}: {name} = {text}: must be a finite number")
+        numbers.append(number)
+    value, sigma = numbers
+    if not sigma > 0:
+        raise ModelError(f"{where}: uncertainty = {sigma_text}: must be positive (one "
+                         f"standard deviation, in the row's unit)")
+    try:
+        unit_obj = u.Unit(unit)
+    except ValueError:
+        raise ModelError(f"{where}: unit \"{unit}\" is not a unit; write e.g. km/s") from None
+    if not unit_obj.is_equivalent(u.cm / u.s):
+        raise ModelError(f"{where}: unit \"{unit}\" is not a speed; write e.g. km/s")
+    scale = float(unit_obj.to(u.cm / u.s))
+    shown = f"{value_text} {unit}"
+    if quantity == "edge_velocity" and not value < 0:
+        raise ModelError(f"{where}: edge_velocity = {shown}: an edge velocity is blue-shifted, "
+                         f"so negative; write -{value_text.lstrip('+')}")
+    if quantity != "edge_velocity" and not value > 0:
+        raise ModelError(f"{where}: {quantity} = {shown}: must be positive")
+    if not abs(value) * scale < C_KM_S * 1e5:
+        raise ModelError(f"{where}: {quantity} = {shown} is faster than the speed of light "
+                         f"({C_KM_S:.6g} km/s); check the value and its unit")
+    return Observation(obj, quantity, line, value * scale, sigma * scale, lineno)
 
 
 def predict(result, quantity, settings=None, widths=None):
@@ -164,19 +199,13 @@ def match_parameter(model, key, start, stop, observation, settings=None, num=12,
 
     from .models import MODELS
     from .solve import solve
-    from .sweep import _axis_spec, apply_changes
-    _axis_spec(MODELS[model.kind], key, "--key")  # unknown keys: one line, with a suggestion
-    try:
-        start = u.Quantity(start)
-        stop = u.Quantity(stop).to(start.unit)
-    except (TypeError, ValueError, u.UnitsError) as error:
-        raise ModelError(f"--from/--to: {error}; give two values of the same dimension, e.g. "
-                         f"\"2e6 Lsun\"") from None
-    unit = start.unit
-    lo, hi = float(start.value), float(stop.value)
+    from .sweep import apply_changes
+    start, stop, unit = _match_range(MODELS[model.kind], key, start, stop)
+    lo, hi = start.to_value(unit), stop.to_value(unit)
     log = lo > 0 and hi > 0
 
     def text(x):
+        x = float(x)  # a plain float: np.float64 would be written as "np.float64(...)"
         return f"{x!r} {unit.to_string()}" if unit != u.dimensionless_unscaled else x
 
     def miss(s):
@@ -202,6 +231,41 @@ def match_parameter(model, key, start, stop, observation, settings=None, num=12,
     raise ModelError(f"no value of {key} between {start} and {stop} reproduces "
                      f"{observation.quantity} = {observation.value / 1e5:.4g} km/s: the models "
                      f"give {span[0] / 1e5:.4g} to {span[1] / 1e5:.4g} km/s")
+
+
+def _match_range(model_cls, key, start, stop):
+    """(start, stop, unit) of a match range, checked as values of ``key`` (one-line
+    errors naming --key, --from and --to)."""
+    from ._units import plain
+    from .sweep import _axis_spec
+    valid = [k for k in model_cls.keys() if k not in ("name", "opacity.law")]
+    if key not in valid:
+        raise ModelError(f"--key {key}: not a key of a {model_cls.kind} model"
+                         f"{nearest(key, valid)}")
+    param = {p.key: p for p in model_cls.params().values()}.get(key)
+    if param is not None and param.kind in (str, bool):
+        raise ModelError(f"--key {key}: not a numeric key; match varies a number such as "
+                         f"star.luminosity")
+    read, cgs_unit = _axis_spec(model_cls, key, "--key")
+    ends = []
+    for option, given in (("--from", start), ("--to", stop)):
+        value = given
+        if cgs_unit is None and isinstance(given, str):  # a bare-number key
+            try:
+                value = float(given)
+            except ValueError:
+                raise ModelError(f"{option} \"{given}\": {key} is a plain number; give "
+                                 f"one, e.g. 0.5") from None
+        try:
+            value = read(value)
+        except ModelError as error:
+            raise ModelError(f"{option} {plain(given)}: {error}") from None
+        ends.append(value if isinstance(value, u.Quantity) else value * u.dimensionless_unscaled)
+    start, stop = ends
+    unit = start.unit
+    if start.to_value(unit) == stop.to_value(unit):
+        raise ModelError(f"--from and --to are both {plain(start)}: give a range")
+    return start, stop, unit
 
 
 def write_chi2_csv(path, views, table, chi2):

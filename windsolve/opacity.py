@@ -12,7 +12,7 @@ from pathlib import Path
 import astropy.units as u
 import numpy as np
 
-from ._units import format_quantity, to_quantity
+from ._units import format_quantity, plain, to_quantity
 from .core import basics
 from .core import opacity as kernels
 from .errors import ModelError
@@ -44,18 +44,18 @@ class LawParameter:
     def read(self, value, where):
         if self.unit is bool:
             if not isinstance(value, bool):
-                raise ModelError(f"{where} = {value!r}: write true or false")
+                raise ModelError(f"{where} = {plain(value)}: write true or false")
             return value
         if self.unit is Path:
             if not isinstance(value, (str, Path)) or not str(value).strip():
-                raise ModelError(f"{where} = {value!r}: write the file's path as a quoted "
+                raise ModelError(f"{where} = {plain(value)}: write the file's path as a quoted "
                                  f"string, e.g. \"tables/kappa.txt\"")
             return str(Path(value).expanduser().absolute())
         q = to_quantity(value, self.unit, where, convert=False)
-        if self.positive and not q.value > 0:
-            raise ModelError(f"{where} = {value!r} must be positive")
         if not np.isfinite(q.value):
-            raise ModelError(f"{where} = {value!r} must be finite")
+            raise ModelError(f"{where} = {plain(value)}: must be finite")
+        if self.positive and not q.value > 0:
+            raise ModelError(f"{where} = {plain(value)}: must be positive")
         return q
 
 
@@ -155,6 +155,19 @@ def nearest(word, choices):
     return f' (did you mean "{match[0]}"?)' if match else ""
 
 
+def _check_bump(values):
+    """kappa = kappa_es [1 + A (rho/rho_ref)^s G] stays positive at every density only for
+    A >= 0, or for -1 < A < 0 when s = 0 (a dip)."""
+    A = float(values["amplitude"].value)
+    s = float(values["density_exponent"].value)
+    if A < 0 and (s != 0 or A <= -1):
+        need = "amplitude > -1 (a dip) or >= 0" if s == 0 else "amplitude >= 0"
+        raise ModelError(f"[opacity] amplitude = {plain(A)} with density_exponent = "
+                         f"{plain(s)} makes the opacity negative "
+                         f"{'at the peak' if s == 0 else 'at high density'}; the bump law "
+                         f"needs {need}")
+
+
 @dataclass(frozen=True)
 class Opacity:
     """An opacity law by name with its parameters (Quantities, cgs).
@@ -168,6 +181,9 @@ class Opacity:
     params: dict = field(default_factory=dict)
 
     def __init__(self, law="electron_scattering", params=None, **kwargs):
+        if not isinstance(law, str):
+            raise ModelError(f"[opacity] law = {plain(law)}: write the law's name as a quoted "
+                             f"string, one of: {', '.join(OPACITY_LAWS)}")
         if law not in OPACITY_LAWS:
             raise ModelError(f"[opacity] law = \"{law}\" is not known{nearest(law, OPACITY_LAWS)}; "
                              f"choose one of: {', '.join(OPACITY_LAWS)}")
@@ -189,6 +205,8 @@ class Opacity:
                 raise ModelError(f"{where} is required by the {law} law ({p.doc})")
             else:
                 values[p.name] = p.read(p.default, where)
+        if law == "bump":
+            _check_bump(values)
         object.__setattr__(self, "law", law)
         object.__setattr__(self, "params", values)
 

@@ -59,7 +59,7 @@ from .errors import ModelError
 
 __all__ = ["OpacityTable", "read_table", "write_table", "write_text", "write_hdf5",
            "tabulate", "node_derivatives", "load_table", "table_kernel_data",
-           "grid", "HDF5_FORMAT", "HDF5_UNITS", "TEXT_LAYOUT"]
+           "grid", "HDF5_FORMAT", "HDF5_UNITS", "TEXT_LAYOUT", "MAX_TABLE_NODES"]
 
 HDF5_FORMAT = "windsolve opacity table 1"
 HDF5_UNITS = {
@@ -69,6 +69,9 @@ HDF5_UNITS = {
 }
 HDF5_SUFFIXES = (".h5", ".hdf5", ".he5")
 MIN_NODES = 4  # a bicubic cell needs a not-a-knot spline: 4 nodes per axis
+# Largest grid tabulate() makes, nT x nR nodes: about 30 MB of interpolation data
+# (four float64 numbers a node) and a 20 MB text file.
+MAX_TABLE_NODES = 1_000_000
 MAX_LOG_T = 10.0  # larger "log10 T" values are linear temperatures given by mistake
 TEXT_LAYOUT = (
     "Layout: first data row = log10 R (R = rho / T6^3, rho in g/cm3, T6 = T / 1e6 K);",
@@ -445,6 +448,7 @@ def tabulate(opacity, log_T, log_R, X=0.7, Z=0.02, description=None):
         if values.ndim != 1:
             raise ModelError(f"{where}: {name} must be a 1-D sequence")
         _check_axis(values, name, where, lambda i, n=name: f"{n} index {i}")
+    _check_size(log_T.size, log_R.size, where)
     O = opacity.kernel_vector(X, Z)
     log_kappa = kernels.tabulate_log_opacity(O, log_T, log_R)
     bad = np.argwhere(~np.isfinite(log_kappa))
@@ -473,12 +477,29 @@ def _formula(law):
     return OPACITY_LAWS[law].formula
 
 
+def _check_size(n_T, n_R, where):
+    if n_T * n_R > MAX_TABLE_NODES:
+        raise ModelError(f"{where}: {n_T} x {n_R} = {n_T * n_R} nodes is more than the "
+                         f"{MAX_TABLE_NODES} a table may have (nT x nR); use fewer nodes")
+
+
 def grid(start, stop, num, name):
-    """``num`` evenly spaced values from ``start`` to ``stop`` (checked)."""
-    if not (math.isfinite(start) and math.isfinite(stop)) or not stop > start:
+    """``num`` evenly spaced values from ``start`` to ``stop`` (checked).
+
+    At most ``MAX_TABLE_NODES // MIN_NODES`` values: with the fewest nodes on the
+    other axis, the table then still has at most :data:`MAX_TABLE_NODES`.
+    """
+    start, stop = float(start), float(stop)
+    if not (math.isfinite(start) and math.isfinite(stop)):
+        raise ModelError(f"{name}: START and STOP must be finite numbers (got {start!r}, "
+                         f"{stop!r})")
+    if not stop > start:
         raise ModelError(f"{name}: START must be below STOP (got {start!r}, {stop!r})")
     if num < MIN_NODES:
         raise ModelError(f"{name}: NUM = {num}; the interpolation needs at least {MIN_NODES} "
                          f"nodes on each axis")
+    if num > MAX_TABLE_NODES // MIN_NODES:
+        raise ModelError(f"{name}: NUM = {num} is more nodes than a table may have (at most "
+                         f"{MAX_TABLE_NODES} in all, nT x nR); use fewer")
     # Rounded to 12 decimals so that 3.85 is written as 3.85, not 3.8499999999999996.
     return np.round(np.linspace(start, stop, num), 12)
