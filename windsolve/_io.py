@@ -7,7 +7,7 @@ from pathlib import Path
 import numpy as np
 
 from ._version import __version__
-from .errors import OutputError
+from .errors import ModelError, OutputError
 
 
 def atomic_write(path, write):
@@ -27,6 +27,27 @@ def atomic_write(path, write):
         if tmp.exists():
             tmp.unlink()
     return path
+
+
+def read_input_text(path, what, missing_hint, encoding_hint, encoding="utf-8"):
+    """The text of a user's input file, or a one-line ModelError.
+
+    ``what`` names the kind of file ("a model file"), ``missing_hint`` ends
+    the no-such-file message and ``encoding_hint`` the not-UTF-8 one.
+    """
+    path = Path(path)
+    try:
+        return path.read_text(encoding=encoding)
+    except FileNotFoundError:
+        raise ModelError(f"{path}: no such file; {missing_hint}") from None
+    except IsADirectoryError:
+        raise ModelError(f"{path} is a directory, not {what}") from None
+    except UnicodeDecodeError as error:
+        raise ModelError(f"{path}: cannot read: not a UTF-8 text file (byte "
+                         f"0x{error.object[error.start]:02x} at position {error.start}); "
+                         f"{encoding_hint}") from None
+    except OSError as error:
+        raise ModelError(f"{path}: cannot read ({error.strerror or error})") from None
 
 
 def open_hdf5(path):

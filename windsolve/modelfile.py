@@ -9,6 +9,7 @@ import math
 import tomllib
 from pathlib import Path
 
+from ._io import read_input_text
 from ._units import plain
 from .errors import ModelError
 from .opacity import nearest
@@ -19,19 +20,9 @@ __all__ = ["load_model", "read_model_file", "model_from_dict", "dumps"]
 def read_model_file(path):
     """Parse a TOML file into nested dicts, with one-line errors."""
     path = Path(path)
-    try:
-        text = path.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise ModelError(f"{path}: no such file; give the path of a model file "
-                         f"(see configs/ for examples)") from None
-    except IsADirectoryError:
-        raise ModelError(f"{path} is a directory, not a model file") from None
-    except UnicodeDecodeError as error:
-        raise ModelError(f"{path}: cannot read: not a UTF-8 text file (byte "
-                         f"0x{error.object[error.start]:02x} at position {error.start}); a model "
-                         f"file is TOML text, saved as UTF-8") from None
-    except OSError as error:
-        raise ModelError(f"{path}: cannot read ({error.strerror or error})") from None
+    text = read_input_text(path, "a model file",
+                           "give the path of a model file (see configs/ for examples)",
+                           "a model file is TOML text, saved as UTF-8")
     try:
         return tomllib.loads(text)
     except tomllib.TOMLDecodeError as error:

@@ -23,6 +23,7 @@ from pathlib import Path
 import astropy.units as u
 import numpy as np
 
+from ._io import read_input_text
 from .errors import ModelError, OutputError
 from .opacity import nearest
 
@@ -58,19 +59,9 @@ def read_observed(path, object_name=None):
     (as spreadsheet programs write) is ignored.
     """
     path = Path(path)
-    try:
-        text = path.read_text(encoding="utf-8-sig")
-    except FileNotFoundError:
-        raise ModelError(f"{path}: no such file; give an observed-widths CSV "
-                         f"(see configs/observed_widths.csv)") from None
-    except IsADirectoryError:
-        raise ModelError(f"{path} is a directory, not an observed-widths CSV") from None
-    except UnicodeDecodeError as error:
-        raise ModelError(f"{path}: cannot read: not a UTF-8 text file (byte "
-                         f"0x{error.object[error.start]:02x} at position {error.start}); save "
-                         f"the CSV as UTF-8") from None
-    except OSError as error:
-        raise ModelError(f"{path}: cannot read ({error.strerror or error})") from None
+    text = read_input_text(path, "an observed-widths CSV",
+                           "give an observed-widths CSV (see configs/observed_widths.csv)",
+                           "save the CSV as UTF-8", encoding="utf-8-sig")
     lines = [(i + 1, line) for i, line in enumerate(text.splitlines())
              if line.strip() and not line.lstrip().startswith("#")]
     if not lines:
