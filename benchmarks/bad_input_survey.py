@@ -1,4 +1,5 @@
-"""Run every bad-input case of ``tests/test_bad_input.py`` and count the outcomes.
+"""Run every bad-input case of ``tests/test_bad_input.py`` (and the damaged result, family
+and sweep files of ``tests/test_bad_files.py``) and count the outcomes.
 
     python benchmarks/bad_input_survey.py          # counts, and every case that is not clean
     python benchmarks/bad_input_survey.py -v       # every case with its stderr line
@@ -24,9 +25,9 @@ os.environ.setdefault("MPLBACKEND", "Agg")
 HERE = Path(__file__).resolve().parent
 
 
-def load_cases():
-    spec = importlib.util.spec_from_file_location(
-        "bad_input_cases", HERE.parent / "tests" / "test_bad_input.py")
+def load_cases(name="test_bad_input"):
+    sys.path.insert(0, str(HERE.parent / "tests"))
+    spec = importlib.util.spec_from_file_location(name, HERE.parent / "tests" / f"{name}.py")
     module = importlib.util.module_from_spec(spec)
     spec.loader.exec_module(module)
     return module
@@ -39,6 +40,9 @@ def main():
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("-v", "--verbose", action="store_true")
     parser.add_argument("-k", metavar="TEXT", help="only cases whose id contains TEXT")
+    parser.add_argument("--files", choices=["no", "also", "only"], default="also",
+                        help="the damaged-file cases of tests/test_bad_files.py: leave out, "
+                             "add (default) or run only those")
     args = parser.parse_args()
     try:
         import resource
@@ -46,6 +50,7 @@ def main():
     except (ImportError, ValueError, OSError):
         pass
     m = load_cases()
+    f = load_cases("test_bad_files") if args.files != "no" else None
     import windsolve
     with tempfile.TemporaryDirectory() as tmp:
         tmp = Path(tmp)
@@ -57,13 +62,19 @@ def main():
                 windsolve.solve(windsolve.load_model(windsolve.demo_model_path())).to_hdf5(result)
             return result
 
+        runs = [] if args.files == "only" else [(c, lambda d: m.Ctx(d, result_file))
+                                                 for c in m.CASES]
+        if f is not None:
+            (tmp / "intact").mkdir()
+            sources = f.Sources(tmp / "intact")
+            runs += [(c, lambda d: f.Ctx(d, sources)) for c in f.CASES]
         tried, clean, poor = Counter(), Counter(), Counter()
-        for i, c in enumerate(m.CASES):
+        for i, (c, make_ctx) in enumerate(runs):
             if args.k and args.k not in c.id:
                 continue
             directory = tmp / f"case{i}"
             directory.mkdir()
-            outcome = m.run_case(c, m.Ctx(directory, result_file))
+            outcome = m.run_case(c, make_ctx(directory))
             found = m.problems(*outcome, c.fragments)
             bad = [f for f in found if not f.startswith("message lacks")]
             tried[c.kind] += 1

@@ -57,10 +57,171 @@ def open_hdf5(path):
     path = Path(path)
     if not path.exists():
         raise OutputError(f"{path}: no such file")
+    if path.is_dir():
+        raise OutputError(f"{path} is a directory, not an HDF5 file")
     try:
         return h5py.File(path, "r")
     except OSError:
-        raise OutputError(f"{path}: not an HDF5 file (or damaged)") from None
+        raise OutputError(f"{path}: not an HDF5 file (or a damaged or truncated one); give a "
+                          f"result, family or sweep file written by windsolve") from None
+
+
+# -- reading: every check of a file's layout, units and values lives here ---------------
+
+C_CGS = 2.99792458e10  # speed of light [cm/s] (exact, SI definition)
+
+KINDS = {"result": "a result file (windsolve run -o)",
+         "family": "a family file (windsolve family -o)",
+         "sweep": "a sweep file (windsolve sweep -o)"}
+
+
+def file_kind(f, path):
+    """"result", "family" or "sweep" for an open windsolve file; OutputError otherwise."""
+    if "sweep_toml" in f.attrs or ("axes" in f.attrs and "table" in f):
+        return "sweep"
+    if "family_scan" in f.attrs:
+        return "family"
+    if "summary" in f or "profile" in f:
+        return "result"
+    what = (f"holds only {', '.join(sorted(f.keys())[:3])}" if len(f) else "is empty")
+    raise OutputError(f"{path}: no windsolve data in this HDF5 file (it {what}; a result "
+                      f"file has /summary and /profile, a family or sweep file /table)")
+
+
+def hdf5_kind(path):
+    """The kind of the windsolve file at ``path`` (see :func:`file_kind`)."""
+    with open_hdf5(path) as f:
+        return file_kind(f, path)
+
+
+def require_kind(f, path, kind, command_hint=""):
+    """OutputError unless ``f`` is a windsolve file of ``kind``."""
+    found = file_kind(f, path)
+    if found != kind:
+        raise OutputError(f"{path} is {KINDS[found]}, not {KINDS[kind]}{command_hint}")
+
+
+def group(f, name, path):
+    """The HDF5 group ``name`` of ``f``; OutputError if absent or a dataset."""
+    import h5py
+    if name not in f:
+        raise OutputError(f"{path}: no /{name} group; the file is incomplete or not written "
+                          f"by windsolve")
+    g = f[name]
+    if not isinstance(g, h5py.Group):
+        raise OutputError(f"{path}: /{name} is a dataset where a group should be")
+    return g
+
+
+def column(g, name, path, length=None, text=False):
+    """A 1-D dataset ``name`` of group ``g`` as an array (numbers, or str when ``text``).
+
+    OutputError naming the file and dataset if it is missing, a group, not
+    one-dimensional, of the wrong type, or not ``length`` long.
+    """
+    import h5py
+    where = f"{g.name.rstrip('/')}/{name}"
+    if name not in g:
+        raise OutputError(f"{path}: no {where} dataset")
+    d = g[name]
+    if not isinstance(d, h5py.Dataset):
+        raise OutputError(f"{path}: {where} is a group where a dataset should be")
+    if d.ndim != 1:
+        raise OutputError(f"{path}: {where} has shape {d.shape}; it must be one-dimensional")
+    kind = d.dtype.kind
+    if text:
+        if kind not in "OSU":
+            raise OutputError(f"{path}: {where} holds {d.dtype} values, not text")
+        data = read_strings(d[()])
+    else:
+        if kind not in "fiub":
+            raise OutputError(f"{path}: {where} holds {'text' if kind in 'OSU' else d.dtype}, "
+                              f"not numbers")
+        data = np.asarray(d[()], dtype=np.float64)
+    if length is not None and data.size != length:
+        raise OutputError(f"{path}: {where} has {data.size} values where the other datasets "
+                          f"have {length}; the file is damaged")
+    return data
+
+
+def parse_unit(text, path, where, expected=None):
+    """An astropy unit from a ``units`` attribute; OutputError if it is not a unit of the
+    dimension of ``expected``."""
+    import astropy.units as u
+    if isinstance(text, bytes):
+        text = text.decode(errors="replace")
+    if not isinstance(text, str):
+        raise OutputError(f"{path}: {where} has units {plain(text)!r}, which is not a unit name "
+                          f"(e.g. \"cm / s\")")
+    try:
+        unit = u.Unit(text.strip() or "1", parse_strict="raise")
+    except (ValueError, TypeError):
+        raise OutputError(f"{path}: {where} has units \"{text}\", which is not a unit "
+                          f"astropy reads") from None
+    if expected is not None and not unit.is_equivalent(expected):
+        kind = str(u.Unit(expected).physical_type).split("/")[0]
+        raise OutputError(f"{path}: {where} has units \"{text}\", which is not a unit of "
+                          f"{kind} (e.g. \"{u.Unit(expected).to_string() or '1'}\")")
+    return unit
+
+
+def dataset_unit(g, name, path, expected=None):
+    """The unit of dataset ``g[name]`` (its ``units`` attribute; ``expected`` without one)."""
+    d = g[name]
+    where = f"{g.name.rstrip('/')}/{name}"
+    if "units" not in d.attrs:
+        if expected is None:
+            import astropy.units as u
+            return u.one
+        return expected
+    return parse_unit(d.attrs["units"], path, where, expected)
+
+
+def check_values(values, path, where, unit, positive=False, allow_nan=False):
+    """OutputError unless ``values`` (in ``unit``) are finite (or NaN where allowed), > 0
+    when ``positive``, and slower than light when they are speeds."""
+    import astropy.units as u
+    values = np.asarray(values, dtype=np.float64)  # a 0-d array for one attribute
+    bad = ~np.isfinite(values)
+    if allow_nan:
+        bad &= ~np.isnan(values)
+    if bad.any():
+        i = int(np.flatnonzero(bad)[0])
+        what = "NaN" if np.isnan(values.flat[i]) else "infinite"
+        at = (f" at index {i} ({int(bad.sum())} of {values.size} values)" if values.ndim
+              else "")
+        raise OutputError(f"{path}: {where} is {what}{at}; the file is damaged")
+    ok = values[np.isfinite(values)]
+    if positive and ok.size and not np.all(ok > 0):
+        i = int(np.flatnonzero(np.isfinite(values) & ~(values > 0))[0])
+        at = f" at index {i}" if values.ndim else ""
+        raise OutputError(f"{path}: {where} = {float(values.flat[i]):.6g}{at}; it must "
+                          f"be > 0")
+    if ok.size and unit.is_equivalent(u.cm / u.s):
+        fastest = float(np.max(np.abs(ok)) * unit.to(u.cm / u.s))
+        if fastest >= C_CGS:
+            raise OutputError(f"{path}: {where} reaches {fastest / C_CGS:.3g} times the speed "
+                              f"of light; is its units attribute ({unit.to_string()}) right?")
+
+
+def plain(value):
+    """A numpy scalar as the Python value it holds (for messages)."""
+    return value.item() if isinstance(value, np.generic) else value
+
+
+def text_attr(attrs, key, path, where, default=None):
+    """A text attribute (str), or ``default`` when absent; OutputError if not text."""
+    if key not in attrs:
+        if default is None:
+            raise OutputError(f"{path}: {where} has no {key} attribute")
+        return default
+    value = attrs[key]
+    if isinstance(value, bytes):
+        value = value.decode(errors="replace")
+    if not isinstance(value, str):
+        raise OutputError(f"{path}: the {key} attribute of {where} is {plain(value)!r}, "
+                          f"not text")
+    return value
 
 
 def stamp(f, model_kind):

@@ -404,7 +404,6 @@ def cmd_lines(args):
 
 
 def cmd_compare(args):
-    import h5py
     import numpy as np
 
     from .observe import compare_result, read_observed, sweep_chi2, write_chi2_csv
@@ -412,11 +411,8 @@ def cmd_compare(args):
     for target in (args.output, args.plot):
         if target is not None:
             _check_output(target, ".csv")
-    try:
-        with h5py.File(args.file, "r") as f:
-            is_sweep = "sweep_toml" in f.attrs
-    except OSError:
-        is_sweep = False  # from_hdf5 below explains what is wrong
+    from ._io import hdf5_kind
+    is_sweep = hdf5_kind(args.file) == "sweep"  # one line if it is no windsolve file
     if not is_sweep:
         from .result import WindResult
         result = WindResult.from_hdf5(args.file)
@@ -489,7 +485,9 @@ def cmd_inspect(args):
     import numpy as np
 
     from ._io import open_hdf5
+    from .result import read_windsolve_file
     path = Path(args.file)
+    read_windsolve_file(path)  # one line naming what is wrong with a damaged file
     f = open_hdf5(path)
     if args.csv is not None:
         f.close()
@@ -589,18 +587,12 @@ def _export_csv(path, target):
 
 
 def cmd_plot(args):
-    import h5py
-
+    from ._io import hdf5_kind
     from .plotting import plot_profile
     from .result import WindResult
     out = Path(args.output) if args.output else Path(args.file).with_suffix(".png")
-    family = sweep = False
-    try:
-        with h5py.File(args.file, "r") as f:
-            family = "family_scan" in f.attrs
-            sweep = "sweep_toml" in f.attrs
-    except OSError:
-        pass  # from_hdf5 below says what is wrong with the file
+    kind = hdf5_kind(args.file)  # one line if it is no windsolve file
+    family, sweep = kind == "family", kind == "sweep"
     _check_output(out, ".png")
     if sweep:
         from .plotting import plot_sweep

@@ -47,6 +47,10 @@ COLUMNS = {  # summary key -> unit stored (cgs)
     "base_luminosity": u.erg / u.s,
 }
 
+# Columns a family's table and plot need (in every converged member).
+REQUIRED = ("mass_loss_rate", "terminal_velocity", "photosphere_radius",
+            "photosphere_temperature")
+
 
 @dataclass
 class FamilyResult:
@@ -98,24 +102,60 @@ class FamilyResult:
 
     @classmethod
     def from_hdf5(cls, path):
-        """Read a family file written by :meth:`to_hdf5` (table only)."""
-        import tomllib
+        """Read a family file written by :meth:`to_hdf5` (table only).
 
-        from ._io import open_hdf5, read_strings
-        from .modelfile import model_from_dict
-        from .result import WindResult
+        Every column, unit and value is checked first; a damaged file gives a
+        one-line OutputError naming the file and the column.  ``model`` is None
+        when the file has no complete stored model.
+        """
+        from pathlib import Path
 
+        from ._io import (
+            check_values,
+            column,
+            dataset_unit,
+            group,
+            open_hdf5,
+            require_kind,
+            text_attr,
+        )
+        from .errors import OutputError
+        from .result import WindResult, stored_model
+
+        path = Path(path)
         with open_hdf5(path) as f:
-            scan = str(f.attrs["family_scan"])
-            model = model_from_dict(tomllib.loads(f.attrs["model_toml"]), source=str(path))
-            g = f["table"]
-            values = (g[scan][()] * u.Unit(g[scan].attrs["units"])).to_value(SCANS[scan])
-            cols = {k: g[k][()] * u.Unit(g[k].attrs["units"]) for k in COLUMNS if k in g}
-            if scan in COLUMNS:
-                cols[scan] = values * SCANS[scan]
-            status = read_strings(g["status"][()])
-            message = read_strings(g["message"][()])
-            converged = g["converged"][()]
+            require_kind(f, path, "family")
+            scan = text_attr(f.attrs, "family_scan", path, "the file")
+            if scan not in SCANS:
+                raise OutputError(f"{path}: the family_scan attribute is \"{scan}\", not one of "
+                                  f"{', '.join(SCANS)}")
+            model = stored_model(f, path)
+            g = group(f, "table", path)
+            n = column(g, scan, path).size
+            converged = column(g, "converged", path, n).astype(bool)
+            status = column(g, "status", path, n, text=True)
+            message = (column(g, "message", path, n, text=True) if "message" in g
+                       else np.array([""] * n))
+            cols = {}
+            for key in dict.fromkeys([scan, *COLUMNS]):
+                if key not in g:
+                    continue
+                expected = COLUMNS.get(key, SCANS[scan])
+                values = column(g, key, path, n)
+                unit = dataset_unit(g, key, path, expected)
+                where = f"/table/{key}"
+                check_values(values, path, where, unit, positive=True, allow_nan=True)
+                if key in REQUIRED and np.isnan(values[converged]).any():
+                    i = int(np.flatnonzero(converged & np.isnan(values))[0])
+                    raise OutputError(f"{path}: {where} is NaN at index {i}, a converged "
+                                      f"member; the file is damaged")
+                cols[key] = values * unit
+            for key in REQUIRED:
+                if key not in cols:
+                    column(g, key, path, n)  # says that it is missing
+            values = cols[scan].to_value(SCANS[scan])
+            if scan not in COLUMNS:
+                del cols[scan]
             ends = str(f.attrs.get("family_ends", ""))
         members = [WindResult(model, bool(converged[i]), status[i], message[i],
                               {k: c[i] for k, c in cols.items()})
@@ -275,7 +315,10 @@ def plot_family(result, path):
         (result.column("photosphere_temperature")[ok], r"effective temperature  $T_{\rm eff}$  [K]",
          "log"),
     ]
-    if result.model.radius is not None:  # fixed base radius: its temperature varies
+    tb = result.column("base_temperature")[ok]
+    fixed_radius = (result.model.radius is not None if result.model is not None
+                    else not np.allclose(tb, tb[0], rtol=1e-9) if tb.size else False)
+    if fixed_radius:  # fixed base radius: its temperature varies
         panels.append((result.column("base_temperature")[ok], "base temperature  [K]", "log"))
     else:  # fixed base temperature: where the envelope reaches it varies
         panels.append((result.column("base_radius")[ok] / 6.957e10,
@@ -289,8 +332,12 @@ def plot_family(result, path):
         ax.grid(True, which="both", alpha=0.25)
     for ax in axes[-1]:
         ax.set_xlabel(r"photosphere radius  $R_{\rm ph}$  [R$_\odot$]")
-    L = result.model.photosphere_luminosity.to_value(u.Lsun)
+    if result.model is not None:
+        L, name = result.model.photosphere_luminosity.to_value(u.Lsun), result.model.name
+    else:
+        L = np.nanmedian(result.column("photosphere_luminosity")) / 3.828e33  # IAU 2015 Lsun
+        name = "family"
     n_bad = int((~ok).sum())
-    fig.suptitle(f"{result.model.name} — family at L$_{{\\rm ph}}$ = {L:.3g} L$_\\odot$ "
+    fig.suptitle(f"{name} — family at L$_{{\\rm ph}}$ = {L:.3g} L$_\\odot$ "
                  f"({ok.sum()} solutions{f', {n_bad} without' if n_bad else ''})")
     return save(plt, fig, path)

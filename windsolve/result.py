@@ -191,41 +191,157 @@ class WindResult:
     def from_hdf5(cls, path):
         """Read a result file written by :meth:`to_hdf5` (or laid out the same way).
 
-        The model is rebuilt from the stored model file; datasets come back
-        as Quantities in the units their ``units`` attribute names.
+        Every dataset, unit and value is checked first (:func:`read_result`): a
+        damaged file gives a one-line :class:`~windsolve.errors.OutputError`
+        naming the file and what is wrong.  The model is rebuilt from the stored
+        model file when there is a complete one (``model`` is None otherwise);
+        datasets come back as Quantities in the units their ``units`` attribute
+        names.
         """
-        import tomllib
+        return read_result(path, cls)
 
-        from .modelfile import model_from_dict
 
-        path = Path(path)
-        with open_hdf5(path) as f:
-            if "summary" not in f or "profile" not in f:
-                raise OutputError(f"{path}: no /summary and /profile groups; is this a "
-                                  f"windsolve result file?")
-            try:
-                model = model_from_dict(tomllib.loads(f.attrs["model_toml"]), source=str(path))
-            except (KeyError, tomllib.TOMLDecodeError):
-                model = None
-            g = f["summary"]
-            units = json.loads(g.attrs.get("units", "{}"))
-            summary = {k: g.attrs[k] * u.Unit(units.get(k, SUMMARY_UNITS.get(k, "")))
-                       for k in SUMMARY_UNITS if k in g.attrs}
-            profile = {}
-            for key, d in f["profile"].items():
-                unit = d.attrs.get("units", _unit_text(PROFILE_UNITS.get(key, "")))
-                profile[key] = d[()] * u.Unit(unit)
-            cps = []
-            if "critical_points" in f:
-                c = f["critical_points"]
-                for i in range(c["radius"].shape[0]):
-                    cps.append({"radius": float(c["radius"][i]),
-                                "kind": c["kind"][i].decode() if isinstance(c["kind"][i], bytes)
-                                else str(c["kind"][i]),
-                                "slope_plus": float(c["slope_plus"][i]),
-                                "slope_minus": float(c["slope_minus"][i])})
-            return cls(model=model, converged=bool(g.attrs["converged"]),
-                       status=str(g.attrs["status"]), message=str(g.attrs.get("message", "")),
-                       summary=summary, profile=profile, critical_points=cps,
-                       counters={"shots": int(g.attrs.get("shots", 0)),
-                                 "seconds": float(g.attrs.get("solve_seconds", 0.0))})
+PROFILE_POSITIVE = ("radius", "velocity", "density", "temperature")
+SUMMARY_POSITIVE = ("mass_loss_rate", "sonic_radius", "sonic_velocity", "photosphere_radius",
+                    "photosphere_temperature", "outer_radius", "sonic_temperature",
+                    "base_radius", "base_temperature", "base_density")
+
+
+def stored_model(f, path):
+    """The model of a file's ``model_toml`` attribute, or None when the file has no
+    complete model (absent, empty, not TOML, incomplete: a file written by another program
+    is read for what it has).  A ``model`` stamp that is not a model kind, or that
+    contradicts the stored model, is an OutputError."""
+    import tomllib
+
+    from ._io import text_attr
+    from .errors import WindsolveError
+    from .modelfile import model_from_dict
+    from .models import MODELS
+
+    kind = text_attr(f.attrs, "model", path, "the file", default="")
+    if "model" in f.attrs and kind not in MODELS:
+        raise OutputError(f"{path}: the model attribute is \"{kind}\", not a windsolve model "
+                          f"kind (one of: {', '.join(MODELS)})")
+    text = f.attrs.get("model_toml")
+    if isinstance(text, bytes):
+        text = text.decode(errors="replace")
+    if not isinstance(text, str) or not text.strip():
+        return None
+    try:
+        model = model_from_dict(tomllib.loads(text), source=str(path))
+    except (tomllib.TOMLDecodeError, WindsolveError, KeyError, TypeError, ValueError):
+        return None
+    if kind and model.kind != kind:
+        raise OutputError(f"{path}: the model attribute says \"{kind}\" but the stored model "
+                          f"file (model_toml) is of kind \"{model.kind}\"; the file is damaged")
+    return model
+
+
+def read_result(path, cls=None):
+    """A :class:`WindResult` from a result file, after checking every dataset, unit and value.
+
+    The one reader of result files: the layout (groups, 1-D numeric datasets of
+    one length), the units (each a unit of the right dimension), the values
+    (finite, radius strictly increasing, radius, velocity, density and
+    temperature > 0, every speed below the speed of light) and the model stamp.
+    Raises a one-line OutputError naming the file and the dataset or attribute.
+    """
+    from ._io import (
+        check_values,
+        column,
+        dataset_unit,
+        group,
+        parse_unit,
+        plain,
+        require_kind,
+        text_attr,
+    )
+
+    cls = cls or WindResult
+    path = Path(path)
+    with open_hdf5(path) as f:
+        require_kind(f, path, "result", "; lines and compare read one solved model")
+        model = stored_model(f, path)
+        g = group(f, "summary", path)
+        p = group(f, "profile", path)
+        for key in ("converged", "status"):
+            if key not in g.attrs:
+                raise OutputError(f"{path}: /summary has no {key} attribute; the file is "
+                                  f"incomplete")
+        converged = g.attrs["converged"]
+        if not isinstance(plain(converged), (bool, int)):
+            raise OutputError(f"{path}: the converged attribute of /summary is "
+                              f"{plain(converged)!r}, not true or false")
+        status = text_attr(g.attrs, "status", path, "/summary")
+        message = text_attr(g.attrs, "message", path, "/summary", default="")
+        units_text = text_attr(g.attrs, "units", path, "/summary", default="{}")
+        try:
+            units = json.loads(units_text)
+        except json.JSONDecodeError:
+            units = None
+        if not isinstance(units, dict):
+            raise OutputError(f"{path}: the units attribute of /summary is not a JSON table "
+                              f"of unit names ({units_text[:40]!r})")
+        summary = {}
+        for key, expected in SUMMARY_UNITS.items():
+            if key not in g.attrs:
+                continue
+            where = f"/summary attribute {key}"
+            value = plain(g.attrs[key])
+            if isinstance(value, bool) or not isinstance(value, (int, float)):
+                raise OutputError(f"{path}: {where} is {value!r}, not a number")
+            unit = (parse_unit(units[key], path, where, expected) if key in units
+                    else expected)
+            check_values(value, path, where, unit, positive=key in SUMMARY_POSITIVE,
+                         allow_nan=True)
+            summary[key] = float(value) * unit
+        profile = {}
+        if len(p):
+            n = column(p, "radius", path).size
+            for key in ("radius", "velocity", "density", *p.keys()):
+                if key in profile:
+                    continue
+                values = column(p, key, path, length=n)
+                unit = dataset_unit(p, key, path, PROFILE_UNITS.get(key))
+                check_values(values, path, f"/profile/{key}", unit,
+                             positive=key in PROFILE_POSITIVE)
+                profile[key] = values * unit
+            if n and not np.all(np.diff(profile["radius"].value) > 0):
+                i = int(np.flatnonzero(~(np.diff(profile["radius"].value) > 0))[0])
+                raise OutputError(f"{path}: /profile/radius does not increase at index {i + 1} "
+                                  f"(it must increase strictly); the file is damaged")
+        cps = []
+        if "critical_points" in f:
+            c = group(f, "critical_points", path)
+            n = column(c, "radius", path).size
+            radius = column(c, "radius", path, n)
+            slopes = {key: column(c, key, path, n) for key in ("slope_plus", "slope_minus")}
+            kinds = column(c, "kind", path, n, text=True)
+            check_values(radius, path, "/critical_points/radius", PROFILE_UNITS["radius"],
+                         positive=True)
+            cps = [{"radius": float(radius[i]), "kind": str(kinds[i]),
+                    "slope_plus": float(slopes["slope_plus"][i]),
+                    "slope_minus": float(slopes["slope_minus"][i])} for i in range(n)]
+        counters = {}
+        for key, name, kind in (("shots", "shots", int), ("seconds", "solve_seconds", float)):
+            value = plain(g.attrs.get(name, 0))
+            counters[key] = kind(value) if isinstance(value, (int, float)) else kind(0)
+        return cls(model=model, converged=bool(converged), status=status, message=message,
+                   summary=summary, profile=profile, critical_points=cps, counters=counters)
+
+
+def read_windsolve_file(path):
+    """Check any windsolve HDF5 file (result, family or sweep) with its reader; its kind."""
+    from ._io import hdf5_kind
+    kind = hdf5_kind(path)
+    if kind == "result":
+        read_result(path)
+    elif kind == "family":
+        from .family import FamilyResult
+        FamilyResult.from_hdf5(path)
+    else:
+        from .sweep import axis_views, read_sweep_table
+        read_sweep_table(path)
+        axis_views(path)
+    return kind

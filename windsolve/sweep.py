@@ -230,11 +230,14 @@ def axis_views(path):
     """[AxisView] of a sweep file's axes, in sweep order (older files: the table's units)."""
     import astropy.units as u
 
-    from ._io import open_hdf5
+    from ._io import column, dataset_unit, group, open_hdf5
     views = []
     with open_hdf5(path) as f:
-        for key in json.loads(f.attrs["axes"]):
-            d = f["table"][key]
+        g = group(f, "table", path)
+        for key in _axes_attr(f, path):
+            column(g, key, path)
+            dataset_unit(g, key, path)  # a unit astropy reads
+            d = g[key]
             cgs = str(d.attrs.get("units", "1"))
             cgs = "" if cgs in ("1", "none") else cgs
             shown = str(d.attrs.get("shown_unit", ""))
@@ -772,13 +775,66 @@ def write_sweep_table(sweep, records, out):
     return atomic_write(out, write)
 
 
+SWEEP_REQUIRED = ("mass_loss_rate", "terminal_velocity")  # numbers of every converged row
+
+
 def read_sweep_table(path):
-    """{column: numpy array} and the root attributes of a sweep file."""
-    from ._io import open_hdf5, read_strings
+    """{column: numpy array} and the root attributes of a sweep file.
+
+    Every column is checked (one-dimensional, one length, numbers or text,
+    a unit of the right dimension, finite or NaN, speeds below light, no NaN
+    in a converged row's mass-loss rate and terminal velocity) and the
+    summary and width columns come back in cgs whatever unit the file names;
+    a damaged file gives a one-line OutputError naming the file and column.
+    """
+    import astropy.units as u
+
+    from ._io import check_values, column, dataset_unit, group, open_hdf5, require_kind
+    from .errors import OutputError
+    from .result import SUMMARY_POSITIVE, SUMMARY_UNITS
+
+    known = dict(SUMMARY_UNITS, seconds=u.s, **{k: u.cm / u.s for k in WIDTH_COLUMNS})
     with open_hdf5(path) as f:
-        table = {}
-        for key, d in f["table"].items():
-            data = d[()]
-            table[key] = read_strings(data) if data.dtype.kind in "OS" else data
+        require_kind(f, path, "sweep", "; compare and plot read it as a whole")
+        axes = _axes_attr(f, path)
+        g = group(f, "table", path)
+        n = column(g, "converged", path).size
+        table = {"converged": column(g, "converged", path, n).astype(bool)}
+        table["status"] = column(g, "status", path, n, text=True)
+        for key in (*axes, *SWEEP_REQUIRED, *g.keys()):
+            if key in table:
+                continue
+            d = g.get(key)
+            if (key not in axes and key not in SWEEP_REQUIRED
+                    and getattr(d, "dtype", None) is not None and d.dtype.kind in "OSU"):
+                table[key] = column(g, key, path, n, text=True)
+                continue
+            values = column(g, key, path, n)
+            where = f"/table/{key}"
+            unit = dataset_unit(g, key, path, known.get(key))
+            check_values(values, path, where, unit, positive=key in SUMMARY_POSITIVE,
+                         allow_nan=key not in axes)
+            if key in known and unit != known[key]:
+                values = values * unit.to(known[key])
+            if key in SWEEP_REQUIRED and np.isnan(values[table["converged"]]).any():
+                i = int(np.flatnonzero(table["converged"] & np.isnan(values))[0])
+                raise OutputError(f"{path}: {where} is NaN at row {i}, a converged model; "
+                                  f"the file is damaged")
+            table[key] = values
         attrs = dict(f.attrs)
     return table, attrs
+
+
+def _axes_attr(f, path):
+    """The sweep's axis keys from its ``axes`` attribute (a JSON list of names)."""
+    from ._io import text_attr
+    from .errors import OutputError
+    text = text_attr(f.attrs, "axes", path, "the file")
+    try:
+        axes = json.loads(text)
+    except json.JSONDecodeError:
+        axes = None
+    if not (isinstance(axes, list) and axes and all(isinstance(a, str) for a in axes)):
+        raise OutputError(f"{path}: the axes attribute {text[:40]!r} is not a JSON list of "
+                          f"the swept keys; the file is damaged")
+    return axes
