@@ -202,6 +202,7 @@ class WindResult:
 
 
 PROFILE_POSITIVE = ("radius", "velocity", "density", "temperature")
+PROFILE_FLOW = ("radius", "velocity", "density")
 SUMMARY_POSITIVE = ("mass_loss_rate", "sonic_radius", "sonic_velocity", "photosphere_radius",
                     "photosphere_temperature", "outer_radius", "sonic_temperature",
                     "base_radius", "base_temperature", "base_density")
@@ -304,8 +305,11 @@ def read_result(path, cls=None):
                     continue
                 values = column(p, key, path, length=n)
                 unit = dataset_unit(p, key, path, PROFILE_UNITS.get(key))
+                # A partial result may lack derived values where its flow stopped
+                # (an opacity off its table); the flow itself is always there.
                 check_values(values, path, f"/profile/{key}", unit,
-                             positive=key in PROFILE_POSITIVE)
+                             positive=key in PROFILE_POSITIVE,
+                             allow_nan=not converged and key not in PROFILE_FLOW)
                 profile[key] = values * unit
             if n and not np.all(np.diff(profile["radius"].value) > 0):
                 i = int(np.flatnonzero(~(np.diff(profile["radius"].value) > 0))[0])
