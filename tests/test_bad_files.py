@@ -171,6 +171,36 @@ def _first_nan(a):
     a[0] = np.nan
 
 
+def _dangling_link(name):
+    def edit(f):
+        del f[name]
+        f[name] = h5py.SoftLink("/nowhere/velocity")
+    return edit
+
+
+def _empty_profile(f):
+    for key in list(f["profile"]):
+        del f["profile"][key]
+        f["profile"].create_dataset(key, data=np.zeros(0))
+
+
+def _radius_overflows(f):
+    r = f["profile/radius"]
+    data = r[()]
+    data[-1] = 1e300  # in Rsun: 7e310 cm, beyond float64
+    r[...] = data
+    r.attrs["units"] = "Rsun"
+
+
+def _no_rows(f):
+    for key in list(f["table"]):
+        d = f["table"][key]
+        data, attrs = d[()][:0], dict(d.attrs)
+        del f["table"][key]
+        f["table"].create_dataset(key, data=data)
+        f["table"][key].attrs.update(attrs)
+
+
 def _summary_dataset(f):
     del f["summary"]
     f.create_dataset("summary", data=[1.0])
@@ -215,12 +245,20 @@ RESULT_DAMAGES = {
         ("critical-points-no-kind", delete("critical_points/kind"), "critical_points"),
         ("critical-radius-is-a-group", replace("critical_points/radius", as_group),
          "critical_points"),
+        ("velocity-complex", replace(P + "velocity", with_data(lambda a: a + 0j)), "velocity"),
+        ("velocity-dangling-link", _dangling_link(P + "velocity"), "velocity"),
+        ("profile-arrays-empty", _empty_profile, "/profile"),
+        ("converged-attribute-text", set_attr("summary", "converged", "yes"), "converged"),
+        ("status-attribute-a-number", set_attr("summary", "status", 3), "status"),
+        ("message-attribute-a-number", set_attr("summary", "message", 3.5), "message"),
+        ("summary-units-a-number", set_attr("summary", "units", 7), "units"),
     ],
     "result: units": [
         ("velocity-units-not-a-unit", set_attr(P + "velocity", "units", "furlongs per fortnight"),
          "velocity", "furlongs"),
         ("velocity-units-empty", set_attr(P + "velocity", "units", ""), "velocity"),
         ("velocity-units-a-number", set_attr(P + "velocity", "units", 3.0), "velocity"),
+        ("velocity-units-a-list", set_attr(P + "velocity", "units", ["cm", "s"]), "velocity"),
         ("velocity-units-mass", set_attr(P + "velocity", "units", "g"), "velocity", "speed"),
         ("radius-units-speed", set_attr(P + "radius", "units", "km/s"), "radius"),
         ("density-units-length", set_attr(P + "density", "units", "cm"), "density"),
@@ -252,6 +290,9 @@ RESULT_DAMAGES = {
          "terminal_velocity"),
         ("mass-loss-rate-negative", set_attr("summary", "mass_loss_rate", -1e21),
          "mass_loss_rate"),
+        ("critical-radius-nan", change_values("critical_points/radius", _first_nan),
+         "critical_points/radius"),
+        ("radius-overflows-cgs", _radius_overflows, "radius"),
     ],
     "result: kind": [
         ("kind-stamp-unknown", set_attr("/", "model", "banana"), "banana"),
@@ -287,6 +328,9 @@ FAMILY_DAMAGES = [
     ("nan-in-converged-member", change_values("table/photosphere_radius", _first_nan),
      "photosphere_radius"),
     ("kind-stamp-unknown", set_attr("/", "model", "banana"), "banana"),
+    ("status-numbers", replace("table/status", with_data(lambda a: np.zeros(len(a)))),
+     "status"),
+    ("no-rows", _no_rows, "/table"),
 ]
 FAMILY_COMMANDS = {
     "inspect": lambda c, p: ["inspect", p],
@@ -317,6 +361,9 @@ SWEEP_DAMAGES = [
     ("nan-in-converged-row", change_values("table/mass_loss_rate", _first_nan),
      "mass_loss_rate"),
     ("axis-inf", change_values("table/star.luminosity", _first_inf), "star.luminosity"),
+    ("converged-text", replace("table/converged", with_data(
+        lambda a: np.array(["yes"] * len(a), dtype=h5py.string_dtype()))), "converged"),
+    ("no-rows", _no_rows, "/table"),
 ]
 SWEEP_COMMANDS = {
     "inspect": lambda c, p: ["inspect", p],

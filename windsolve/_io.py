@@ -101,13 +101,22 @@ def require_kind(f, path, kind, command_hint=""):
         raise OutputError(f"{path} is {KINDS[found]}, not {KINDS[kind]}{command_hint}")
 
 
+def _member(g, name, path, where, what):
+    """``g[name]``, or an OutputError saying that it is missing (or a broken link)."""
+    if name not in g:
+        hint = "; the file is incomplete or not written by windsolve" if what == "group" else ""
+        raise OutputError(f"{path}: no {where} {what}{hint}")
+    try:
+        return g[name]
+    except (KeyError, OSError):
+        raise OutputError(f"{path}: {where} is a link to nothing (a broken soft or external "
+                          f"link); the file is damaged") from None
+
+
 def group(f, name, path):
     """The HDF5 group ``name`` of ``f``; OutputError if absent or a dataset."""
     import h5py
-    if name not in f:
-        raise OutputError(f"{path}: no /{name} group; the file is incomplete or not written "
-                          f"by windsolve")
-    g = f[name]
+    g = _member(f, name, path, f"/{name}", "group")
     if not isinstance(g, h5py.Group):
         raise OutputError(f"{path}: /{name} is a dataset where a group should be")
     return g
@@ -121,9 +130,7 @@ def column(g, name, path, length=None, text=False):
     """
     import h5py
     where = f"{g.name.rstrip('/')}/{name}"
-    if name not in g:
-        raise OutputError(f"{path}: no {where} dataset")
-    d = g[name]
+    d = _member(g, name, path, where, "dataset")
     if not isinstance(d, h5py.Dataset):
         raise OutputError(f"{path}: {where} is a group where a dataset should be")
     if d.ndim != 1:
@@ -177,11 +184,21 @@ def dataset_unit(g, name, path, expected=None):
     return parse_unit(d.attrs["units"], path, where, expected)
 
 
-def check_values(values, path, where, unit, positive=False, allow_nan=False):
+def check_values(values, path, where, unit, positive=False, allow_nan=False, cgs=None):
     """OutputError unless ``values`` (in ``unit``) are finite (or NaN where allowed), > 0
-    when ``positive``, and slower than light when they are speeds."""
+    when ``positive``, slower than light when they are speeds, and still finite in the
+    unit ``cgs`` (the unit the code computes in) when one is given."""
     import astropy.units as u
     values = np.asarray(values, dtype=np.float64)  # a 0-d array for one attribute
+    if cgs is not None and unit != cgs:
+        with np.errstate(over="ignore", invalid="ignore"):
+            converted = values * unit.to(cgs)
+        over = np.isfinite(values) & ~np.isfinite(converted)
+        if over.any():
+            i = int(np.flatnonzero(over)[0])
+            raise OutputError(f"{path}: {where} = {float(values.flat[i]):.6g} "
+                              f"{unit.to_string()} is too large to compute with "
+                              f"(beyond 1.8e308 {u.Unit(cgs).to_string()})")
     bad = ~np.isfinite(values)
     if allow_nan:
         bad &= ~np.isnan(values)

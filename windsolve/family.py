@@ -132,6 +132,9 @@ class FamilyResult:
             model = stored_model(f, path)
             g = group(f, "table", path)
             n = column(g, scan, path).size
+            if n == 0:
+                raise OutputError(f"{path}: /table has no rows (a family has at least one "
+                                  f"member); the file is damaged")
             converged = column(g, "converged", path, n).astype(bool)
             status = column(g, "status", path, n, text=True)
             message = (column(g, "message", path, n, text=True) if "message" in g
@@ -144,7 +147,8 @@ class FamilyResult:
                 values = column(g, key, path, n)
                 unit = dataset_unit(g, key, path, expected)
                 where = f"/table/{key}"
-                check_values(values, path, where, unit, positive=True, allow_nan=True)
+                check_values(values, path, where, unit, positive=True, allow_nan=True,
+                             cgs=expected)
                 if key in REQUIRED and np.isnan(values[converged]).any():
                     i = int(np.flatnonzero(converged & np.isnan(values))[0])
                     raise OutputError(f"{path}: {where} is NaN at index {i}, a converged "

@@ -295,11 +295,14 @@ def read_result(path, cls=None):
             unit = (parse_unit(units[key], path, where, expected) if key in units
                     else expected)
             check_values(value, path, where, unit, positive=key in SUMMARY_POSITIVE,
-                         allow_nan=True)
+                         allow_nan=True, cgs=expected)
             summary[key] = float(value) * unit
         profile = {}
         if len(p):
             n = column(p, "radius", path).size
+            if converged and n < 3:
+                raise OutputError(f"{path}: /profile/radius has {n} points; a converged "
+                                  f"result's profile has at least 3")
             for key in ("radius", "velocity", "density", *p.keys()):
                 if key in profile:
                     continue
@@ -309,7 +312,8 @@ def read_result(path, cls=None):
                 # (an opacity off its table); the flow itself is always there.
                 check_values(values, path, f"/profile/{key}", unit,
                              positive=key in PROFILE_POSITIVE,
-                             allow_nan=not converged and key not in PROFILE_FLOW)
+                             allow_nan=not converged and key not in PROFILE_FLOW,
+                             cgs=PROFILE_UNITS.get(key))
                 profile[key] = values * unit
             if n and not np.all(np.diff(profile["radius"].value) > 0):
                 i = int(np.flatnonzero(~(np.diff(profile["radius"].value) > 0))[0])

@@ -799,6 +799,9 @@ def read_sweep_table(path):
         axes = _axes_attr(f, path)
         g = group(f, "table", path)
         n = column(g, "converged", path).size
+        if n == 0:
+            raise OutputError(f"{path}: /table has no rows (a sweep has at least one model); "
+                              f"the file is damaged")
         table = {"converged": column(g, "converged", path, n).astype(bool)}
         table["status"] = column(g, "status", path, n, text=True)
         for key in (*axes, *SWEEP_REQUIRED, *g.keys()):
@@ -813,7 +816,7 @@ def read_sweep_table(path):
             where = f"/table/{key}"
             unit = dataset_unit(g, key, path, known.get(key))
             check_values(values, path, where, unit, positive=key in SUMMARY_POSITIVE,
-                         allow_nan=key not in axes)
+                         allow_nan=key not in axes, cgs=known.get(key))
             if key in known and unit != known[key]:
                 values = values * unit.to(known[key])
             if key in SWEEP_REQUIRED and np.isnan(values[table["converged"]]).any():
