@@ -300,6 +300,13 @@ RESULT_DAMAGES = {
         ("kind-stamp-a-number", set_attr("/", "model", 7), "model"),
     ],
 }
+# Damages only compare cares about (a result may lack v_inf; comparing it with one may not).
+COMPARE_DAMAGES = [
+    ("terminal-velocity-missing", del_attr("summary", "terminal_velocity"),
+     "terminal_velocity"),
+    ("terminal-velocity-nan", set_attr("summary", "terminal_velocity", np.nan),
+     "terminal_velocity"),
+]
 RESULT_COMMANDS = {
     "inspect": lambda c, p: ["inspect", p],
     "plot": lambda c, p: ["plot", p],
@@ -447,6 +454,9 @@ for kind, damages in RESULT_DAMAGES.items():
         for verb, argv in RESULT_COMMANDS.items():
             CASES.append(Case(f"{verb}-{id}", kind, (lambda a, m: lambda c: a(c, m(c)))(
                 argv, _damage_case("result", edit)), (BAD, *fragments)))
+for id, edit, *fragments in COMPARE_DAMAGES:
+    CASES.append(Case(f"compare-{id}", "result: values", (lambda m: lambda c: [
+        "compare", m(c), c.csv(OBSERVED)])(_damage_case("result", edit)), (BAD, *fragments)))
 for id, edit, *fragments in FAMILY_DAMAGES:
     for verb, argv in FAMILY_COMMANDS.items():
         CASES.append(Case(f"family-{verb}-{id}", "family file", (lambda a, m: lambda c: a(
@@ -551,6 +561,25 @@ def test_result_without_complete_model_is_read(damage, tmp_path, capsys, sources
     assert (code, err) == (0, "") and (tmp_path / "p.png").stat().st_size > 0
     code, out, err = _run(["inspect", bad], capsys)
     assert (code, err) == (0, "") and "velocity" in out
+
+
+def _only_the_flow(f):
+    for key in list(f["profile"]):
+        if key not in ("radius", "velocity", "density"):
+            del f["profile"][key]
+
+
+def test_result_with_only_the_flow_is_read(tmp_path, capsys, sources):
+    """A profile of radius, velocity and density alone (all a file from another program
+    needs): plot draws the panels it has, lines computes the line."""
+    ctx = Ctx(tmp_path, sources)
+    bad = ctx.damaged("result", _only_the_flow)
+    code, out, err = _run(["plot", bad, "-o", tmp_path / "p.png"], capsys)
+    assert (code, err) == (0, ""), err
+    assert (tmp_path / "p.png").stat().st_size > 0
+    code, out, err = _run(["lines", bad], capsys)
+    assert (code, err) == (0, ""), err
+    assert "FWHM" in out
 
 
 def _in_units(name, unit, factor):

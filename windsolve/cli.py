@@ -418,6 +418,11 @@ def cmd_compare(args):
         result = WindResult.from_hdf5(args.file)
         if not result.converged:
             raise WindsolveError(f"{args.file}: the model did not converge ({result.message})")
+        v_inf = result.summary.get("terminal_velocity")
+        if (any(o.quantity == "terminal_velocity" for o in observations)
+                and (v_inf is None or not np.isfinite(v_inf.value))):
+            raise WindsolveError(f"{args.file}: /summary has no terminal_velocity to compare "
+                                 f"with the observed one")
         rows, chi2 = compare_result(result, observations, _line_settings(args))
         print(f"{args.file} against {args.observed} ({observations[0].object})")
         print(f"  {'quantity':<28s} {'observed [km/s]':>16s} {'model [km/s]':>13s} "

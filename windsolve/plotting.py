@@ -56,10 +56,14 @@ def plot_profile(result, path=None):
     if "optical_depth" in p:
         panels.append(("temperature", u.K, "temperature  T  [K]", "log"))
         panels.append(("optical_depth", u.one, r"optical depth  $\tau$", "log"))
+    # A file written by another program may hold only radius, velocity and density.
+    panels = [panel for panel in panels if panel[0] in p]
     ncols = 2
     nrows = (len(panels) + 1) // 2
     fig, axes = plt.subplots(nrows, ncols, figsize=(10, 3.2 * nrows), sharex=True,
-                             constrained_layout=True)
+                             constrained_layout=True, squeeze=False)
+    for ax in axes.flat[len(panels):]:
+        ax.set_visible(False)
     for ax, (key, unit, label, scale) in zip(axes.flat, panels, strict=False):
         y = p[key].to_value(unit)
         ax.plot(r, y, color="#1f4e79", lw=1.6)
