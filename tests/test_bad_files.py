@@ -201,6 +201,11 @@ def _no_rows(f):
         f["table"][key].attrs.update(attrs)
 
 
+def _isothermal_family(f):
+    f.attrs["model_toml"] = Path(str(demo_model_path())).read_text(encoding="utf-8")
+    f.attrs["model"] = "isothermal"
+
+
 def _summary_dataset(f):
     del f["summary"]
     f.create_dataset("summary", data=[1.0])
@@ -266,6 +271,7 @@ RESULT_DAMAGES = {
          "velocity", "speed of light"),
         ("summary-units-not-json", set_attr("summary", "units", "{mass_loss_rate: g/s"),
          "units"),
+        ("summary-unit-a-number", _summary_units(mass_loss_rate=5), "mass_loss_rate"),
         ("summary-units-not-a-unit", _summary_units(mass_loss_rate="bananas"),
          "mass_loss_rate", "bananas"),
         ("summary-units-wrong-dimension", _summary_units(terminal_velocity="g"),
@@ -284,6 +290,7 @@ RESULT_DAMAGES = {
         ("temperature-negative", change_values(P + "temperature", _negative_at_3),
          "temperature"),
         ("opacity-nan", change_values(P + "opacity", _nan_at_3), "opacity"),
+        ("opacity-negative", change_values(P + "opacity", _negative_at_3), "opacity"),
         ("eddington-factor-inf", change_values(P + "eddington_factor", _inf_at_3),
          "eddington_factor"),
         ("terminal-velocity-inf", set_attr("summary", "terminal_velocity", np.inf),
@@ -338,6 +345,7 @@ FAMILY_DAMAGES = [
     ("status-numbers", replace("table/status", with_data(lambda a: np.zeros(len(a)))),
      "status"),
     ("no-rows", _no_rows, "/table"),
+    ("model-isothermal", _isothermal_family, "model_toml"),
 ]
 FAMILY_COMMANDS = {
     "inspect": lambda c, p: ["inspect", p],
@@ -588,6 +596,30 @@ def _in_units(name, unit, factor):
         f[name][...] = f[name][()] * factor
         f[name].attrs["units"] = unit
     return edit
+
+
+def _as_other_programs_write(f):
+    """Attributes as one-element arrays and fixed-length byte strings (as h5py writes
+    numpy.bytes_, and as many C and Fortran programs write text)."""
+    for d in f["profile"].values():
+        d.attrs["units"] = np.bytes_(d.attrs["units"])
+    s = f["summary"].attrs
+    for key in ("converged", "mass_loss_rate", "terminal_velocity", "sonic_radius",
+                "sonic_velocity"):
+        s[key] = np.array([s[key]])
+    s["status"] = np.bytes_(s["status"])
+    s["units"] = np.bytes_(s["units"])
+
+
+def test_result_with_array_and_byte_attributes_is_read(tmp_path, capsys, sources):
+    ctx = Ctx(tmp_path, sources)
+    bad = ctx.damaged("result", _as_other_programs_write)
+    observed = ctx.csv(OBSERVED)
+    for argv in (["lines", "{}"], ["compare", "{}", observed]):
+        want = _run([a.format(sources.get("result")) for a in argv], capsys)
+        got = _run([a.format(bad) for a in argv], capsys)
+        assert (got[0], got[2]) == (0, ""), got[2]
+        assert _answer(got[1]) == _answer(want[1])
 
 
 def test_result_in_other_units_gives_the_same_lines(tmp_path, capsys, sources):

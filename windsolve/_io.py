@@ -155,6 +155,7 @@ def parse_unit(text, path, where, expected=None):
     """An astropy unit from a ``units`` attribute; OutputError if it is not a unit of the
     dimension of ``expected``."""
     import astropy.units as u
+    text = plain(text)
     if isinstance(text, bytes):
         text = text.decode(errors="replace")
     if not isinstance(text, str):
@@ -184,7 +185,8 @@ def dataset_unit(g, name, path, expected=None):
     return parse_unit(d.attrs["units"], path, where, expected)
 
 
-def check_values(values, path, where, unit, positive=False, allow_nan=False, cgs=None):
+def check_values(values, path, where, unit, positive=False, allow_nan=False, cgs=None,
+                 nonnegative=False):
     """OutputError unless ``values`` (in ``unit``) are finite (or NaN where allowed), > 0
     when ``positive``, slower than light when they are speeds, and still finite in the
     unit ``cgs`` (the unit the code computes in) when one is given."""
@@ -214,6 +216,11 @@ def check_values(values, path, where, unit, positive=False, allow_nan=False, cgs
         at = f" at index {i}" if values.ndim else ""
         raise OutputError(f"{path}: {where} = {float(values.flat[i]):.6g}{at}; it must "
                           f"be > 0")
+    if nonnegative and ok.size and not np.all(ok >= 0):
+        i = int(np.flatnonzero(np.isfinite(values) & ~(values >= 0))[0])
+        at = f" at index {i}" if values.ndim else ""
+        raise OutputError(f"{path}: {where} = {float(values.flat[i]):.6g}{at}; it must "
+                          f"be >= 0")
     if ok.size and unit.is_equivalent(u.cm / u.s):
         fastest = float(np.max(np.abs(ok)) * unit.to(u.cm / u.s))
         if fastest >= C_CGS:
@@ -222,7 +229,10 @@ def check_values(values, path, where, unit, positive=False, allow_nan=False, cgs
 
 
 def plain(value):
-    """A numpy scalar as the Python value it holds (for messages)."""
+    """A numpy scalar (or one-element array, as some programs write attributes) as the
+    Python value it holds."""
+    if isinstance(value, np.ndarray) and value.size == 1:
+        value = value.reshape(()).item()
     return value.item() if isinstance(value, np.generic) else value
 
 
@@ -232,7 +242,7 @@ def text_attr(attrs, key, path, where, default=None):
         if default is None:
             raise OutputError(f"{path}: {where} has no {key} attribute")
         return default
-    value = attrs[key]
+    value = plain(attrs[key])
     if isinstance(value, bytes):
         value = value.decode(errors="replace")
     if not isinstance(value, str):

@@ -130,6 +130,10 @@ class FamilyResult:
                 raise OutputError(f"{path}: the family_scan attribute is \"{scan}\", not one of "
                                   f"{', '.join(SCANS)}")
             model = stored_model(f, path)
+            if model is not None and getattr(model, "anchor", None) != "photosphere":
+                raise OutputError(f"{path}: the stored model (model_toml) is not a "
+                                  f"photosphere-anchored diffusion model, as every family's "
+                                  f"is; the file is damaged")
             g = group(f, "table", path)
             n = column(g, scan, path).size
             if n == 0:

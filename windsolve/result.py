@@ -203,6 +203,8 @@ class WindResult:
 
 PROFILE_POSITIVE = ("radius", "velocity", "density", "temperature")
 PROFILE_FLOW = ("radius", "velocity", "density")
+PROFILE_NONNEGATIVE = ("opacity", "optical_depth")
+PROFILE_NONNEGATIVE_CONVERGED = ("luminosity", "eddington_factor")  # photon tiring: L -> 0
 SUMMARY_POSITIVE = ("mass_loss_rate", "sonic_radius", "sonic_velocity", "photosphere_radius",
                     "photosphere_temperature", "outer_radius", "sonic_temperature",
                     "base_radius", "base_temperature", "base_density")
@@ -270,8 +272,8 @@ def read_result(path, cls=None):
             if key not in g.attrs:
                 raise OutputError(f"{path}: /summary has no {key} attribute; the file is "
                                   f"incomplete")
-        converged = g.attrs["converged"]
-        if not isinstance(plain(converged), (bool, int)):
+        converged = plain(g.attrs["converged"])
+        if not isinstance(converged, (bool, int)):
             raise OutputError(f"{path}: the converged attribute of /summary is "
                               f"{plain(converged)!r}, not true or false")
         status = text_attr(g.attrs, "status", path, "/summary")
@@ -313,7 +315,9 @@ def read_result(path, cls=None):
                 check_values(values, path, f"/profile/{key}", unit,
                              positive=key in PROFILE_POSITIVE,
                              allow_nan=not converged and key not in PROFILE_FLOW,
-                             cgs=PROFILE_UNITS.get(key))
+                             cgs=PROFILE_UNITS.get(key),
+                             nonnegative=key in PROFILE_NONNEGATIVE or (
+                                 converged and key in PROFILE_NONNEGATIVE_CONVERGED))
                 profile[key] = values * unit
             if n and not np.all(np.diff(profile["radius"].value) > 0):
                 i = int(np.flatnonzero(~(np.diff(profile["radius"].value) > 0))[0])
@@ -333,7 +337,7 @@ def read_result(path, cls=None):
                     "slope_minus": float(slopes["slope_minus"][i])} for i in range(n)]
         counters = {}
         for key, name, kind in (("shots", "shots", int), ("seconds", "solve_seconds", float)):
-            value = plain(g.attrs.get(name, 0))
+            value = plain(g.attrs.get(name, 0))  # counters: informative only
             counters[key] = kind(value) if isinstance(value, (int, float)) else kind(0)
         return cls(model=model, converged=bool(converged), status=status, message=message,
                    summary=summary, profile=profile, critical_points=cps, counters=counters)
