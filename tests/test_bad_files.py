@@ -346,6 +346,8 @@ FAMILY_DAMAGES = [
      "status"),
     ("no-rows", _no_rows, "/table"),
     ("model-isothermal", _isothermal_family, "model_toml"),
+    ("extra-group-in-table", lambda f: f["table"].create_group("notes"), "/table/notes"),
+    ("extra-column-shorter", lambda f: f["table"].create_dataset("x", data=[1.0]), "/table/x"),
 ]
 FAMILY_COMMANDS = {
     "inspect": lambda c, p: ["inspect", p],
@@ -378,6 +380,7 @@ SWEEP_DAMAGES = [
     ("axis-inf", change_values("table/star.luminosity", _first_inf), "star.luminosity"),
     ("converged-text", replace("table/converged", with_data(
         lambda a: np.array(["yes"] * len(a), dtype=h5py.string_dtype()))), "converged"),
+    ("extra-group-in-table", lambda f: f["table"].create_group("notes"), "/table/notes"),
     ("no-rows", _no_rows, "/table"),
 ]
 SWEEP_COMMANDS = {
@@ -440,7 +443,7 @@ FILE_DAMAGES = [
     ("zero-bytes", _empty_file, "HDF5"),
     ("empty-hdf5", _empty_hdf5, "windsolve"),
     ("hdf5-of-another-program", _hdf5_with_other_data, "windsolve"),
-    ("truncated-hdf5", _truncated, "HDF5"),
+    ("truncated-hdf5", _truncated, "truncated"),
     ("a-directory", _directory, "directory"),
     ("no-such-file", _missing, "no such file"),
 ]
@@ -519,6 +522,27 @@ def test_bad_file_subprocess(case_id, tmp_path, sources):
                           text=True, cwd=tmp_path, env=env, timeout=120)
     assert problems(proc.returncode, proc.stdout, proc.stderr, [], before,
                     files_under(tmp_path), c.fragments) == [], proc.stderr
+
+
+@pytest.mark.slow
+@pytest.mark.skipif(os.environ.get("HDF5_USE_FILE_LOCKING", "").upper() == "FALSE",
+                    reason="HDF5 file locking is switched off")
+def test_file_open_for_writing_elsewhere_subprocess(tmp_path):
+    """A file another process holds open for writing is locked (HDF5 file locking): one
+    line saying so, not "not an HDF5 file"."""
+    path = tmp_path / "busy.h5"
+    writer = subprocess.Popen([sys.executable, "-c", (
+        f"import h5py, sys, time\nf = h5py.File({str(path)!r}, 'w')\n"
+        f"f.create_group('summary')\nf.flush()\nprint('open', flush=True)\n"
+        f"sys.stdin.read()\n")], stdin=subprocess.PIPE, stdout=subprocess.PIPE, text=True)
+    try:
+        assert writer.stdout.readline().strip() == "open"
+        proc = subprocess.run([sys.executable, "-m", "windsolve", "inspect", str(path)],
+                              capture_output=True, text=True, cwd=tmp_path, timeout=120)
+    finally:
+        writer.communicate("", timeout=60)
+    assert problems(proc.returncode, proc.stdout, proc.stderr, [], [], [],
+                    ("busy.h5", "open for writing")) == [], proc.stderr
 
 
 # -- a file with less than windsolve writes is read for what it has -------------------------------

@@ -61,9 +61,19 @@ def open_hdf5(path):
         raise OutputError(f"{path} is a directory, not an HDF5 file")
     try:
         return h5py.File(path, "r")
-    except OSError:
-        raise OutputError(f"{path}: not an HDF5 file (or a damaged or truncated one); give a "
-                          f"result, family or sweep file written by windsolve") from None
+    except OSError as error:
+        text = str(error)
+        fix = "give a result, family or sweep file written by windsolve"
+        if "errno = 13" in text or isinstance(error, PermissionError):
+            why, fix = "cannot read it (permission denied)", "check its permissions"
+        elif "truncated" in text:
+            why = "a truncated HDF5 file (cut short while it was written or copied)"
+        elif "unable to lock" in text.lower():
+            why = "another program has it open for writing (the file is locked)"
+            fix = "wait until that program has finished, then try again"
+        else:
+            why = "not an HDF5 file (or a damaged one)"
+        raise OutputError(f"{path}: {why}; {fix}") from None
 
 
 # -- reading: every check of a file's layout, units and values lives here ---------------

@@ -143,6 +143,10 @@ class FamilyResult:
             status = column(g, "status", path, n, text=True)
             message = (column(g, "message", path, n, text=True) if "message" in g
                        else np.array([""] * n))
+            for key in g:  # every column one-dimensional and as long as the scan
+                d = g[key] if key in g else None
+                text = getattr(d, "dtype", None) is not None and d.dtype.kind in "OSU"
+                column(g, key, path, n, text=text)
             cols = {}
             for key in dict.fromkeys([scan, *COLUMNS]):
                 if key not in g:
