@@ -323,6 +323,7 @@ def read_result(path, cls=None):
                 i = int(np.flatnonzero(~(np.diff(profile["radius"].value) > 0))[0])
                 raise OutputError(f"{path}: /profile/radius does not increase at index {i + 1} "
                                   f"(it must increase strictly); the file is damaged")
+        _check_continuity(path, profile, summary.get("mass_loss_rate"))
         cps = []
         if "critical_points" in f:
             c = group(f, "critical_points", path)
@@ -341,6 +342,34 @@ def read_result(path, cls=None):
             counters[key] = kind(value) if isinstance(value, (int, float)) else kind(0)
         return cls(model=model, converged=bool(converged), status=status, message=message,
                    summary=summary, profile=profile, critical_points=cps, counters=counters)
+
+
+CONTINUITY_RTOL = 0.05  # windsolve's own profiles hold 4 pi r^2 rho v = Mdot to roundoff
+
+
+def _check_continuity(path, profile, mdot):
+    """OutputError unless 4 pi r^2 rho v along the profile is the stated mass-loss rate.
+
+    Continuity holds to roundoff in every profile windsolve writes; a mismatch means a
+    units attribute (of radius, velocity, density or the mass-loss rate) that does not
+    describe its numbers (e.g. velocities in cm/s labelled m/s), which the dimension check
+    cannot see.
+    """
+    if mdot is None or not np.isfinite(mdot.value) or "radius" not in profile:
+        return
+    r, v, rho = (profile[k].to_value(PROFILE_UNITS[k]) for k in ("radius", "velocity",
+                                                                  "density"))
+    if r.size == 0:
+        return
+    with np.errstate(over="ignore", invalid="ignore"):
+        ratio = 4.0 * np.pi * r**2 * rho * v / mdot.to_value(SUMMARY_UNITS["mass_loss_rate"])
+    bad = ~(np.abs(ratio - 1.0) <= CONTINUITY_RTOL)
+    if bad.any():
+        i = int(np.flatnonzero(bad)[0])
+        raise OutputError(f"{path}: 4 pi r^2 rho v from /profile is {ratio[i]:.4g} times the "
+                          f"/summary mass_loss_rate at index {i}; a units attribute of "
+                          f"/profile/radius, velocity or density (or of the mass-loss rate) "
+                          f"does not describe its numbers")
 
 
 def read_windsolve_file(path):
