@@ -387,6 +387,7 @@ SWEEP_DAMAGES = [
     ("axis-inf", change_values("table/star.luminosity", _first_inf), "star.luminosity"),
     ("converged-text", replace("table/converged", with_data(
         lambda a: np.array(["yes"] * len(a), dtype=h5py.string_dtype()))), "converged"),
+    ("kind-stamp-unknown", set_attr("/", "model", "banana"), "banana"),
     ("extra-group-in-table", lambda f: f["table"].create_group("notes"), "/table/notes"),
     ("no-rows", _no_rows, "/table"),
 ]

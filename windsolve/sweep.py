@@ -789,13 +789,18 @@ def read_sweep_table(path):
     """
     import astropy.units as u
 
-    from ._io import check_values, column, dataset_unit, group, open_hdf5, require_kind
+    from ._io import check_values, column, dataset_unit, group, open_hdf5, require_kind, text_attr
     from .errors import OutputError
+    from .models import MODELS
     from .result import SUMMARY_POSITIVE, SUMMARY_UNITS
 
     known = dict(SUMMARY_UNITS, seconds=u.s, **{k: u.cm / u.s for k in WIDTH_COLUMNS})
     with open_hdf5(path) as f:
         require_kind(f, path, "sweep", "; compare and plot read it as a whole")
+        kind = text_attr(f.attrs, "model", path, "the file", default="")
+        if "model" in f.attrs and kind not in MODELS:
+            raise OutputError(f"{path}: the model attribute is \"{kind}\", not a windsolve "
+                              f"model kind (one of: {', '.join(MODELS)})")
         axes = _axes_attr(f, path)
         g = group(f, "table", path)
         n = column(g, "converged", path).size
