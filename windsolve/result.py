@@ -247,8 +247,11 @@ def read_result(path, cls=None):
     The one reader of result files: the layout (groups, 1-D numeric datasets of
     one length), the units (each a unit of the right dimension), the values
     (finite, radius strictly increasing, radius, velocity, density and
-    temperature > 0, every speed below the speed of light) and the model stamp.
-    Raises a one-line OutputError naming the file and the dataset or attribute.
+    temperature > 0, opacity and optical depth >= 0, every speed below the speed
+    of light, continuity 4 pi r^2 rho v = Mdot) and the model stamp.  Only
+    /summary (converged, status) and /profile radius, velocity and density are
+    required.  Raises a one-line OutputError naming the file and the dataset or
+    attribute.
     """
     from ._io import (
         check_values,
