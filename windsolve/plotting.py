@@ -75,7 +75,7 @@ def plot_profile(result, path=None):
         ax.grid(True, which="both", alpha=0.25)
         if np.isfinite(rc):
             ax.axvline(rc, color="#b03a2e", ls="--", lw=1.0, label="sonic point")
-            if key == "velocity":
+            if key == "velocity" and "sonic_velocity" in result.summary:
                 a = result.summary["sonic_velocity"].to_value(u.km / u.s)
                 ax.plot([rc], [a], "o", color="#b03a2e", ms=5)
         if key == "eddington_factor":
