@@ -23,6 +23,7 @@ order, so a resumed sweep gives the same table as an uninterrupted one.
 import hashlib
 import itertools
 import json
+import logging
 import math
 import operator
 import os
@@ -777,16 +778,17 @@ def _run_locked(sweep, out, workers, scheduler, resume, quiet, stall_timeout):
     converged = sum(1 for r in done.values() if r.get("converged"))
     interrupted = False
     aborted = True  # until the loop ends normally or by Ctrl-C
+    pending = set()
     # Wake up at least once a second (and ten times within a short stall
     # timeout) to notice and report a sweep in which nothing finishes.
     tick = 1.0 if stall_timeout is None else min(1.0, max(0.05, stall_timeout / 10))
+    report = 5.0 if stall_timeout is None else min(5.0, stall_timeout / 2)  # [s] of no progress
     try:
         with open(journal, "a", encoding="utf-8") as jf:
             if jf.tell() == 0:
                 jf.write(json.dumps({"sweep": design, "rows": len(sweep),
                                      "windsolve": __version__}) + "\n")
                 jf.flush()
-            pending = set()
             queue = iter(batches)
             synced = progressed = time.monotonic()
             stalled_shown = 0
@@ -815,8 +817,8 @@ def _run_locked(sweep, out, workers, scheduler, resume, quiet, stall_timeout):
                                 f"{len(done)} models finished so far are kept in {journal}: "
                                 f"rerun with --resume once it runs, or allow longer with "
                                 f"--stall-timeout SECONDS")
-                        if bar is not None and idle >= 5 and int(idle) // 5 != stalled_shown:
-                            stalled_shown = int(idle) // 5
+                        if bar is not None and int(idle / report) > stalled_shown:
+                            stalled_shown = int(idle / report)
                             bar.set_postfix_str(f"no model finished for {idle:.0f} s "
                                                 f"({describe()})")
                         continue
@@ -849,14 +851,12 @@ def _run_locked(sweep, out, workers, scheduler, resume, quiet, stall_timeout):
             except KeyboardInterrupt:
                 interrupted, aborted = True, False
             finally:
-                for fut in pending:
-                    fut.cancel()
                 jf.flush()
                 os.fsync(jf.fileno())
     finally:
         if bar is not None:
             bar.close()  # before any error line is printed
-        close(abort=aborted)
+        close(pending, abort=aborted)
     if interrupted:
         return done, True
     write_sweep_table(sweep, done, out)
@@ -875,9 +875,10 @@ def _default_batch(kind, n_todo, workers, scheduler):
 def _executor(workers, scheduler):
     """(executor, close, describe): a local process pool or a dask cluster's executor.
 
-    ``close(abort)`` shuts it down (``abort``: also end our local workers now,
-    e.g. a stuck one; a dask cluster's workers are not ours to end);
-    ``describe()`` says in a few words what runs the sweep (for stall reports).
+    ``close(pending, abort)`` cancels the futures still pending and shuts the
+    executor down (``abort``: also end our local workers now, e.g. a stuck
+    one; a dask cluster's workers are not ours to end); ``describe()`` says
+    in a few words what runs the sweep (for stall reports).
     """
     if scheduler is not None:
         try:
@@ -898,7 +899,25 @@ def _executor(workers, scheduler):
                 return f"the dask scheduler at {scheduler} does not answer"
             return f"the dask scheduler at {scheduler} has {n} worker{'s' * (n != 1)}"
 
-        return client.get_executor(), lambda abort=False: client.close(), describe
+        # The client's own log lines ("Couldn't gather keys, rescheduling" when
+        # a worker dies) would land on the progress bar's line; what they mean
+        # is reported by the stall check.  Back to the user's level on close.
+        # Closing the client cancels the futures still pending, for which
+        # dask's executor logs a traceback each ("Exception in callback ...
+        # FutureCancelledError"): quiet too while the sweep runs and closes.
+        quiet_loggers = {name: logging.getLogger(name).level
+                         for name in ("distributed", "distributed.client", "tornado.application")}
+        for name in quiet_loggers:
+            logging.getLogger(name).setLevel(logging.CRITICAL)
+
+        def close(pending=(), abort=False):
+            try:
+                client.close()
+            finally:
+                for name, level in quiet_loggers.items():
+                    logging.getLogger(name).setLevel(level)
+
+        return client.get_executor(), close, describe
     import multiprocessing
     from concurrent.futures import ProcessPoolExecutor
     n = workers or os.cpu_count() or 1
@@ -907,7 +926,9 @@ def _executor(workers, scheduler):
     pool = ProcessPoolExecutor(max_workers=n, mp_context=multiprocessing.get_context("spawn"),
                                initializer=_worker_init, initargs=(os.getpid(),))
 
-    def close(abort=False):
+    def close(pending=(), abort=False):
+        for fut in pending:
+            fut.cancel()
         if abort:  # a stuck worker would keep this process from exiting
             for process in list((getattr(pool, "_processes", None) or {}).values()):
                 process.terminate()
