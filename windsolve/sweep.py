@@ -18,6 +18,12 @@ second, so a machine that crashes loses at most about a second more), and
 ``--resume`` runs only the missing rows.  The HDF5 file is written at the end
 from the finished rows (under a temporary name, then renamed), in design
 order, so a resumed sweep gives the same table as an uninterrupted one.
+
+One run per output: the output is locked (``OUT.h5.lock``, fcntl.flock) for
+the whole run, every journal record carries a hash of the resolved design
+(a resume refuses rows of another sweep), local workers end when the sweep
+process dies, and a sweep in which nothing finishes for ``stall_timeout``
+seconds (a dask cluster without workers) stops with one line.
 """
 
 import hashlib
