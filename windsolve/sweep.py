@@ -35,7 +35,7 @@ import operator
 import os
 import sys
 import time
-from concurrent.futures import FIRST_COMPLETED, BrokenExecutor, wait
+from concurrent.futures import FIRST_COMPLETED, BrokenExecutor, CancelledError, wait
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -836,11 +836,17 @@ def _run_locked(sweep, out, workers, scheduler, resume, quiet, stall_timeout):
                             raise WindsolveError(
                                 f"a worker process died ({_one_line(error)}); the models "
                                 f"finished so far are kept: rerun with --resume") from None
-                        except Exception as error:  # noqa: BLE001 -- e.g. dask's KilledWorker
+                        except CancelledError:
                             raise WindsolveError(
-                                f"a task failed on the executor ({type(error).__name__}: "
-                                f"{_one_line(error)}); the models finished so far are kept "
-                                f"in {journal}: rerun with --resume") from None
+                                f"a task was cancelled by the executor ({describe()}: lost "
+                                f"the connection?); the models finished so far are kept in "
+                                f"{journal}: rerun with --resume") from None
+                        except Exception as error:  # noqa: BLE001 -- e.g. dask's KilledWorker
+                            why = ": ".join(filter(None, (type(error).__name__,
+                                                          _one_line(error))))
+                            raise WindsolveError(
+                                f"a task failed on the executor ({why}); the models finished "
+                                f"so far are kept in {journal}: rerun with --resume") from None
                         jf.write(text)
                         for record in records:
                             done[record["row"]] = record
@@ -899,10 +905,22 @@ def _executor(workers, scheduler):
                                  f"({error})") from None
 
         def describe():
-            try:
-                n = len(client.scheduler_info().get("workers", {}))
-            except Exception:  # noqa: BLE001 -- a report only
+            # Asked in a daemon thread: a scheduler that hangs must not hang the report.
+            answer = []
+
+            def ask():
+                try:
+                    answer.append(len(client.scheduler_info().get("workers", {})))
+                except Exception:  # noqa: BLE001 -- a report only
+                    pass
+
+            import threading
+            asking = threading.Thread(target=ask, daemon=True)
+            asking.start()
+            asking.join(timeout=3.0)
+            if not answer:
                 return f"the dask scheduler at {scheduler} does not answer"
+            n = answer[0]
             return f"the dask scheduler at {scheduler} has {n} worker{'s' * (n != 1)}"
 
         # The client's own log lines ("Couldn't gather keys, rescheduling" when
