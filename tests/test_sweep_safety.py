@@ -375,3 +375,40 @@ def test_stall_timeout_option_is_checked(capsys):
         assert len(err) == 1 and "--stall-timeout" in err[0], err
     with pytest.raises(windsolve.ModelError):
         run_sweep(None, "x.h5", stall_timeout=-1)
+
+
+@pytest.mark.slow
+@pytest.mark.skipif(not Path("/proc/self/stat").exists(), reason="needs /proc")
+def test_stuck_local_worker_stops_after_the_stall_timeout(tmp_path):
+    path = sweep_file(tmp_path, "s.toml")
+    out = tmp_path / "out.h5"
+    journal = tmp_path / "out.h5.partial"
+    proc = cli("sweep", path, "-o", out, "--workers", "1", "-q", "--stall-timeout", "2")
+    workers = []
+    try:
+        wait_for(lambda: records(journal) >= 2 or proc.poll() is not None, what="rows")
+        workers = [p for p in children_of(proc.pid)
+                   if "spawn_main" in Path(f"/proc/{p}/cmdline").read_text(errors="replace")]
+        if proc.poll() is not None or not workers:
+            pytest.skip("the sweep finished before its worker could be stopped")
+        os.kill(workers[0], signal.SIGSTOP)  # a worker that never answers again
+        kept = records(journal)
+        _, err = proc.communicate(timeout=60)  # ends: the stuck worker does not hold it
+        deadline = time.monotonic() + 5
+        while time.monotonic() < deadline and alive(workers[0]):
+            time.sleep(0.05)
+        left_stopped = alive(workers[0])
+    finally:
+        for p in workers:
+            if alive(p):
+                os.kill(p, signal.SIGKILL)
+        kill_group(proc)
+    assert proc.returncode == 2, err
+    line = one_error_line(err)
+    assert "no model finished in 2 s (1 local worker process)" in line and "--resume" in line
+    assert not out.exists() and records(journal) >= kept
+    assert not left_stopped  # ended by the sweep, not left behind
+    resume = cli("sweep", path, "-o", out, "--workers", "1", "-q", "--resume")
+    _, err = resume.communicate(timeout=120)
+    assert resume.returncode == 0, err
+    assert len(read_sweep_table(out)[0]["converged"]) == 200

@@ -955,7 +955,7 @@ def _executor(workers, scheduler):
             fut.cancel()
         if abort:  # a stuck worker would keep this process from exiting
             for process in list((getattr(pool, "_processes", None) or {}).values()):
-                process.terminate()
+                process.kill()  # SIGKILL: ends a stopped or stuck worker too
         pool.shutdown(wait=False, cancel_futures=True)
 
     return pool, close, lambda: f"{n} local worker process{'es' * (n != 1)}"
