@@ -12,7 +12,13 @@ import numpy as np
 
 from .core import isothermal as K
 from .core.critical import KIND_NAMES
-from .result import PROFILE_UNITS, SUMMARY_UNITS, WindResult
+from .result import (
+    HYDROSTATIC_EFOLDS,
+    PROFILE_UNITS,
+    SUMMARY_UNITS,
+    WindResult,
+    base_density_efolds,
+)
 
 __all__ = ["solve", "SOLVERS"]
 
@@ -268,6 +274,7 @@ def solve_isothermal_cgs(model, profile=True, critical=True, widths=None):
         "sonic_velocity": model.a,
         "outer_radius": model.cgs("outer_radius"),
         "base_eddington_factor": K.base_eddington_factor(P, O),
+        "base_density_efolds": nan,
     }
     out = {"converged": False, "summary": summary, "profile": {}, "critical": [],
            "counters": {"shots": int(shots)}}
@@ -301,6 +308,10 @@ def solve_isothermal_cgs(model, profile=True, critical=True, widths=None):
     summary["mass_loss_rate"] = math.exp(ln_mdot)
     summary["sonic_radius"] = rc
     summary["base_eddington_factor"] = float(gamma[0])
+    efolds = base_density_efolds(summary["mass_loss_rate"], rc, model.a,
+                                 model.cgs("base_density"))
+    summary["base_density_efolds"] = efolds
+    out["hydrostatic"] = bool(efolds > HYDROSTATIC_EFOLDS)
     if profile:
         out["profile"] = {"radius": r, "velocity": v, "density": rho, "luminosity": L,
                           "opacity": kappa, "eddington_factor": gamma}
@@ -327,6 +338,9 @@ def solve_isothermal_cgs(model, profile=True, critical=True, widths=None):
             out["widths"] = tuple(measured)
         message = (f"converged: transonic solution through the saddle at "
                    f"r_c = {rc / R0:.5g} R0")
+        if out["hydrostatic"]:
+            message += (f"; but the base lies {efolds:.4g} density e-folds below it (more "
+                        f"than {HYDROSTATIC_EFOLDS:g}): a hydrostatic atmosphere, not a wind")
     elif st_out == K.STALLED:
         status = "stalled"
         message = (f"photon tiring uses up the luminosity at r = {r_end:.5g} R0: the flow "
