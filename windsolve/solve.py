@@ -120,7 +120,8 @@ def _no_bracket_message(code, model, P, O, x):
     text = (f"no transonic solution: every mass-loss rate with a saddle point "
             f"({math.exp(lo) / MSUN_YR:.4g} to {math.exp(hi) / MSUN_YR:.4g} Msun/yr, "
             f"sonic point at {np.nanmin(rc) / R0:.4g} to {np.nanmax(rc) / R0:.4g} R0) gives a "
-            f"base density {side} base_density, by a factor {times} at the nearest")
+            f"base density {side} base_density, by a factor of {'at least ' if dense else ''}"
+            f"{times} at the nearest")
     outside = []
     if c_lo in _EDGE_WORDS:
         outside.append(f"below that range {_EDGE_WORDS[c_lo]}")
