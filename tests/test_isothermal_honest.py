@@ -324,3 +324,15 @@ def test_sweep_table_has_the_hydrostatic_column(tmp_path):
     assert list(table["converged"]) == [True, True]
     assert list(table["hydrostatic"]) == [True, False]
     assert table["base_density_efolds"][0] > 30 > table["base_density_efolds"][1]
+
+
+def test_porous_model_unbound_at_the_sonic_density_is_not_told_to_add_porosity():
+    # The demo already has porosity; with rho0 = 1e-14 g/cm3 every sonic density is too thin
+    # for the clumps to matter (tau_b = kappa rho h0 < 1e-2), so the base is unbound.
+    model = windsolve.load_model(windsolve.demo_model_path()).replace(
+        base_density=1e-14 * u.g / u.cm**3)
+    assert KAPPA * 1e-14 * 10 * RSUN < 1e-2
+    result = windsolve.solve(model)
+    assert result.status == "no_critical_point" and not result.profile
+    assert "needs porosity" not in result.message
+    assert "raise base_density or shorten porosity.length" in result.message

@@ -199,11 +199,14 @@ def _isothermal_failure(code, model, P=None, O=None, ln_mdot=math.nan, rc=math.n
                     f"point GM(1 - Gamma)/(2a^2) = {GM * (1.0 - gamma) / (2.0 * a * a * R0):.4g}"
                     f" R0 lies inside the base; lower the sound speed (temperature) or the "
                     f"luminosity")
+        fix = "a super-Eddington base needs porosity or a density-dependent opacity"
+        if model.porosity_length is not None:
+            fix = ("the porosity does not reduce the opacity enough at densities up to "
+                   "base_density: raise base_density or shorten porosity.length")
         return ("no_critical_point",
                 "no critical point beyond R0: Gamma_eff exceeds 1 - 2a^2 r/GM everywhere "
                 "from the base out for every mass-loss rate tried (the base is unbound "
-                "at the sonic density, so no steady transonic wind starts there); a "
-                "super-Eddington base needs porosity or a density-dependent opacity")
+                "at the sonic density, so no steady transonic wind starts there); " + fix)
     if code == K.NO_SADDLE:
         return ("no_saddle", "no transonic solution: for some mass-loss rates the flow has "
                              "critical points, but only nodes or foci, never a saddle (X-type) "
