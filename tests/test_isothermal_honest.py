@@ -214,6 +214,28 @@ def test_no_answer_has_its_sonic_point_on_the_base(gamma, h, a_kms, q):
                                                                                   rel=1e-4)
 
 
+@pytest.mark.parametrize("eps, solution", [(1e-7, False), (1e-3, True)])
+def test_parker_wind_with_its_sonic_point_on_the_base_is_no_solution(eps, solution):
+    # Parker (1958): without radiation r_c = GM/(2a^2) whatever the density.  With the base
+    # at r_c / (1 + 1e-7) the sonic point lies within the solver's 1e-6 r_c start offset of
+    # the base: there is no subsonic part to integrate, and it used to be "converged".
+    M, a = 10 * MSUN, 100e5
+    rc = G * M / (2 * a * a)
+    model = windsolve.IsothermalWind(name="Parker on its base (invented)", mass=M * u.g,
+                                     radius=rc / (1 + eps) * u.cm, luminosity=0 * u.Lsun,
+                                     sound_speed=a * u.cm / u.s, base_density="1e-12 g/cm3",
+                                     outer_radius=60 * rc * u.cm)
+    result = windsolve.solve(model)
+    if solution:
+        assert result.converged
+        assert result.summary["sonic_radius"].to_value(u.cm) == pytest.approx(rc, rel=1e-9)
+        return
+    assert result.status == "sonic_point_on_base"
+    assert not result.converged and not result.profile
+    assert "sonic point on the base" in result.message
+    assert "smaller [star] radius" in result.message
+
+
 # -- the two wrong messages -------------------------------------------------------------
 
 def test_outer_radius_inside_the_sonic_point_says_so(tmp_path):

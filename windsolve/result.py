@@ -99,7 +99,10 @@ class WindResult:
         True for a complete transonic solution out to the outer radius.
     status : str
         Short code: ``converged``, ``no_critical_point``, ``no_saddle``,
-        ``stalled``, ``second_singular_point``, ``no_bracket``, ``failed``.
+        ``stalled``, ``second_singular_point``, ``no_bracket``,
+        ``sonic_point_on_base`` (the only candidate has no subsonic part),
+        ``no_solution``, ``off_table``, ``failed``.  A converged Model A
+        solution may also be flagged :attr:`hydrostatic`.
     message : str
         One line saying, in words, what happened.
     summary : dict of Quantity

@@ -230,7 +230,9 @@ def _isothermal_failure(code, model, P=None, O=None, ln_mdot=math.nan, rc=math.n
                 f"no transonic solution: the only mass-loss rate that meets base_density"
                 f"{where} puts the sonic point on the base, so base_density is the sonic "
                 f"density and the flow has no subsonic part (not a wind launched from a "
-                f"subsonic base); raise base_density to put the base below the sonic point")
+                f"subsonic base); put the base below the sonic point: a smaller [star] "
+                f"radius, or (with a density-dependent opacity or porosity) a larger "
+                f"base_density")
     if code == K.NO_ROOT_JUMP:
         where = f" at Mdot = {math.exp(ln_mdot) / MSUN_YR:.4g} Msun/yr" if math.isfinite(
             ln_mdot) else ""
