@@ -62,8 +62,8 @@ SUMMARY_UNITS = {
 # criterion is r_c > 15.75 R0 there.  Such a base is a static atmosphere; its
 # "mass-loss rate" is the exponentially small leak of the atmosphere's top
 # (it changes by e for a change of 1/(2 r_c/R0) in ln r_c), not a wind
-# launched at R0.  Winds that are winds (the solar wind from its corona, a
-# few e-folds; continuum-driven winds with r_c near R0, fewer) stay far below.
+# launched at R0.  Winds proper stay far below (configs/parker_reference.toml,
+# r_c = 4 R0: 6.5 e-folds; the porous demo, r_c = 1.03 R0: 5).
 HYDROSTATIC_EFOLDS = 30.0
 
 
