@@ -1001,7 +1001,7 @@ def write_sweep_table(sweep, records, out):
     import h5py
 
     from ._io import atomic_write, dataset, stamp, strings
-    from .result import SUMMARY_UNITS, _unit_text, write_profile
+    from .result import HYDROSTATIC_EFOLDS, SUMMARY_UNITS, _unit_text, write_profile
 
     n = len(sweep)
     keys = list(SUMMARY_COLUMNS) + ["seconds"]
@@ -1038,6 +1038,9 @@ def write_sweep_table(sweep, records, out):
                     dataset(g, key, column(key), "cm / s")
                 f.attrs["observables"] = json.dumps(sweep.observables)
             dataset(g, "converged", np.array([bool(row.get("converged")) for row in rows]), "1")
+            # (a hydrostatic base, not a wind: see windsolve.result.HYDROSTATIC_EFOLDS)
+            dataset(g, "hydrostatic", np.nan_to_num(column("base_density_efolds"))
+                    > HYDROSTATIC_EFOLDS, "1")
             for key in ("status", "message"):
                 strings(g, key, (row.get(key, "") for row in rows))
             dataset(g, "seconds", column("seconds"), "s")
