@@ -11,6 +11,7 @@ import astropy.units as u
 import numpy as np
 
 from .core import isothermal as K
+from .core.constants import M_SUN, R_SUN, YEAR
 from .core.critical import KIND_NAMES
 from .result import (
     HYDROSTATIC_EFOLDS,
@@ -41,8 +42,8 @@ INWARD_PROFILE_FAILED = ("the stored inward profile did not reach R0 although th
                          "did; tighten numerics.rtol")
 
 
-MSUN_YR = 1.988409870698051e33 / 3.15576e7  # g/s in 1 Msun/yr (IAU 2015 nominal, Julian year)
-RSUN = 6.957e10  # cm (IAU 2015 nominal)
+MSUN_YR = M_SUN / YEAR  # g/s in 1 Msun/yr
+RSUN = R_SUN
 
 # What the flow does at mass-loss rates just outside the admissible window.
 _EDGE_WORDS = {
@@ -492,7 +493,7 @@ def solve_diffusion(model, profile=True):
     R0 = r[0]
     message = (f"converged: transonic solution through the saddle at r_c = "
                f"{c.rc / R0:.5g} R_base (T_c = {c.Tc:.4g} K); photosphere at "
-               f"{R_ph / 6.957e10:.4g} Rsun")
+               f"{R_ph / R_SUN:.4g} Rsun")
     return WindResult(model, True, "converged", message, summary, profile, critical,
                       {"shots": 0, "seconds": time.perf_counter() - t0})
 
