@@ -279,7 +279,7 @@ def cmd_sweep(args):
               f"{', '.join(a.key for a in sweep.axes)}) on {where}")
     done, interrupted = run_sweep(sweep, args.output, workers=args.workers,
                                   scheduler=args.scheduler, resume=args.resume,
-                                  quiet=args.quiet)
+                                  quiet=args.quiet, stall_timeout=args.stall_timeout)
     if interrupted:
         print(f"windsolve: interrupted: {len(done)} of {len(sweep)} models done and kept; "
               f"resume with: windsolve sweep {args.sweep} -o {args.output} --resume",
@@ -638,6 +638,17 @@ def _count(text):
         raise argparse.ArgumentTypeError(f"\"{text}\" is not a whole number") from None
 
 
+def _seconds(text):
+    """argparse type of a duration option: a number of seconds >= 0."""
+    try:
+        value = float(text)
+    except ValueError:
+        value = math.nan
+    if not (value >= 0 and math.isfinite(value)):
+        raise argparse.ArgumentTypeError(f"\"{text}\" is not a number of seconds >= 0")
+    return value
+
+
 def _grid_option(values, option):
     from .tables import MAX_LOG_T, grid
     start, stop, num = values
@@ -813,6 +824,10 @@ def build_parser():
                    help="finish an interrupted sweep: run only the models not yet done")
     p.add_argument("--profiles", action="store_true",
                    help="also store every model's profile (large files)")
+    p.add_argument("--stall-timeout", type=_seconds, default=600.0, metavar="SECONDS",
+                   help="stop (exit 2, finished models kept for --resume) when no model has "
+                        "finished for this long, e.g. a dask cluster without workers "
+                        "(default 600; 0: wait for ever)")
     p.add_argument("-q", "--quiet", action="store_true", help="no progress bar or summary")
     p.set_defaults(func=cmd_sweep)
 
