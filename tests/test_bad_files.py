@@ -64,6 +64,12 @@ class Sources:
         return path
 
     @staticmethod
+    def _make_diffusion(path):
+        import windsolve
+        windsolve.solve(windsolve.load_model(BUMP)).to_hdf5(path)
+        return path
+
+    @staticmethod
     def _make_family(path):
         from windsolve import load_model
         from windsolve.family import solve_family
@@ -354,8 +360,20 @@ FAMILY_DAMAGES = [
     ("no-rows", _no_rows, "/table"),
     ("model-isothermal", _isothermal_family, "model_toml"),
     ("extra-group-in-table", lambda f: f["table"].create_group("notes"), "/table/notes"),
+    ("photosphere-radius-units-rsun", set_attr("table/photosphere_radius", "units", "Rsun"),
+     "photosphere_radius"),
     ("extra-column-shorter", lambda f: f["table"].create_dataset("x", data=[1.0]), "/table/x"),
 ]
+# Damages of a Model B (diffusion) result, whose /summary states its photosphere.
+DIFFUSION_DAMAGES = [
+    ("photosphere-radius-units-rsun", _summary_units(photosphere_radius="solRad"),
+     "photosphere_radius"),
+    ("photosphere-luminosity-units-lsun", _summary_units(photosphere_luminosity="solLum"),
+     "photosphere_luminosity"),
+    ("optical-depth-negative", change_values(P + "optical_depth", _negative_at_3),
+     "optical_depth"),
+]
+
 FAMILY_COMMANDS = {
     "inspect": lambda c, p: ["inspect", p],
     "csv": lambda c, p: ["inspect", p, "--csv", str(c.dir / "table.csv")],
@@ -473,6 +491,10 @@ for kind, damages in RESULT_DAMAGES.items():
         for verb, argv in RESULT_COMMANDS.items():
             CASES.append(Case(f"{verb}-{id}", kind, (lambda a, m: lambda c: a(c, m(c)))(
                 argv, _damage_case("result", edit)), (BAD, *fragments)))
+for id, edit, *fragments in DIFFUSION_DAMAGES:
+    for verb, argv in RESULT_COMMANDS.items():
+        CASES.append(Case(f"{verb}-diffusion-{id}", "result: units", (lambda a, m: lambda c: a(
+            c, m(c)))(argv, _damage_case("diffusion", edit)), (BAD, *fragments)))
 for id, edit, *fragments in COMPARE_DAMAGES:
     CASES.append(Case(f"compare-{id}", "result: values", (lambda m: lambda c: [
         "compare", m(c), c.csv(OBSERVED)])(_damage_case("result", edit)), (BAD, *fragments)))

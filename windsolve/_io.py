@@ -7,6 +7,7 @@ from pathlib import Path
 import numpy as np
 
 from ._version import __version__
+from .core.constants import C_LIGHT, SIGMA_SB
 from .errors import ModelError, OutputError
 
 
@@ -78,7 +79,7 @@ def open_hdf5(path):
 
 # -- reading: every check of a file's layout, units and values lives here ---------------
 
-C_CGS = 2.99792458e10  # speed of light [cm/s] (exact, SI definition)
+CONSISTENCY_RTOL = 0.05  # windsolve's own files hold these relations to roundoff
 
 KINDS = {"result": "a result file (windsolve run -o)",
          "family": "a family file (windsolve family -o)",
@@ -233,8 +234,8 @@ def check_values(values, path, where, unit, positive=False, allow_nan=False, cgs
                           f"be >= 0")
     if ok.size and unit.is_equivalent(u.cm / u.s):
         fastest = float(np.max(np.abs(ok)) * unit.to(u.cm / u.s))
-        if fastest >= C_CGS:
-            raise OutputError(f"{path}: {where} reaches {fastest / C_CGS:.3g} times the speed "
+        if fastest >= C_LIGHT:
+            raise OutputError(f"{path}: {where} reaches {fastest / C_LIGHT:.3g} times the speed "
                               f"of light; is its units attribute ({unit.to_string()}) right?")
 
 
@@ -284,3 +285,27 @@ def strings(group, name, values):
 def read_strings(data):
     """Decode an h5py text dataset's values to str."""
     return np.array([x.decode() if isinstance(x, bytes) else str(x) for x in data])
+
+
+def check_photosphere(path, where, L, R, T, rows=None):
+    """OutputError unless L = 4 pi R^2 sigma T^4 (cgs arrays; NaN entries and rows outside
+    the boolean ``rows`` are skipped).
+
+    windsolve derives T_eff from L_ph and R_ph, so its files agree to roundoff; a
+    mismatch means a units attribute of one of the three that does not describe its
+    numbers (e.g. a radius in cm labelled Rsun), which the dimension check cannot see.
+    """
+    L, R, T = (np.atleast_1d(np.asarray(x, dtype=np.float64)) for x in (L, R, T))
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+        ratio = L / (4.0 * np.pi * SIGMA_SB * R**2 * T**4)
+    bad = np.isfinite(L) & np.isfinite(R) & np.isfinite(T) & ~(np.abs(ratio - 1.0)
+                                                                <= CONSISTENCY_RTOL)
+    if rows is not None:
+        bad &= np.asarray(rows, dtype=bool)
+    if bad.any():
+        i = int(np.flatnonzero(bad)[0])
+        at = f" at index {i}" if L.size > 1 else ""
+        raise OutputError(f"{path}: {where} photosphere_luminosity is {ratio[i]:.4g} times "
+                          f"4 pi R^2 sigma T^4 of photosphere_radius and "
+                          f"photosphere_temperature{at}; a units attribute of one of the three "
+                          f"does not describe its numbers")

@@ -111,6 +111,7 @@ class FamilyResult:
         from pathlib import Path
 
         from ._io import (
+            check_photosphere,
             check_values,
             column,
             dataset_unit,
@@ -165,6 +166,10 @@ class FamilyResult:
             for key in REQUIRED:
                 if key not in cols:
                     column(g, key, path, n)  # says that it is missing
+            if all(f"photosphere_{k}" in cols for k in ("luminosity", "radius", "temperature")):
+                check_photosphere(path, "/table", *(cols[f"photosphere_{k}"].cgs.value for k in
+                                                    ("luminosity", "radius", "temperature")),
+                                  rows=converged)
             values = cols[scan].to_value(SCANS[scan])
             if scan not in COLUMNS:
                 del cols[scan]

@@ -297,6 +297,7 @@ def read_result(path, cls=None):
     attribute.
     """
     from ._io import (
+        check_photosphere,
         check_values,
         column,
         dataset_unit,
@@ -370,6 +371,10 @@ def read_result(path, cls=None):
                 raise OutputError(f"{path}: /profile/radius does not increase at index {i + 1} "
                                   f"(it must increase strictly); the file is damaged")
         _check_continuity(path, profile, summary.get("mass_loss_rate"))
+        if all(f"photosphere_{k}" in summary for k in ("luminosity", "radius", "temperature")):
+            check_photosphere(path, "/summary", *(summary[f"photosphere_{k}"].cgs.value
+                                                  for k in ("luminosity", "radius",
+                                                            "temperature")))
         cps = []
         if "critical_points" in f:
             c = group(f, "critical_points", path)

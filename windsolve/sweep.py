@@ -1068,7 +1068,16 @@ def read_sweep_table(path):
     """
     import astropy.units as u
 
-    from ._io import check_values, column, dataset_unit, group, open_hdf5, require_kind, text_attr
+    from ._io import (
+        check_photosphere,
+        check_values,
+        column,
+        dataset_unit,
+        group,
+        open_hdf5,
+        require_kind,
+        text_attr,
+    )
     from .errors import OutputError
     from .models import MODELS
     from .result import SUMMARY_POSITIVE, SUMMARY_UNITS
@@ -1108,6 +1117,10 @@ def read_sweep_table(path):
                 raise OutputError(f"{path}: {where} is NaN at row {i}, a converged model; "
                                   f"the file is damaged")
             table[key] = values
+        if all(f"photosphere_{k}" in table for k in ("luminosity", "radius", "temperature")):
+            check_photosphere(path, "/table", *(table[f"photosphere_{k}"] for k in
+                                                ("luminosity", "radius", "temperature")),
+                              rows=table["converged"])
         attrs = dict(f.attrs)
     return table, attrs
 
