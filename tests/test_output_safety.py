@@ -162,8 +162,12 @@ def _run(argv):
 SMALL = {"compare -o", "compare sweep -o", "inspect --csv"}  # fit in the free 4 kB
 
 
+# Slow (rendering): the nearly full disk but for HDF5, and the other figures on a
+# read-only disk (the same path as "plot -o png" there).
+PLOTS = {"family --plot", "plot -o svg", "plot -o pdf", "plot sweep", "plot family"}
 CASES = [pytest.param(name, state, marks=[pytest.mark.slow] if (
-             state == "nearly" and name not in HDF5) else [])
+             (state == "nearly" and name not in HDF5)
+             or (state == "readonly" and name in PLOTS)) else [])
          for name in COMMANDS for state in ("full", "nearly", "readonly")
          if not (state == "nearly" and name in SMALL)]
 
