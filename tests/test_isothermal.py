@@ -259,7 +259,9 @@ def test_critical_point_beyond_outer_radius_is_reported():
     model, rc, a = parker_model(0.5)
     result = windsolve.solve(model.replace(outer_radius=0.5 * rc * u.cm))
     assert result.status == "no_critical_point"
-    assert "stays below" in result.message
+    # the cause in words: the outer radius, and raising it, not the base density
+    assert "outer radius lies inside the sonic point" in result.message
+    assert "raise numerics.outer_radius" in result.message
 
 
 def test_second_singular_point_detected_by_monitor():

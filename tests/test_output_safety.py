@@ -137,7 +137,8 @@ REASONS = {"full": "no space left on device", "nearly": "no space left on device
 
 
 # An HDF5 library writing to a nearly full disk crashed the interpreter
-# (segmentation fault): those cases run in a subprocess.
+# (segmentation fault): those cases run in a subprocess, and so do sweeps (a
+# failed sweep in this process could keep its lock file's lock).
 HDF5 = {"run -o", "family -o --profiles", "tabulate -o h5"}
 
 
@@ -177,7 +178,7 @@ def test_a_failed_write_is_one_line_and_leaves_nothing(name, state, disk, inputs
     argv, filename = COMMANDS[name]
     where = disk(state)
     out = where / filename
-    if state == "nearly" and name in HDF5:
+    if (state == "nearly" and name in HDF5) or name.startswith("sweep"):
         code, _, err = _run(argv(inputs, str(out)))
     else:
         code, err = _main(argv(inputs, str(out)))
@@ -188,7 +189,11 @@ def test_a_failed_write_is_one_line_and_leaves_nothing(name, state, disk, inputs
     assert REASONS[state] in lines[0].lower(), err
     left = _left(where)
     if name.startswith("sweep") and state != "readonly":
-        assert left == [filename + ".partial"]  # the journal is kept for --resume
+        # The journal is kept for --resume.  (On a disk with no byte free the
+        # sweep's lock file can be made but not written: it stays, harmless --
+        # an flock lock ends with its process and the next run reuses the file.)
+        assert set(left) - {filename + ".lock"} <= {filename + ".partial"}
+        assert state == "full" or left == [filename + ".partial"]
     else:
         assert left == []
 
@@ -212,15 +217,18 @@ def test_a_sweep_on_a_full_disk_keeps_its_journal_and_resumes(free_kb, disk, inp
         except OSError:
             pass
     out = where / "sw.h5"
-    code, err = _main(["sweep", sweep, "-o", str(out), "-q", "--workers", "1"])
+    code, _, err = _run(["sweep", sweep, "-o", str(out), "-q", "--workers", "1"])
     assert code == 2 and len(err.strip().splitlines()) == 1, err
-    assert _left(where) == ["sw.h5.partial"]
+    if free_kb:
+        assert _left(where) == ["sw.h5.partial"]
+    else:  # no byte free: the lock file may stay (see above), the journal may be empty
+        assert set(_left(where)) <= {"sw.h5.partial", "sw.h5.lock"}
     if free_kb:  # every model journaled before the table write failed
         assert len((where / "sw.h5.partial").read_text().splitlines()) == 1 + 4
     (where / FILLER).unlink()  # free the space
     assert cli.main(["sweep", sweep, "-o", str(out), "-q", "--workers", "1",
                      "--resume"]) == 0
-    assert _left(where) == ["sw.h5"]
+    assert _left(where) == ["sw.h5"]  # journal and lock gone
     a, b = _table(reference), _table(out)
     assert a.keys() == b.keys()
     for key in a:

@@ -280,11 +280,11 @@ def cmd_sweep(args):
     try:
         done, interrupted = run_sweep(sweep, args.output, workers=args.workers,
                                       scheduler=args.scheduler, resume=args.resume,
-                                      quiet=args.quiet)
-    except OSError as error:  # the journal (the table's own write says so itself)
+                                      quiet=args.quiet,
+                                      stall_timeout=args.stall_timeout)
+    except OSError as error:  # its journal or lock file (the table's write says so itself)
         from ._io import output_error
-        from .sweep import JOURNAL_SUFFIX
-        raise output_error(error.filename or f"{args.output}{JOURNAL_SUFFIX}", error) from None
+        raise output_error(error.filename or args.output, error) from None
     if interrupted:
         print(f"windsolve: interrupted: {len(done)} of {len(sweep)} models done and kept; "
               f"resume with: windsolve sweep {args.sweep} -o {args.output} --resume",
@@ -645,6 +645,17 @@ def _count(text):
         raise argparse.ArgumentTypeError(f"\"{text}\" is not a whole number") from None
 
 
+def _seconds(text):
+    """argparse type of a duration option: a number of seconds >= 0."""
+    try:
+        value = float(text)
+    except ValueError:
+        value = math.nan
+    if not (value >= 0 and math.isfinite(value)):
+        raise argparse.ArgumentTypeError(f"\"{text}\" is not a number of seconds >= 0")
+    return value
+
+
 def _grid_option(values, option):
     from .tables import MAX_LOG_T, grid
     start, stop, num = values
@@ -820,6 +831,10 @@ def build_parser():
                    help="finish an interrupted sweep: run only the models not yet done")
     p.add_argument("--profiles", action="store_true",
                    help="also store every model's profile (large files)")
+    p.add_argument("--stall-timeout", type=_seconds, default=600.0, metavar="SECONDS",
+                   help="stop (exit 2, finished models kept for --resume) when no model has "
+                        "finished for this long, e.g. a dask cluster without workers "
+                        "(default 600; 0: wait for ever)")
     p.add_argument("-q", "--quiet", action="store_true", help="no progress bar or summary")
     p.set_defaults(func=cmd_sweep)
 

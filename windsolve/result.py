@@ -49,7 +49,29 @@ SUMMARY_UNITS = {
     "base_temperature": u.K,
     "base_density": u.g / u.cm**3,
     "base_luminosity": u.erg / u.s,
+    "base_density_efolds": u.dimensionless_unscaled,
 }
+
+# A Model A solution is flagged ``hydrostatic`` when its base lies more than
+# this many density e-folds below the sonic point: ln(rho0 / rho_c) > 30,
+# rho_c = Mdot / (4 pi r_c^2 a), a density contrast above 1e13.  Below the
+# sonic point an isothermal flow is in hydrostatic equilibrium to (v/a)^2, so
+# its density falls barometrically, and for Parker's wind v(R0)/a =
+# (r_c/R0)^2 exp(3/2 - 2 r_c/R0) (Lamers & Cassinelli 1999, "Introduction to
+# Stellar Winds", ch. 3, from memory): ln(rho0/rho_c) = 2 r_c/R0 - 3/2, so the
+# criterion is r_c > 15.75 R0 there.  Such a base is a static atmosphere; its
+# "mass-loss rate" is the exponentially small leak of the atmosphere's top
+# (it changes by e for a change of 1/(2 r_c/R0) in ln r_c), not a wind
+# launched at R0.  Winds proper stay far below (configs/parker_reference.toml,
+# r_c = 4 R0: 6.5 e-folds; the porous demo, r_c = 1.03 R0: 5).
+HYDROSTATIC_EFOLDS = 30.0
+
+
+def base_density_efolds(mdot, rc, a, rho0):
+    """ln(rho0 / rho_c), rho_c = Mdot / (4 pi r_c^2 a): density e-folds from base to sonic point."""
+    if not (mdot > 0.0 and rc > 0.0 and a > 0.0 and rho0 > 0.0):
+        return float("nan")
+    return float(np.log(rho0 * 4.0 * np.pi * rc * rc * a / mdot))
 
 
 def write_profile(group, profile):
@@ -77,7 +99,10 @@ class WindResult:
         True for a complete transonic solution out to the outer radius.
     status : str
         Short code: ``converged``, ``no_critical_point``, ``no_saddle``,
-        ``stalled``, ``second_singular_point``, ``no_bracket``, ``failed``.
+        ``stalled``, ``second_singular_point``, ``no_bracket``,
+        ``sonic_point_on_base`` (the only candidate has no subsonic part),
+        ``no_solution``, ``off_table``, ``failed``.  A converged Model A
+        solution may also be flagged :attr:`hydrostatic`.
     message : str
         One line saying, in words, what happened.
     summary : dict of Quantity
@@ -92,6 +117,11 @@ class WindResult:
         converged mass-loss rate): ``radius``, ``kind``, ``slopes``.
     counters : dict
         ``shots`` (trial integrations), ``seconds`` (wall time of the solve).
+    hydrostatic : bool (property)
+        True when the base lies more than :data:`HYDROSTATIC_EFOLDS` density
+        e-folds below the sonic point (summary ``base_density_efolds``):
+        the base is a static atmosphere and the mass-loss rate its
+        exponentially small leak, not a wind (Model A only; see the README).
     """
 
     model: object
@@ -102,6 +132,12 @@ class WindResult:
     profile: dict = field(default_factory=dict)
     critical_points: list = field(default_factory=list)
     counters: dict = field(default_factory=dict)
+
+    @property
+    def hydrostatic(self):
+        """Is the base a hydrostatic atmosphere rather than a wind? (see HYDROSTATIC_EFOLDS)"""
+        q = self.summary.get("base_density_efolds")
+        return bool(q is not None and np.isfinite(q.value) and q.value > HYDROSTATIC_EFOLDS)
 
     # -- text ---------------------------------------------------------------
     def summary_lines(self):
@@ -135,6 +171,12 @@ class WindResult:
         show("base luminosity", "base_luminosity", u.Lsun)
         show("outer radius", "outer_radius", u.Rsun)
         show("base Eddington factor", "base_eddington_factor", u.dimensionless_unscaled)
+        show("density e-folds base->r_c", "base_density_efolds", u.dimensionless_unscaled,
+             ".4g")
+        if self.hydrostatic:
+            lines.append(f"  HYDROSTATIC: the base lies more than {HYDROSTATIC_EFOLDS:g} density "
+                         f"e-folds below the sonic point; it is a static atmosphere and the "
+                         f"mass-loss rate its exponentially small leak, not a wind")
         if self.model.kind == "isothermal" and self.converged:
             lines.append("  (an isothermal flow keeps accelerating slowly: the 'terminal' "
                          "velocity is v at the outer radius)")
@@ -166,6 +208,7 @@ class WindResult:
             g.attrs["converged"] = bool(self.converged)
             g.attrs["status"] = self.status
             g.attrs["message"] = self.message
+            g.attrs["hydrostatic"] = self.hydrostatic
             units = {}
             for key, q in self.summary.items():
                 g.attrs[key] = float(q.to_value(SUMMARY_UNITS[key]))

@@ -18,16 +18,24 @@ second, so a machine that crashes loses at most about a second more), and
 ``--resume`` runs only the missing rows.  The HDF5 file is written at the end
 from the finished rows (under a temporary name, then renamed), in design
 order, so a resumed sweep gives the same table as an uninterrupted one.
+
+One run per output: the output is locked (``OUT.h5.lock``, fcntl.flock) for
+the whole run, every journal record carries a hash of the resolved design
+(a resume refuses rows of another sweep), local workers end when the sweep
+process dies, and a sweep in which nothing finishes for ``stall_timeout``
+seconds (a dask cluster without workers) stops with one line.
 """
 
 import hashlib
 import itertools
 import json
+import logging
 import math
 import operator
 import os
+import sys
 import time
-from concurrent.futures import FIRST_COMPLETED, BrokenExecutor, wait
+from concurrent.futures import FIRST_COMPLETED, BrokenExecutor, CancelledError, wait
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -51,6 +59,10 @@ BATCH_LIMIT = {"isothermal": 200, "diffusion": 10}
 TASKS_PER_WORKER = 4
 JOURNAL_SUFFIX = ".partial"
 FSYNC_INTERVAL = 1.0  # [s] the journal is flushed every batch, written to disk this often
+LOCK_SUFFIX = ".lock"  # OUT.h5.lock: held (fcntl.flock) while a sweep writes OUT.h5
+DEFAULT_STALL_TIMEOUT = 600.0  # [s] no batch finished for this long: the sweep stops
+PARENT_WATCH_INTERVAL = 0.5  # [s] how often a pool worker checks that its parent lives
+PR_SET_PDEATHSIG = 1  # Linux prctl option: a signal for the child when its parent dies
 
 
 def _summary_columns():
@@ -106,7 +118,28 @@ class Sweep:
 
     @property
     def digest(self):
+        """A hash of the sweep file's text (see :meth:`design_digest` for the journal)."""
         return hashlib.sha256(self.text.encode()).hexdigest()[:16]
+
+    def design_digest(self):
+        """A hash of the resolved design: every row's model and what is stored of it.
+
+        The base model as read (so an edited ``base = "model.toml"`` is a
+        different sweep even when the sweep file's text is the same), the
+        contents of an opacity table file it reads, every row's changes,
+        ``profiles`` and ``[observables]``.  The journal stores it in its
+        header and in every record; a journal of another design is refused.
+        """
+        h = hashlib.sha256()
+        h.update(json.dumps([self.kind, self.base, self.rows, bool(self.profiles),
+                             self.observables], sort_keys=True, default=str).encode())
+        table = (self.base.get("opacity") or {}).get("path")
+        if isinstance(table, str):
+            try:
+                h.update(Path(table).read_bytes())
+            except OSError:
+                pass  # the row models report an unreadable table themselves
+        return h.hexdigest()[:16]
 
     def __len__(self):
         return len(self.rows)
@@ -506,14 +539,18 @@ def _line_settings(observables):
     return settings
 
 
-def journal_batch(base, items, profiles=False, observables=None):
+def journal_batch(base, items, profiles=False, observables=None, design=None):
     """:func:`run_batch` and its rows as the journal's JSON lines: ``(text, records)``.
 
     Serialising in the worker keeps that work off the main process, which
     appends the text to the journal and keeps the records (unpickling them
-    costs it far less than parsing the JSON would).
+    costs it far less than parsing the JSON would).  Every record carries
+    ``design`` (:meth:`Sweep.design_digest`), so a resume can tell that each
+    journaled row belongs to its sweep.
     """
     records = run_batch(base, items, profiles, observables)
+    for record in records:
+        record["design"] = design
     return "".join(json.dumps(record) + "\n" for record in records), records
 
 
@@ -578,41 +615,166 @@ def run_batch(base, items, profiles=False, observables=None):
     return out
 
 
-def _read_journal(journal, sweep):
-    """Finished rows from a journal written for the same sweep file."""
+def _trim_journal(journal):
+    """Cut a last line that a kill left unfinished, so appended lines start clean."""
+    with open(journal, "rb+") as f:
+        data = f.read()
+        if data and not data.endswith(b"\n"):
+            f.truncate(data.rfind(b"\n") + 1)
+
+
+def _read_journal(journal, sweep, design):
+    """Finished rows from a journal written for the same sweep design.
+
+    The header and every record must carry ``design`` (:meth:`Sweep.design_digest`):
+    rows journaled by another sweep (another sweep file, an edited base model,
+    or two runs that once shared an output) refuse the resume instead of
+    entering the table.
+    """
     done = {}
-    with open(journal, encoding="utf-8") as f:
+    with open(journal, encoding="utf-8", errors="replace") as f:
         lines = f.read().split("\n")
     if not lines or not lines[0].strip():
         return done
     try:
         header = json.loads(lines[0])
     except json.JSONDecodeError:
+        header = None
+    if not isinstance(header, dict) or "sweep" not in header:
         raise OutputError(f"{journal}: not a windsolve sweep journal; delete it") from None
-    if header.get("sweep") != sweep.digest or header.get("rows") != len(sweep):
-        raise OutputError(f"{journal} belongs to a different sweep file; delete it or write "
-                          f"to another output")
-    for line in lines[1:]:
+    if header.get("sweep") != design or header.get("rows") != len(sweep):
+        raise OutputError(f"{journal} belongs to a different sweep (another sweep file, base "
+                          f"model or design); delete it or write to another output")
+    for number, line in enumerate(lines[1:], start=2):
         if not line.strip():
             continue
         try:
             record = json.loads(line)
         except json.JSONDecodeError:
             continue  # a line cut short by a kill: that row runs again
-        done[record["row"]] = record
+        row = record.get("row") if isinstance(record, dict) else None
+        if (record.get("design") if isinstance(record, dict) else None) != design or \
+                not isinstance(row, int) or not 0 <= row < len(sweep):
+            raise OutputError(f"{journal} line {number} holds a row of another sweep (two runs "
+                              f"wrote to one output?); its rows cannot be trusted: delete it "
+                              f"and run the sweep again")
+        done[row] = record
     return done
 
 
-def run_sweep(sweep, out, workers=None, scheduler=None, resume=False, quiet=False):
-    """Run every row not already done; returns (records by row, interrupted)."""
+def _lock_output(out):
+    """Hold an OS lock (fcntl.flock) on ``OUT.lock`` while a sweep writes ``OUT`` and its journal.
+
+    Returns the function that releases it.  A second sweep on the same output
+    gets a one-line OutputError naming the process that holds it.  The kernel
+    drops the lock when its holder dies (even by SIGKILL), so a lock file left
+    by a killed run is harmless; a run that ends removes its lock file.
+    Without fcntl (Windows) there is no lock: the journal's design check still
+    refuses rows of another sweep, but two runs at once are not detected.
+    """
+    try:
+        import fcntl
+    except ImportError:
+        return lambda: None
+    lock = out.with_name(out.name + LOCK_SUFFIX)
+    while True:
+        try:
+            fd = os.open(lock, os.O_RDWR | os.O_CREAT, 0o644)
+        except OSError as error:
+            raise OutputError(f"{lock}: cannot create the sweep's lock file "
+                              f"({error.strerror or error})") from None
+        try:
+            fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except OSError:
+            holder = _lock_holder(fd)
+            os.close(fd)
+            who = f" (pid {holder})" if holder else ""
+            raise OutputError(f"{out} is being written by another windsolve sweep{who}; wait "
+                              f"for it to finish or choose another -o") from None
+        # The holder we waited for may have removed its lock file (and a
+        # third run made a new one): hold the lock of the file at the path.
+        try:
+            same = os.stat(lock).st_ino == os.fstat(fd).st_ino
+        except FileNotFoundError:
+            same = False
+        if same:
+            break
+        os.close(fd)
+    os.ftruncate(fd, 0)
+    os.write(fd, f"{os.getpid()}\n".encode())
+
+    def release():
+        try:
+            lock.unlink()  # while still held: a waiting run then retries on a new file
+        except OSError:
+            pass
+        os.close(fd)
+
+    return release
+
+
+def _lock_holder(fd):
+    """The pid written in a lock file ("" when unreadable)."""
+    for _ in range(20):  # the holder writes its pid just after it takes the lock
+        try:
+            text = os.pread(fd, 32, 0).decode().strip()
+        except (OSError, UnicodeDecodeError):
+            return ""
+        if text.isdigit():
+            return text
+        time.sleep(0.01)
+    return ""
+
+
+def _check_stall_timeout(stall_timeout):
+    """None for no limit (None or 0), else the number of seconds."""
+    if stall_timeout is None:
+        return None
+    try:
+        value = float(stall_timeout)
+    except (TypeError, ValueError):
+        value = math.nan
+    if not (value >= 0 and math.isfinite(value)):
+        raise ModelError(f"stall timeout {stall_timeout!r}: give a number of seconds >= 0 "
+                         f"(0: wait for ever)")
+    return value or None
+
+
+def run_sweep(sweep, out, workers=None, scheduler=None, resume=False, quiet=False,
+              stall_timeout=DEFAULT_STALL_TIMEOUT):
+    """Run every row not already done; returns (records by row, interrupted).
+
+    ``stall_timeout`` [s]: when no batch has finished for this long (a dask
+    cluster that lost its workers, a stuck worker) the sweep stops with a
+    one-line WindsolveError; the rows finished so far stay in the journal
+    for ``resume=True``.  ``None`` or 0 waits for ever.  The output is
+    locked while the sweep runs (see :func:`_lock_output`).
+    """
     out = Path(out)
+    stall_timeout = _check_stall_timeout(stall_timeout)
+    release = _lock_output(out)
+    try:
+        return _run_locked(sweep, out, workers, scheduler, resume, quiet, stall_timeout)
+    finally:
+        release()
+
+
+def _one_line(text):
+    return " ".join(str(text).split())
+
+
+def _run_locked(sweep, out, workers, scheduler, resume, quiet, stall_timeout):
     journal = out.with_name(out.name + JOURNAL_SUFFIX)
     if journal.exists() and not resume:
         raise OutputError(f"{journal} holds an interrupted run of a sweep; pass --resume to "
                           f"finish it, or delete it to start again")
-    done = _read_journal(journal, sweep) if (resume and journal.exists()) else {}
+    design = sweep.design_digest()
+    done = {}
+    if resume and journal.exists():
+        _trim_journal(journal)
+        done = _read_journal(journal, sweep, design)
     todo = [i for i in range(len(sweep)) if i not in done]
-    executor, close = _executor(workers, scheduler)
+    executor, close, describe = _executor(workers, scheduler)
     batch = sweep.batch or _default_batch(sweep.kind, len(todo), workers, scheduler)
     batches = [todo[k:k + batch] for k in range(0, len(todo), batch)]
     bar = None
@@ -621,58 +783,92 @@ def run_sweep(sweep, out, workers=None, scheduler=None, resume=False, quiet=Fals
         bar = tqdm(total=len(sweep), initial=len(done), unit="model", desc="sweep")
     converged = sum(1 for r in done.values() if r.get("converged"))
     interrupted = False
-    with open(journal, "a", encoding="utf-8") as jf:
-        if jf.tell() == 0:
-            jf.write(json.dumps({"sweep": sweep.digest, "rows": len(sweep),
-                                 "windsolve": __version__}) + "\n")
-            jf.flush()
-        pending = set()
-        queue = iter(batches)
-        synced = time.monotonic()
-        # Keep a bounded number of batches in flight, so memory stays flat.
-        limit = max(4 * (workers or os.cpu_count() or 1), 8)
-        try:
-            while True:
-                while len(pending) < limit:
-                    b = next(queue, None)
-                    if b is None:
+    aborted = True  # until the loop ends normally or by Ctrl-C
+    pending = set()
+    # Wake up at least once a second (and ten times within a short stall
+    # timeout) to notice and report a sweep in which nothing finishes.
+    tick = 1.0 if stall_timeout is None else min(1.0, max(0.05, stall_timeout / 10))
+    report = 5.0 if stall_timeout is None else min(5.0, stall_timeout / 2)  # [s] of no progress
+    try:
+        with open(journal, "a", encoding="utf-8") as jf:
+            if jf.tell() == 0:
+                jf.write(json.dumps({"sweep": design, "rows": len(sweep),
+                                     "windsolve": __version__}) + "\n")
+                jf.flush()
+            queue = iter(batches)
+            synced = progressed = time.monotonic()
+            stalled_shown = 0
+            # Keep a bounded number of batches in flight, so memory stays flat.
+            limit = max(4 * (workers or os.cpu_count() or 1), 8)
+            try:
+                while True:
+                    while len(pending) < limit:
+                        b = next(queue, None)
+                        if b is None:
+                            break
+                        pending.add(executor.submit(journal_batch, sweep.base,
+                                                    [(i, sweep.rows[i]) for i in b],
+                                                    sweep.profiles, sweep.observables, design))
+                    if not pending:
                         break
-                    pending.add(executor.submit(journal_batch, sweep.base,
-                                                [(i, sweep.rows[i]) for i in b],
-                                                sweep.profiles, sweep.observables))
-                if not pending:
-                    break
-                finished, pending = wait(pending, return_when=FIRST_COMPLETED)
-                for fut in finished:
-                    try:
-                        text, records = fut.result()
-                    except BrokenExecutor as error:
-                        raise WindsolveError(
-                            f"a worker process died ({error}); the models finished so far "
-                            f"are kept: rerun with --resume") from None
-                    jf.write(text)
-                    for record in records:
-                        done[record["row"]] = record
-                        converged += bool(record.get("converged"))
-                    jf.flush()  # in the OS's hands: a killed sweep keeps it
+                    finished, pending = wait(pending, timeout=tick,
+                                             return_when=FIRST_COMPLETED)
                     now = time.monotonic()
-                    if now - synced >= FSYNC_INTERVAL:  # on the disk: a crash keeps it
-                        os.fsync(jf.fileno())
-                        synced = now
-                    if bar is not None:
-                        bar.update(len(records))
-                        failed = len(done) - converged
-                        bar.set_postfix(converged=converged, failed=failed, refresh=False)
-        except KeyboardInterrupt:
-            interrupted = True
-            for fut in pending:
-                fut.cancel()
-        finally:
-            jf.flush()
-            os.fsync(jf.fileno())
-            if bar is not None:
-                bar.close()
-            close()
+                    if not finished:
+                        idle = now - progressed
+                        if stall_timeout is not None and idle >= stall_timeout:
+                            where = describe()
+                            raise WindsolveError(
+                                f"no model finished in {stall_timeout:g} s ({where}); the "
+                                f"{len(done)} models finished so far are kept in {journal}: "
+                                f"rerun with --resume once it runs, or allow longer with "
+                                f"--stall-timeout SECONDS")
+                        if bar is not None and int(idle / report) > stalled_shown:
+                            stalled_shown = int(idle / report)
+                            bar.set_postfix_str(f"no model finished for {idle:.0f} s "
+                                                f"({describe()})")
+                        continue
+                    progressed, stalled_shown = now, 0
+                    for fut in finished:
+                        try:
+                            text, records = fut.result()
+                        except BrokenExecutor as error:
+                            raise WindsolveError(
+                                f"a worker process died ({_one_line(error)}); the models "
+                                f"finished so far are kept: rerun with --resume") from None
+                        except CancelledError:
+                            raise WindsolveError(
+                                f"a task was cancelled by the executor ({describe()}: lost "
+                                f"the connection?); the models finished so far are kept in "
+                                f"{journal}: rerun with --resume") from None
+                        except Exception as error:  # noqa: BLE001 -- e.g. dask's KilledWorker
+                            why = ": ".join(filter(None, (type(error).__name__,
+                                                          _one_line(error))))
+                            raise WindsolveError(
+                                f"a task failed on the executor ({why}); the models finished "
+                                f"so far are kept in {journal}: rerun with --resume") from None
+                        jf.write(text)
+                        for record in records:
+                            done[record["row"]] = record
+                            converged += bool(record.get("converged"))
+                        jf.flush()  # in the OS's hands: a killed sweep keeps it
+                        if now - synced >= FSYNC_INTERVAL:  # on the disk: a crash keeps it
+                            os.fsync(jf.fileno())
+                            synced = now
+                        if bar is not None:
+                            bar.update(len(records))
+                            failed = len(done) - converged
+                            bar.set_postfix(converged=converged, failed=failed, refresh=False)
+                aborted = False
+            except KeyboardInterrupt:
+                interrupted, aborted = True, False
+            finally:
+                jf.flush()
+                os.fsync(jf.fileno())
+    finally:
+        if bar is not None:
+            bar.close()  # before any error line is printed
+        close(pending, abort=aborted)
     if interrupted:
         return done, True
     write_sweep_table(sweep, done, out)
@@ -689,7 +885,13 @@ def _default_batch(kind, n_todo, workers, scheduler):
 
 
 def _executor(workers, scheduler):
-    """(executor, close) -- a local process pool or a dask cluster's executor."""
+    """(executor, close, describe): a local process pool or a dask cluster's executor.
+
+    ``close(pending, abort)`` cancels the futures still pending and shuts the
+    executor down (``abort``: also end our local workers now, e.g. a stuck
+    one; a dask cluster's workers are not ours to end); ``describe()`` says
+    in a few words what runs the sweep (for stall reports).
+    """
     if scheduler is not None:
         try:
             from distributed import Client
@@ -701,21 +903,95 @@ def _executor(workers, scheduler):
         except (OSError, TimeoutError) as error:
             raise WindsolveError(f"cannot reach the dask scheduler at {scheduler} "
                                  f"({error})") from None
-        return client.get_executor(), client.close
+
+        def describe():
+            # Asked in a daemon thread: a scheduler that hangs must not hang the report.
+            answer = []
+
+            def ask():
+                try:
+                    answer.append(len(client.scheduler_info().get("workers", {})))
+                except Exception:  # noqa: BLE001 -- a report only
+                    pass
+
+            import threading
+            asking = threading.Thread(target=ask, daemon=True)
+            asking.start()
+            asking.join(timeout=3.0)
+            if not answer:
+                return f"the dask scheduler at {scheduler} does not answer"
+            n = answer[0]
+            return f"the dask scheduler at {scheduler} has {n} worker{'s' * (n != 1)}"
+
+        # The client's own log lines ("Couldn't gather keys, rescheduling" when
+        # a worker dies) would land on the progress bar's line; what they mean
+        # is reported by the stall check.  Back to the user's level on close.
+        # Closing the client cancels the futures still pending, for which
+        # dask's executor logs a traceback each ("Exception in callback ...
+        # FutureCancelledError"): quiet too while the sweep runs and closes.
+        quiet_loggers = {name: logging.getLogger(name).level
+                         for name in ("distributed", "distributed.client", "tornado.application")}
+        for name in quiet_loggers:
+            logging.getLogger(name).setLevel(logging.CRITICAL)
+
+        def close(pending=(), abort=False):
+            try:
+                client.close()
+            finally:
+                for name, level in quiet_loggers.items():
+                    logging.getLogger(name).setLevel(level)
+
+        return client.get_executor(), close, describe
     import multiprocessing
     from concurrent.futures import ProcessPoolExecutor
     n = workers or os.cpu_count() or 1
     # "spawn": workers start clean (no inherited threads or locks) and load
     # the compiled kernels from numba's on-disk cache.
     pool = ProcessPoolExecutor(max_workers=n, mp_context=multiprocessing.get_context("spawn"),
-                               initializer=_worker_init)
-    return pool, lambda: pool.shutdown(wait=False, cancel_futures=True)
+                               initializer=_worker_init, initargs=(os.getpid(),))
+
+    def close(pending=(), abort=False):
+        for fut in pending:
+            fut.cancel()
+        if abort:  # a stuck worker would keep this process from exiting
+            for process in list((getattr(pool, "_processes", None) or {}).values()):
+                process.kill()  # SIGKILL: ends a stopped or stuck worker too
+        pool.shutdown(wait=False, cancel_futures=True)
+
+    return pool, close, lambda: f"{n} local worker process{'es' * (n != 1)}"
 
 
-def _worker_init():
-    """Workers leave Ctrl-C to the main process, which stops the sweep cleanly."""
+def _worker_init(parent=None):
+    """Workers leave Ctrl-C to the main process, which stops the sweep cleanly,
+    and end when that process dies (even by SIGKILL), not later.
+
+    On Linux the kernel sends SIGKILL when the parent dies
+    (``prctl(PR_SET_PDEATHSIG)``); everywhere a daemon thread also checks
+    ``os.getppid()`` every PARENT_WATCH_INTERVAL seconds.
+    """
     import signal
     signal.signal(signal.SIGINT, signal.SIG_IGN)
+    if parent is None:
+        return
+    if sys.platform.startswith("linux"):
+        try:
+            import ctypes
+            libc = ctypes.CDLL(None, use_errno=True)
+            libc.prctl(PR_SET_PDEATHSIG, int(signal.SIGKILL), 0, 0, 0)
+        except (OSError, AttributeError):
+            pass  # the thread below still watches
+    if os.getppid() != parent:  # died before we got here
+        os._exit(1)
+    import threading
+    threading.Thread(target=_watch_parent, args=(parent,), daemon=True,
+                     name="windsolve-watch-parent").start()
+
+
+def _watch_parent(parent):
+    while True:
+        time.sleep(PARENT_WATCH_INTERVAL)
+        if os.getppid() != parent:
+            os._exit(1)
 
 
 # -- output --------------------------------------------------------------------------
@@ -723,7 +999,7 @@ def _worker_init():
 def write_sweep_table(sweep, records, out):
     """The sweep's HDF5 file: /table (one dataset per column) and /profiles."""
     from ._io import dataset, stamp, strings, write_hdf5
-    from .result import SUMMARY_UNITS, _unit_text, write_profile
+    from .result import HYDROSTATIC_EFOLDS, SUMMARY_UNITS, _unit_text, write_profile
 
     n = len(sweep)
     keys = list(SUMMARY_COLUMNS) + ["seconds"]
@@ -759,6 +1035,9 @@ def write_sweep_table(sweep, records, out):
                 dataset(g, key, column(key), "cm / s")
             f.attrs["observables"] = json.dumps(sweep.observables)
         dataset(g, "converged", np.array([bool(row.get("converged")) for row in rows]), "1")
+        # (a hydrostatic base, not a wind: see windsolve.result.HYDROSTATIC_EFOLDS)
+        dataset(g, "hydrostatic", np.nan_to_num(column("base_density_efolds"))
+                > HYDROSTATIC_EFOLDS, "1")
         for key in ("status", "message"):
             strings(g, key, (row.get(key, "") for row in rows))
         dataset(g, "seconds", column("seconds"), "s")

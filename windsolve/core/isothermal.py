@@ -77,6 +77,8 @@ NO_BRACKET_THIN = 8  # rho(R0) < rho0 for every admissible Mdot
 INTEGRATION_FAILED = 9
 ROOT_NOT_CONVERGED = 10
 LEFT_TABLE = 11  # (rho, T) left an (unclamped) opacity table
+SONIC_ON_BASE = 12  # the only root of g puts the sonic point on the base (no subsonic part)
+NO_ROOT_JUMP = 13  # g changes sign with Mdot only by a jump: no mass-loss rate meets rho0
 
 TABLE_EDGE = 1e-6  # dex: a failed step this close to a table edge left the table
 
@@ -94,6 +96,8 @@ SUBSONIC_POINTS = 100  # a stored profile has at least this many points below r_
 PROFILE_STEPS = 2000  # room for the integration steps of one stored leg
 FIRST_STEP = 10.0  # the inward leg's first trial step, in units of its offset delta r_c
 MIN_WALK = 1e-6  # smallest step [in ln Mdot] of the walk toward a sign change
+JUMP_TOL = 1e-3  # |ln rho(R0) - ln rho0| above which a collapsed bracket holds a jump, not a root
+BASE_EMERGE = 1e-3  # (r_c - R0)/R0 just inside the window below which the saddle leaves the base
 
 
 @njit(cache=True, error_model="numpy")
@@ -559,7 +563,8 @@ def converge(P, O, rtol, delta, x, g, rc, slope, step0, x_min, x_max, shots, rea
             break
     if not bracket:
         code = NO_BRACKET_DENSE if g > 0.0 else NO_BRACKET_THIN
-        return code, math.nan, math.nan, math.nan, shots, reason, seen_ok
+        # (the last admissible trial, for the user layer to describe)
+        return code, x, rc, slope, shots, reason, seen_ok
     # Brent's method on ln Mdot (Brent 1973, ch. 4; the layout of scipy's
     # brentq), keeping r_c and the slope of every trial so that the answer
     # needs no extra shot.  It stops when the bracket or the interpolated
@@ -587,7 +592,14 @@ def converge(P, O, rtol, delta, x, g, rc, slope, step0, x_min, x_max, shots, rea
             xcur, fcur, rcur, slope_cur = xblk, fblk, rblk, slope_blk
             xblk, fblk, rblk, slope_blk = xpre, fpre, rpre, slope_pre
         sbis = 0.5 * (xblk - xcur)
-        if abs(sbis) < tol or abs(fcur) < rtol:
+        if abs(fcur) < rtol:
+            break
+        if abs(sbis) < tol:
+            if abs(fcur) > JUMP_TOL:
+                # The bracket collapsed onto a sign change that is no root: g
+                # jumps there (the innermost saddle changes), so no Mdot near
+                # it meets the base density.
+                return NO_ROOT_JUMP, xcur, math.nan, math.nan, shots, reason, seen_ok
             break
         if abs(spre) > tol and abs(fcur) < abs(fpre):
             if xpre == xblk:
@@ -599,7 +611,7 @@ def converge(P, O, rtol, delta, x, g, rc, slope, step0, x_min, x_max, shots, rea
             if 2.0 * abs(stry) < min(abs(spre), 3.0 * abs(sbis) - tol):
                 spre = scur
                 scur = stry
-                if abs(stry) < tol:
+                if abs(stry) < tol and abs(fcur) < JUMP_TOL:
                     break  # the interpolated root is within xtol of xcur
             else:
                 spre = sbis
@@ -624,7 +636,10 @@ def solve(P, O, rtol, delta):
     """Find the mass-loss rate of the transonic solution through rho(R0) = rho0.
 
     Returns ``(code, ln_mdot, r_c, slope, n_shots, reason)`` where ``reason``
-    is the first failure met while searching (useful when code != OK).
+    is the first failure met while searching (useful when code != OK).  With
+    NO_BRACKET_DENSE / NO_BRACKET_THIN, ln_mdot and r_c are those of the last
+    admissible trial.  An answer is never one whose sonic point sits on the
+    base (SONIC_ON_BASE) or a sign change of g by a jump (NO_ROOT_JUMP).
     """
     guess, ln_mdot_max = first_guess(P, O)
     x_min = ln_mdot_max - LN_RANGE
@@ -641,13 +656,27 @@ def solve(P, O, rtol, delta):
     n_hi = base_sonic_balance(x_max, P, O)
     if (n_lo > 0.0) != (n_hi > 0.0) and n_lo != 0.0 and n_hi != 0.0:
         xb = refine_base(x_min, x_max, n_lo, n_hi, P, O, 1e-14)
-        res = converge(P, O, rtol, delta, xb, xb - ln_mdot_max, P[I_R0], math.nan,
-                       0.02, x_min, x_max, 0, OK)
-        if res[6]:
-            return res[0], res[1], res[2], res[3], res[4], res[5]
-        # Nothing admissible next to the boundary: search as below.
-        shots = res[4]
         side = 1.0 if n_hi < 0.0 else -1.0
+        # The known boundary value holds only if the saddle really leaves the
+        # base there (r_c -> R0 as Mdot -> the boundary).  N(R0, a) can also
+        # change sign where the root at the base is not the innermost saddle
+        # (that sits far out, e.g. under photon tiring); then g jumps at the
+        # boundary and a "root" next to it would be that jump.  One real
+        # shot just inside the window tells which.
+        x_in = min(max(xb + side * 1e-9 * (1.0 + abs(xb)), x_min), x_max)
+        c_in, g_in, rc_in, s_in = shoot_work(x_in, P, O, rtol, delta, P.copy(), np.empty(0))
+        shots += 1
+        if c_in == OK and rc_in <= P[I_R0] * (1.0 + BASE_EMERGE):
+            res = converge(P, O, rtol, delta, xb, xb - ln_mdot_max, P[I_R0], math.nan,
+                           0.02, x_min, x_max, 0, OK)
+            if res[6]:
+                return checked(res[0], res[1], res[2], res[3], res[4] + shots, res[5], P, delta)
+            shots += res[4]
+        elif c_in == OK:
+            res = converge(P, O, rtol, delta, x_in, g_in, rc_in, s_in, 1.0, x_min, x_max,
+                           shots, OK)
+            return checked(res[0], res[1], res[2], res[3], res[4], res[5], P, delta)
+        # Nothing admissible next to the boundary: search as below.
         guess = min(max(xb + side * 1e-6 * (1.0 + abs(xb)), x_min), x_max)
     # 1. Find any admissible Mdot; 2. walk to a sign change and refine.
     found, x, g, rc, slope, shots, reason = find_admissible(P, O, rtol, delta, guess,
@@ -655,7 +684,20 @@ def solve(P, O, rtol, delta):
     if not found:
         return reason, math.nan, math.nan, math.nan, shots, reason
     res = converge(P, O, rtol, delta, x, g, rc, slope, 1.0, x_min, x_max, shots, reason)
-    return res[0], res[1], res[2], res[3], res[4], res[5]
+    return checked(res[0], res[1], res[2], res[3], res[4], res[5], P, delta)
+
+
+@njit(cache=True, error_model="numpy")
+def checked(code, x, rc, slope, shots, reason, P, delta):
+    """The answer of :func:`solve`, refused when it is not a transonic solution.
+
+    A mass-loss rate whose sonic point lies within ``delta`` of the base has
+    no subsonic part: the base density is then the sonic density and the
+    "solution" is not a wind launched from a subsonic base (SONIC_ON_BASE).
+    """
+    if code == OK and not rc * (1.0 - delta) > P[I_R0]:
+        return SONIC_ON_BASE, x, rc, slope, shots, reason
+    return code, x, rc, slope, shots, reason
 
 
 @njit(cache=True, error_model="numpy")
