@@ -700,8 +700,18 @@ def _lock_output(out):
         if same:
             break
         os.close(fd)
-    os.ftruncate(fd, 0)
-    os.write(fd, f"{os.getpid()}\n".encode())
+    try:
+        os.ftruncate(fd, 0)
+        os.write(fd, f"{os.getpid()}\n".encode())
+    except OSError as error:  # e.g. a disk with no byte free: give the lock back
+        try:
+            lock.unlink()
+        except OSError:
+            pass
+        os.close(fd)
+        raise OutputError(f"{lock}: cannot write the sweep's lock file "
+                          f"({error.strerror or error}); free some space or choose "
+                          f"another -o") from None
 
     def release():
         try:
