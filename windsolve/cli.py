@@ -277,9 +277,14 @@ def cmd_sweep(args):
             f"{args.workers or 'all'} local worker(s)"
         print(f"{args.sweep}: {len(sweep)} {sweep.kind} models ({sweep.design} design over "
               f"{', '.join(a.key for a in sweep.axes)}) on {where}")
-    done, interrupted = run_sweep(sweep, args.output, workers=args.workers,
-                                  scheduler=args.scheduler, resume=args.resume,
-                                  quiet=args.quiet, stall_timeout=args.stall_timeout)
+    try:
+        done, interrupted = run_sweep(sweep, args.output, workers=args.workers,
+                                      scheduler=args.scheduler, resume=args.resume,
+                                      quiet=args.quiet,
+                                      stall_timeout=args.stall_timeout)
+    except OSError as error:  # its journal or lock file (the table's write says so itself)
+        from ._io import output_error
+        raise output_error(error.filename or args.output, error) from None
     if interrupted:
         print(f"windsolve: interrupted: {len(done)} of {len(sweep)} models done and kept; "
               f"resume with: windsolve sweep {args.sweep} -o {args.output} --resume",
@@ -432,14 +437,11 @@ def cmd_compare(args):
                   f"{p / 1e5:13.1f} {z:17.2f}")
         print(f"  chi2 = {chi2:.3f} for {len(rows)} measurements")
         if args.output is not None:
-            import csv
-            with open(args.output, "w", newline="", encoding="utf-8") as f:
-                w = csv.writer(f)
-                w.writerow(["quantity", "line", "observed_km_s", "uncertainty_km_s",
-                            "model_km_s", "residual_sigma"])
-                for o, p, z in rows:
-                    w.writerow([o.quantity, o.line, o.value / 1e5, o.uncertainty / 1e5,
-                                p / 1e5, z])
+            from ._io import write_csv
+            write_csv(args.output, [["quantity", "line", "observed_km_s", "uncertainty_km_s",
+                                     "model_km_s", "residual_sigma"]]
+                      + [[o.quantity, o.line, o.value / 1e5, o.uncertainty / 1e5, p / 1e5, z]
+                         for o, p, z in rows])
             print(f"wrote {args.output}")
         if args.plot is not None:
             from .plotting import plot_residuals
@@ -556,7 +558,10 @@ def _export_csv(path, target):
     import h5py
     import numpy as np
 
+    from ._io import check_output_path
     from .errors import OutputError
+    if target != "-":
+        check_output_path(target)
     with h5py.File(path, "r") as f:
         if "table" not in f:
             raise OutputError(f"{path}: no /table to export (only sweep and family files "
@@ -576,18 +581,17 @@ def _export_csv(path, target):
         units = [g[k].attrs.get("units", "") for k in keys]
     header = ["row"] + [f"{k} [{u}]" if u not in ("", "1", "none") else k
                         for k, u in zip(keys, units, strict=True)]
-    out = sys.stdout if target == "-" else open(target, "w", newline="", encoding="utf-8")
-    try:
-        w = csv.writer(out)
+    rows = ([i] + [repr(float(c[i])) if c.dtype.kind == "f" else
+                   (bool(c[i]) if c.dtype.kind == "b" else c[i]) for c in cols]
+            for i in range(len(cols[0]) if cols else 0))
+    if target == "-":
+        w = csv.writer(sys.stdout)
         w.writerow(header)
-        for i in range(len(cols[0]) if cols else 0):
-            w.writerow([i] + [repr(float(c[i])) if c.dtype.kind == "f" else
-                              (bool(c[i]) if c.dtype.kind == "b" else c[i]) for c in cols])
-    finally:
-        if out is not sys.stdout:
-            out.close()
-    if target != "-":
-        print(f"wrote {target}")
+        w.writerows(rows)
+        return EXIT_OK
+    from ._io import write_csv
+    write_csv(target, [header, *rows])
+    print(f"wrote {target}")
     return EXIT_OK
 
 

@@ -73,32 +73,29 @@ class FamilyResult:
 
     def to_hdf5(self, path, profiles=False):
         """Write the table (and optionally each member's profile) to HDF5."""
-        import h5py
-
-        from ._io import atomic_write, dataset, stamp, strings
+        from ._io import dataset, stamp, strings, write_hdf5
         from .modelfile import dumps
         from .result import _unit_text, write_profile
 
-        def write(tmp):
-            with h5py.File(tmp, "w") as f:
-                stamp(f, self.model.kind)
-                f.attrs["model_toml"] = dumps(self.model.to_dict())
-                f.attrs["family_scan"] = self.scan
-                f.attrs["family_ends"] = self.ends
-                g = f.create_group("table")
-                scan = self.values * SCANS[self.scan]
-                dataset(g, self.scan, scan.cgs.value, _unit_text(scan.cgs.unit))
-                for key, unit in COLUMNS.items():
-                    if key != self.scan:
-                        dataset(g, key, self.column(key), _unit_text(unit))
-                dataset(g, "converged", self.converged, "1")
-                strings(g, "status", (m.status for m in self.members))
-                strings(g, "message", (m.message for m in self.members))
-                if profiles:
-                    for i, m in enumerate(self.members):
-                        write_profile(f.create_group(f"profiles/{i}"), m.profile)
+        def fill(f):
+            stamp(f, self.model.kind)
+            f.attrs["model_toml"] = dumps(self.model.to_dict())
+            f.attrs["family_scan"] = self.scan
+            f.attrs["family_ends"] = self.ends
+            g = f.create_group("table")
+            scan = self.values * SCANS[self.scan]
+            dataset(g, self.scan, scan.cgs.value, _unit_text(scan.cgs.unit))
+            for key, unit in COLUMNS.items():
+                if key != self.scan:
+                    dataset(g, key, self.column(key), _unit_text(unit))
+            dataset(g, "converged", self.converged, "1")
+            strings(g, "status", (m.status for m in self.members))
+            strings(g, "message", (m.message for m in self.members))
+            if profiles:
+                for i, m in enumerate(self.members):
+                    write_profile(f.create_group(f"profiles/{i}"), m.profile)
 
-        return atomic_write(path, write)
+        return write_hdf5(path, fill)
 
     @classmethod
     def from_hdf5(cls, path):

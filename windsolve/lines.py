@@ -151,12 +151,11 @@ sums (O(m)); the blue edge evaluates the Sobolev profile only where the
 search needs it.
 """
 
+import io
 import math
 import numbers
-import os
 from collections.abc import Mapping
 from dataclasses import dataclass
-from pathlib import Path
 from typing import NamedTuple
 
 import astropy.units as u
@@ -165,7 +164,7 @@ import numpy as np
 from ._units import plain, to_quantity
 from .core import lines as kernels
 from .core.constants import C_LIGHT
-from .errors import ModelError, OutputError
+from .errors import ModelError
 from .result import PROFILE_UNITS, WindResult
 
 __all__ = [
@@ -396,21 +395,12 @@ class LineProfile:
 
         Written under a temporary name and renamed when complete.
         """
-        path = Path(path)
-        if path.is_dir():
-            raise OutputError(f"{path} is a directory; give a file name such as line.csv")
-        if not path.parent.exists():
-            raise OutputError(f"{path}: directory {path.parent} does not exist")
-        tmp = path.with_name(f".{path.name}.{os.getpid()}.tmp")
+        from ._io import write_text
         data = np.column_stack([self.velocity.to_value(KM_S), np.asarray(self.flux)])
-        try:
-            np.savetxt(tmp, data, delimiter=",", header="velocity_km_s,flux", comments="",
-                       fmt="%.10g")
-            os.replace(tmp, path)
-        except OSError as error:
-            tmp.unlink(missing_ok=True)
-            raise OutputError(f"{path}: cannot write ({error})") from None
-        return path
+        buffer = io.StringIO()
+        np.savetxt(buffer, data, delimiter=",", header="velocity_km_s,flux", comments="",
+                   fmt="%.10g")
+        return write_text(path, buffer.getvalue())
 
 
 # -- input ------------------------------------------------------------------

@@ -24,7 +24,7 @@ import astropy.units as u
 import numpy as np
 
 from ._io import read_input_text
-from .errors import ModelError, OutputError
+from .errors import ModelError
 from .opacity import nearest
 
 __all__ = ["QUANTITIES", "Observation", "read_observed", "predict", "compare_result",
@@ -262,15 +262,9 @@ def _match_range(model_cls, key, start, stop):
 def write_chi2_csv(path, views, table, chi2):
     """row, axis values (cgs, as in the sweep table; the unit in the header), chi2 -- for a
     sweep comparison.  ``views``: :func:`windsolve.sweep.axis_views` of the sweep file."""
-    path = Path(path)
-    try:
-        with open(path, "w", newline="", encoding="utf-8") as f:
-            w = csv.writer(f)
-            w.writerow(["row"] + [f"{v.key} [{v.cgs_unit}]" if v.cgs_unit else v.key
-                                  for v in views] + ["chi2"])
-            for i in range(len(chi2)):
-                w.writerow([i] + [repr(float(table[v.key][i])) for v in views]
-                           + [repr(float(chi2[i]))])
-    except OSError as error:
-        raise OutputError(f"{path}: cannot write ({error})") from None
-    return path
+    from ._io import write_csv
+    rows = [["row"] + [f"{v.key} [{v.cgs_unit}]" if v.cgs_unit else v.key for v in views]
+            + ["chi2"]]
+    rows += [[i] + [repr(float(table[v.key][i])) for v in views] + [repr(float(chi2[i]))]
+             for i in range(len(chi2))]
+    return write_csv(path, rows)

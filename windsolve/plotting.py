@@ -24,11 +24,13 @@ def _figure(figsize):
 
 def save(plt, fig, path):
     """Write a figure (format by extension) and close it; one-line OutputError."""
+    from ._io import write_figure
     try:
-        fig.savefig(path, dpi=120)
-    except (OSError, ValueError) as error:
+        write_figure(fig, path, dpi=120)
+    except ValueError as error:  # a format matplotlib cannot write
         raise OutputError(f"{path}: cannot write the plot ({error})") from None
-    plt.close(fig)
+    finally:
+        plt.close(fig)
     return path
 
 

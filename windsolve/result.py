@@ -14,7 +14,7 @@ from pathlib import Path
 import astropy.units as u
 import numpy as np
 
-from ._io import atomic_write, dataset, open_hdf5, stamp, strings
+from ._io import dataset, open_hdf5, stamp, strings, write_hdf5
 from .errors import OutputError
 
 __all__ = ["WindResult", "PROFILE_UNITS", "SUMMARY_UNITS"]
@@ -193,8 +193,6 @@ class WindResult:
         renamed when complete, so an interrupted write never leaves a
         half-written file at ``path``.
         """
-        import h5py
-
         from .modelfile import dumps
 
         path = Path(path)
@@ -203,32 +201,31 @@ class WindResult:
         if not path.parent.exists():
             raise OutputError(f"{path}: directory {path.parent} does not exist")
 
-        def write(tmp):
-            with h5py.File(tmp, "w") as f:
-                stamp(f, self.model.kind)
-                f.attrs["model_toml"] = dumps(self.model.to_dict())
-                g = f.create_group("summary")
-                g.attrs["converged"] = bool(self.converged)
-                g.attrs["status"] = self.status
-                g.attrs["message"] = self.message
-                g.attrs["hydrostatic"] = self.hydrostatic
-                units = {}
-                for key, q in self.summary.items():
-                    g.attrs[key] = float(q.to_value(SUMMARY_UNITS[key]))
-                    units[key] = _unit_text(SUMMARY_UNITS[key])
-                g.attrs["units"] = json.dumps(units)
-                g.attrs["shots"] = int(self.counters.get("shots", 0))
-                g.attrs["solve_seconds"] = float(self.counters.get("seconds", 0.0))
-                write_profile(f.create_group("profile"), self.profile)
-                c = f.create_group("critical_points")
-                n = len(self.critical_points)
-                for key, unit in (("radius", "cm"), ("slope_plus", "1/s"),
-                                  ("slope_minus", "1/s")):
-                    dataset(c, key, np.array([cp[key] for cp in self.critical_points],
-                                             dtype=np.float64).reshape(n), unit)
-                strings(c, "kind", (cp["kind"] for cp in self.critical_points))
+        def fill(f):
+            stamp(f, self.model.kind)
+            f.attrs["model_toml"] = dumps(self.model.to_dict())
+            g = f.create_group("summary")
+            g.attrs["converged"] = bool(self.converged)
+            g.attrs["status"] = self.status
+            g.attrs["message"] = self.message
+            g.attrs["hydrostatic"] = self.hydrostatic
+            units = {}
+            for key, q in self.summary.items():
+                g.attrs[key] = float(q.to_value(SUMMARY_UNITS[key]))
+                units[key] = _unit_text(SUMMARY_UNITS[key])
+            g.attrs["units"] = json.dumps(units)
+            g.attrs["shots"] = int(self.counters.get("shots", 0))
+            g.attrs["solve_seconds"] = float(self.counters.get("seconds", 0.0))
+            write_profile(f.create_group("profile"), self.profile)
+            c = f.create_group("critical_points")
+            n = len(self.critical_points)
+            for key, unit in (("radius", "cm"), ("slope_plus", "1/s"),
+                              ("slope_minus", "1/s")):
+                dataset(c, key, np.array([cp[key] for cp in self.critical_points],
+                                         dtype=np.float64).reshape(n), unit)
+            strings(c, "kind", (cp["kind"] for cp in self.critical_points))
 
-        return atomic_write(path, write)
+        return write_hdf5(path, fill)
 
     @classmethod
     def from_hdf5(cls, path):

@@ -703,8 +703,18 @@ def _lock_output(out):
         if same:
             break
         os.close(fd)
-    os.ftruncate(fd, 0)
-    os.write(fd, f"{os.getpid()}\n".encode())
+    try:
+        os.ftruncate(fd, 0)
+        os.write(fd, f"{os.getpid()}\n".encode())
+    except OSError as error:  # e.g. a disk with no byte free: give the lock back
+        try:
+            lock.unlink()
+        except OSError:
+            pass
+        os.close(fd)
+        raise OutputError(f"{lock}: cannot write the sweep's lock file "
+                          f"({error.strerror or error}); free some space or choose "
+                          f"another -o") from None
 
     def release():
         try:
@@ -1001,9 +1011,7 @@ def _watch_parent(parent):
 
 def write_sweep_table(sweep, records, out):
     """The sweep's HDF5 file: /table (one dataset per column) and /profiles."""
-    import h5py
-
-    from ._io import atomic_write, dataset, stamp, strings
+    from ._io import dataset, stamp, strings, write_hdf5
     from .result import HYDROSTATIC_EFOLDS, SUMMARY_UNITS, _unit_text, write_profile
 
     n = len(sweep)
@@ -1022,36 +1030,35 @@ def write_sweep_table(sweep, records, out):
     def column(key):
         return data[:, index[key]]
 
-    def write(tmp):
-        with h5py.File(tmp, "w") as f:
-            stamp(f, sweep.kind)
-            f.attrs["sweep_toml"] = sweep.text
-            f.attrs["sweep_file"] = str(sweep.path)
-            f.attrs["design"] = sweep.design
-            f.attrs["axes"] = json.dumps([a.key for a in sweep.axes])
-            g = f.create_group("table")
-            for a in sweep.axes:
-                d = dataset(g, a.key, a.numbers, a.unit or "1")
-                d.attrs["shown_unit"] = a.shown_unit
-                d.attrs["log"] = a.log
-            for key in SUMMARY_COLUMNS:
-                dataset(g, key, column(key), _unit_text(SUMMARY_UNITS[key]))
-            if sweep.observables is not None:
-                for key in WIDTH_COLUMNS:
-                    dataset(g, key, column(key), "cm / s")
-                f.attrs["observables"] = json.dumps(sweep.observables)
-            dataset(g, "converged", np.array([bool(row.get("converged")) for row in rows]), "1")
-            # (a hydrostatic base, not a wind: see windsolve.result.HYDROSTATIC_EFOLDS)
-            dataset(g, "hydrostatic", np.nan_to_num(column("base_density_efolds"))
-                    > HYDROSTATIC_EFOLDS, "1")
-            for key in ("status", "message"):
-                strings(g, key, (row.get(key, "") for row in rows))
-            dataset(g, "seconds", column("seconds"), "s")
-            for i, row in enumerate(rows):
-                if row.get("profile"):
-                    write_profile(f.create_group(f"profiles/{i}"), row["profile"])
+    def fill(f):
+        stamp(f, sweep.kind)
+        f.attrs["sweep_toml"] = sweep.text
+        f.attrs["sweep_file"] = str(sweep.path)
+        f.attrs["design"] = sweep.design
+        f.attrs["axes"] = json.dumps([a.key for a in sweep.axes])
+        g = f.create_group("table")
+        for a in sweep.axes:
+            d = dataset(g, a.key, a.numbers, a.unit or "1")
+            d.attrs["shown_unit"] = a.shown_unit
+            d.attrs["log"] = a.log
+        for key in SUMMARY_COLUMNS:
+            dataset(g, key, column(key), _unit_text(SUMMARY_UNITS[key]))
+        if sweep.observables is not None:
+            for key in WIDTH_COLUMNS:
+                dataset(g, key, column(key), "cm / s")
+            f.attrs["observables"] = json.dumps(sweep.observables)
+        dataset(g, "converged", np.array([bool(row.get("converged")) for row in rows]), "1")
+        # (a hydrostatic base, not a wind: see windsolve.result.HYDROSTATIC_EFOLDS)
+        dataset(g, "hydrostatic", np.nan_to_num(column("base_density_efolds"))
+                > HYDROSTATIC_EFOLDS, "1")
+        for key in ("status", "message"):
+            strings(g, key, (row.get(key, "") for row in rows))
+        dataset(g, "seconds", column("seconds"), "s")
+        for i, row in enumerate(rows):
+            if row.get("profile"):
+                write_profile(f.create_group(f"profiles/{i}"), row["profile"])
 
-    return atomic_write(out, write)
+    return write_hdf5(out, fill)
 
 
 SWEEP_REQUIRED = ("mass_loss_rate", "terminal_velocity")  # numbers of every converged row

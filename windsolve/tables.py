@@ -53,7 +53,8 @@ from pathlib import Path
 
 import numpy as np
 
-from ._io import atomic_write
+from ._io import write_hdf5 as _write_hdf5_file
+from ._io import write_text as _write_text_file
 from .core import opacity as kernels
 from .errors import ModelError
 
@@ -323,26 +324,23 @@ def write_text(table, path):
     for head, row in zip(heads, cells, strict=True):
         lines.append(head.rjust(width) + "".join(s.rjust(width) for s in row))
     text = "\n".join(lines) + "\n"
-    return atomic_write(path, lambda tmp: tmp.write_text(text, encoding="utf-8"))
+    return _write_text_file(path, text)
 
 
 def write_hdf5(table, path):
     """Write ``table`` in the HDF5 layout of the module docstring (via rename)."""
-    import h5py
-
     from ._version import __version__
 
-    def write(tmp):
-        with h5py.File(tmp, "w") as f:
-            f.attrs["format"] = HDF5_FORMAT
-            f.attrs["description"] = "\n".join(table.description)
-            f.attrs["windsolve_version"] = __version__
-            f.attrs["created"] = datetime.datetime.now(datetime.UTC).isoformat(
-                timespec="seconds")
-            for name in ("log_T", "log_R", "log_kappa"):
-                d = f.create_dataset(name, data=np.asarray(getattr(table, name), dtype=float))
-                d.attrs["units"] = HDF5_UNITS[name]
-    return atomic_write(path, write)
+    def fill(f):
+        f.attrs["format"] = HDF5_FORMAT
+        f.attrs["description"] = "\n".join(table.description)
+        f.attrs["windsolve_version"] = __version__
+        f.attrs["created"] = datetime.datetime.now(datetime.UTC).isoformat(
+            timespec="seconds")
+        for name in ("log_T", "log_R", "log_kappa"):
+            d = f.create_dataset(name, data=np.asarray(getattr(table, name), dtype=float))
+            d.attrs["units"] = HDF5_UNITS[name]
+    return _write_hdf5_file(path, fill)
 
 
 def write_table(table, path):
