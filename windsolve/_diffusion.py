@@ -31,7 +31,8 @@ from .core.critical import SADDLE
 DELTA = 1e-6  # start this fraction of r_c off the critical point
 MAX_SHOTS = 200
 SHOT_CAPACITY = 100000
-TIE_DISTANCE = 1e-3  # tie the critical point to the shot this far (in ln r) outside it
+TIE_DISTANCE = 1e-3  # tie the critical point to the shot at least this far (ln r) outside it
+TIE_AGREEMENT = 10.0  # ... and where the two bracketing shots agree to this many rtol
 PROFILE_STEP = 0.02  # largest step in ln r of stored profiles (as windsolve.solve.MAX_STEP)
 NO_X = np.empty(0)
 NO_Y = np.empty((0, 2))
@@ -92,6 +93,8 @@ class PhotosphereSolution:
     T_ph: float
     v_ph: float
     ln_mdot: float
+    outer_x: np.ndarray = None  # ln r from r_c (1 + DELTA) to the photosphere, increasing
+    outer_y: np.ndarray = None  # (ln v, ln T) there
 
 
 def _bracket(P, O, R_ph, L_ph, T_eff, rtol):
@@ -128,13 +131,15 @@ def _bracket(P, O, R_ph, L_ph, T_eff, rtol):
                                    "exceeds 1 on the way in, or the flow stalls)")
 
 
-def _refine_critical(P, O, ln_mdot, stop, tie, rtol):
-    """Critical point of the (Mdot, Edot) in P nearest an inward shot's stop.
+def _project_critical(P, O, ln_mdot, stop):
+    """First guess (r_c, T_c) of the critical point nearest an inward shot's stop.
 
-    The shot stops a small distance d past... short of the saddle on the
-    separatrix.  Project onto the critical curve (N = 0 at v = c_T) and step
-    back along the saddle's slope: v_s - c_T(T_c) = p (r_s - r_c), iterated
-    until r_c settles (the error is O(d^2)).
+    Project the stop onto the critical curve of the (Mdot, Edot) in P
+    (N = 0 at v = c_T) and step back along the saddle's slope:
+    v_s - c_T(T_c) = p (r_s - r_c), iterated until r_c settles.  Good to
+    O(d^2) only if the shot follows the separatrix to a distance d of the
+    saddle, which a weakly repelling saddle does not: :func:`_refine_critical`
+    then ties the guess to the shot further out.
     """
     r_s, v_s, T_s = stop
     rc = r_s
@@ -152,8 +157,18 @@ def _refine_critical(P, O, ln_mdot, stop, tie, rtol):
             rc = rc_new
             break
         rc = rc_new
-    # Then tie it to the shot exactly: the wind branch leaving (r_c, T_c)
-    # must pass through the stop point (secant on r_c along the critical curve).
+    return rc, Tc
+
+
+def _refine_critical(P, O, ln_mdot, guess, tie, rtol):
+    """Critical point of the (Mdot, Edot) in P whose wind branch passes through ``tie``.
+
+    ``guess`` = (r_c, T_c) from :func:`_project_critical`; ``tie`` = (r, v, T)
+    a point of the inward shot where it is still on the separatrix.  Secant on
+    r_c along the critical curve until the wind branch leaving (r_c, T_c)
+    meets the tie point's ln v.
+    """
+    rc, Tc = guess
     r_t, v_t, T_t = tie
 
     def miss(rc_try, Tc_guess):
@@ -217,8 +232,9 @@ def solve_photosphere_anchor(P, O, L_ph, T_eff, rtol, out_x=NO_X, out_y=NO_Y,
         else:
             raise ModelBFailure(code, "the inward integration from the photosphere failed "
                                       "while bracketing the mass-loss rate")
-    # The sonic-side shot hugs the separatrix down to the sound speed.
-    x_sonic = lo if code_lo == D.SIDE_SONIC else hi
+    # The sonic-side shot hugs the separatrix down to the sound speed; the
+    # other bracketing shot tells how far in it still follows the separatrix.
+    x_sonic, x_other = (lo, hi) if code_lo == D.SIDE_SONIC else (hi, lo)
     if out_x.shape[0] == 0:
         out_x = np.empty(SHOT_CAPACITY)
         out_y = np.empty((SHOT_CAPACITY, 2))
@@ -228,14 +244,63 @@ def solve_photosphere_anchor(P, O, L_ph, T_eff, rtol, out_x=NO_X, out_y=NO_Y,
         raise ModelBFailure(D.FAILED, "the converged inward solution did not reach the "
                                       "sonic point; try another numerics.rtol")
     v_ph = D.photospheric_state(math.exp(x_sonic), R_ph, L_ph, T_eff, Q)
-    # The shot leaves the separatrix only in the last ~1e-6 before the sonic
-    # line; tie the critical point to a stored point further out.
-    k = n - 1
-    while k > 0 and out_x[k] < math.log(r) + TIE_DISTANCE:
-        k -= 1
+    other_x = np.empty(out_x.shape[0])
+    other_y = np.empty(out_y.shape)
+    n_other = D.shoot_stored(x_other, R_ph, L_ph, T_eff, P.copy(), O, rtol, max_step,
+                             other_x, other_y)[4]
+    guess = _project_critical(Q, O, x_sonic, (r, v, T))
+    k = _tie_index(out_x[:n], out_y[:n], other_x[:n_other], other_y[:n_other],
+                   math.log(max(r, guess[0])), rtol)
     tie = (math.exp(out_x[k]), math.exp(out_y[k, 0]), math.exp(out_y[k, 1]))
-    c = _refine_critical(Q, O, x_sonic, (r, v, T), tie, rtol)
-    return PhotosphereSolution(c, R_ph, L_ph, T_eff, v_ph, x_sonic), n
+    c = _refine_critical(Q, O, x_sonic, guess, tie, rtol)
+    if c.Tc >= Q[D.I_T_IN] or c.rc <= Q[D.I_R_IN]:
+        # A base condition the solution does not meet: no subsonic part.
+        if c.Tc >= Q[D.I_T_IN]:
+            where = (f"the sonic point (T_c = {c.Tc:.4g} K) is hotter than the requested "
+                     f"base temperature {Q[D.I_T_IN]:.4g} K")
+            fix = "raise [boundary] base_temperature above T_c"
+        else:
+            where = (f"the sonic point (r_c = {c.rc / 6.957e10:.4g} Rsun) lies inside "
+                     f"[star] radius = {Q[D.I_R_IN] / 6.957e10:.4g} Rsun")
+            fix = "lower [star] radius below r_c"
+        raise ModelBFailure(D.INVALID, f"{where}, so the wind has no subsonic part down to "
+                                       f"the base; {fix} (or change the photosphere or the "
+                                       f"opacity)")
+    # The outer profile: the wind branch from the critical point out to the
+    # tie point, then the shot outside it (where it is on the separatrix).
+    leg_x = np.empty(SHOT_CAPACITY)
+    leg_y = np.empty((SHOT_CAPACITY, 2))
+    ok, n_leg = D.outward_leg(c.rc, c.vc, c.Tc, c.slope, c.dTdr, DELTA, out_x[k], c.P, O,
+                              rtol, max_step, leg_x, leg_y)
+    if not ok or n_leg < 1:
+        raise ModelBFailure(D.FAILED, "the wind branch from the sonic point could not be "
+                                      "followed out to the converged inward solution; try "
+                                      "another numerics.rtol")
+    leg_x[n_leg - 1] = out_x[k]  # the leg ends on the tie point (to rounding)
+    outer_x = np.concatenate([leg_x[:n_leg], out_x[:k][::-1]])
+    outer_y = np.concatenate([leg_y[:n_leg], out_y[:k][::-1]])
+    return PhotosphereSolution(c, R_ph, L_ph, T_eff, v_ph, x_sonic, outer_x, outer_y), n
+
+
+def _tie_index(xs, ys, xo, yo, x_stop, rtol):
+    """Where to tie the critical point to the sonic-side shot (xs, ys), an index.
+
+    Near a weakly repelling saddle the converged shot leaves the separatrix
+    far outside its stop.  The two shots that bracket Mdot lie on either
+    side of the separatrix, so where they still agree (to TIE_AGREEMENT rtol
+    in ln v and ln T) both are on it: the innermost such stored point, at
+    least TIE_DISTANCE in ln r outside x_stop (the stop or the first guess of
+    r_c, whichever is further out).  Both shots run inward
+    (x decreasing); the other one (xo, yo) is interpolated onto xs.
+    """
+    tol = TIE_AGREEMENT * rtol
+    inside = xs >= xo[-1]
+    lnv = np.interp(xs, xo[::-1], yo[::-1, 0])
+    lnT = np.interp(xs, xo[::-1], yo[::-1, 1])
+    apart = ~inside | (np.abs(lnv - ys[:, 0]) > tol) | (np.abs(lnT - ys[:, 1]) > tol)
+    first_apart = int(np.argmax(apart)) if apart.any() else xs.shape[0]
+    far_enough = int(np.count_nonzero(xs >= x_stop + TIE_DISTANCE)) - 1
+    return max(min(first_apart - 1, far_enough), 0)
 
 
 def base_values(P, O, L_ph, T_eff, rtol):

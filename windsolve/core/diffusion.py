@@ -352,6 +352,22 @@ def short_outward(rc, vc, Tc, p, dTdr, delta, r_target, P, O, rtol):
 
 
 @njit(cache=True, error_model="numpy")
+def outward_leg(rc, vc, Tc, p, dTdr, delta, x_target, P, O, rtol, max_step, out_x, out_y):
+    """The wind branch from r_c (1 + delta) out to ln r = x_target, stored.
+
+    As :func:`short_outward` (same start, same tolerance) but storing the
+    accepted points (at most max_step apart in ln r); returns (ok, n_stored).
+    """
+    y0 = np.empty(2)
+    x0 = math.log(rc * (1.0 + delta))
+    y0[0] = math.log(vc + p * delta * rc)
+    y0[1] = math.log(Tc + dTdr * delta * rc)
+    st, x, y, n, nfev = integrate_plain(x0, y0, x_target, P, O, 0.0, rtol, delta, max_step,
+                                        out_x, out_y)
+    return st == REACHED_END, n
+
+
+@njit(cache=True, error_model="numpy")
 def photospheric_state(mdot, R, L, T, P):
     """Set Mdot and Edot in P from a photosphere (R, L, T); returns v_ph.
 
