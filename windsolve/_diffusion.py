@@ -207,13 +207,55 @@ def _refine_critical(P, O, ln_mdot, guess, tie, rtol):
     return c
 
 
+class BelowBase(ModelBFailure):
+    """The sonic point lies at or below the requested inner end (no subsonic part)."""
+
+
+def _check_above_base(c, T_in, R_in):
+    """Raise BelowBase unless the critical point c lies above the inner end."""
+    if c.Tc >= T_in:
+        where = (f"the sonic point (T_c = {c.Tc:.4g} K) is hotter than the requested base "
+                 f"temperature {T_in:.4g} K")
+        fix = "raise [boundary] base_temperature above T_c"
+    elif c.rc <= R_in:
+        where = (f"the sonic point (r_c = {c.rc / 6.957e10:.4g} Rsun) lies inside "
+                 f"[star] radius = {R_in / 6.957e10:.4g} Rsun")
+        fix = "lower [star] radius below r_c"
+    else:
+        return
+    raise BelowBase(D.INVALID, f"{where}, so the wind has no subsonic part down to the "
+                               f"base; {fix} (or change the photosphere or the opacity)")
+
+
 def solve_photosphere_anchor(P, O, L_ph, T_eff, rtol, out_x=NO_X, out_y=NO_Y,
-                             max_step=np.inf):
+                             max_step=np.inf, diagnose=False):
     """The regular solution with photosphere (L_ph, T_eff); stores the outer path.
 
-    Returns (PhotosphereSolution, n_stored): the stored points run inward from
-    the photosphere to just outside the critical point.
+    Returns (PhotosphereSolution, n_stored).  Raises ModelBFailure, or its
+    BelowBase when the sonic point is hotter than P[I_T_IN] or inside
+    P[I_R_IN].  Inward shots stop at that inner end, so a sonic point below
+    it shows as some other failure; with ``diagnose`` such a failure is
+    retried without the inner end, to say so instead.
     """
+    try:
+        return _solve_photosphere_anchor(P, O, L_ph, T_eff, rtol, out_x, out_y, max_step)
+    except BelowBase:
+        raise
+    except ModelBFailure as failure:
+        if not diagnose or (P[D.I_T_IN] == np.inf and P[D.I_R_IN] <= 0.0):
+            raise
+        Q = P.copy()
+        Q[D.I_T_IN] = np.inf
+        Q[D.I_R_IN] = 0.0
+        try:
+            sol = _solve_photosphere_anchor(Q, O, L_ph, T_eff, rtol, NO_X, NO_Y, max_step)[0]
+        except ModelBFailure:
+            raise failure from None
+        _check_above_base(sol.crit, P[D.I_T_IN], P[D.I_R_IN])
+        raise
+
+
+def _solve_photosphere_anchor(P, O, L_ph, T_eff, rtol, out_x, out_y, max_step):
     R_ph = photosphere_radius(L_ph, T_eff)
     if P[D.I_R_IN] > 0.0 and R_ph <= P[D.I_R_IN]:
         raise ModelBFailure(D.INVALID, "the photosphere lies inside the base radius")
@@ -253,19 +295,7 @@ def solve_photosphere_anchor(P, O, L_ph, T_eff, rtol, out_x=NO_X, out_y=NO_Y,
                    math.log(max(r, guess[0])), rtol)
     tie = (math.exp(out_x[k]), math.exp(out_y[k, 0]), math.exp(out_y[k, 1]))
     c = _refine_critical(Q, O, x_sonic, guess, tie, rtol)
-    if c.Tc >= Q[D.I_T_IN] or c.rc <= Q[D.I_R_IN]:
-        # A base condition the solution does not meet: no subsonic part.
-        if c.Tc >= Q[D.I_T_IN]:
-            where = (f"the sonic point (T_c = {c.Tc:.4g} K) is hotter than the requested "
-                     f"base temperature {Q[D.I_T_IN]:.4g} K")
-            fix = "raise [boundary] base_temperature above T_c"
-        else:
-            where = (f"the sonic point (r_c = {c.rc / 6.957e10:.4g} Rsun) lies inside "
-                     f"[star] radius = {Q[D.I_R_IN] / 6.957e10:.4g} Rsun")
-            fix = "lower [star] radius below r_c"
-        raise ModelBFailure(D.INVALID, f"{where}, so the wind has no subsonic part down to "
-                                       f"the base; {fix} (or change the photosphere or the "
-                                       f"opacity)")
+    _check_above_base(c, Q[D.I_T_IN], Q[D.I_R_IN])
     # The outer profile: the wind branch from the critical point out to the
     # tie point, then the shot outside it (where it is on the separatrix).
     leg_x = np.empty(SHOT_CAPACITY)

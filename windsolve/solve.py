@@ -249,7 +249,8 @@ def solve_diffusion(model, profile=True):
             kind = "temperature" if model.base_temperature is not None else "density"
             L_ph, T_ph = B.solve_base_anchor(P, O, model.cgs("luminosity"), kind,
                                              model.cgs(f"base_{kind}"), rtol)
-        sol, no = B.solve_photosphere_anchor(P, O, L_ph, T_ph, rtol, xo, yo, MAX_STEP)
+        sol, no = B.solve_photosphere_anchor(P, O, L_ph, T_ph, rtol, xo, yo, MAX_STEP,
+                                             diagnose=model.anchor == "photosphere")
     except B.ModelBFailure as failure:
         return _diffusion_failure_result(model, summary, failure.code, failure.text, t0)
     c = sol.crit
