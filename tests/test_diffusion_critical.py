@@ -13,6 +13,8 @@ The stars are invented (Kramers opacity with an enhanced bound-free term).
 """
 
 import math
+import sys
+from pathlib import Path
 
 import astropy.constants as ac
 import astropy.units as u
@@ -20,8 +22,12 @@ import numpy as np
 import pytest
 
 import windsolve
+from windsolve import DiffusionWind
 from windsolve import _diffusion as B
 from windsolve.cli import main
+
+BENCHMARKS = Path(__file__).resolve().parent.parent / "benchmarks"
+CONFIGS = Path(__file__).resolve().parent.parent / "configs"
 
 G = ac.G.cgs.value
 C = ac.c.cgs.value
@@ -133,6 +139,57 @@ def test_weak_saddle_critical_conditions_and_lines(tmp_path, capsys):
     assert abs((kappa - kramers) / kes - 1) < 0.02
     capsys.readouterr()
     assert main(["lines", str(out)]) == 0
+
+
+def test_bump_star_critical_point_against_scipy_reference(monkeypatch):
+    # Outside reference: benchmarks/scipy_reference_diffusion.py, an
+    # independent solve (plain-Python right-hand side, scipy solve_ivp and
+    # brentq, nothing compiled).  It ties its critical point at
+    # B.TIE_DISTANCE outside its stop; tied 0.05 in ln r out it is past the
+    # shot's departure from the separatrix.
+    sys.path.insert(0, str(BENCHMARKS))
+    try:
+        import scipy_reference_diffusion as reference
+    finally:
+        sys.path.remove(str(BENCHMARKS))
+    model = windsolve.load_model(CONFIGS / "bump_wind.toml")
+    result = windsolve.solve(model)
+    assert result.converged, result.message
+    rc, Tc = sonic(result)
+    P, O = model.kernel_arrays
+    monkeypatch.setattr(B, "TIE_DISTANCE", 0.05)
+    ref = reference.solve_reference(P, O, model.cgs("photosphere_luminosity"),
+                                    model.cgs("photosphere_temperature"), model.rtol)
+    assert abs(ref["sonic_radius"] / rc - 1) < 1e-8
+    assert abs(ref["sonic_temperature"] / Tc - 1) < 1e-8
+    assert abs(ref["mass_loss_rate"] / result.summary["mass_loss_rate"].to_value(u.g / u.s)
+               - 1) < 1e-8
+
+
+@pytest.mark.slow
+def test_weak_saddle_base_anchor_recovers_photosphere():
+    # The two anchors describe one solution: anchored at the base values the
+    # photosphere-anchored solve reports, the solve must give back its
+    # photosphere, mass-loss rate and critical point (before the fix the
+    # misplaced r_c gave a base no wind reaches: "could only be matched").
+    kw = dict(mass="1.2 Msun", X=0.7, Z=0.02, rtol=1e-10,
+              opacity=dict(law="kramers", free_free_coefficient="3.68e22 cm5 K(7/2) / g2",
+                           bound_free_coefficient="1.302e27 cm5 K(7/2) / g2",
+                           gaunt_guillotine_ratio=1.0))
+    top = windsolve.solve(DiffusionWind(name="weak saddle (invented)", **kw,
+                                        photosphere_luminosity="4e4 Lsun",
+                                        photosphere_temperature="2e4 K",
+                                        base_temperature="1e6 K"))
+    assert top.converged, top.message
+    s = top.summary
+    base = windsolve.solve(DiffusionWind(name="weak saddle (invented)", **kw,
+                                         radius=s["base_radius"],
+                                         luminosity=s["base_luminosity"],
+                                         base_temperature="1e6 K"))
+    assert base.converged, base.message
+    for key in ("mass_loss_rate", "photosphere_luminosity", "photosphere_temperature",
+                "sonic_radius", "sonic_temperature"):
+        assert abs((base.summary[key] / s[key]).decompose().value - 1) < 1e-7, key
 
 
 @pytest.mark.parametrize("T_base", ["2.6e5 K", "1e5 K"])
