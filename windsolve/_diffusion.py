@@ -10,7 +10,8 @@ Photosphere anchor (given L_ph, T_eff, hence R_ph)
     between the two outcomes converges on the regular solution (SPEC
     section 8).  Its critical point is then located on the critical curve of
     the same (Mdot, Edot) and tied to the converged shot by a short outward
-    leg; the subsonic part is integrated inward from it.  Integrating the
+    leg, where the two bracketing shots still agree (:func:`_tie_index`);
+    the subsonic part is integrated inward from it.  Integrating the
     diffusion equation outward over long distances is avoided: it amplifies
     errors by about (T_c / T_ph)^3.
 Base anchor (given R0, L0 and T0 or rho0)
