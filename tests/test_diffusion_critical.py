@@ -102,6 +102,23 @@ def test_critical_point_independent_of_tie_distance(case, tmp_path, monkeypatch)
         assert np.all(np.diff(r) > 0), "written radius must increase strictly"
 
 
+def test_weak_saddle_critical_point_unchanged_under_tighter_rtol(tmp_path):
+    # (d) the answer must not move when the tolerance is tightened a hundred-fold
+    # (with rtol 1e-11 a comparison of the bracketing shots by interpolating
+    # between their steps once tied at the photosphere and put r_c 1.3 % off).
+    found = []
+    for rtol in ("1e-10", "1e-11", "1e-12"):
+        path = write_model(tmp_path, f"rtol{rtol}.toml", **WEAK["issue example"])
+        path.write_text(path.read_text().replace("rtol = 1e-10", f"rtol = {rtol}"))
+        result = windsolve.solve(windsolve.load_model(path))
+        assert result.converged, result.message
+        found.append(sonic(result))
+    (rc0, Tc0), *rest = found
+    for rc, Tc in rest:
+        assert abs(rc / rc0 - 1) < 1e-8, found
+        assert abs(Tc / Tc0 - 1) < 1e-8, found
+
+
 def test_weak_saddle_critical_conditions_and_lines(tmp_path, capsys):
     path = write_model(tmp_path, **WEAK["issue example"])
     out = tmp_path / "weak.h5"

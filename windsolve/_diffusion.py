@@ -10,7 +10,7 @@ Photosphere anchor (given L_ph, T_eff, hence R_ph)
     between the two outcomes converges on the regular solution (SPEC
     section 8).  Its critical point is then located on the critical curve of
     the same (Mdot, Edot) and tied to the converged shot by a short outward
-    leg, where the two bracketing shots still agree (:func:`_tie_index`);
+    leg, where the two bracketing shots still agree (:func:`_agreement_limit`);
     the subsonic part is integrated inward from it.  Integrating the
     diffusion equation outward over long distances is avoided: it amplifies
     errors by about (T_c / T_ph)^3.
@@ -34,6 +34,7 @@ MAX_SHOTS = 200
 SHOT_CAPACITY = 100000
 TIE_DISTANCE = 1e-3  # tie the critical point to the shot at least this far (ln r) outside it
 TIE_AGREEMENT = 10.0  # ... and where the two bracketing shots agree to this many rtol
+AGREEMENT_DX = 0.005  # spacing in ln r of the points where the bracketing shots are compared
 PROFILE_STEP = 0.02  # largest step in ln r of stored profiles (as windsolve.solve.MAX_STEP)
 NO_X = np.empty(0)
 NO_Y = np.empty((0, 2))
@@ -287,13 +288,10 @@ def _solve_photosphere_anchor(P, O, L_ph, T_eff, rtol, out_x, out_y, max_step):
         raise ModelBFailure(D.FAILED, "the converged inward solution did not reach the "
                                       "sonic point; try another numerics.rtol")
     v_ph = D.photospheric_state(math.exp(x_sonic), R_ph, L_ph, T_eff, Q)
-    other_x = np.empty(out_x.shape[0])
-    other_y = np.empty(out_y.shape)
-    n_other = D.shoot_stored(x_other, R_ph, L_ph, T_eff, P.copy(), O, rtol, max_step,
-                             other_x, other_y)[4]
     guess = _project_critical(Q, O, x_sonic, (r, v, T))
-    k = _tie_index(out_x[:n], out_y[:n], other_x[:n_other], other_y[:n_other],
-                   math.log(max(r, guess[0])), rtol)
+    x_agree = _agreement_limit(P, O, R_ph, L_ph, T_eff, x_sonic, x_other, rtol, max_step)
+    x_floor = max(math.log(max(r, guess[0])) + TIE_DISTANCE, x_agree)
+    k = max(int(np.count_nonzero(out_x[:n] >= x_floor)) - 1, 0)
     tie = (math.exp(out_x[k]), math.exp(out_y[k, 0]), math.exp(out_y[k, 1]))
     c = _refine_critical(Q, O, x_sonic, guess, tie, rtol)
     _check_above_base(c, Q[D.I_T_IN], Q[D.I_R_IN])
@@ -313,25 +311,33 @@ def _solve_photosphere_anchor(P, O, L_ph, T_eff, rtol, out_x, out_y, max_step):
     return PhotosphereSolution(c, R_ph, L_ph, T_eff, v_ph, x_sonic, outer_x, outer_y), n
 
 
-def _tie_index(xs, ys, xo, yo, x_stop, rtol):
-    """Where to tie the critical point to the sonic-side shot (xs, ys), an index.
+def _agreement_limit(P, O, R_ph, L_ph, T_eff, x_sonic, x_other, rtol, max_step):
+    """Innermost ln r down to which the two bracketing shots agree.
 
     Near a weakly repelling saddle the converged shot leaves the separatrix
-    far outside its stop.  The two shots that bracket Mdot lie on either
-    side of the separatrix, so where they still agree (to TIE_AGREEMENT rtol
-    in ln v and ln T) both are on it: the innermost such stored point, at
-    least TIE_DISTANCE in ln r outside x_stop (the stop or the first guess of
-    r_c, whichever is further out).  Both shots run inward
-    (x decreasing); the other one (xo, yo) is interpolated onto xs.
+    far outside its stop.  The two shots that bracket Mdot lie on either side
+    of the separatrix, so where they still agree (to TIE_AGREEMENT rtol in
+    ln v and ln T) both are on it.  They are compared at the abscissae
+    ln R_ph - k AGREEMENT_DX of their dense output, which both share exactly
+    (their own steps differ once the step control decides differently).
     """
     tol = TIE_AGREEMENT * rtol
-    inside = xs >= xo[-1]
-    lnv = np.interp(xs, xo[::-1], yo[::-1, 0])
-    lnT = np.interp(xs, xo[::-1], yo[::-1, 1])
-    apart = ~inside | (np.abs(lnv - ys[:, 0]) > tol) | (np.abs(lnT - ys[:, 1]) > tol)
-    first_apart = int(np.argmax(apart)) if apart.any() else xs.shape[0]
-    far_enough = int(np.count_nonzero(xs >= x_stop + TIE_DISTANCE)) - 1
-    return max(min(first_apart - 1, far_enough), 0)
+    xs, ys = [], []
+    for x in (x_sonic, x_other):
+        ox = np.empty(SHOT_CAPACITY)
+        oy = np.empty((SHOT_CAPACITY, 2))
+        n = D.shoot_dense(x, R_ph, L_ph, T_eff, P.copy(), O, rtol, max_step, AGREEMENT_DX,
+                          ox, oy)[4]
+        xs.append(ox[:n])
+        ys.append(oy[:n])
+    common, ia, ib = np.intersect1d(xs[0], xs[1], return_indices=True)
+    order = np.argsort(-common)  # outward first, as the shots run
+    common, ia, ib = common[order], ia[order], ib[order]
+    apart = np.any(np.abs(ys[0][ia] - ys[1][ib]) > tol, axis=1)
+    if not apart.any():
+        return common[-1]
+    first = int(np.argmax(apart))
+    return common[max(first - 1, 0)]
 
 
 def base_values(P, O, L_ph, T_eff, rtol):
