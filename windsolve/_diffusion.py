@@ -10,7 +10,8 @@ Photosphere anchor (given L_ph, T_eff, hence R_ph)
     between the two outcomes converges on the regular solution (SPEC
     section 8).  Its critical point is then located on the critical curve of
     the same (Mdot, Edot) and tied to the converged shot by a short outward
-    leg; the subsonic part is integrated inward from it.  Integrating the
+    leg, where the two bracketing shots still agree (:func:`_agreement_limit`);
+    the subsonic part is integrated inward from it.  Integrating the
     diffusion equation outward over long distances is avoided: it amplifies
     errors by about (T_c / T_ph)^3.
 Base anchor (given R0, L0 and T0 or rho0)
@@ -31,7 +32,9 @@ from .core.critical import SADDLE
 DELTA = 1e-6  # start this fraction of r_c off the critical point
 MAX_SHOTS = 200
 SHOT_CAPACITY = 100000
-TIE_DISTANCE = 1e-3  # tie the critical point to the shot this far (in ln r) outside it
+TIE_DISTANCE = 1e-3  # tie the critical point to the shot at least this far (ln r) outside it
+TIE_AGREEMENT = 10.0  # ... and where the two bracketing shots agree to this many rtol
+AGREEMENT_DX = 0.005  # spacing in ln r of the points where the bracketing shots are compared
 PROFILE_STEP = 0.02  # largest step in ln r of stored profiles (as windsolve.solve.MAX_STEP)
 NO_X = np.empty(0)
 NO_Y = np.empty((0, 2))
@@ -92,6 +95,8 @@ class PhotosphereSolution:
     T_ph: float
     v_ph: float
     ln_mdot: float
+    outer_x: np.ndarray = None  # ln r from r_c (1 + DELTA) to the photosphere, increasing
+    outer_y: np.ndarray = None  # (ln v, ln T) there
 
 
 def _bracket(P, O, R_ph, L_ph, T_eff, rtol):
@@ -128,13 +133,15 @@ def _bracket(P, O, R_ph, L_ph, T_eff, rtol):
                                    "exceeds 1 on the way in, or the flow stalls)")
 
 
-def _refine_critical(P, O, ln_mdot, stop, tie, rtol):
-    """Critical point of the (Mdot, Edot) in P nearest an inward shot's stop.
+def _project_critical(P, O, ln_mdot, stop):
+    """First guess (r_c, T_c) of the critical point nearest an inward shot's stop.
 
-    The shot stops a small distance d past... short of the saddle on the
-    separatrix.  Project onto the critical curve (N = 0 at v = c_T) and step
-    back along the saddle's slope: v_s - c_T(T_c) = p (r_s - r_c), iterated
-    until r_c settles (the error is O(d^2)).
+    Project the stop onto the critical curve of the (Mdot, Edot) in P
+    (N = 0 at v = c_T) and step back along the saddle's slope:
+    v_s - c_T(T_c) = p (r_s - r_c), iterated until r_c settles.  Good to
+    O(d^2) only if the shot follows the separatrix to a distance d of the
+    saddle, which a weakly repelling saddle does not: :func:`_refine_critical`
+    then ties the guess to the shot further out.
     """
     r_s, v_s, T_s = stop
     rc = r_s
@@ -152,8 +159,18 @@ def _refine_critical(P, O, ln_mdot, stop, tie, rtol):
             rc = rc_new
             break
         rc = rc_new
-    # Then tie it to the shot exactly: the wind branch leaving (r_c, T_c)
-    # must pass through the stop point (secant on r_c along the critical curve).
+    return rc, Tc
+
+
+def _refine_critical(P, O, ln_mdot, guess, tie, rtol):
+    """Critical point of the (Mdot, Edot) in P whose wind branch passes through ``tie``.
+
+    ``guess`` = (r_c, T_c) from :func:`_project_critical`; ``tie`` = (r, v, T)
+    a point of the inward shot where it is still on the separatrix.  Secant on
+    r_c along the critical curve until the wind branch leaving (r_c, T_c)
+    meets the tie point's ln v.
+    """
+    rc, Tc = guess
     r_t, v_t, T_t = tie
 
     def miss(rc_try, Tc_guess):
@@ -192,13 +209,55 @@ def _refine_critical(P, O, ln_mdot, stop, tie, rtol):
     return c
 
 
+class BelowBase(ModelBFailure):
+    """The sonic point lies at or below the requested inner end (no subsonic part)."""
+
+
+def _check_above_base(c, T_in, R_in):
+    """Raise BelowBase unless the critical point c lies above the inner end."""
+    if c.Tc >= T_in:
+        where = (f"the sonic point (T_c = {c.Tc:.4g} K) is hotter than the requested base "
+                 f"temperature {T_in:.4g} K")
+        fix = "raise [boundary] base_temperature above T_c"
+    elif c.rc <= R_in:
+        where = (f"the sonic point (r_c = {c.rc / 6.957e10:.4g} Rsun) lies inside "
+                 f"[star] radius = {R_in / 6.957e10:.4g} Rsun")
+        fix = "lower [star] radius below r_c"
+    else:
+        return
+    raise BelowBase(D.INVALID, f"{where}, so the wind has no subsonic part down to the "
+                               f"base; {fix} (or change the photosphere or the opacity)")
+
+
 def solve_photosphere_anchor(P, O, L_ph, T_eff, rtol, out_x=NO_X, out_y=NO_Y,
-                             max_step=np.inf):
+                             max_step=np.inf, diagnose=False):
     """The regular solution with photosphere (L_ph, T_eff); stores the outer path.
 
-    Returns (PhotosphereSolution, n_stored): the stored points run inward from
-    the photosphere to just outside the critical point.
+    Returns (PhotosphereSolution, n_stored).  Raises ModelBFailure, or its
+    BelowBase when the sonic point is hotter than P[I_T_IN] or inside
+    P[I_R_IN].  Inward shots stop at that inner end, so a sonic point below
+    it shows as some other failure; with ``diagnose`` such a failure is
+    retried without the inner end, to say so instead.
     """
+    try:
+        return _solve_photosphere_anchor(P, O, L_ph, T_eff, rtol, out_x, out_y, max_step)
+    except BelowBase:
+        raise
+    except ModelBFailure as failure:
+        if not diagnose or (P[D.I_T_IN] == np.inf and P[D.I_R_IN] <= 0.0):
+            raise
+        Q = P.copy()
+        Q[D.I_T_IN] = np.inf
+        Q[D.I_R_IN] = 0.0
+        try:
+            sol = _solve_photosphere_anchor(Q, O, L_ph, T_eff, rtol, NO_X, NO_Y, max_step)[0]
+        except ModelBFailure:
+            raise failure from None
+        _check_above_base(sol.crit, P[D.I_T_IN], P[D.I_R_IN])
+        raise
+
+
+def _solve_photosphere_anchor(P, O, L_ph, T_eff, rtol, out_x, out_y, max_step):
     R_ph = photosphere_radius(L_ph, T_eff)
     if P[D.I_R_IN] > 0.0 and R_ph <= P[D.I_R_IN]:
         raise ModelBFailure(D.INVALID, "the photosphere lies inside the base radius")
@@ -217,8 +276,9 @@ def solve_photosphere_anchor(P, O, L_ph, T_eff, rtol, out_x=NO_X, out_y=NO_Y,
         else:
             raise ModelBFailure(code, "the inward integration from the photosphere failed "
                                       "while bracketing the mass-loss rate")
-    # The sonic-side shot hugs the separatrix down to the sound speed.
-    x_sonic = lo if code_lo == D.SIDE_SONIC else hi
+    # The sonic-side shot hugs the separatrix down to the sound speed; the
+    # other bracketing shot tells how far in it still follows the separatrix.
+    x_sonic, x_other = (lo, hi) if code_lo == D.SIDE_SONIC else (hi, lo)
     if out_x.shape[0] == 0:
         out_x = np.empty(SHOT_CAPACITY)
         out_y = np.empty((SHOT_CAPACITY, 2))
@@ -228,14 +288,56 @@ def solve_photosphere_anchor(P, O, L_ph, T_eff, rtol, out_x=NO_X, out_y=NO_Y,
         raise ModelBFailure(D.FAILED, "the converged inward solution did not reach the "
                                       "sonic point; try another numerics.rtol")
     v_ph = D.photospheric_state(math.exp(x_sonic), R_ph, L_ph, T_eff, Q)
-    # The shot leaves the separatrix only in the last ~1e-6 before the sonic
-    # line; tie the critical point to a stored point further out.
-    k = n - 1
-    while k > 0 and out_x[k] < math.log(r) + TIE_DISTANCE:
-        k -= 1
+    guess = _project_critical(Q, O, x_sonic, (r, v, T))
+    x_agree = _agreement_limit(P, O, R_ph, L_ph, T_eff, x_sonic, x_other, rtol, max_step)
+    x_floor = max(math.log(max(r, guess[0])) + TIE_DISTANCE, x_agree)
+    k = max(int(np.count_nonzero(out_x[:n] >= x_floor)) - 1, 0)
     tie = (math.exp(out_x[k]), math.exp(out_y[k, 0]), math.exp(out_y[k, 1]))
-    c = _refine_critical(Q, O, x_sonic, (r, v, T), tie, rtol)
-    return PhotosphereSolution(c, R_ph, L_ph, T_eff, v_ph, x_sonic), n
+    c = _refine_critical(Q, O, x_sonic, guess, tie, rtol)
+    _check_above_base(c, Q[D.I_T_IN], Q[D.I_R_IN])
+    # The outer profile: the wind branch from the critical point out to the
+    # tie point, then the shot outside it (where it is on the separatrix).
+    leg_x = np.empty(SHOT_CAPACITY)
+    leg_y = np.empty((SHOT_CAPACITY, 2))
+    ok, n_leg = D.outward_leg(c.rc, c.vc, c.Tc, c.slope, c.dTdr, DELTA, out_x[k], c.P, O,
+                              rtol, max_step, leg_x, leg_y)
+    if not ok or n_leg < 1:
+        raise ModelBFailure(D.FAILED, "the wind branch from the sonic point could not be "
+                                      "followed out to the converged inward solution; try "
+                                      "another numerics.rtol")
+    leg_x[n_leg - 1] = out_x[k]  # the leg ends on the tie point (to rounding)
+    outer_x = np.concatenate([leg_x[:n_leg], out_x[:k][::-1]])
+    outer_y = np.concatenate([leg_y[:n_leg], out_y[:k][::-1]])
+    return PhotosphereSolution(c, R_ph, L_ph, T_eff, v_ph, x_sonic, outer_x, outer_y), n
+
+
+def _agreement_limit(P, O, R_ph, L_ph, T_eff, x_sonic, x_other, rtol, max_step):
+    """Innermost ln r down to which the two bracketing shots agree.
+
+    Near a weakly repelling saddle the converged shot leaves the separatrix
+    far outside its stop.  The two shots that bracket Mdot lie on either side
+    of the separatrix, so where they still agree (to TIE_AGREEMENT rtol in
+    ln v and ln T) both are on it.  They are compared at the abscissae
+    ln R_ph - k AGREEMENT_DX of their dense output, which both share exactly
+    (their own steps differ once the step control decides differently).
+    """
+    tol = TIE_AGREEMENT * rtol
+    xs, ys = [], []
+    for x in (x_sonic, x_other):
+        ox = np.empty(SHOT_CAPACITY)
+        oy = np.empty((SHOT_CAPACITY, 2))
+        n = D.shoot_dense(x, R_ph, L_ph, T_eff, P.copy(), O, rtol, max_step, AGREEMENT_DX,
+                          ox, oy)[4]
+        xs.append(ox[:n])
+        ys.append(oy[:n])
+    common, ia, ib = np.intersect1d(xs[0], xs[1], return_indices=True)
+    order = np.argsort(-common)  # outward first, as the shots run
+    common, ia, ib = common[order], ia[order], ib[order]
+    apart = np.any(np.abs(ys[0][ia] - ys[1][ib]) > tol, axis=1)
+    if not apart.any():
+        return common[-1]
+    first = int(np.argmax(apart))
+    return common[max(first - 1, 0)]
 
 
 def base_values(P, O, L_ph, T_eff, rtol):

@@ -435,13 +435,15 @@ def solve_diffusion(model, profile=True):
             kind = "temperature" if model.base_temperature is not None else "density"
             L_ph, T_ph = B.solve_base_anchor(P, O, model.cgs("luminosity"), kind,
                                              model.cgs(f"base_{kind}"), rtol)
-        sol, no = B.solve_photosphere_anchor(P, O, L_ph, T_ph, rtol, xo, yo, MAX_STEP)
+        sol, no = B.solve_photosphere_anchor(P, O, L_ph, T_ph, rtol, xo, yo, MAX_STEP,
+                                             diagnose=model.anchor == "photosphere")
     except B.ModelBFailure as failure:
         return _diffusion_failure_result(model, summary, failure.code, failure.text, t0)
     c = sol.crit
     R_ph, v_ph, L_ph = sol.R_ph, sol.v_ph, sol.L_ph
     # Profile: inward leg from the critical point (reversed), the critical
-    # point, then the stored inward shot from the photosphere (reversed).
+    # point, then the wind branch and the shot outside it (sol.outer_*):
+    # strictly increasing in r by construction.
     xi = np.empty(CAPACITY)
     yi = np.empty((CAPACITY, 2))
     st_in, r_b, v_b, T_b, L_b, ni = B.inward(c, O, rtol, xi, yi, MAX_STEP)
@@ -450,11 +452,11 @@ def solve_diffusion(model, profile=True):
             model, summary, st_in,
             "the subsonic solution below the sonic point does not reach the base "
             f"({'the radiation is used up' if st_in == D.STALLED else f'code {st_in}'})", t0)
-    r = np.concatenate([np.exp(xi[:ni][::-1]), [c.rc], np.exp(xo[:no][::-1])])
-    v = np.concatenate([np.exp(yi[:ni, 0][::-1]), [c.vc], np.exp(yo[:no, 0][::-1])])
-    T = np.concatenate([np.exp(yi[:ni, 1][::-1]), [c.Tc], np.exp(yo[:no, 1][::-1])])
-    keep = np.concatenate([[True], np.diff(r) > 0])  # the shot may end inside r_c
-    r, v, T = r[keep], v[keep], T[keep]
+    x = np.concatenate([xi[:ni][::-1], [math.log(c.rc)], sol.outer_x])
+    lnv = np.concatenate([yi[:ni, 0][::-1], [math.log(c.vc)], sol.outer_y[:, 0]])
+    lnT = np.concatenate([yi[:ni, 1][::-1], [math.log(c.Tc)], sol.outer_y[:, 1]])
+    keep = x > np.maximum.accumulate(np.concatenate([[-np.inf], x[:-1]]))
+    r, v, T = np.exp(x[keep]), np.exp(lnv[keep]), np.exp(lnT[keep])
     rho, L, kappa, gamma = D.profile_quantities(r, v, T, c.P, O)
     # tau(r) = 2/3 + integral of kappa rho dr from r to R_ph (in ln r).
     integrand = kappa * rho * r

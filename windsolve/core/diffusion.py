@@ -352,6 +352,22 @@ def short_outward(rc, vc, Tc, p, dTdr, delta, r_target, P, O, rtol):
 
 
 @njit(cache=True, error_model="numpy")
+def outward_leg(rc, vc, Tc, p, dTdr, delta, x_target, P, O, rtol, max_step, out_x, out_y):
+    """The wind branch from r_c (1 + delta) out to ln r = x_target, stored.
+
+    As :func:`short_outward` (same start, same tolerance) but storing the
+    accepted points (at most max_step apart in ln r); returns (ok, n_stored).
+    """
+    y0 = np.empty(2)
+    x0 = math.log(rc * (1.0 + delta))
+    y0[0] = math.log(vc + p * delta * rc)
+    y0[1] = math.log(Tc + dTdr * delta * rc)
+    st, x, y, n, nfev = integrate_plain(x0, y0, x_target, P, O, 0.0, rtol, delta, max_step,
+                                        out_x, out_y)
+    return st == REACHED_END, n
+
+
+@njit(cache=True, error_model="numpy")
 def photospheric_state(mdot, R, L, T, P):
     """Set Mdot and Edot in P from a photosphere (R, L, T); returns v_ph.
 
@@ -383,8 +399,18 @@ def shoot_from_photosphere(ln_mdot, R, L, T, P, O, rtol):
 def shoot_stored(ln_mdot, R, L, T, P, O, rtol, max_step, out_x, out_y):
     """Integrate inward from the photosphere (R, L, T) for Mdot = e^ln_mdot.
 
-    Returns (code, r, v, T) at the stop: SIDE_SONIC or SIDE_TURN say on which
-    side of the critical solution Mdot lies; others are failures.
+    Returns (code, r, v, T, n_stored) at the stop: SIDE_SONIC or SIDE_TURN
+    say on which side of the critical solution Mdot lies; others are failures.
+    """
+    return shoot_dense(ln_mdot, R, L, T, P, O, rtol, max_step, 0.0, out_x, out_y)
+
+
+@njit(cache=True, error_model="numpy")
+def shoot_dense(ln_mdot, R, L, T, P, O, rtol, max_step, dx_out, out_x, out_y):
+    """As :func:`shoot_stored`, also storing the points ln R - k dx_out (dense output).
+
+    Two shots with the same dx_out then share those abscissae exactly, so
+    they can be compared point by point without interpolating.
     """
     v = photospheric_state(math.exp(ln_mdot), R, L, T, P)
     if not math.isfinite(v):
@@ -396,7 +422,7 @@ def shoot_stored(ln_mdot, R, L, T, P, O, rtol, max_step, out_x, out_y):
     x0 = math.log(R)
     x_end = math.log(P[I_R_IN]) if P[I_R_IN] > 0.0 else x0 - 30.0
     st, x, y, n, nfev = integrate_shoot(x0, y0, x_end, P, O, 0.0, rtol, 1e-6, max_step,
-                                        out_x, out_y)
+                                        out_x, out_y, dx_out)
     if st == STEP_TOO_SMALL and left_table(x, y, P, O):
         st = OFF_TABLE
     elif st == STEP_TOO_SMALL:
