@@ -25,6 +25,7 @@ import pytest
 from scipy.integrate import solve_ivp
 
 import windsolve
+from windsolve.cli import main as cli_main
 from windsolve.modelfile import model_from_dict
 from windsolve.sweep import load_sweep, read_sweep_table, run_sweep
 
@@ -346,6 +347,19 @@ def test_sweep_table_has_the_hydrostatic_column(tmp_path):
     assert list(table["converged"]) == [True, True]
     assert list(table["hydrostatic"]) == [True, False]
     assert table["base_density_efolds"][0] > 30 > table["base_density_efolds"][1]
+
+
+def test_sweep_command_counts_the_hydrostatic_rows(tmp_path, capsys):
+    base = tmp_path / "cool.toml"
+    base.write_text(COOL.format(a="60 km/s"))
+    path = tmp_path / "sweep.toml"
+    # 60 and 70 km/s: r_c = 26.5 and 19.5 R0 (static bases); 200 km/s: r_c = 2.4 R0, a wind.
+    path.write_text(f'[sweep]\nbase = "{base}"\ndesign = "grid"\n[[axis]]\n'
+                    f'key = "gas.sound_speed"\nvalues = ["60 km/s", "70 km/s", "200 km/s"]\n')
+    code = cli_main(["sweep", str(path), "-o", str(tmp_path / "out.h5"), "--workers", "1"])
+    assert code == 0
+    out = capsys.readouterr().out
+    assert "2 converged models have a hydrostatic base" in out
 
 
 def test_porous_model_unbound_at_the_sonic_density_is_not_told_to_add_porosity():

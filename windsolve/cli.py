@@ -291,8 +291,15 @@ def cmd_sweep(args):
               file=sys.stderr)
         return 130
     if not args.quiet:
+        from .result import HYDROSTATIC_EFOLDS
         counts = Counter(r.get("status", "?") for r in done.values())
         print("  " + ", ".join(f"{k}: {v}" for k, v in counts.most_common()))
+        static = sum(1 for r in done.values() if r.get("converged")
+                     and r.get("base_density_efolds", 0.0) > HYDROSTATIC_EFOLDS)
+        if static:
+            print(f"  {static} converged models have a hydrostatic base (more than "
+                  f"{HYDROSTATIC_EFOLDS:g} density e-folds below the sonic point: an "
+                  f"atmosphere, not a wind); see the table's hydrostatic column")
         print(f"wrote {args.output}")
     return EXIT_OK
 
