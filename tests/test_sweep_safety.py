@@ -203,9 +203,13 @@ def children_of(pid):
     """Processes whose parent is ``pid`` (psutil if present, else /proc)."""
     try:
         import psutil
-        return [c.pid for c in psutil.Process(pid).children(recursive=True)]
     except ImportError:
-        pass
+        psutil = None
+    if psutil is not None:
+        try:
+            return [c.pid for c in psutil.Process(pid).children(recursive=True)]
+        except psutil.NoSuchProcess:
+            return []
     out = []
     for entry in Path("/proc").iterdir():
         if entry.name.isdigit():
@@ -385,12 +389,23 @@ def test_stuck_local_worker_stops_after_the_stall_timeout(tmp_path):
     journal = tmp_path / "out.h5.partial"
     proc = cli("sweep", path, "-o", out, "--workers", "1", "-q", "--stall-timeout", "2")
     workers = []
+
+    def pool_workers():
+        found = []
+        for p in children_of(proc.pid):
+            try:
+                if "spawn_main" in Path(f"/proc/{p}/cmdline").read_text(errors="replace"):
+                    found.append(p)
+            except OSError:
+                pass
+        return found
+
     try:
-        wait_for(lambda: records(journal) >= 2 or proc.poll() is not None, what="rows")
-        workers = [p for p in children_of(proc.pid)
-                   if "spawn_main" in Path(f"/proc/{p}/cmdline").read_text(errors="replace")]
-        if proc.poll() is not None or not workers:
-            pytest.skip("the sweep finished before its worker could be stopped")
+        # Stop the worker as soon as it exists (before it can finish the 200 rows, which
+        # would leave nothing to stall on).
+        wait_for(lambda: pool_workers() or proc.poll() is not None, what="a pool worker")
+        workers = pool_workers()
+        assert proc.poll() is None and workers, "the sweep ended before its worker started"
         os.kill(workers[0], signal.SIGSTOP)  # a worker that never answers again
         kept = records(journal)
         _, err = proc.communicate(timeout=60)  # ends: the stuck worker does not hold it

@@ -964,11 +964,16 @@ def _executor(workers, scheduler):
                                initializer=_worker_init, initargs=(os.getpid(),))
 
     def close(pending=(), abort=False):
-        for fut in pending:
-            fut.cancel()
         if abort:  # a stuck worker would keep this process from exiting
+            # Kill without cancelling first: the pool then fails every pending future
+            # itself.  (Cancelled futures of a pool that breaks make CPython 3.11's
+            # manager thread print an InvalidStateError traceback.)
             for process in list((getattr(pool, "_processes", None) or {}).values()):
                 process.kill()  # SIGKILL: ends a stopped or stuck worker too
+            pool.shutdown(wait=False)
+            return
+        for fut in pending:
+            fut.cancel()
         pool.shutdown(wait=False, cancel_futures=True)
 
     return pool, close, lambda: f"{n} local worker process{'es' * (n != 1)}"
