@@ -6,7 +6,7 @@ that profiles not written by windsolve work too):
 
 * :func:`emission_profile` -- an optically thin emission line with
   emissivity j proportional to rho**n (n = 2: recombination or collisional
-  excitation; n = 1: a process linear in the density), SPEC section 6:
+  excitation; n = 1: a process linear in the density), docs/physics.md, eq. 27:
 
   .. math:: F(w) = 2\\pi \\int_{v(r) > |w|} j(r) \\frac{r^2}{v(r)} \\, dr
 
@@ -63,7 +63,7 @@ is at the continuum.  Velocities are Doppler velocities, positive = red.
 The emitting (or scattering) region is the tabulated profile, from R_c to
 its last point, with one addition: a Model B (diffusion) profile stops at
 the photosphere, and above it the flow is optically thin and ballistic
-(SPEC section 5), v^2 = v_inf^2 + (v_ph^2 - v_inf^2) R_ph / r; that thin
+(docs/physics.md, eq. 23), v^2 = v_inf^2 + (v_ph^2 - v_inf^2) R_ph / r; that thin
 flow is appended out to 100 R_ph.  Nothing else is extrapolated.
 
 Core radius (the disk that occults and, for P Cygni, emits the continuum):
@@ -461,7 +461,7 @@ def _thin_extension(result, r, v, rho):
     """Append the ballistic thin flow above a Model B photosphere.
 
     A diffusion-wind profile stops at the photosphere; above it the flow is
-    optically thin and ballistic (SPEC section 5): v(r)^2 = v_inf^2 + K / r
+    optically thin and ballistic (docs/physics.md, eq. 23): v(r)^2 = v_inf^2 + K / r
     with K = (v_ph^2 - v_inf^2) R_ph, and rho from continuity.  That is the
     gas an observer's lines come from, so it is added here (out to
     THIN_EXTENT R_ph); profiles without a photosphere are returned as they are.

@@ -187,7 +187,7 @@ class WindResult:
 
     # -- HDF5 ---------------------------------------------------------------
     def to_hdf5(self, path):
-        """Write the result as SPEC section 7 lays out (cgs, units on every dataset).
+        """Write the result as docs/physics.md, section 9 lays out (cgs, units on every dataset).
 
         The file is written under a temporary name in the same directory and
         renamed when complete, so an interrupted write never leaves a
