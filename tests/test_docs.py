@@ -30,7 +30,7 @@ SECTION_DEFINED = re.compile(r"^## (\d+)\. ", re.M)
 # "docs/physics.md, eq. 7", "docs/physics.md, eqs. 19-21", "..., eqs. 9 and 10",
 # "docs/physics.md, section 5, eqs. 19-21"; whitespace may wrap a line.
 CITATION = re.compile(
-    r"docs/physics\.md,\s+(?:(sections?)\s+(\d+)(?:\s*(?:-|and|,)\s*(\d+))?(?:,\s+)?)?"
+    r"docs/physics\.md[,:]\s+(?:(sections?)\s+(\d+)(?:\s*(?:-|and|,)\s*(\d+))?(?:,\s+)?)?"
     r"(?:(eqs?)\.\s+(\d+)(?:\s*(?:-|and|,)\s*(\d+))?)?")
 # A path-like mention of a document: name.md or name.rst, with an optional directory.
 DOCUMENT = re.compile(r"(?<![\w/.-])((?:[\w-]+/)*[\w-]+\.(?:md|rst))\b")

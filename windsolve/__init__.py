@@ -38,11 +38,33 @@ __all__ = [
 
 
 def demo_model_path():
-    """Path of the built-in demo model file (an invented star)."""
+    """Path of the built-in demo model file (an invented star).
+
+    Returns
+    -------
+    importlib.resources.abc.Traversable
+        ``windsolve/data/demo.toml``, which :func:`load_model` reads.
+    """
     from importlib.resources import files
     return files("windsolve") / "data" / "demo.toml"
 
 
-def read_result(path):
-    """Read a result file written by :meth:`WindResult.to_hdf5`."""
+def read_result(path) -> WindResult:
+    """Read a result file written by :meth:`WindResult.to_hdf5`.
+
+    Parameters
+    ----------
+    path : str or Path
+        An HDF5 result file (layout: docs/physics.md, section 9).
+
+    Returns
+    -------
+    WindResult
+
+    Raises
+    ------
+    OutputError
+        A missing or damaged file, in one line naming the file and the
+        dataset or attribute (see :meth:`WindResult.from_hdf5`).
+    """
     return WindResult.from_hdf5(path)

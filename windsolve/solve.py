@@ -6,6 +6,7 @@ solver runs, and its status codes become words here.
 
 import math
 import time
+from typing import TYPE_CHECKING
 
 import astropy.units as u
 import numpy as np
@@ -20,6 +21,9 @@ from .result import (
     WindResult,
     base_density_efolds,
 )
+
+if TYPE_CHECKING:
+    from .models import WindModel
 
 __all__ = ["solve", "SOLVERS"]
 
@@ -503,8 +507,14 @@ def solve_diffusion(model, profile=True):
 SOLVERS = {"isothermal": solve_isothermal, "diffusion": solve_diffusion}
 
 
-def solve(model, profile=True):
+def solve(model: "WindModel", profile: bool = True) -> WindResult:
     """Solve a wind model; returns a :class:`~windsolve.result.WindResult`.
+
+    Model A (:class:`~windsolve.models.IsothermalWind`) finds the mass-loss
+    rate for which the solution through the innermost saddle meets the base
+    density; Model B (:class:`~windsolve.models.DiffusionWind`) the regular
+    solution through its critical point that meets the photosphere (or base)
+    anchor.
 
     Parameters
     ----------
@@ -522,5 +532,18 @@ def solve(model, profile=True):
     WindResult
         Always returned; ``result.converged`` says whether the transonic
         solution was found out to the outer radius, ``result.message`` why not.
+        Summary and profile values carry units (cgs).
+
+    Raises
+    ------
+    ModelError
+        Only for input that can be checked before solving and was not when
+        the model was built (e.g. an opacity table that cannot be read).
+        A model without a solution is not an error: see ``converged``.
+
+    References
+    ----------
+    docs/physics.md, eqs. 13-16 (Model A, section 4), eqs. 19-24 (Model B,
+    section 5), eqs. 25, 26 (critical points) and section 8 (numerical method).
     """
     return SOLVERS[model.kind](model, profile)
