@@ -9,6 +9,8 @@ Quick start::
     >>> result.to_hdf5("demo.h5")
 """
 
+from typing import TYPE_CHECKING
+
 from ._version import __version__
 from .errors import ModelError, NoSolutionError, OutputError, WindsolveError
 from .modelfile import load_model, model_from_dict
@@ -16,6 +18,10 @@ from .models import MODELS, DiffusionWind, IsothermalWind
 from .opacity import OPACITY_LAWS, Opacity
 from .result import WindResult
 from .solve import solve
+
+if TYPE_CHECKING:
+    from importlib.resources.abc import Traversable
+    from pathlib import Path
 
 __all__ = [
     "__version__",
@@ -37,7 +43,7 @@ __all__ = [
 ]
 
 
-def demo_model_path():
+def demo_model_path() -> "Traversable":
     """Path of the built-in demo model file (an invented star).
 
     Returns
@@ -49,7 +55,7 @@ def demo_model_path():
     return files("windsolve") / "data" / "demo.toml"
 
 
-def read_result(path) -> WindResult:
+def read_result(path: "str | Path") -> WindResult:
     """Read a result file written by :meth:`WindResult.to_hdf5`.
 
     Parameters
