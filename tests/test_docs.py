@@ -136,6 +136,8 @@ PUBLIC = [
     "windsolve.observe:read_observed", "windsolve.observe:predict",
     "windsolve.observe:compare_result", "windsolve.observe:sweep_chi2",
     "windsolve.observe:match_parameter",
+    "windsolve.tables:read_table", "windsolve.tables:write_table", "windsolve.tables:load_table",
+    "windsolve.tables:tabulate",
 ] + [f"windsolve.physics:{name}" for name in windsolve.physics.__all__]
 
 
