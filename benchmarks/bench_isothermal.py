@@ -17,7 +17,7 @@ Three cases, all as kernel parameter vectors:
 ``parker``
     ``configs/parker_reference.toml``: electron scattering at Gamma = 0.5,
     a = 100 km/s, r_c = 3.9 R0, no porosity: Parker's wind with gravity
-    GM(1 - Gamma), so the exact Mdot (Lambert W, SPEC.md section 4) is printed
+    GM(1 - Gamma), so the exact Mdot (Lambert W, docs/physics.md, eq. 18) is printed
     as well, and the two solvers are also compared at equal accuracy.
 
 Both solvers get the same ``P``, ``O``, ``rtol`` and ``delta``; the reference

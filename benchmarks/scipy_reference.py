@@ -11,7 +11,7 @@ baseline that ``bench_isothermal.py`` times.
 It is not tuned, but avoids handicaps a careful script would not have (the
 scalar right-hand side uses :mod:`math` on plain floats, not numpy scalars).
 
-The algorithm is the kernel's as it first was (SPEC.md sections 4 and 8); the
+The algorithm is the kernel's as it first was (docs/physics.md, sections 4 and 8); the
 kernel has since moved on in two places the reference keeps plain: it
 integrates the inward leg against r (not ln r), and it walks to the sign
 change with secant steps from the value g takes, without a shot, where the

@@ -6,7 +6,7 @@ shooting script would: a plain-Python right-hand side (floats, :mod:`math`)
 in :func:`scipy.integrate.solve_ivp` (``DOP853``) with terminal events, and
 :func:`scipy.optimize.brentq` for scalar roots.  Nothing compiled is called
 (only slot numbers and constants are imported): an independent check of the
-kernels and the baseline ``bench_diffusion.py`` times.  Equations: SPEC.md
+kernels and the baseline ``bench_diffusion.py`` times.  Equations: docs/physics.md,
 section 5, state (r, v, T), L_r from the energy integral, y = (ln v, ln T)
 against x = ln r, d ln v / d ln r = r N / (v^2 - c_T^2), d ln T / d ln r = r T'/T.
 
@@ -14,7 +14,7 @@ The algorithm is windsolve's: bracket ln Mdot stepping up from just above the
 smallest escaping Mdot (steps 0.25, x1.5 per shot, at most 2), each trial an
 inward shot from the photosphere (tau = 2/3 fixes v_ph) that is "sonic side"
 if it reaches v^2 - c_T^2 < SONIC_GAP c_T^2 with N > 0 (or its step collapses,
-a near miss: SPEC section 8) and "turn side" otherwise (N turns from + to -
+a near miss: docs/physics.md, section 8) and "turn side" otherwise (N turns from + to -
 moving inward, c_T is met with N < 0, or the inner end is reached); bisect to
 1e-14 (1 + |ln Mdot|); re-shoot the sonic-side end; project its stop onto
 N = 0 at v = c_T (same Mdot, Edot) and step back along the slope p+ of

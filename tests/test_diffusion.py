@@ -1,4 +1,4 @@
-"""Model B, the optically thick diffusion wind (SPEC section 5).
+"""Model B, the optically thick diffusion wind (docs/physics.md, section 5).
 
 Tiers: (d) invariants recomputed from the written profile (energy integral,
 diffusion and momentum equations, v = c_T at the sonic point, the

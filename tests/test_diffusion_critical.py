@@ -4,7 +4,7 @@ Issue 10, items 1 and 3.  (d) invariants: a weakly repelling saddle, where
 the converged inward shot leaves the separatrix far outside its stop, must
 give a critical point that does not depend on how far out it is tied to the
 shot; the critical conditions N = 0 and D = 0 recomputed from the equations
-of SPEC section 5 (the docstring of windsolve.core.diffusion) at the
+of docs/physics.md, section 5 (the docstring of windsolve.core.diffusion) at the
 reported point; a written profile that increases strictly in r and that
 `windsolve lines` accepts.  (e) a sonic point hotter than the requested base
 temperature is "no solution" (exit 2, one line, nothing written).
@@ -129,7 +129,7 @@ def test_weak_saddle_critical_conditions_and_lines(tmp_path, capsys):
     p = result.profile
     r = p["radius"].to_value(u.cm)
     assert np.all(np.diff(r) > 0)
-    # The critical conditions from the equations (SPEC section 5), with the
+    # The critical conditions from the equations (docs/physics.md, eq. 25), with the
     # values the file reports: D = v - c_T^2/v = 0 and N = 0, L_r from the
     # energy integral.  The opacity at r_c is the written one (the check is
     # of the equations, not of the opacity law; that is tests/test_opacity.py).

@@ -41,9 +41,9 @@ def parker_exact(r, rc, a):
     """v(r) of the transonic Parker wind, Lambert W form, Newton-polished.
 
     v/a = sqrt(-W_k(-D)), D = (rc/r)^4 exp(4 (1 - rc/r) - 1), k = 0 below
-    r_c and k = -1 above (Cranmer 2004, Am. J. Phys. 72, 1397; SPEC section
-    4).  D has its maximum 1/e at r_c, so within 1e-3 of r_c the branch
-    point swallows the digits (SPEC section 8); there the start is the
+    r_c and k = -1 above (Cranmer 2004, Am. J. Phys. 72, 1397; docs/physics.md,
+    eq. 18).  D has its maximum 1/e at r_c, so within 1e-3 of r_c the branch
+    point swallows the digits (docs/physics.md, section 4); there the start is the
     transonic slope u = x instead.  Every value is then polished with Newton
     steps on Parker's implicit form u^2 - ln u^2 = 4 ln x + 4/x - 3 (same
     paper), which the Lambert W form solves.
@@ -223,7 +223,7 @@ def test_photon_tiring_bound(rho0):
 
 def test_photon_tiring_energy_invariant():
     # With tiring, L + Mdot (v^2/2 - GM/r) is constant along the flow
-    # (radiation pays for the lift; SPEC section 4).
+    # (radiation pays for the lift; docs/physics.md, eq. 15).
     model = tiring_model("1e-4 g/cm3")
     result = windsolve.solve(model)
     assert result.converged

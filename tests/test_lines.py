@@ -69,7 +69,7 @@ def cgs(profile):
 def test_constant_velocity_shell_is_flat_topped_lamers_cassinelli_ch2(power):
     # A shell expanding at constant v spreads its light evenly over -v < w < v:
     # a flat-topped line of half-width v_inf (Lamers & Cassinelli 1999,
-    # Introduction to Stellar Winds, ch. 2, from memory; SPEC section 6).
+    # Introduction to Stellar Winds, ch. 2, from memory; docs/physics.md, eq. 27).
     p = lines.emission_profile(shell_profile(),
                                lines.LineSettings(emissivity_power=power, occultation=False))
     w = p.velocity.to_value(KM_S)
@@ -352,7 +352,7 @@ def test_line_widths_of_the_demo(demo):
 def test_model_b_lines_come_from_the_thin_flow_above_the_photosphere():
     # Model B's profile stops at the photosphere (its core radius); the line
     # comes from the ballistic thin flow above it, v^2 = v_inf^2 + K / r
-    # (SPEC section 5), so its widths sit between v_inf and v_ph.
+    # (docs/physics.md, eq. 23), so its widths sit between v_inf and v_ph.
     result = windsolve.solve(windsolve.load_model(CONFIGS / "bump_wind.toml"))
     widths = lines.line_widths(result)
     v_inf = result.summary["terminal_velocity"].to_value(KM_S)

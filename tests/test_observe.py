@@ -141,7 +141,7 @@ def test_lines_says_when_the_line_is_narrower_than_the_sound_speed(tmp_path, cap
 
 
 def test_lines_reads_a_file_windsolve_did_not_write(tmp_path, capsys):
-    # Only the SPEC section 7 layout: /profile datasets with units, /summary attributes.
+    # Only the docs/physics.md, section 9 layout: /profile datasets with units, /summary attributes.
     import h5py
     r = np.geomspace(7e12, 7e14, 300)
     v = 2e6 + 4e7 * (1 - 7e12 / r)

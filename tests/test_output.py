@@ -1,4 +1,4 @@
-"""HDF5 layout (SPEC section 7), the model file round trip and the CLI happy path."""
+"""HDF5 layout (docs/physics.md, section 9), the model file round trip and the CLI happy path."""
 
 import subprocess
 import sys

@@ -253,7 +253,7 @@ def test_dask_cluster_gives_the_local_table(tmp_path):
 
 
 def test_axes_are_shown_in_the_units_the_sweep_file_wrote(tmp_path):
-    # The table keeps cgs (SPEC section 7); prints and plots show each axis
+    # The table keeps cgs (docs/physics.md, section 9); prints and plots show each axis
     # as written, e.g. Lsun (IAU 2015 nominal value, via astropy) and Rsun,
     # on a log scale when the file asked for log spacing.
     import astropy.units as u

@@ -194,7 +194,7 @@ OUTSIDE = [(3.7, -5.0), (6.6, -5.0), (5.0, -8.1), (5.0, -1.9), (3.0, -9.0)]
 @pytest.mark.parametrize("log_T, log_R", OUTSIDE)
 def test_off_table_gives_nan_and_the_flag(log_T, log_R):
     # Tier (d): outside the table the law has no value: NaN, off_table True,
-    # a negative margin (SPEC section 3: stop, do not extrapolate).
+    # a negative margin (docs/physics.md, section 2: stop, do not extrapolate).
     O = table_vector(bump_table())
     rho, T = rho_of(log_T, log_R), 10.0**log_T
     assert math.isnan(K.opacity(O, rho, T))

@@ -9,6 +9,8 @@ Quick start::
     >>> result.to_hdf5("demo.h5")
 """
 
+from typing import TYPE_CHECKING
+
 from ._version import __version__
 from .errors import ModelError, NoSolutionError, OutputError, WindsolveError
 from .modelfile import load_model, model_from_dict
@@ -16,6 +18,10 @@ from .models import MODELS, DiffusionWind, IsothermalWind
 from .opacity import OPACITY_LAWS, Opacity
 from .result import WindResult
 from .solve import solve
+
+if TYPE_CHECKING:
+    from importlib.resources.abc import Traversable
+    from pathlib import Path
 
 __all__ = [
     "__version__",
@@ -37,12 +43,34 @@ __all__ = [
 ]
 
 
-def demo_model_path():
-    """Path of the built-in demo model file (an invented star)."""
+def demo_model_path() -> "Traversable":
+    """Path of the built-in demo model file (an invented star).
+
+    Returns
+    -------
+    importlib.resources.abc.Traversable
+        ``windsolve/data/demo.toml``, which :func:`load_model` reads.
+    """
     from importlib.resources import files
     return files("windsolve") / "data" / "demo.toml"
 
 
-def read_result(path):
-    """Read a result file written by :meth:`WindResult.to_hdf5`."""
+def read_result(path: "str | Path") -> WindResult:
+    """Read a result file written by :meth:`WindResult.to_hdf5`.
+
+    Parameters
+    ----------
+    path : str or Path
+        An HDF5 result file (layout: docs/physics.md, section 9).
+
+    Returns
+    -------
+    WindResult
+
+    Raises
+    ------
+    OutputError
+        A missing or damaged file, in one line naming the file and the
+        dataset or attribute (see :meth:`WindResult.from_hdf5`).
+    """
     return WindResult.from_hdf5(path)

@@ -7,8 +7,8 @@ Photosphere anchor (given L_ph, T_eff, hence R_ph)
     For a trial Mdot the photospheric state is complete (tau = 2/3 fixes
     v_ph), so an inward integration from the photosphere either reaches the
     sound speed with N > 0 or turns away with N < 0: bisection in ln Mdot
-    between the two outcomes converges on the regular solution (SPEC
-    section 8).  Its critical point is then located on the critical curve of
+    between the two outcomes converges on the regular solution
+    (docs/physics.md, section 8).  Its critical point is then located on the critical curve of
     the same (Mdot, Edot) and tied to the converged shot by a short outward
     leg, where the two bracketing shots still agree (:func:`_agreement_limit`);
     the subsonic part is integrated inward from it.  Integrating the

@@ -423,7 +423,7 @@ def stamp(f, model_kind):
 
 
 def dataset(group, name, data, units):
-    """Create a dataset with its ``units`` attribute (SPEC section 7)."""
+    """Create a dataset with its ``units`` attribute (docs/physics.md, section 9)."""
     d = group.create_dataset(name, data=data)
     d.attrs["units"] = units
     return d

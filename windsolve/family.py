@@ -10,12 +10,18 @@ the family ends and why.
 """
 
 import math
+from collections.abc import Callable
 from dataclasses import dataclass, field
+from pathlib import Path
+from typing import TYPE_CHECKING
 
 import astropy.units as u
 import numpy as np
 
 from .errors import ModelError
+
+if TYPE_CHECKING:
+    from .models import DiffusionWind
 
 __all__ = ["SCANS", "FamilyResult", "solve_family", "check_family", "plot_family",
            "MAX_MEMBERS"]
@@ -54,7 +60,26 @@ REQUIRED = ("mass_loss_rate", "terminal_velocity", "photosphere_radius",
 
 @dataclass
 class FamilyResult:
-    """A family of solutions: one row per member, in scan order."""
+    """A family of solutions: one row per member, in scan order.
+
+    Attributes
+    ----------
+    model : DiffusionWind or None
+        The photosphere-anchored model the family was built from (None when
+        read from a file without a complete stored model).
+    scan : str
+        The scanned quantity, a key of ``SCANS``.
+    values : numpy.ndarray
+        The scanned values, in ``SCANS[scan]`` units (K, Rsun or Msun/yr).
+    members : list of WindResult
+        One solve per value; failed members keep their status and message.
+    ends : str
+        Where and why the family ends (empty if it does not).
+
+    References
+    ----------
+    docs/physics.md, section 5 (the photosphere anchor and families).
+    """
 
     model: object
     scan: str
@@ -62,17 +87,37 @@ class FamilyResult:
     members: list = field(default_factory=list)  # WindResult per member
     ends: str = ""  # where and why the family ends (empty if it does not)
 
-    def column(self, key):
+    def column(self, key: str) -> np.ndarray:
+        """One summary value of every member, in cgs (``COLUMNS[key]``); NaN where unknown."""
         unit = COLUMNS[key]
         return np.array([m.summary[key].to_value(unit) if key in m.summary else np.nan
                          for m in self.members])
 
     @property
-    def converged(self):
+    def converged(self) -> np.ndarray:
+        """Boolean array: which members converged."""
         return np.array([m.converged for m in self.members])
 
-    def to_hdf5(self, path, profiles=False):
-        """Write the table (and optionally each member's profile) to HDF5."""
+    def to_hdf5(self, path: str | Path, profiles: bool = False) -> Path:
+        """Write the table (and optionally each member's profile) to HDF5.
+
+        Parameters
+        ----------
+        path : str or Path
+            The file to write (atomically: a temporary name, then renamed).
+        profiles : bool
+            Also store every member's profile.
+
+        Returns
+        -------
+        Path
+            The path written.
+
+        Raises
+        ------
+        OutputError
+            The file cannot be written.
+        """
         from ._io import dataset, stamp, strings, write_hdf5
         from .modelfile import dumps
         from .result import _unit_text, write_profile
@@ -98,12 +143,24 @@ class FamilyResult:
         return write_hdf5(path, fill)
 
     @classmethod
-    def from_hdf5(cls, path):
+    def from_hdf5(cls, path: str | Path) -> "FamilyResult":
         """Read a family file written by :meth:`to_hdf5` (table only).
 
-        Every column, unit and value is checked first; a damaged file gives a
-        one-line OutputError naming the file and the column.  ``model`` is None
-        when the file has no complete stored model.
+        Parameters
+        ----------
+        path : str or Path
+            A family file.
+
+        Returns
+        -------
+        FamilyResult
+            ``model`` is None when the file has no complete stored model.
+
+        Raises
+        ------
+        OutputError
+            Every column, unit and value is checked first; a damaged file
+            gives a one-line error naming the file and the column.
         """
         from pathlib import Path
 
@@ -176,8 +233,8 @@ class FamilyResult:
                    for i in range(len(values))]
         return cls(model, scan, values, members, ends)
 
-    def lines(self):
-        """A printable table."""
+    def lines(self) -> list[str]:
+        """A printable table: one line per member (Msun/yr, km/s, Rsun, K)."""
         head = (f"{self.scan:>24s} {'Mdot [Msun/yr]':>15s} {'v_inf [km/s]':>13s} "
                 f"{'R_ph [Rsun]':>12s} {'T_eff [K]':>10s} {'T_base [K]':>11s}  status")
         out = [head]
@@ -192,11 +249,43 @@ class FamilyResult:
         return out
 
 
-def solve_family(model, scan, start, stop, num, progress=None):
+def solve_family(model: "DiffusionWind", scan: str, start: float, stop: float, num: int,
+                 progress: Callable[[int, int], object] | None = None) -> FamilyResult:
     """Solve the family of ``model`` (photosphere-anchored) along ``scan``.
 
-    ``start``/``stop`` are numbers in the unit of ``SCANS[scan]`` (K, Rsun,
-    Msun/yr); members are spaced logarithmically.
+    The photospheric luminosity stays that of ``model``; each member is a
+    full photosphere-anchored solve at its own effective temperature.
+
+    Parameters
+    ----------
+    model : DiffusionWind
+        Anchored at the photosphere (``[boundary] photosphere_luminosity``
+        and ``photosphere_temperature``).
+    scan : str
+        ``"photosphere_temperature"``, ``"photosphere_radius"`` or
+        ``"mass_loss_rate"`` (the keys of ``SCANS``).
+    start, stop : float
+        First and last value, plain numbers in the unit of ``SCANS[scan]``
+        (K, Rsun or Msun/yr); members are spaced logarithmically.
+    num : int
+        Number of members, 2 to ``MAX_MEMBERS``.
+    progress : callable, optional
+        Called as ``progress(done, total)`` after every member.
+
+    Returns
+    -------
+    FamilyResult
+        Every member, failed ones with their status and message; ``ends``
+        says where and why the family ends.
+
+    Raises
+    ------
+    ModelError
+        Arguments :func:`check_family` refuses.
+
+    References
+    ----------
+    docs/physics.md, section 5 (photosphere anchor, eqs. 23 and 24; families).
     """
     from .solve import solve
 
@@ -231,8 +320,22 @@ def solve_family(model, scan, start, stop, num, progress=None):
     return result
 
 
-def check_family(model, scan, start, stop, num):
-    """Raise a one-line ModelError unless :func:`solve_family` can run these arguments."""
+def check_family(model: "DiffusionWind", scan: str, start: float, stop: float,
+                 num: int) -> None:
+    """Raise a one-line ModelError unless :func:`solve_family` can run these arguments.
+
+    Parameters
+    ----------
+    model, scan, start, stop, num
+        As for :func:`solve_family`.
+
+    Raises
+    ------
+    ModelError
+        ``model`` is not a photosphere-anchored diffusion model, ``scan`` is
+        unknown, ``start`` or ``stop`` is not finite and positive, or ``num``
+        is outside 2 to ``MAX_MEMBERS``.
+    """
     from .models import DiffusionWind
     if not isinstance(model, DiffusionWind) or model.anchor != "photosphere":
         raise ModelError("a family keeps the photosphere luminosity fixed: give a diffusion "
@@ -313,8 +416,26 @@ def _ends(result):
     return "; ".join(notes)
 
 
-def plot_family(result, path):
-    """Mdot, v_inf, T_eff and the base (temperature or radius) against R_ph."""
+def plot_family(result: FamilyResult, path: str | Path) -> str | Path:
+    """Mdot, v_inf, T_eff and the base (temperature or radius) against R_ph.
+
+    Parameters
+    ----------
+    result : FamilyResult
+        The family (its converged members are plotted).
+    path : str or Path
+        The figure file; the format follows the suffix (.png, .pdf, ...).
+
+    Returns
+    -------
+    str or Path
+        ``path``, as given.
+
+    Raises
+    ------
+    OutputError
+        The figure cannot be written.
+    """
     from .plotting import pyplot, save
 
     plt = pyplot()

@@ -6,7 +6,7 @@ that profiles not written by windsolve work too):
 
 * :func:`emission_profile` -- an optically thin emission line with
   emissivity j proportional to rho**n (n = 2: recombination or collisional
-  excitation; n = 1: a process linear in the density), SPEC section 6:
+  excitation; n = 1: a process linear in the density), docs/physics.md, eq. 27:
 
   .. math:: F(w) = 2\\pi \\int_{v(r) > |w|} j(r) \\frac{r^2}{v(r)} \\, dr
 
@@ -63,7 +63,7 @@ is at the continuum.  Velocities are Doppler velocities, positive = red.
 The emitting (or scattering) region is the tabulated profile, from R_c to
 its last point, with one addition: a Model B (diffusion) profile stops at
 the photosphere, and above it the flow is optically thin and ballistic
-(SPEC section 5), v^2 = v_inf^2 + (v_ph^2 - v_inf^2) R_ph / r; that thin
+(docs/physics.md, eq. 23), v^2 = v_inf^2 + (v_ph^2 - v_inf^2) R_ph / r; that thin
 flow is appended out to 100 R_ph.  Nothing else is extrapolated.
 
 Core radius (the disk that occults and, for P Cygni, emits the continuum):
@@ -250,6 +250,16 @@ class LineSettings:
         tau_rad = k_0 / (x**2 w dw/dx).  Default 100 (a strong line).
     n_velocity : int
         Number of points of the velocity grid (>= 21; default 401).
+
+    Raises
+    ------
+    ModelError
+        A setting out of its range, in one line naming it.
+
+    References
+    ----------
+    docs/physics.md, eq. 27 (emissivity power), eq. 28 (line strength),
+    eq. 30 (broadening), section 7 (HWZI level, edge depth).
     """
 
     emissivity_power: int = 2
@@ -461,7 +471,7 @@ def _thin_extension(result, r, v, rho):
     """Append the ballistic thin flow above a Model B photosphere.
 
     A diffusion-wind profile stops at the photosphere; above it the flow is
-    optically thin and ballistic (SPEC section 5): v(r)^2 = v_inf^2 + K / r
+    optically thin and ballistic (docs/physics.md, eq. 23): v(r)^2 = v_inf^2 + K / r
     with K = (v_ph^2 - v_inf^2) R_ph, and rho from continuity.  That is the
     gas an observer's lines come from, so it is added here (out to
     THIN_EXTENT R_ph); profiles without a photosphere are returned as they are.
@@ -595,7 +605,9 @@ def _no_gas(what, Rc, r):
 
 # -- profiles -----------------------------------------------------------------
 
-def emission_profile(result_or_profile, settings=LineSettings(), core_radius=None):
+def emission_profile(result_or_profile: WindResult | Mapping,
+                     settings: LineSettings = LineSettings(),
+                     core_radius: u.Quantity | str | None = None) -> LineProfile:
     """Optically thin emission line (j proportional to rho**n) of a solved wind.
 
     Parameters
@@ -607,9 +619,11 @@ def emission_profile(result_or_profile, settings=LineSettings(), core_radius=Non
     settings : LineSettings
         Emissivity power, occultation, broadening, grid, HWZI level.
     core_radius : Quantity or str, optional
-        Radius R_c of the occulting core [length].  Default: the photosphere
-        radius (Model B), the base radius R0 (Model A), else the first
-        tabulated radius.
+        Radius R_c of the occulting core [length].  Default for a
+        WindResult: the photosphere radius (Model B), else the radius where
+        the profile's own optical depth reaches 2/3 (Model A with an opaque
+        inner wind), else the base radius R0; for a dict, the first
+        tabulated radius (:func:`default_core_radius_cgs`).
 
     Returns
     -------
@@ -631,6 +645,8 @@ def emission_profile(result_or_profile, settings=LineSettings(), core_radius=Non
 
     References
     ----------
+    docs/physics.md, eq. 27 (the profile), eq. 30 (broadening), section 7
+    (core radius, FWHM and HWZI).
     Lamers, H. J. G. L. M. & Cassinelli, J. P. 1999, Introduction to Stellar
     Winds (Cambridge University Press), ch. 2 (from memory).
     """
@@ -652,7 +668,9 @@ def emission_profile(result_or_profile, settings=LineSettings(), core_radius=Non
                        edge_velocity=_nan_speed())
 
 
-def pcygni_profile(result_or_profile, settings=LineSettings(), core_radius=None):
+def pcygni_profile(result_or_profile: WindResult | Mapping,
+                   settings: LineSettings = LineSettings(),
+                   core_radius: u.Quantity | str | None = None) -> LineProfile:
     """Sobolev P Cygni profile of a pure-scattering resonance line in a solved wind.
 
     Parameters
@@ -690,6 +708,10 @@ def pcygni_profile(result_or_profile, settings=LineSettings(), core_radius=None)
 
     References
     ----------
+    docs/physics.md, eqs. 28 and 29 (Sobolev optical depth, escape
+    probability), eq. 30 (broadening), section 7 (the blue edge).
+    Sobolev, V. V. 1960, Moving Envelopes of Stars (Harvard University
+    Press) (the Sobolev approximation, from memory).
     Castor, J. I. 1970, MNRAS 149, 111 (escape probabilities, from memory).
     Castor, J. I. & Lamers, H. J. G. L. M. 1979, ApJS 39, 481 (from memory).
     Lamers & Cassinelli 1999, Introduction to Stellar Winds, ch. 2 and ch. 8
@@ -727,7 +749,8 @@ def _monotonic_outside(r, v, Rc, what):
     return clean
 
 
-def line_widths(result, settings=LineSettings(), core_radius=None):
+def line_widths(result: WindResult | Mapping, settings: LineSettings = LineSettings(),
+                core_radius: u.Quantity | str | None = None) -> dict[str, u.Quantity]:
     """The widths an observer quotes, from one solved wind.
 
     Parameters
@@ -759,6 +782,11 @@ def line_widths(result, settings=LineSettings(), core_radius=None):
     Reads the arrays (appending Model B's thin flow), resolves the core
     radius, then calls :func:`widths_cgs`: the numbers are those of a sweep
     worker calling :func:`widths_cgs` on the same arrays.
+
+    References
+    ----------
+    docs/physics.md, section 7: eqs. 27-30 and the observables (FWHM, HWZI,
+    blue edge); eq. 23 (Model B's thin flow above the photosphere).
     """
     settings = _check_settings(settings)
     fwhm, hwzi, edge = result_widths_cgs(result, settings, core_radius)

@@ -8,17 +8,37 @@ file holds: strings, numbers, booleans and one level of tables.
 import math
 import tomllib
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from ._io import read_input_text
 from ._units import plain
 from .errors import ModelError
 from .opacity import nearest
 
+if TYPE_CHECKING:
+    from .models import WindModel
+
 __all__ = ["load_model", "read_model_file", "model_from_dict", "dumps"]
 
 
-def read_model_file(path):
-    """Parse a TOML file into nested dicts, with one-line errors."""
+def read_model_file(path: str | Path) -> dict:
+    """Parse a TOML file into nested dicts, with one-line errors.
+
+    Parameters
+    ----------
+    path : str or Path
+        A model file (TOML, UTF-8).
+
+    Returns
+    -------
+    dict
+        The parsed tables, values as written (strings with units unparsed).
+
+    Raises
+    ------
+    ModelError
+        The file is missing, unreadable, not UTF-8 or not valid TOML.
+    """
     path = Path(path)
     text = read_input_text(path, "a model file",
                            "give the path of a model file (see configs/ for examples)",
@@ -29,8 +49,32 @@ def read_model_file(path):
         raise ModelError(f"{path}: not valid TOML: {error}") from None
 
 
-def model_from_dict(data, source="model"):
-    """Build the model object a parsed model file describes."""
+def model_from_dict(data: dict, source: str = "model") -> "WindModel":
+    """Build the model object a parsed model file describes.
+
+    Parameters
+    ----------
+    data : dict
+        Nested tables as a model file holds them: the top-level key
+        ``model`` (``"isothermal"`` or ``"diffusion"``) and tables such as
+        ``star``, ``composition``, ``opacity``, ``boundary``; dimensioned
+        values as strings (``"1.2 Msun"``) or Quantities.
+    source : str
+        Names the origin of ``data`` in error messages.
+
+    Returns
+    -------
+    WindModel
+        An :class:`~windsolve.models.IsothermalWind` or
+        :class:`~windsolve.models.DiffusionWind`, validated and frozen.
+
+    Raises
+    ------
+    ModelError
+        A missing or unknown model kind, an unknown key (the message suggests
+        the nearest valid one), a value without a unit or with the wrong
+        dimension, or an inconsistent model.
+    """
     from .models import MODELS
     kind = data.get("model")
     if kind is None:
@@ -45,11 +89,27 @@ def model_from_dict(data, source="model"):
     return MODELS[kind].from_dict(data, source=source)
 
 
-def load_model(path):
+def load_model(path: str | Path) -> "WindModel":
     """Read and validate a model file; returns a frozen model object.
 
-    Raises :class:`~windsolve.errors.ModelError` with a one-line message
-    naming the file, the key and the fix when anything is wrong.
+    Parameters
+    ----------
+    path : str or Path
+        A model file (TOML); relative table paths in it are resolved against
+        its directory.
+
+    Returns
+    -------
+    WindModel
+        :class:`~windsolve.models.IsothermalWind` (``model = "isothermal"``,
+        docs/physics.md, section 4) or :class:`~windsolve.models.DiffusionWind`
+        (``model = "diffusion"``, docs/physics.md, section 5).
+
+    Raises
+    ------
+    ModelError
+        A one-line message naming the file, the key and the fix when
+        anything is wrong (see :func:`read_model_file`, :func:`model_from_dict`).
     """
     return model_from_dict(read_model_file(path), source=str(path))
 
@@ -71,8 +131,25 @@ def _value(value):
     raise TypeError(f"cannot write {type(value).__name__} to TOML")
 
 
-def dumps(data):
-    """Write nested dicts (one level of tables) as TOML text."""
+def dumps(data: dict) -> str:
+    """Write nested dicts (one level of tables) as TOML text.
+
+    Parameters
+    ----------
+    data : dict
+        Top-level values and one level of tables of strings, numbers and
+        booleans (a resolved model's :meth:`~windsolve.models.WindModel.to_dict`).
+
+    Returns
+    -------
+    str
+        TOML text that :mod:`tomllib` reads back to ``data``.
+
+    Raises
+    ------
+    TypeError
+        A value of a type the writer does not cover.
+    """
     lines = []
     for key, value in data.items():
         if not isinstance(value, dict):

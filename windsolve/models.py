@@ -142,7 +142,7 @@ class WindModel:
         return found
 
     @classmethod
-    def keys(cls):
+    def keys(cls) -> list[str]:
         """Every dotted model-file key this model accepts."""
         keys = [p.key for p in cls.params().values()]
         keys += ["opacity.law"] + [f"opacity.{p}" for p in cls.opacity_parameter_names()]
@@ -183,8 +183,26 @@ class WindModel:
             raise ModelError("opacity must be an Opacity or a table with a law")
 
     @classmethod
-    def from_dict(cls, data, source="model"):
-        """Build from a parsed model file (nested dicts); unknown keys fail."""
+    def from_dict(cls, data: dict, source: str = "model") -> "WindModel":
+        """Build from a parsed model file (nested dicts); unknown keys fail.
+
+        Parameters
+        ----------
+        data : dict
+            The model file's tables (see :func:`windsolve.model_from_dict`).
+        source : str
+            Names the origin in error messages (the file's path).
+
+        Returns
+        -------
+        WindModel
+            An instance of ``cls``.
+
+        Raises
+        ------
+        ModelError
+            An unknown key (with the nearest valid one) or an invalid value.
+        """
         by_key = {p.key: name for name, p in cls.params().items()}
         kwargs = {}
         for top, value in data.items():
@@ -249,9 +267,27 @@ class WindModel:
             return ["law", "and the law's parameters"]
         return [k.rpartition(".")[2] for k in by_key if k.startswith(section + ".")]
 
-    def replace(self, **changes):
+    def replace(self, **changes) -> "WindModel":
         """A copy with some fields changed (validated again).
 
+        Parameters
+        ----------
+        **changes
+            Field names (not model-file keys) and new values, as the
+            constructor takes them (Quantities or strings with units).
+
+        Returns
+        -------
+        WindModel
+            A new model of the same class.
+
+        Raises
+        ------
+        ModelError
+            As the constructor.
+
+        Notes
+        -----
         Only the changed fields are read again; the cross-field checks run on
         the whole.  A sweep builds every row this way, so it is kept cheap.
         """
@@ -263,8 +299,19 @@ class WindModel:
         finally:
             _REPLACING.unchanged = ()
 
-    def cgs(self, name):
-        """Field ``name`` as a plain float in cgs (NaN when unset)."""
+    def cgs(self, name: str) -> float:
+        """Field ``name`` as a plain float in cgs (NaN when unset).
+
+        Parameters
+        ----------
+        name : str
+            A field name, e.g. ``"mass"`` (returns grams).
+
+        Returns
+        -------
+        float
+            The value in the field's cgs unit (``params()[name]``).
+        """
         value = getattr(self, name)
         return math.nan if value is None else self.params()[name].cgs(value)
 
@@ -281,8 +328,16 @@ class WindModel:
                              f"Newtonian wind has no meaning; {fix}")
 
     # -- output -------------------------------------------------------------
-    def to_dict(self):
-        """The resolved model file as nested dicts (defaults filled in)."""
+    def to_dict(self) -> dict:
+        """The resolved model file as nested dicts (defaults filled in).
+
+        Returns
+        -------
+        dict
+            ``model`` and one dict per table; Quantities as strings in the
+            unit they were given (``"50.0 solMass"``), ready for
+            :func:`windsolve.modelfile.dumps`.
+        """
         out = {"model": self.kind}
         for name, p in self.params().items():
             value = getattr(self, name)
@@ -312,6 +367,54 @@ class IsothermalWind(WindModel):
     the luminosity is constant or, with photon tiring, reduced by the work
     done lifting the flow.  See the README ("The physics in brief") and
     :mod:`windsolve.core.isothermal`.
+
+    Parameters
+    ----------
+    name : str
+        A label for the star (``name``).
+    mass : Quantity or str [mass]
+        Stellar mass M (``[star] mass``), e.g. ``"50 Msun"``.
+    radius : Quantity or str [length]
+        Base radius R0 (``[star] radius``).
+    luminosity : Quantity or str [power]
+        Luminosity at the base L0 (``[star] luminosity``).
+    X, Z : float
+        Hydrogen and metal mass fractions (``[composition]``; default 0.7,
+        0.02).
+    sound_speed : Quantity or str [speed], optional
+        Isothermal sound speed a (``[gas] sound_speed``); give this or
+        ``temperature``.
+    temperature : Quantity or str [temperature], optional
+        Gas temperature (``[gas] temperature``); sets a with the mean
+        molecular weight of the composition (docs/physics.md, eqs. 2, 3).
+    opacity : Opacity or dict, optional
+        The opacity law (``[opacity]``; default electron scattering).
+    porosity_length : Quantity or str [length], optional
+        Porosity length h0 at R0 (``[porosity] length``); none: no porosity.
+    porosity_exponent : float
+        q in h(r) = h0 (r/R0)^q (``[porosity] radial_exponent``; default 0).
+    base_density : Quantity or str [mass / volume]
+        Density at the base rho0 (``[boundary] base_density``).
+    photon_tiring : bool
+        Let the work of lifting the flow drain the luminosity
+        (``[energy] photon_tiring``; default False).
+    rtol : float
+        Relative tolerance of the integration (``[numerics] rtol``; 1e-8).
+    outer_radius : Quantity or str [length], optional
+        Outer end of the solution (``[numerics] outer_radius``; 100 R0).
+
+    Raises
+    ------
+    ModelError
+        A value without a unit or of the wrong dimension, a value outside its
+        range (the message names the model-file key and the fix), or an
+        inconsistent combination.
+
+    References
+    ----------
+    docs/physics.md, section 4: eqs. 13-16 (equations and critical point),
+    eqs. 9, 10 (porosity), eq. 15 (photon tiring), eqs. 17, 18 (the exact
+    Parker solution at constant Gamma).
     """
 
     kind = "isothermal"
@@ -427,6 +530,56 @@ class DiffusionWind(WindModel):
     the profile then runs inward to ``[star] radius`` if given, else down to
     ``base_temperature``, default 1e6 K).  See the README ("The physics in
     brief") and :mod:`windsolve.core.diffusion`.
+
+    Parameters
+    ----------
+    name : str
+        A label for the star (``name``).
+    mass : Quantity or str [mass]
+        Stellar mass M (``[star] mass``), e.g. ``"10 Msun"``.
+    radius : Quantity or str [length], optional
+        Base radius R0 (``[star] radius``): required by the base anchor;
+        with the photosphere anchor, where the profile stops inward.
+    luminosity : Quantity or str [power], optional
+        Radiative luminosity at the base L0 (``[star] luminosity``; base
+        anchor).
+    X, Z : float
+        Hydrogen and metal mass fractions (``[composition]``; default 0.7,
+        0.02).
+    opacity : Opacity or dict, optional
+        The opacity law (``[opacity]``; default electron scattering).
+    porosity_length : Quantity or str [length], optional
+        Porosity length h0 at R0 (``[porosity] length``).
+    porosity_exponent : float
+        q in h(r) = h0 (r/R0)^q (``[porosity] radial_exponent``; default 0).
+    base_temperature : Quantity or str [temperature], optional
+        T0 at the base (``[boundary] base_temperature``); with the
+        photosphere anchor and no radius, where the profile stops inward
+        (default 1e6 K).
+    base_density : Quantity or str [mass / volume], optional
+        rho0 at the base (``[boundary] base_density``; base anchor, instead
+        of ``base_temperature``).
+    photosphere_luminosity : Quantity or str [power], optional
+        Observed L_ph (``[boundary] photosphere_luminosity``; photosphere
+        anchor, with ``photosphere_temperature``).
+    photosphere_temperature : Quantity or str [temperature], optional
+        Observed effective temperature T_eff
+        (``[boundary] photosphere_temperature``).
+    rtol : float
+        Relative tolerance of the integration (``[numerics] rtol``; 1e-8).
+
+    Raises
+    ------
+    ModelError
+        A value without a unit or of the wrong dimension, a value outside its
+        range (the message names the model-file key and the fix), or an
+        inconsistent combination.
+
+    References
+    ----------
+    docs/physics.md, section 5: eqs. 19-21 (equations), eq. 22 (critical
+    point), eqs. 23, 24 (photosphere and thin flow), the anchors; eqs. 25, 26
+    (slopes and classification).
     """
 
     kind = "diffusion"
@@ -529,7 +682,7 @@ class DiffusionWind(WindModel):
             "lower the temperature or raise the luminosity")
 
     @property
-    def anchor(self):
+    def anchor(self) -> str:
         """"photosphere" or "base"."""
         return "photosphere" if self.photosphere_luminosity is not None else "base"
 

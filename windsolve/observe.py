@@ -12,13 +12,15 @@ on the model's synthetic line, :mod:`windsolve.lines`; an edge velocity is
 negative, blue-shifted).  ``line`` is a free label; ``uncertainty`` is one
 standard deviation in the same unit; ``unit`` is any speed astropy reads.
 
-chi^2 = sum over the measurements of ((predicted - observed) / uncertainty)^2.
+chi^2 = sum over the measurements of ((predicted - observed) / uncertainty)^2
+(docs/physics.md, eq. 31).
 """
 
 import csv
 import math
 from dataclasses import dataclass
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import astropy.units as u
 import numpy as np
@@ -26,6 +28,11 @@ import numpy as np
 from ._io import read_input_text
 from .errors import ModelError
 from .opacity import nearest
+
+if TYPE_CHECKING:
+    from .lines import LineSettings
+    from .models import WindModel
+    from .result import WindResult
 
 __all__ = ["QUANTITIES", "Observation", "read_observed", "predict", "compare_result",
            "sweep_chi2", "match_parameter"]
@@ -36,6 +43,22 @@ COLUMNS = ("object", "quantity", "line", "value", "uncertainty", "unit")
 
 @dataclass(frozen=True)
 class Observation:
+    """One measurement of an observed-widths CSV, in cgs.
+
+    Attributes
+    ----------
+    object : str
+        The star's name as the file gives it.
+    quantity : str
+        One of :data:`QUANTITIES`.
+    line : str
+        A free label (e.g. ``H-alpha``; ``-`` for none).
+    value, uncertainty : float
+        The measurement and its one-sigma uncertainty [cm/s].
+    row : int
+        Line number in the file.
+    """
+
     object: str
     quantity: str
     line: str
@@ -43,20 +66,37 @@ class Observation:
     uncertainty: float  # cm/s
     row: int  # line number in the file
 
-    def label(self):
+    def label(self) -> str:
         return f"{self.quantity}" + (f" ({self.line})" if self.line not in ("", "-") else "")
 
 
 C_KM_S = 299792.458  # speed of light [km/s]
 
 
-def read_observed(path, object_name=None):
+def read_observed(path: str | Path, object_name: str | None = None) -> list[Observation]:
     """Validated observations from an observed-widths CSV (one-line errors).
 
-    Every row must hold a finite value, below the speed of light, with the sign
-    its quantity has (``edge_velocity`` negative, the others positive), a
-    positive finite uncertainty and a speed unit.  A byte-order mark
-    (as spreadsheet programs write) is ignored.
+    Parameters
+    ----------
+    path : str or Path
+        The CSV (layout in the module docstring).
+    object_name : str, optional
+        Keep only this object's rows; required when the file holds several.
+
+    Returns
+    -------
+    list of Observation
+        In file order, values and uncertainties in cm/s.
+
+    Raises
+    ------
+    ModelError
+        A missing or unreadable file, a wrong header, no measurements, an
+        unknown object, several objects without ``object_name``, or a bad
+        row.  Every row must hold a finite value, below the speed of light,
+        with the sign its quantity has (``edge_velocity`` negative, the
+        others positive), a positive finite uncertainty and a speed unit.
+        A byte-order mark (as spreadsheet programs write) is ignored.
     """
     path = Path(path)
     text = read_input_text(path, "an observed-widths CSV",
@@ -134,8 +174,27 @@ def _observation(row, where, lineno):
     return Observation(obj, quantity, line, value * scale, sigma * scale, lineno)
 
 
-def predict(result, quantity, settings=None, widths=None):
-    """A model's value of an observed quantity [cm/s] (NaN when undefined)."""
+def predict(result: "WindResult", quantity: str, settings: "LineSettings | None" = None,
+            widths: dict | None = None) -> float:
+    """A model's value of an observed quantity [cm/s] (NaN when undefined).
+
+    Parameters
+    ----------
+    result : WindResult
+        A solved model.
+    quantity : str
+        One of :data:`QUANTITIES`.
+    settings : LineSettings, optional
+        For the line widths (default ``LineSettings()``).
+    widths : dict, optional
+        Widths already measured (:func:`windsolve.lines.line_widths`).
+
+    Returns
+    -------
+    float
+        The prediction [cm/s]: the summary's terminal velocity, or a width
+        of the synthetic line (docs/physics.md, section 7).
+    """
     if quantity == "terminal_velocity":
         return float(result.summary["terminal_velocity"].to_value(u.cm / u.s))
     if widths is None:
@@ -145,8 +204,30 @@ def predict(result, quantity, settings=None, widths=None):
     return math.nan if q is None else float(q.to_value(u.cm / u.s))
 
 
-def compare_result(result, observations, settings=None):
-    """Rows (observation, predicted, residual in sigma) and chi^2 for one model."""
+def compare_result(result: "WindResult", observations: list[Observation],
+                   settings: "LineSettings | None" = None) -> tuple[list[tuple], float]:
+    """Rows (observation, predicted, residual in sigma) and chi^2 for one model.
+
+    Parameters
+    ----------
+    result : WindResult
+        A solved model.
+    observations : list of Observation
+        From :func:`read_observed`.
+    settings : LineSettings, optional
+        For the line widths.
+
+    Returns
+    -------
+    rows : list of tuple
+        ``(observation, predicted [cm/s], (predicted - observed) / sigma)``.
+    chi2 : float
+        The sum of the squared residuals (dimensionless).
+
+    References
+    ----------
+    docs/physics.md, eq. 31.
+    """
     widths = None
     if any(o.quantity != "terminal_velocity" for o in observations):
         from .lines import LineSettings, line_widths
@@ -159,11 +240,31 @@ def compare_result(result, observations, settings=None):
     return rows, chi2
 
 
-def sweep_chi2(table, observations):
+def sweep_chi2(table: dict[str, np.ndarray], observations: list[Observation]) -> np.ndarray:
     """chi^2 per sweep row from the stored columns; NaN for failed rows.
 
-    Widths (fwhm, hwzi, edge_velocity) must have been computed in the sweep
-    (an ``[observables]`` table); otherwise a clear error says so.
+    Parameters
+    ----------
+    table : dict of str to numpy.ndarray
+        A sweep table (:func:`windsolve.sweep.read_sweep_table`), columns in cgs.
+    observations : list of Observation
+        From :func:`read_observed`.
+
+    Returns
+    -------
+    numpy.ndarray
+        chi^2 per row (dimensionless); NaN for rows that did not converge or
+        have no value.
+
+    Raises
+    ------
+    ModelError
+        Widths (fwhm, hwzi, edge_velocity) were observed but not computed in
+        the sweep (no ``[observables]`` table).
+
+    References
+    ----------
+    docs/physics.md, eq. 31.
     """
     n = len(table["converged"])
     chi2 = np.zeros(n)
@@ -178,13 +279,50 @@ def sweep_chi2(table, observations):
     return chi2
 
 
-def match_parameter(model, key, start, stop, observation, settings=None, num=12, xtol=1e-6):
+def match_parameter(model: "WindModel", key: str, start: "u.Quantity | str | float",
+                    stop: "u.Quantity | str | float", observation: Observation,
+                    settings: "LineSettings | None" = None, num: int = 12,
+                    xtol: float = 1e-6) -> tuple:
     """The value of one model key (in start's unit) that reproduces an observation.
 
-    A scan of ``num`` values (log-spaced when both ends are positive) finds a
-    sign change of predicted - observed; Brent's method (scipy.optimize.brentq)
-    then refines it.  Returns (value Quantity, predicted, scan) or raises
-    ModelError saying that no value in the range can.
+    Parameters
+    ----------
+    model : WindModel
+        The model to vary.
+    key : str
+        A numeric dotted model-file key, e.g. ``"star.luminosity"``.
+    start, stop : Quantity, str or float
+        The range, with a unit of the key's dimension (plain numbers for
+        dimensionless keys).
+    observation : Observation
+        The measurement to reproduce.
+    settings : LineSettings, optional
+        For the line widths.
+    num : int
+        Values scanned (log-spaced when both ends are positive).
+    xtol : float
+        Relative tolerance of the refinement (in the scanned variable).
+
+    Returns
+    -------
+    value : Quantity
+        The key's value, in the unit of ``start``.
+    predicted : float
+        The prediction there [cm/s].
+    scan : list of tuple
+        ``(value, predicted - observed [cm/s])`` at the scanned points.
+
+    Raises
+    ------
+    ModelError
+        An unusable key or range, no solution in the range, or no value in
+        the range that reproduces the observation (the message gives the
+        range the models cover).
+
+    Notes
+    -----
+    The scan finds a sign change of predicted - observed; Brent's method
+    (scipy.optimize.brentq) then refines it.
     """
     from scipy.optimize import brentq
 

@@ -175,12 +175,49 @@ class Opacity:
     Build from keywords, e.g. ``Opacity("bump", amplitude=4,
     peak_temperature="1.8e5 K", width_dex=0.1)``; omitted parameters take the
     registry's defaults.
+
+    Parameters
+    ----------
+    law : str
+        ``"electron_scattering"`` (docs/physics.md, eq. 5), ``"kramers"``
+        (eq. 6), ``"bump"`` (eq. 7) or ``"table"`` (eq. 8).
+    params : dict, optional
+        Parameter values by name; merged with ``**kwargs``.
+    **kwargs
+        The law's parameters (:data:`OPACITY_LAWS` lists them with units):
+        kramers: ``free_free_coefficient`` and ``bound_free_coefficient``
+        [cm5 K(7/2) / g2], ``gaunt_guillotine_ratio`` [dimensionless]; bump:
+        ``amplitude`` [dimensionless], ``peak_temperature`` [K],
+        ``width_dex`` [dex], ``density_exponent`` [dimensionless],
+        ``reference_density`` [g/cm3]; table: ``path`` (text or HDF5 file),
+        ``clamp`` (bool).  Dimensioned values as Quantities or strings.
+
+    Attributes
+    ----------
+    law : str
+        The law's name.
+    params : dict
+        Every parameter of the law (defaults filled in): Quantities in the
+        unit given, paths as absolute strings, flags as bools.
+
+    Raises
+    ------
+    ModelError
+        An unknown law or parameter (the message suggests the nearest name),
+        a missing required parameter, a value of the wrong dimension, or a
+        bump whose opacity would be negative.
+
+    References
+    ----------
+    docs/physics.md, section 2 (eqs. 5-8); porosity (eqs. 9, 10) is set on
+    the model, not here.
     """
 
     law: str = "electron_scattering"
     params: dict = field(default_factory=dict)
 
-    def __init__(self, law="electron_scattering", params=None, **kwargs):
+    def __init__(self, law: str = "electron_scattering", params: dict | None = None,
+                 **kwargs):
         if not isinstance(law, str):
             raise ModelError(f"[opacity] law = {plain(law)}: write the law's name as a quoted "
                              f"string, one of: {', '.join(OPACITY_LAWS)}")
@@ -242,11 +279,41 @@ class Opacity:
         return table
 
 
-def opacity_value(opacity, density, temperature, X=0.7, Z=0.02):
+def opacity_value(opacity: Opacity, density: u.Quantity | str,
+                  temperature: u.Quantity | str, X: float = 0.7,
+                  Z: float = 0.02) -> u.Quantity:
     """kappa(rho, T) of ``opacity`` (an :class:`Opacity`), no porosity [cm2/g].
 
+    Parameters
+    ----------
+    opacity : Opacity
+        The law and its parameters.
+    density : Quantity or str [mass / volume]
+        rho, e.g. ``"1e-10 g/cm3"``.
+    temperature : Quantity or str [temperature]
+        T, e.g. ``"1e5 K"``.
+    X, Z : float
+        Hydrogen and metal mass fractions (dimensionless), for kappa_es
+        (docs/physics.md, eqs. 1 and 5) and the Kramers coefficient.
+
+    Returns
+    -------
+    Quantity [cm2 / g]
+        kappa; NaN outside an unclamped table.
+
+    Raises
+    ------
+    ModelError
+        A value without a unit or of the wrong dimension; an unreadable table.
+
+    Notes
+    -----
     Kernel twin: ``opacity_value.lite(O, rho, T)`` with ``O`` from
     :meth:`Opacity.kernel_vector`.
+
+    References
+    ----------
+    docs/physics.md, eqs. 5-8.
     """
     rho = to_quantity(density, u.g / u.cm**3, "density").value
     T = to_quantity(temperature, u.K, "temperature").value

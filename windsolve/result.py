@@ -106,12 +106,18 @@ class WindResult:
     message : str
         One line saying, in words, what happened.
     summary : dict of Quantity
-        ``mass_loss_rate``, ``terminal_velocity``, ``sonic_radius``,
-        ``sonic_velocity`` and model-specific extras (NaN when unknown).
+        ``mass_loss_rate`` [g/s], ``terminal_velocity`` [cm/s; Model A: v at
+        the outer radius], ``sonic_radius`` [cm], ``sonic_velocity`` [cm/s]
+        and model-specific extras (Model B: ``photosphere_radius`` [cm],
+        ``photosphere_temperature`` [K], ``photosphere_luminosity`` [erg/s],
+        ``energy_flux`` [erg/s], ...; units in ``SUMMARY_UNITS``); NaN when
+        unknown.
     profile : dict of Quantity arrays
-        On one increasing radial grid: ``radius``, ``velocity``, ``density``,
-        ``temperature``, ``luminosity``, ``opacity``, ``eddington_factor``.
-        Empty when no solution was found.
+        On one increasing radial grid: ``radius`` [cm], ``velocity`` [cm/s],
+        ``density`` [g/cm3], ``temperature`` [K], ``luminosity`` [erg/s,
+        radiative, comoving], ``opacity`` [cm2/g, kappa_eff],
+        ``eddington_factor`` [dimensionless] and, for Model B,
+        ``optical_depth``.  Empty when no solution was found.
     critical_points : list of dict
         Every root of the critical condition on the radial range (for the
         converged mass-loss rate): ``radius``, ``kind``, ``slopes``.
@@ -122,6 +128,11 @@ class WindResult:
         e-folds below the sonic point (summary ``base_density_efolds``):
         the base is a static atmosphere and the mass-loss rate its
         exponentially small leak, not a wind (Model A only; see the README).
+
+    References
+    ----------
+    docs/physics.md: section 4 (Model A), section 5 (Model B), eq. 12
+    (``eddington_factor``), section 9 (the file layout).
     """
 
     model: object
@@ -134,14 +145,21 @@ class WindResult:
     counters: dict = field(default_factory=dict)
 
     @property
-    def hydrostatic(self):
+    def hydrostatic(self) -> bool:
         """Is the base a hydrostatic atmosphere rather than a wind? (see HYDROSTATIC_EFOLDS)"""
         q = self.summary.get("base_density_efolds")
         return bool(q is not None and np.isfinite(q.value) and q.value > HYDROSTATIC_EFOLDS)
 
     # -- text ---------------------------------------------------------------
-    def summary_lines(self):
-        """Short human summary (list of lines)."""
+    def summary_lines(self) -> list[str]:
+        """Short human summary.
+
+        Returns
+        -------
+        list of str
+            One line per known summary value, in astronomers' units
+            (Msun/yr, Rsun, km/s, K, Lsun), after a line with the message.
+        """
         s = self.summary
         name = getattr(self.model, "name", "")
         lines = [f"{name} ({self.model.kind} wind): {self.message}"]
@@ -186,9 +204,27 @@ class WindResult:
         return "\n".join(self.summary_lines())
 
     # -- HDF5 ---------------------------------------------------------------
-    def to_hdf5(self, path):
-        """Write the result as SPEC section 7 lays out (cgs, units on every dataset).
+    def to_hdf5(self, path: str | Path) -> Path:
+        """Write the result as docs/physics.md, section 9 lays out (cgs, units on every dataset).
 
+        Parameters
+        ----------
+        path : str or Path
+            The HDF5 file to write (replaced if it exists).
+
+        Returns
+        -------
+        Path
+            The path written.
+
+        Raises
+        ------
+        OutputError
+            ``path`` is a directory, its directory does not exist, or the
+            file cannot be written.
+
+        Notes
+        -----
         The file is written under a temporary name in the same directory and
         renamed when complete, so an interrupted write never leaves a
         half-written file at ``path``.
@@ -228,15 +264,27 @@ class WindResult:
         return write_hdf5(path, fill)
 
     @classmethod
-    def from_hdf5(cls, path):
+    def from_hdf5(cls, path: str | Path) -> "WindResult":
         """Read a result file written by :meth:`to_hdf5` (or laid out the same way).
 
-        Every dataset, unit and value is checked first (:func:`read_result`): a
-        damaged file gives a one-line :class:`~windsolve.errors.OutputError`
-        naming the file and what is wrong.  The model is rebuilt from the stored
-        model file when there is a complete one (``model`` is None otherwise);
-        datasets come back as Quantities in the units their ``units`` attribute
-        names.
+        Parameters
+        ----------
+        path : str or Path
+            An HDF5 file laid out as docs/physics.md, section 9 describes.
+
+        Returns
+        -------
+        WindResult
+            The model is rebuilt from the stored model file when there is a
+            complete one (``model`` is None otherwise); datasets come back as
+            Quantities in the units their ``units`` attribute names.
+
+        Raises
+        ------
+        OutputError
+            Every dataset, unit and value is checked first
+            (:func:`read_result`): a damaged file gives a one-line error
+            naming the file and what is wrong.
         """
         return read_result(path, cls)
 

@@ -6,6 +6,7 @@ solver runs, and its status codes become words here.
 
 import math
 import time
+from typing import TYPE_CHECKING
 
 import astropy.units as u
 import numpy as np
@@ -21,6 +22,9 @@ from .result import (
     base_density_efolds,
 )
 
+if TYPE_CHECKING:
+    from .models import WindModel
+
 __all__ = ["solve", "SOLVERS"]
 
 FOUR_PI = 4.0 * math.pi
@@ -32,7 +36,7 @@ CM_S = PROFILE_UNITS["velocity"]
 G_CM3 = PROFILE_UNITS["density"]
 CM2_G = PROFILE_UNITS["opacity"]
 ERG_S = PROFILE_UNITS["luminosity"]
-DELTA = 1e-6  # start this fraction of r_c off the critical point (SPEC section 8)
+DELTA = 1e-6  # start this fraction of r_c off the critical point (docs/physics.md, section 8)
 MAX_STEP = 0.02  # largest step in ln r of a stored profile (~115 points per decade)
 CAPACITY = 200000  # stored points per leg
 SURVEY_POINTS = 400  # trial mass-loss rates scanned to explain a failure
@@ -503,8 +507,14 @@ def solve_diffusion(model, profile=True):
 SOLVERS = {"isothermal": solve_isothermal, "diffusion": solve_diffusion}
 
 
-def solve(model, profile=True):
+def solve(model: "WindModel", profile: bool = True) -> WindResult:
     """Solve a wind model; returns a :class:`~windsolve.result.WindResult`.
+
+    Model A (:class:`~windsolve.models.IsothermalWind`) finds the mass-loss
+    rate for which the solution through the innermost saddle meets the base
+    density; Model B (:class:`~windsolve.models.DiffusionWind`) the regular
+    solution through its critical point that meets the photosphere (or base)
+    anchor.
 
     Parameters
     ----------
@@ -522,5 +532,18 @@ def solve(model, profile=True):
     WindResult
         Always returned; ``result.converged`` says whether the transonic
         solution was found out to the outer radius, ``result.message`` why not.
+        Summary and profile values carry units (cgs).
+
+    Raises
+    ------
+    ModelError
+        Only for input that can be checked before solving and was not when
+        the model was built (e.g. an opacity table that cannot be read).
+        A model without a solution is not an error: see ``converged``.
+
+    References
+    ----------
+    docs/physics.md, eqs. 13-16 (Model A, section 4), eqs. 19-24 (Model B,
+    section 5), eqs. 25, 26 (critical points) and section 8 (numerical method).
     """
     return SOLVERS[model.kind](model, profile)

@@ -305,8 +305,31 @@ def apply_changes(model, changes):
     return model.replace(**kwargs)
 
 
-def load_sweep(path):
-    """Read and validate a sweep file; every row is built into a model."""
+def load_sweep(path: str | Path) -> Sweep:
+    """Read and validate a sweep file; every row is built into a model.
+
+    Parameters
+    ----------
+    path : str or Path
+        A sweep file (TOML): ``[sweep]`` with ``base`` (a model file, relative
+        to the sweep file) or an inline ``[model]`` table, ``design``
+        (``grid``, ``random`` or ``latin``), ``samples``, ``seed``; ``[[axis]]``
+        tables with a dotted model key and ``values`` or ``start``, ``stop``,
+        ``num``, ``spacing``; optionally ``[observables]`` (line settings).
+
+    Returns
+    -------
+    Sweep
+        The design with every row's model-file changes; each row's model has
+        been built once, so a bad row fails here and not in a worker.
+
+    Raises
+    ------
+    ModelError
+        A missing or unreadable file, invalid TOML, an unknown table or key
+        (with the nearest valid one), or a row whose model is invalid: one
+        line naming the file, the key and the fix.
+    """
     import tomllib
 
     from .modelfile import model_from_dict, read_model_file
@@ -753,15 +776,59 @@ def _check_stall_timeout(stall_timeout):
     return value or None
 
 
-def run_sweep(sweep, out, workers=None, scheduler=None, resume=False, quiet=False,
-              stall_timeout=DEFAULT_STALL_TIMEOUT):
+def run_sweep(sweep: Sweep, out: str | Path, workers: int | None = None,
+              scheduler: str | None = None, resume: bool = False, quiet: bool = False,
+              stall_timeout: float | None = DEFAULT_STALL_TIMEOUT
+              ) -> tuple[dict[int, dict], bool]:
     """Run every row not already done; returns (records by row, interrupted).
 
-    ``stall_timeout`` [s]: when no batch has finished for this long (a dask
-    cluster that lost its workers, a stuck worker) the sweep stops with a
-    one-line WindsolveError; the rows finished so far stay in the journal
-    for ``resume=True``.  ``None`` or 0 waits for ever.  The output is
-    locked while the sweep runs (see :func:`_lock_output`).
+    Parameters
+    ----------
+    sweep : Sweep
+        From :func:`load_sweep`.
+    out : str or Path
+        The sweep's HDF5 file, written when every row is done (its layout:
+        docs/physics.md, section 9).  Rows are journaled to ``OUT.h5.partial``
+        as they finish.
+    workers : int, optional
+        Local worker processes (default: one per core).
+    scheduler : str, optional
+        Address of a dask.distributed scheduler to run the rows on instead.
+    resume : bool
+        Finish an interrupted run from its journal (the journal must belong
+        to the same design).
+    quiet : bool
+        No progress bar.
+    stall_timeout : float or None [s]
+        When no batch has finished for this long (a dask cluster that lost
+        its workers, a stuck worker) the sweep stops; ``None`` or 0 waits
+        for ever.
+
+    Returns
+    -------
+    records : dict of int to dict
+        Per finished row: ``converged``, ``status``, ``message``, the summary
+        values in cgs (``mass_loss_rate`` [g/s], ``terminal_velocity``
+        [cm/s], ...) and, with ``[observables]``, the line widths [cm/s].
+    interrupted : bool
+        True after Ctrl-C: the finished rows stay in the journal and the
+        table is not written.
+
+    Raises
+    ------
+    OutputError
+        A journal of an interrupted run exists and ``resume`` is False, the
+        journal belongs to another design, or the output is locked by
+        another running sweep.
+    WindsolveError
+        The sweep stalled for ``stall_timeout`` (the rows finished so far
+        stay in the journal for ``resume=True``).
+
+    Notes
+    -----
+    A row that fails is recorded with its status and message; it never stops
+    the sweep.  The output is locked while the sweep runs (see
+    :func:`_lock_output`).
     """
     out = Path(out)
     stall_timeout = _check_stall_timeout(stall_timeout)
@@ -1069,14 +1136,32 @@ def write_sweep_table(sweep, records, out):
 SWEEP_REQUIRED = ("mass_loss_rate", "terminal_velocity")  # numbers of every converged row
 
 
-def read_sweep_table(path):
+def read_sweep_table(path: str | Path) -> tuple[dict[str, np.ndarray], dict]:
     """{column: numpy array} and the root attributes of a sweep file.
 
-    Every column is checked (one-dimensional, one length, numbers or text,
-    a unit of the right dimension, finite or NaN, speeds below light, no NaN
-    in a converged row's mass-loss rate and terminal velocity) and the
-    summary and width columns come back in cgs whatever unit the file names;
-    a damaged file gives a one-line OutputError naming the file and column.
+    Parameters
+    ----------
+    path : str or Path
+        A sweep's HDF5 file (layout: docs/physics.md, section 9).
+
+    Returns
+    -------
+    table : dict of str to numpy.ndarray
+        One 1-D array per column, row i being model i of the design: the axes
+        by dotted key, the summary values (``mass_loss_rate`` [g/s],
+        ``terminal_velocity`` [cm/s], ``sonic_radius`` [cm], ...), the line
+        widths [cm/s] when measured, ``converged`` and ``status``; summary
+        and width columns in cgs whatever unit the file names.
+    attrs : dict
+        The file's root attributes (sweep file text, version, ...).
+
+    Raises
+    ------
+    OutputError
+        A damaged file, in one line naming the file and column.  Every column
+        is checked: one-dimensional, one length, numbers or text, a unit of
+        the right dimension, finite or NaN, speeds below light, no NaN in a
+        converged row's mass-loss rate and terminal velocity.
     """
     import astropy.units as u
 

@@ -50,6 +50,7 @@ import math
 from dataclasses import dataclass, field
 from functools import lru_cache
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -57,6 +58,11 @@ from ._io import write_hdf5 as _write_hdf5_file
 from ._io import write_text as _write_text_file
 from .core import opacity as kernels
 from .errors import ModelError
+
+if TYPE_CHECKING:
+    from numpy.typing import ArrayLike
+
+    from .opacity import Opacity
 
 __all__ = ["OpacityTable", "read_table", "write_table", "write_text", "write_hdf5",
            "tabulate", "node_derivatives", "load_table", "table_kernel_data",
@@ -164,7 +170,7 @@ def _check_values(log_T, log_R, log_kappa, where, locate):
 
 # --- reading -------------------------------------------------------------------
 
-def read_table(path, where=None):
+def read_table(path: str | Path, where: str | None = None) -> "OpacityTable":
     """Read and check an opacity table (text matrix or HDF5, by content).
 
     Parameters
@@ -184,6 +190,10 @@ def read_table(path, where=None):
     ModelError
         One line naming the file and the problem: missing file, not a table,
         ragged rows, non-increasing axes, NaN or inf, too few nodes.
+
+    References
+    ----------
+    docs/physics.md, eq. 8 (the variable R) and section 2 (tables).
     """
     path = Path(path)
     where = where or str(path)
@@ -343,8 +353,26 @@ def write_hdf5(table, path):
     return _write_hdf5_file(path, fill)
 
 
-def write_table(table, path):
-    """Write ``table`` as HDF5 (suffix .h5, .hdf5, .he5) or else as text."""
+def write_table(table: "OpacityTable", path: str | Path) -> Path:
+    """Write ``table`` as HDF5 (suffix .h5, .hdf5, .he5) or else as text.
+
+    Parameters
+    ----------
+    table : OpacityTable
+        The table to write.
+    path : str or Path
+        The file; written under a temporary name and renamed.
+
+    Returns
+    -------
+    Path
+        The path written.
+
+    Raises
+    ------
+    OutputError
+        The file cannot be written.
+    """
     if Path(path).suffix.lower() in HDF5_SUFFIXES:
         return write_hdf5(table, path)
     return write_text(table, path)
@@ -389,9 +417,31 @@ def _load_cached(path, mtime_ns, size, where):
     return table, params, extra
 
 
-def load_table(path, where=None):
+def load_table(path: str | Path, where: str | None = None) -> tuple:
     """(table, params, extra) of the file at ``path``, parsed once per version.
 
+    Parameters
+    ----------
+    path : str or Path
+        A table file (see :func:`read_table`).
+    where : str, optional
+        How messages name the file.
+
+    Returns
+    -------
+    table : OpacityTable
+    params : tuple of float
+        Kernel slots 2..6 (table edges; clamp off).
+    extra : numpy.ndarray
+        The table block of the kernel vector (read-only).
+
+    Raises
+    ------
+    ModelError
+        As :func:`read_table`.
+
+    Notes
+    -----
     Cached on (absolute path, modification time, size), so a sweep over many
     models that share a table reads and differentiates it once, while an
     edited file is read again.  ``params`` has the clamp slot off; the caller
@@ -410,7 +460,9 @@ def load_table(path, where=None):
 
 # --- making tables from analytic laws -----------------------------------------------
 
-def tabulate(opacity, log_T, log_R, X=0.7, Z=0.02, description=None):
+def tabulate(opacity: "Opacity", log_T: "ArrayLike", log_R: "ArrayLike", X: float = 0.7,
+             Z: float = 0.02, description: "list[str] | tuple[str, ...] | None" = None
+             ) -> "OpacityTable":
     """Tabulate an analytic opacity law on a (log10 T, log10 R) grid.
 
     Parameters
@@ -434,6 +486,17 @@ def tabulate(opacity, log_T, log_R, X=0.7, Z=0.02, description=None):
     OpacityTable
         ``log_kappa[i, j] = log10 kappa(rho_ij, T_i)`` with
         ``rho_ij = R_j (T_i / 1e6 K)**3``.
+
+    Raises
+    ------
+    ModelError
+        A ``table`` law, a grid that is not 1-D, increasing, with at least 4
+        nodes (and not too many), or a law without a finite positive opacity
+        somewhere on the grid.
+
+    References
+    ----------
+    docs/physics.md, eqs. 5-8.
     """
     from ._version import __version__
     if opacity.law == "table":

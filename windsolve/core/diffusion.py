@@ -1,7 +1,8 @@
 """Model B kernels: the optically thick wind with radiative diffusion.
 
 Gas plus radiation in LTE, diffusion approximation, steady and spherical
-(SPEC section 5).  With c_T^2 = k T / (mu m_u) and rho = Mdot / (4 pi r^2 v):
+(docs/physics.md, section 5, eqs. 19-21).  With c_T^2 = k T / (mu m_u) and
+rho = Mdot / (4 pi r^2 v):
 
 .. math::
 
@@ -17,7 +18,7 @@ The energy integral gives L_r algebraically, so the state is (r, v, T) and
 the kernels integrate y = (ln v, ln T) against x = ln r with the same DOP853
 integrator as Model A.  The equations are those of the optically thick wind
 theory of Kato & Iben (1992, ApJ 394, 305) and Kato & Hachisu (1994, ApJ
-437, 802) in the form of SPEC section 5 (references from memory).
+437, 802) in the form of docs/physics.md, section 5 (references from memory).
 
 A regular solution is fixed by its critical point (Mdot, r_c, T_c): v_c =
 c_T(T_c), and N = 0 is linear in L_r, which gives L_c and then Edot
@@ -105,7 +106,7 @@ def rhs(x, y, P, O, dydx):
 
 @njit(cache=True, error_model="numpy")
 def terminal_velocity_squared(r, v, L, P):
-    """v_inf^2 of the ballistic thin flow above r (SPEC section 5)."""
+    """v_inf^2 of the ballistic thin flow above r (docs/physics.md, eq. 23)."""
     gamma_thin = P[I_KES] * L / (FOUR_PI * C_LIGHT * P[I_GM])
     return v * v - 2.0 * P[I_GM] * (1.0 - gamma_thin) / r
 
@@ -215,7 +216,7 @@ def critical_slopes(rc, vc, Tc, P, O):
     """(kind, p_plus, p_minus, T', k1) at a critical point (Mdot, Edot in P).
 
     L'Hopital with D = v - c_T^2/v: dD/dr = 2p - k1, k1 = (k/mu m_u) T'/v,
-    so 2p^2 - (N_v + k1) p - (N_r + N_T T') = 0 (SPEC section 5), with the
+    so 2p^2 - (N_v + k1) p - (N_r + N_T T') = 0 (docs/physics.md, eq. 25), with the
     partials of N at fixed Mdot and Edot by central differences.
     """
     hr = 1e-5 * rc
@@ -426,7 +427,7 @@ def shoot_dense(ln_mdot, R, L, T, P, O, rtol, max_step, dx_out, out_x, out_y):
     if st == STEP_TOO_SMALL and left_table(x, y, P, O):
         st = OFF_TABLE
     elif st == STEP_TOO_SMALL:
-        # A near miss on the sonic side shows as a collapsing step (SPEC 8).
+        # A near miss on the sonic side shows as a collapsing step (docs/physics.md, section 8).
         st = SIDE_SONIC
     elif st == REACHED_END or st == BASE:
         # Down to the base without meeting the sound speed: the solution

@@ -647,7 +647,7 @@ def solve(P, O, rtol, delta):
     shots = 0
     # 0. When N(R0, a) changes sign with Mdot (density-dependent opacity,
     #    porosity, tiring), the admissible window starts where the saddle
-    #    sits on the base (SPEC section 8).  There v(R0) = a, so
+    #    sits on the base (docs/physics.md, section 8).  There v(R0) = a, so
     #    g = ln rho(R0) - ln rho0 = ln Mdot - ln(4 pi R0^2 rho0 a) is known
     #    without a shot; ln rho(R0) climbs steeply inside the window, so the
     #    walk starts from the boundary with a small step.  N costs

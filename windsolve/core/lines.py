@@ -471,7 +471,7 @@ def emission_flux(r, v, rho, n, Rc, occult, w):
         F(w) = 2\\pi \\int_{v(r) > |w|} j(r) \\frac{r^2}{v(r)} \\, dr
 
     less, with occultation, the red part w > v sqrt(1 - (Rc/r)^2) of every
-    shell (SPEC section 6; Lamers & Cassinelli 1999, ch. 2, from memory).
+    shell (docs/physics.md, eq. 27; Lamers & Cassinelli 1999, ch. 2, from memory).
     Inside each sub-interval the bound -v(r) < w is linear in r, the
     occultation edge w < v sqrt(1 - (Rc/r)^2) is found on the exact curve,
     and j r^2 / v is exponential in r, so each piece is integrated exactly
