@@ -12,6 +12,7 @@ from pathlib import Path
 import astropy.units as u
 import numpy as np
 
+from . import tables
 from ._units import format_quantity, plain, to_quantity
 from .core import basics
 from .core import opacity as kernels
@@ -91,13 +92,11 @@ def _table_where(p):
 def _pack_table(p, X, Z):
     # Table edges and the clamp flag; the file is read once per version
     # (windsolve.tables.load_table caches it).
-    from . import tables
     table, params, extra = tables.load_table(p["path"], _table_where(p))
     return params[:4] + (1.0 if p["clamp"] else 0.0,)
 
 
 def _table_block(p, X, Z):
-    from . import tables
     table, params, extra = tables.load_table(p["path"], _table_where(p))
     return extra
 
@@ -253,6 +252,11 @@ class Opacity:
         spec = {p.name: p for p in OPACITY_LAWS[self.law].parameters}
         return {k: float(q.to_value(spec[k].unit)) if spec[k].is_quantity else q
                 for k, q in self.params.items()}
+
+    @property
+    def formula(self):
+        """The law's formula as one line of text (from :data:`OPACITY_LAWS`)."""
+        return OPACITY_LAWS[self.law].formula
 
     def kernel_vector(self, X, Z, porosity=(0.0, 1.0, 0.0)):
         """The flat float vector ``O`` the kernels take (see core.opacity).

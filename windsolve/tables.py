@@ -523,7 +523,7 @@ def tabulate(opacity: "Opacity", log_T: "ArrayLike", log_R: "ArrayLike", X: floa
         description = (
             f"Tabulated by windsolve {__version__} (windsolve.tables.tabulate) from the "
             f"analytic \"{opacity.law}\" law",
-            f"  {_formula(opacity.law)}",
+            f"  {opacity.formula}",
             *([f"  with {values}"] if values else []),
             f"  for X = {float(X)!r}, Z = {float(Z)!r}; no porosity.",
             f"Grid: {log_T.size} log10 T from {float(log_T[0])!r} to {float(log_T[-1])!r}, "
@@ -531,11 +531,6 @@ def tabulate(opacity: "Opacity", log_T: "ArrayLike", log_R: "ArrayLike", X: floa
             *TEXT_LAYOUT,
         )
     return OpacityTable(log_T, log_R, log_kappa, tuple(description))
-
-
-def _formula(law):
-    from .opacity import OPACITY_LAWS
-    return OPACITY_LAWS[law].formula
 
 
 def _check_size(n_T, n_R, where):
