@@ -142,6 +142,8 @@ class WindResult:
     # -- text ---------------------------------------------------------------
     def summary_lines(self):
         """Short human summary (list of lines)."""
+        from .registry import spec_for
+
         s = self.summary
         name = getattr(self.model, "name", "")
         lines = [f"{name} ({self.model.kind} wind): {self.message}"]
@@ -155,10 +157,8 @@ class WindResult:
         show("mass-loss rate", "mass_loss_rate", u.g / u.s)
         show("sonic (critical) radius", "sonic_radius", u.Rsun)
         show("sonic velocity", "sonic_velocity", u.km / u.s)
-        key = "terminal velocity"
-        if self.model.kind == "isothermal":
-            key = "velocity at outer radius"
-        show(key, "terminal_velocity", u.km / u.s)
+        spec = spec_for(self.model)
+        show(spec.terminal_label, "terminal_velocity", u.km / u.s)
         show("sonic temperature", "sonic_temperature", u.K)
         show("photosphere radius", "photosphere_radius", u.Rsun)
         show("photosphere temperature", "photosphere_temperature", u.K)
@@ -177,9 +177,8 @@ class WindResult:
             lines.append(f"  HYDROSTATIC: the base lies more than {HYDROSTATIC_EFOLDS:g} density "
                          f"e-folds below the sonic point; it is a static atmosphere and the "
                          f"mass-loss rate its exponentially small leak, not a wind")
-        if self.model.kind == "isothermal" and self.converged:
-            lines.append("  (an isothermal flow keeps accelerating slowly: the 'terminal' "
-                         "velocity is v at the outer radius)")
+        if spec.converged_note and self.converged:
+            lines.append(f"  {spec.converged_note}")
         return lines
 
     def __str__(self):

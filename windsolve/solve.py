@@ -13,6 +13,7 @@ import numpy as np
 from .core import isothermal as K
 from .core.constants import M_SUN, R_SUN, YEAR
 from .core.critical import KIND_NAMES
+from .registry import spec_for
 from .result import (
     HYDROSTATIC_EFOLDS,
     PROFILE_UNITS,
@@ -21,7 +22,7 @@ from .result import (
     base_density_efolds,
 )
 
-__all__ = ["solve", "SOLVERS"]
+__all__ = ["solve"]
 
 FOUR_PI = 4.0 * math.pi
 # Units built once: composing them on every call costs more than a solve.
@@ -500,9 +501,6 @@ def solve_diffusion(model, profile=True):
                       {"shots": 0, "seconds": time.perf_counter() - t0})
 
 
-SOLVERS = {"isothermal": solve_isothermal, "diffusion": solve_diffusion}
-
-
 def solve(model, profile=True):
     """Solve a wind model; returns a :class:`~windsolve.result.WindResult`.
 
@@ -523,4 +521,4 @@ def solve(model, profile=True):
         Always returned; ``result.converged`` says whether the transonic
         solution was found out to the outer radius, ``result.message`` why not.
     """
-    return SOLVERS[model.kind](model, profile)
+    return spec_for(model).solve(model, profile)
