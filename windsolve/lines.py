@@ -449,20 +449,23 @@ def _read_profile(source, what):
     if not np.all(np.diff(r) > 0):
         raise ModelError(f"{what}: profile['radius'] must increase strictly")
     if isinstance(source, WindResult):
-        extend = _line_rules(source).extend_profile
+        extend = _line_rules(source)[1]
         if extend is not None:
             r, v, rho = extend(source, r, v, rho)
     return r, v, rho
 
 
 def _line_rules(result):
-    """The ModelSpec whose line rules (core radius, extension) apply to a result; a
-    result without a (registered) model gets the rules of a photosphere model, which
-    follow the summary: a profile that does not end at a finite photosphere is left
-    as it is and its core found as for a model without one."""
-    from .registry import MODEL_SPECS
+    """(core_radius, extend_profile) of a result: its ModelSpec's.  A result without
+    a (registered) model, e.g. read from a file without a complete model, gets rules
+    that follow its summary: the ballistic flow is added above a finite photosphere
+    where the profile ends, and the core is that photosphere, else as for a model
+    without one (:func:`windsolve.registry.photosphere_core_radius`)."""
+    from .registry import MODEL_SPECS, photosphere_core_radius
     spec = MODEL_SPECS.get(getattr(result.model, "kind", None))
-    return spec if spec is not None else MODEL_SPECS["diffusion"]
+    if spec is None:
+        return photosphere_core_radius, thin_extension
+    return spec.core_radius, spec.extend_profile
 
 
 THIN_EXTENT = 100.0  # the optically thin flow above a photosphere is followed to 100 R_ph
@@ -557,8 +560,8 @@ def _core_radius(source, core_radius, r, what):
         radius = getattr(source.model, "radius", None)
         model_radius = (float(radius.to_value(u.cm)) if isinstance(radius, u.Quantity)
                         else math.nan)
-        return _line_rules(source).core_radius(r, _optical_arrays(source), source.summary,
-                                               model_radius)
+        return _line_rules(source)[0](r, _optical_arrays(source), source.summary,
+                                      model_radius)
     return float(r[0])
 
 
