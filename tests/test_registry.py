@@ -101,6 +101,15 @@ SPEC = ModelSpec(
 register(SPEC, replace=True)
 
 
+@pytest.fixture(scope="module", autouse=True)
+def registered():
+    """The test model is known while this file's tests run, and gone after them."""
+    from windsolve.registry import unregister
+    register(SPEC, replace=True)
+    yield
+    unregister(KIND)
+
+
 @pytest.fixture(scope="module")
 def reference():
     """The Parker reference star solved by Model A, and the same star as a ParkerWind."""
@@ -223,3 +232,18 @@ def test_the_vocabulary_has_one_line_per_status_and_the_writer_refuses_others(tm
     with pytest.raises(ValueError, match="STATUSES"):
         bogus.to_hdf5(tmp_path / "bogus.h5")
     assert not (tmp_path / "bogus.h5").exists()
+
+
+def test_builtin_specs_name_every_summary_value_their_solvers_report():
+    # What the registry says a model reports is what its solver reports (demo: Model A,
+    # bump_wind: Model B), in the units the result file writes.
+    from windsolve.result import SUMMARY_UNITS
+    for config in ("demo.toml", "bump_wind.toml"):
+        model = windsolve.load_model(CONFIGS / config)
+        spec = spec_for(model)
+        result = windsolve.solve(model, profile=False)
+        assert result.converged
+        assert set(result.summary) == set(spec.summary_units), config
+        for key, unit in spec.summary_units.items():
+            assert SUMMARY_UNITS[key] == unit
+            assert result.summary[key].unit.is_equivalent(unit)
