@@ -176,21 +176,21 @@ def spec_for(model_or_kind):
 
 
 def _register_builtin():
-    import astropy.units as u
-
     from .models import DiffusionWind, IsothermalWind
+    from .result import SUMMARY_UNITS
 
-    cm_s = u.cm / u.s
+    def units(*keys):
+        return {key: SUMMARY_UNITS[key] for key in keys}
+
     register(ModelSpec(
         kind="isothermal",
         model_class=IsothermalWind,
         solve=_lazy(".solve", "solve_isothermal"),
         solve_row=_lazy(".sweep", "isothermal_row"),
         check=_lazy(".cli", "check_isothermal"),
-        summary_units={
-            "mass_loss_rate": u.g / u.s, "terminal_velocity": cm_s, "sonic_radius": u.cm,
-            "sonic_velocity": cm_s, "base_eddington_factor": u.dimensionless_unscaled,
-            "outer_radius": u.cm, "base_density_efolds": u.dimensionless_unscaled},
+        summary_units=units("mass_loss_rate", "terminal_velocity", "sonic_radius",
+                            "sonic_velocity", "base_eddington_factor", "outer_radius",
+                            "base_density_efolds"),
         sweep_batch=200,
         terminal_label="velocity at outer radius",
         converged_note="(an isothermal flow keeps accelerating slowly: the 'terminal' "
@@ -202,13 +202,11 @@ def _register_builtin():
         model_class=DiffusionWind,
         solve=_lazy(".solve", "solve_diffusion"),
         check=_lazy(".cli", "check_diffusion"),
-        summary_units={
-            "mass_loss_rate": u.g / u.s, "terminal_velocity": cm_s, "sonic_radius": u.cm,
-            "sonic_velocity": cm_s, "photosphere_radius": u.cm,
-            "photosphere_temperature": u.K, "photosphere_luminosity": u.erg / u.s,
-            "energy_flux": u.erg / u.s, "photosphere_velocity": cm_s,
-            "sonic_temperature": u.K, "base_radius": u.cm, "base_temperature": u.K,
-            "base_density": u.g / u.cm**3, "base_luminosity": u.erg / u.s},
+        summary_units=units("mass_loss_rate", "terminal_velocity", "sonic_radius",
+                            "sonic_velocity", "photosphere_radius", "photosphere_temperature",
+                            "photosphere_luminosity", "energy_flux", "photosphere_velocity",
+                            "sonic_temperature", "base_radius", "base_temperature",
+                            "base_density", "base_luminosity"),
         sweep_batch=10,
         core_radius=photosphere_core_radius,
         extend_profile=_lazy(".lines", "thin_extension"),
