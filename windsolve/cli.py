@@ -63,6 +63,20 @@ def _check_output(path, default_ext):
 
 
 def cmd_check(args):
+    from .registry import spec_for
+
+    model, source = _load(args.model)
+    rows, notes = spec_for(model).check(model, source)
+    width = max(len(k) for k, _ in rows)
+    for key, value in rows:
+        print(f"  {key:<{width}}  {value}")
+    for note in notes:
+        print(f"  note: {note}")
+    return EXIT_OK
+
+
+def check_isothermal(model, source):
+    """Derived numbers of a Model A file: ``(rows, notes)`` for ``windsolve check``."""
     import astropy.units as u
 
     from .core import basics
@@ -70,9 +84,6 @@ def cmd_check(args):
     from .core.constants import G
     from .core.opacity import effective_opacity
 
-    model, source = _load(args.model)
-    if model.kind == "diffusion":
-        return _check_diffusion(model, source)
     M = model.cgs("mass")
     R0 = model.cgs("radius")
     L0 = model.cgs("luminosity")
@@ -123,16 +134,11 @@ def cmd_check(args):
     if model.porosity_length is not None and model.porosity_exponent >= 2.0:
         notes.append("porosity radial_exponent >= 2: porosity cannot set the sonic point "
                      "(needs q < 2)")
-    width = max(len(k) for k, _ in rows)
-    for key, value in rows:
-        print(f"  {key:<{width}}  {value}")
-    for note in notes:
-        print(f"  note: {note}")
-    return EXIT_OK
+    return rows, notes
 
 
-def _check_diffusion(model, source):
-    """Derived numbers of a Model B file, and whether Gamma can exceed 1."""
+def check_diffusion(model, source):
+    """Derived numbers of a Model B file, and whether Gamma can exceed 1: ``(rows, notes)``."""
     import astropy.units as u
     import numpy as np
 
@@ -191,13 +197,11 @@ def _check_diffusion(model, source):
         g_base = [OP.opacity(O, rho0, t) / gamma_of for t in np.geomspace(1e4, 1e7, 25)]
         rows.append(("Gamma at the base density", f"{_span(g_base)} (for T 1e4 .. 1e7 K)"))
     rows.append((f"largest Gamma for {T_lo:.3g} K < T < {T_hi:.3g} K", f"{gmax:.4g}"))
-    width = max(len(k) for k, _ in rows)
-    for key, value in rows:
-        print(f"  {key:<{width}}  {value}")
+    notes = []
     if gmax < 1.0:
-        print("  note: Gamma never exceeds 1 on the path between the photosphere and the base: "
-              "no continuum-driven wind can launch")
-    return EXIT_OK
+        notes.append("Gamma never exceeds 1 on the path between the photosphere and the base: "
+                     "no continuum-driven wind can launch")
+    return rows, notes
 
 
 def _span(values):

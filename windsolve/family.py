@@ -185,7 +185,7 @@ class FamilyResult:
                 raise OutputError(f"{path}: the family_scan attribute is \"{scan}\", not one of "
                                   f"{', '.join(SCANS)}")
             model = stored_model(f, path)
-            if model is not None and getattr(model, "anchor", None) != "photosphere":
+            if model is not None and not _photosphere_family(model):
                 raise OutputError(f"{path}: the stored model (model_toml) is not a "
                                   f"photosphere-anchored diffusion model, as every family's "
                                   f"is; the file is damaged")
@@ -320,6 +320,14 @@ def solve_family(model: "DiffusionWind", scan: str, start: float, stop: float, n
     return result
 
 
+def _photosphere_family(model):
+    """Can this model be scanned at a fixed photosphere luminosity (its ModelSpec says)?"""
+    from .registry import MODEL_SPECS
+    spec = MODEL_SPECS.get(getattr(model, "kind", None))
+    return bool(spec is not None and spec.photosphere_family is not None
+                and spec.photosphere_family(model))
+
+
 def check_family(model: "DiffusionWind", scan: str, start: float, stop: float,
                  num: int) -> None:
     """Raise a one-line ModelError unless :func:`solve_family` can run these arguments.
@@ -336,8 +344,7 @@ def check_family(model: "DiffusionWind", scan: str, start: float, stop: float,
         unknown, ``start`` or ``stop`` is not finite and positive, or ``num``
         is outside 2 to ``MAX_MEMBERS``.
     """
-    from .models import DiffusionWind
-    if not isinstance(model, DiffusionWind) or model.anchor != "photosphere":
+    if not _photosphere_family(model):
         raise ModelError("a family keeps the photosphere luminosity fixed: give a diffusion "
                          "model anchored at the photosphere ([boundary] "
                          "photosphere_luminosity and photosphere_temperature)")

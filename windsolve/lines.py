@@ -459,16 +459,32 @@ def _read_profile(source, what):
     if not np.all(np.diff(r) > 0):
         raise ModelError(f"{what}: profile['radius'] must increase strictly")
     if isinstance(source, WindResult):
-        r, v, rho = _thin_extension(source, r, v, rho)
+        extend = _line_rules(source)[1]
+        if extend is not None:
+            r, v, rho = extend(source, r, v, rho)
     return r, v, rho
+
+
+def _line_rules(result):
+    """(core_radius, extend_profile) of a result: its ModelSpec's.  A result without
+    a (registered) model, e.g. read from a file without a complete model, gets rules
+    that follow its summary: the ballistic flow is added above a finite photosphere
+    where the profile ends, and the core is that photosphere, else as for a model
+    without one (:func:`windsolve.registry.photosphere_core_radius`)."""
+    from .registry import MODEL_SPECS, photosphere_core_radius
+    spec = MODEL_SPECS.get(getattr(result.model, "kind", None))
+    if spec is None:
+        return photosphere_core_radius, thin_extension
+    return spec.core_radius, spec.extend_profile
 
 
 THIN_EXTENT = 100.0  # the optically thin flow above a photosphere is followed to 100 R_ph
 THIN_POINTS = 200
 
 
-def _thin_extension(result, r, v, rho):
-    """Append the ballistic thin flow above a Model B photosphere.
+def thin_extension(result, r, v, rho):
+    """Append the ballistic thin flow above a Model B photosphere (its ModelSpec's
+    ``extend_profile``).
 
     A diffusion-wind profile stops at the photosphere; above it the flow is
     optically thin and ballistic (docs/physics.md, eq. 23): v(r)^2 = v_inf^2 + K / r
@@ -542,20 +558,20 @@ def _optical_arrays(result):
 
 
 def _core_radius(source, core_radius, r, what):
-    """R_c [cm]: given, else the photosphere (Model B), else where the profile's own
-    optical depth reaches 2/3 (Model A with an opaque inner wind), else the
-    base R0, else r[0]."""
+    """R_c [cm]: given, else the rule of the result's ModelSpec (``core_radius``):
+    the photosphere (Model B), else where the profile's own optical depth reaches
+    2/3 (Model A with an opaque inner wind), else the base R0, else r[0]."""
     if core_radius is not None:
         q = to_quantity(core_radius, u.cm, f"{what}: core_radius")
         if not (np.isfinite(q.value) and q.value > 0):
             raise ModelError(f"{what}: core_radius = {q:g} must be > 0")
         return float(q.value)
     if isinstance(source, WindResult):
-        def cgs(q):
-            return float(q.to_value(u.cm)) if isinstance(q, u.Quantity) else math.nan
-        return default_core_radius_cgs(
-            r, _optical_arrays(source), cgs(source.summary.get("photosphere_radius")),
-            cgs(getattr(source.model, "radius", None)), cgs(source.summary.get("base_radius")))
+        radius = getattr(source.model, "radius", None)
+        model_radius = (float(radius.to_value(u.cm)) if isinstance(radius, u.Quantity)
+                        else math.nan)
+        return _line_rules(source)[0](r, _optical_arrays(source), source.summary,
+                                      model_radius)
     return float(r[0])
 
 

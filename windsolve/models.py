@@ -724,4 +724,7 @@ class DiffusionWind(WindModel):
         return P, O
 
 
+# kind -> model class, for model files and result files.  windsolve.registry.register
+# adds every registered model's class (these two are registered there too, with
+# everything else the program needs to know about them).
 MODELS = {cls.kind: cls for cls in (IsothermalWind, DiffusionWind)}

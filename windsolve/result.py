@@ -17,7 +17,29 @@ import numpy as np
 from ._io import dataset, open_hdf5, stamp, strings, write_hdf5
 from .errors import OutputError
 
-__all__ = ["WindResult", "PROFILE_UNITS", "SUMMARY_UNITS"]
+__all__ = ["WindResult", "PROFILE_UNITS", "SUMMARY_UNITS", "STATUSES"]
+
+# The status vocabulary: every ``WindResult.status`` (and every sweep row's
+# status) is one of these words; one line of meaning each.  A new model's
+# solver uses these words (to_hdf5 refuses any other); the message says the rest.
+STATUSES = {
+    "converged": "a complete transonic solution through a saddle, out to the outer radius "
+                 "(Model B: to the photosphere)",
+    "no_critical_point": "no mass-loss rate gives a critical point: gravity wins everywhere, "
+                         "or the gas is unbound from the base out",
+    "no_saddle": "critical points exist but none is a saddle (X-type): no transonic solution",
+    "stalled": "photon tiring uses up the luminosity: the flow stalls before it escapes",
+    "second_singular_point": "the supersonic solution falls back to the sound speed (N != 0) "
+                             "before the outer radius",
+    "no_bracket": "no mass-loss rate with a critical point meets the base condition",
+    "sonic_point_on_base": "the only candidate's sonic point lies on the base: it has no "
+                           "subsonic part",
+    "no_solution": "no steady transonic solution exists for these parameters",
+    "off_table": "the solution leaves the opacity table (no opacity where it goes)",
+    "fallback": "the matter above the photosphere does not escape (v_inf^2 <= 0)",
+    "failed": "a numerical failure: an integration or iteration did not converge",
+    "error": "a sweep row whose model could not be built or solved (the message says why)",
+}
 
 MSUN_PER_YR = u.Msun / u.yr
 
@@ -98,11 +120,12 @@ class WindResult:
     converged : bool
         True for a complete transonic solution out to the outer radius.
     status : str
-        Short code: ``converged``, ``no_critical_point``, ``no_saddle``,
-        ``stalled``, ``second_singular_point``, ``no_bracket``,
-        ``sonic_point_on_base`` (the only candidate has no subsonic part),
-        ``no_solution``, ``off_table``, ``failed``.  A converged Model A
-        solution may also be flagged :attr:`hydrostatic`.
+        Short code, one of :data:`STATUSES` (which gives each one's meaning):
+        ``converged``, ``no_critical_point``, ``no_saddle``, ``stalled``,
+        ``second_singular_point``, ``no_bracket``, ``sonic_point_on_base``,
+        ``no_solution``, ``off_table``, ``fallback``, ``failed`` (and, for sweep
+        rows only, ``error``).  A converged Model A solution may also be
+        flagged :attr:`hydrostatic`.
     message : str
         One line saying, in words, what happened.
     summary : dict of Quantity
@@ -160,6 +183,8 @@ class WindResult:
             One line per known summary value, in astronomers' units
             (Msun/yr, Rsun, km/s, K, Lsun), after a line with the message.
         """
+        from .registry import spec_for
+
         s = self.summary
         name = getattr(self.model, "name", "")
         lines = [f"{name} ({self.model.kind} wind): {self.message}"]
@@ -173,10 +198,8 @@ class WindResult:
         show("mass-loss rate", "mass_loss_rate", u.g / u.s)
         show("sonic (critical) radius", "sonic_radius", u.Rsun)
         show("sonic velocity", "sonic_velocity", u.km / u.s)
-        key = "terminal velocity"
-        if self.model.kind == "isothermal":
-            key = "velocity at outer radius"
-        show(key, "terminal_velocity", u.km / u.s)
+        spec = spec_for(self.model)
+        show(spec.terminal_label, "terminal_velocity", u.km / u.s)
         show("sonic temperature", "sonic_temperature", u.K)
         show("photosphere radius", "photosphere_radius", u.Rsun)
         show("photosphere temperature", "photosphere_temperature", u.K)
@@ -195,9 +218,8 @@ class WindResult:
             lines.append(f"  HYDROSTATIC: the base lies more than {HYDROSTATIC_EFOLDS:g} density "
                          f"e-folds below the sonic point; it is a static atmosphere and the "
                          f"mass-loss rate its exponentially small leak, not a wind")
-        if self.model.kind == "isothermal" and self.converged:
-            lines.append("  (an isothermal flow keeps accelerating slowly: the 'terminal' "
-                         "velocity is v at the outer radius)")
+        if spec.converged_note and self.converged:
+            lines.append(f"  {spec.converged_note}")
         return lines
 
     def __str__(self):
@@ -231,6 +253,9 @@ class WindResult:
         """
         from .modelfile import dumps
 
+        if self.status not in STATUSES:
+            raise ValueError(f"status {self.status!r} is not in windsolve.result.STATUSES; a "
+                             f"solver reports one of {', '.join(STATUSES)}")
         path = Path(path)
         if path.is_dir():
             raise OutputError(f"{path} is a directory; give a file name such as wind.h5")

@@ -14,6 +14,7 @@ import numpy as np
 from .core import isothermal as K
 from .core.constants import M_SUN, R_SUN, YEAR
 from .core.critical import KIND_NAMES
+from .registry import spec_for
 from .result import (
     HYDROSTATIC_EFOLDS,
     PROFILE_UNITS,
@@ -25,7 +26,7 @@ from .result import (
 if TYPE_CHECKING:
     from .models import WindModel
 
-__all__ = ["solve", "SOLVERS"]
+__all__ = ["solve"]
 
 FOUR_PI = 4.0 * math.pi
 # Units built once: composing them on every call costs more than a solve.
@@ -504,9 +505,6 @@ def solve_diffusion(model, profile=True):
                       {"shots": 0, "seconds": time.perf_counter() - t0})
 
 
-SOLVERS = {"isothermal": solve_isothermal, "diffusion": solve_diffusion}
-
-
 def solve(model: "WindModel", profile: bool = True) -> WindResult:
     """Solve a wind model; returns a :class:`~windsolve.result.WindResult`.
 
@@ -546,4 +544,4 @@ def solve(model: "WindModel", profile: bool = True) -> WindResult:
     docs/physics.md, eqs. 13-16 (Model A, section 4), eqs. 19-24 (Model B,
     section 5), eqs. 25, 26 (critical points) and section 8 (numerical method).
     """
-    return SOLVERS[model.kind](model, profile)
+    return spec_for(model).solve(model, profile)

@@ -35,6 +35,7 @@ import operator
 import os
 import sys
 import time
+from collections.abc import Mapping
 from concurrent.futures import FIRST_COMPLETED, BrokenExecutor, CancelledError, wait
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -52,11 +53,30 @@ DESIGNS = ("grid", "random", "latin")
 SPACINGS = ("linear", "log")
 SWEEP_KEYS = ("base", "design", "samples", "seed", "profiles", "batch")
 AXIS_KEYS = ("key", "values", "start", "stop", "num", "spacing")
-# Models per task when the sweep file does not say: enough that a task is
-# tens of milliseconds of work (each task costs the main process a few
-# hundred microseconds), and at least four tasks per worker.
-BATCH_LIMIT = {"isothermal": 200, "diffusion": 10}
+# Models per task when the sweep file does not say: the model's
+# ModelSpec.sweep_batch (enough that a task is tens of milliseconds of work;
+# each task costs the main process a few hundred microseconds), and at least
+# four tasks per worker.
 TASKS_PER_WORKER = 4
+
+
+class _BatchLimits(Mapping):
+    """``{kind: ModelSpec.sweep_batch}``, read from the model registry."""
+
+    def __getitem__(self, kind):
+        from .registry import MODEL_SPECS
+        return MODEL_SPECS[kind].sweep_batch
+
+    def __iter__(self):
+        from .registry import MODEL_SPECS
+        return iter(MODEL_SPECS)
+
+    def __len__(self):
+        from .registry import MODEL_SPECS
+        return len(MODEL_SPECS)
+
+
+BATCH_LIMIT = _BatchLimits()
 JOURNAL_SUFFIX = ".partial"
 FSYNC_INTERVAL = 1.0  # [s] the journal is flushed every batch, written to disk this often
 LOCK_SUFFIX = ".lock"  # OUT.h5.lock: held (fcntl.flock) while a sweep writes OUT.h5
@@ -527,13 +547,14 @@ def _in_unit(q, unit):
     return float(q.value) * hit[2]
 
 
-def _isothermal_row(model, record, observables):
+def isothermal_row(model, record, observables):
     """Fill a sweep row of a Model A model from the cgs solver (no units on the way).
 
     The same numbers as ``solve(model)`` and ``line_widths`` give: the
     summary in the cgs units of SUMMARY_UNITS and, with ``observables``, the
     widths measured in the same compiled call that finishes the solution
-    (:func:`windsolve.solve.solve_isothermal_cgs` with ``widths``).
+    (:func:`windsolve.solve.solve_isothermal_cgs` with ``widths``).  Model A's
+    ``ModelSpec.solve_row``.
     """
     from .solve import solve_isothermal_cgs
 
@@ -590,6 +611,7 @@ def run_batch(base, items, profiles=False, observables=None):
     stops the sweep.
     """
     from .modelfile import model_from_dict
+    from .registry import spec_for
     from .result import PROFILE_UNITS, SUMMARY_UNITS
     from .solve import solve
 
@@ -603,9 +625,10 @@ def run_batch(base, items, profiles=False, observables=None):
                 _BASE_CACHE.clear()
                 _BASE_CACHE[base_key] = model_from_dict(base, source="sweep base")
             model = apply_changes(_BASE_CACHE[base_key], changes)
-            if model.kind == "isothermal" and not profiles:
-                # Model A without stored profiles: plain floats all the way.
-                _isothermal_row(model, record, observables)
+            solve_row = spec_for(model).solve_row
+            if solve_row is not None and not profiles:
+                # No stored profiles: the model's unit-free solve, plain floats all the way.
+                solve_row(model, record, observables)
                 record["seconds"] = time.perf_counter() - t0
                 out.append(record)
                 continue
@@ -957,11 +980,12 @@ def _run_locked(sweep, out, workers, scheduler, resume, quiet, stall_timeout):
 
 
 def _default_batch(kind, n_todo, workers, scheduler):
-    """Models per task: BATCH_LIMIT for the model, fewer when that would leave
-    workers idle (fewer than TASKS_PER_WORKER tasks each)."""
+    """Models per task: the model's ModelSpec.sweep_batch, fewer when that would
+    leave workers idle (fewer than TASKS_PER_WORKER tasks each)."""
+    from .registry import spec_for
     n_workers = workers or (8 if scheduler is not None else os.cpu_count() or 1)
     spread = -(-n_todo // (TASKS_PER_WORKER * n_workers))  # ceil
-    return max(1, min(BATCH_LIMIT.get(kind, 25), spread))
+    return max(1, min(spec_for(kind).sweep_batch, spread))
 
 
 def _executor(workers, scheduler):
@@ -1027,8 +1051,10 @@ def _executor(workers, scheduler):
     n = workers or os.cpu_count() or 1
     # "spawn": workers start clean (no inherited threads or locks) and load
     # the compiled kernels from numba's on-disk cache.
+    from .registry import plugin_modules
     pool = ProcessPoolExecutor(max_workers=n, mp_context=multiprocessing.get_context("spawn"),
-                               initializer=_worker_init, initargs=(os.getpid(),))
+                               initializer=_worker_init,
+                               initargs=(os.getpid(), plugin_modules()))
 
     def close(pending=(), abort=False):
         if abort:  # a stuck worker would keep this process from exiting
@@ -1046,16 +1072,24 @@ def _executor(workers, scheduler):
     return pool, close, lambda: f"{n} local worker process{'es' * (n != 1)}"
 
 
-def _worker_init(parent=None):
+def _worker_init(parent=None, modules=()):
     """Workers leave Ctrl-C to the main process, which stops the sweep cleanly,
-    and end when that process dies (even by SIGKILL), not later.
+    and end when that process dies (even by SIGKILL), not later.  ``modules``
+    (:func:`windsolve.registry.plugin_modules`) are imported first: they
+    register the models defined outside windsolve.
 
     On Linux the kernel sends SIGKILL when the parent dies
     (``prctl(PR_SET_PDEATHSIG)``); everywhere a daemon thread also checks
     ``os.getppid()`` every PARENT_WATCH_INTERVAL seconds.
     """
+    import importlib
     import signal
     signal.signal(signal.SIGINT, signal.SIG_IGN)
+    for module in modules:
+        try:
+            importlib.import_module(module)
+        except Exception:  # noqa: BLE001 -- its rows then record the error
+            pass
     if parent is None:
         return
     if sys.platform.startswith("linux"):

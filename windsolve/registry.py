@@ -1,0 +1,217 @@
+"""The model registry: one :class:`ModelSpec` per wind model.
+
+Everything the rest of the program needs to know about a wind model lives in
+its entry: the model class, its solvers (with units and unit-free), what
+``windsolve check`` prints, the summary values it reports and their units,
+the sweep batch size, and what line synthesis needs (the default core radius
+and any flow added above the end of the profile).  ``solve``, sweeps, the
+result writer, the command line, lines and families look the entry up by the
+model's ``kind``; none of them branches on the kind itself.
+
+A new model is one folder (kernels, model class, solver) plus one
+:func:`register` call; see DEVELOPERS.md, "Adding a wind model".
+"""
+
+import importlib
+import math
+from dataclasses import dataclass, field
+
+__all__ = ["ModelSpec", "register", "unregister", "spec_for", "plugin_modules", "MODEL_SPECS",
+           "default_core_radius", "photosphere_core_radius"]
+
+MODEL_SPECS = {}  # kind -> ModelSpec, in registration order
+
+
+def _lazy(module, name):
+    """A function that imports ``module`` and calls its ``name`` on first use
+    (entries are declared before the solver modules, which import this one, load)."""
+    found = []
+
+    def call(*args, **kwargs):
+        if not found:
+            found.append(getattr(importlib.import_module(module, __package__), name))
+        return found[0](*args, **kwargs)
+    call.__name__ = call.__qualname__ = name
+    call.__doc__ = f"{module}.{name}"
+    return call
+
+
+def _cm(q):
+    import astropy.units as u
+    return float(q.to_value(u.cm)) if isinstance(q, u.Quantity) else math.nan
+
+
+def default_core_radius(r, optical, summary, model_radius):
+    """The default R_c [cm] of line synthesis for a model without a photosphere.
+
+    The tau = 2/3 radius of ``optical`` = (radius, density, opacity) arrays
+    (None to skip; :func:`windsolve.lines.optical_core_radius_cgs`), else
+    ``model_radius`` [cm] (NaN = none), else the ``summary``'s (Quantities)
+    ``base_radius``, else r[0] (:func:`windsolve.lines.default_core_radius_cgs`).
+    """
+    from .lines import default_core_radius_cgs
+    return default_core_radius_cgs(r, optical, math.nan, model_radius,
+                                   _cm(summary.get("base_radius")))
+
+
+def photosphere_core_radius(r, optical, summary, model_radius):
+    """The default R_c [cm] of a model whose profile ends at its photosphere: the
+    summary's ``photosphere_radius`` when finite, else as :func:`default_core_radius`."""
+    from .lines import default_core_radius_cgs
+    return default_core_radius_cgs(r, optical, _cm(summary.get("photosphere_radius")),
+                                   model_radius, _cm(summary.get("base_radius")))
+
+
+@dataclass(frozen=True)
+class ModelSpec:
+    """What the program needs to know about one wind model.
+
+    Parameters
+    ----------
+    kind : str
+        The model file's top-level ``model`` value, e.g. ``"isothermal"``.
+    model_class : type
+        The frozen dataclass (a :class:`~windsolve.models.WindModel`) whose
+        ``kind`` this is.
+    solve : callable
+        ``solve(model, profile=True) -> WindResult`` (what
+        :func:`windsolve.solve` calls).
+    check : callable
+        ``check(model, source) -> (rows, notes)``: the derived numbers
+        ``windsolve check`` prints, as (label, text) pairs, and one-line notes.
+    summary_units : dict
+        Summary key -> cgs unit (astropy) of every value the solver reports.
+        Keys new to windsolve are added to
+        :data:`windsolve.result.SUMMARY_UNITS` (after the built-in ones) by
+        :func:`register`, so the result file carries them.
+    solve_row : callable or None
+        The unit-free solve of a sweep row: ``solve_row(model, record,
+        observables)`` fills ``record`` (converged, status, message, every
+        :data:`windsolve.sweep.SUMMARY_COLUMNS` value in cgs and, with
+        ``observables``, the widths).  Used when a sweep stores no profiles;
+        None: the row goes through :attr:`solve`.
+    sweep_batch : int
+        Models per sweep task when the sweep file does not say (a task should
+        be tens of milliseconds of work).
+    terminal_label : str
+        How the text summary names ``terminal_velocity``.
+    converged_note : str
+        A line the text summary adds under a converged result ("" for none).
+    core_radius : callable
+        ``core_radius(r, optical, summary, model_radius) -> R_c`` [cm]: the
+        occulting core of line synthesis when the caller gives none; ``r`` and
+        ``optical`` (radius, density, opacity or None) cgs arrays, ``summary``
+        the result's (Quantities), ``model_radius`` [cm] or NaN (see
+        :func:`default_core_radius`, :func:`photosphere_core_radius`).
+    extend_profile : callable or None
+        ``extend_profile(result, r, v, rho) -> (r, v, rho)`` [cgs]: gas the
+        lines see beyond the end of the solved profile (Model B: the
+        ballistic thin flow above its photosphere); None for none.
+    photosphere_family : callable or None
+        ``photosphere_family(model) -> bool``: can :func:`windsolve.family.solve_family`
+        scan this model at a fixed photosphere luminosity?  None: never.
+    """
+
+    kind: str
+    model_class: type
+    solve: object
+    check: object
+    summary_units: dict = field(default_factory=dict)
+    solve_row: object = None
+    sweep_batch: int = 25
+    terminal_label: str = "terminal velocity"
+    converged_note: str = ""
+    core_radius: object = default_core_radius
+    extend_profile: object = None
+    photosphere_family: object = None
+
+
+def register(spec, replace=False):
+    """Add a model to the registry (and its class to :data:`windsolve.models.MODELS`).
+
+    Raises ValueError when the kind is taken (unless ``replace``) or when the
+    class's ``kind`` differs from the entry's.  Summary keys new to windsolve
+    are appended to :data:`windsolve.result.SUMMARY_UNITS`.
+    """
+    from .models import MODELS
+    from .result import SUMMARY_UNITS
+
+    if spec.model_class.kind != spec.kind:
+        raise ValueError(f"ModelSpec {spec.kind!r}: its model_class has kind "
+                         f"{spec.model_class.kind!r}")
+    if spec.kind in MODEL_SPECS and not replace:
+        raise ValueError(f"a model of kind {spec.kind!r} is already registered")
+    for key, unit in spec.summary_units.items():
+        if key in SUMMARY_UNITS and SUMMARY_UNITS[key] != unit:
+            raise ValueError(f"ModelSpec {spec.kind!r}: summary {key} in {unit}, but "
+                             f"windsolve writes it in {SUMMARY_UNITS[key]}")
+        SUMMARY_UNITS.setdefault(key, unit)
+    MODEL_SPECS[spec.kind] = spec
+    MODELS[spec.kind] = spec.model_class
+    return spec
+
+
+def unregister(kind):
+    """Remove a model registered by :func:`register` (tests use it to clean up);
+    summary keys it added stay known."""
+    from .models import MODELS
+    MODEL_SPECS.pop(kind, None)
+    MODELS.pop(kind, None)
+
+
+BUILTIN_MODULES = frozenset({"windsolve.models"})
+
+
+def plugin_modules():
+    """Modules that define registered model classes outside windsolve: sweep pool
+    workers import them (registering their models there too) before they solve."""
+    return sorted({spec.model_class.__module__ for spec in MODEL_SPECS.values()}
+                  - BUILTIN_MODULES)
+
+
+def spec_for(model_or_kind):
+    """The :class:`ModelSpec` of a model (or of a kind string); KeyError if unknown."""
+    kind = model_or_kind if isinstance(model_or_kind, str) else model_or_kind.kind
+    return MODEL_SPECS[kind]
+
+
+def _register_builtin():
+    from .models import DiffusionWind, IsothermalWind
+    from .result import SUMMARY_UNITS
+
+    def units(*keys):
+        return {key: SUMMARY_UNITS[key] for key in keys}
+
+    register(ModelSpec(
+        kind="isothermal",
+        model_class=IsothermalWind,
+        solve=_lazy(".solve", "solve_isothermal"),
+        solve_row=_lazy(".sweep", "isothermal_row"),
+        check=_lazy(".cli", "check_isothermal"),
+        summary_units=units("mass_loss_rate", "terminal_velocity", "sonic_radius",
+                            "sonic_velocity", "base_eddington_factor", "outer_radius",
+                            "base_density_efolds"),
+        sweep_batch=200,
+        terminal_label="velocity at outer radius",
+        converged_note="(an isothermal flow keeps accelerating slowly: the 'terminal' "
+                       "velocity is v at the outer radius)",
+        core_radius=default_core_radius,
+    ))
+    register(ModelSpec(
+        kind="diffusion",
+        model_class=DiffusionWind,
+        solve=_lazy(".solve", "solve_diffusion"),
+        check=_lazy(".cli", "check_diffusion"),
+        summary_units=units("mass_loss_rate", "terminal_velocity", "sonic_radius",
+                            "sonic_velocity", "photosphere_radius", "photosphere_temperature",
+                            "photosphere_luminosity", "energy_flux", "photosphere_velocity",
+                            "sonic_temperature", "base_radius", "base_temperature",
+                            "base_density", "base_luminosity"),
+        sweep_batch=10,
+        core_radius=photosphere_core_radius,
+        extend_profile=_lazy(".lines", "thin_extension"),
+        photosphere_family=lambda model: model.anchor == "photosphere",
+    ))
+
+
+_register_builtin()
