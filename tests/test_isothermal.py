@@ -129,12 +129,8 @@ def _check_momentum_residual(result, a, M, skip_near_rc=2e-3):
     return np.max(np.abs(residual[inner]) / scale[inner])
 
 
-def test_momentum_equation_recomputed_from_written_profile(tmp_path):
-    model = windsolve.load_model(windsolve.demo_model_path())
-    result = windsolve.solve(model)
-    assert result.converged
-    path = result.to_hdf5(tmp_path / "demo.h5")
-    stored = windsolve.read_result(path)
+def test_momentum_equation_recomputed_from_written_profile(demo_h5):
+    stored = windsolve.read_result(demo_h5)
     M = stored.model.mass.to_value(u.g)
     a = stored.summary["sonic_velocity"].to_value(u.cm / u.s)
     # The check differentiates a spline through the stored samples; in the
@@ -149,10 +145,9 @@ def test_momentum_equation_recomputed_from_written_profile(tmp_path):
                        stored.summary["mass_loss_rate"].to_value(u.g / u.s), rtol=1e-12, atol=0)
 
 
-def test_critical_condition_at_reported_sonic_point():
+def test_critical_condition_at_reported_sonic_point(demo_model, demo_result):
     # At r_c: v = a and Gamma_eff = 1 - 2 a^2 r_c / (G M)  (N = 0).
-    model = windsolve.load_model(windsolve.demo_model_path())
-    result = windsolve.solve(model)
+    model, result = demo_model, demo_result
     p = result.profile
     rc = result.summary["sonic_radius"].to_value(u.cm)
     i = int(np.argmin(np.abs(p["radius"].to_value(u.cm) - rc)))
@@ -278,10 +273,10 @@ def test_second_singular_point_detected_by_monitor():
     assert K.monitor_outward(math.log(r_inside), y, Q, O) == 0
 
 
-def test_porosity_sets_a_saddle_near_the_base():
+def test_porosity_sets_a_saddle_near_the_base(demo_result):
     # Porosity-moderated super-Eddington wind (Owocki, Gayley & Shaviv 2004):
     # the saddle sits where Gamma_eff = 1 - 2 a^2 r/GM, close to R0.
-    result = windsolve.solve(windsolve.load_model(windsolve.demo_model_path()))
+    result = demo_result
     assert result.converged
     kinds = [c["kind"] for c in result.critical_points]
     assert kinds[0] == critical.KIND_NAMES[critical.SADDLE]

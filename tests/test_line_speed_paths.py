@@ -23,11 +23,6 @@ V_INF = 1e8  # cm/s
 CONFIGS = pathlib.Path(__file__).parent.parent / "configs"
 
 
-@pytest.fixture(scope="module")
-def demo():
-    return windsolve.solve(windsolve.load_model(windsolve.demo_model_path()))
-
-
 def demo_arrays(result):
     r, v, rho = lines._read_profile(result, "test")
     return r, v, rho, lines._core_radius(result, None, r, "test")
@@ -68,8 +63,8 @@ def _compare_emission(r, v, rho, Rc):
                                           fast)
 
 
-def test_fast_emission_equals_general_loop_on_the_demo(demo):
-    r, v, rho, Rc = demo_arrays(demo)
+def test_fast_emission_equals_general_loop_on_the_demo(demo_result):
+    r, v, rho, Rc = demo_arrays(demo_result)
     assert r[0] < Rc < r[-1]  # an occulting core inside the grid
     _compare_emission(r, v, rho, Rc)
 
@@ -116,12 +111,12 @@ def test_occultation_root_finds_the_bisection_crossing():
 
 @pytest.mark.parametrize("name", sorted(SYNTHETIC) + ["demo"])
 @pytest.mark.parametrize("core", [1.0, 1.37, 8.2])
-def test_exact_emission_widths_are_where_the_profile_crosses_the_level(demo, name, core):
+def test_exact_emission_widths_are_where_the_profile_crosses_the_level(demo_result, name, core):
     # Unbroadened widths come from the flux sums alone (no grid).  The
     # grid evaluator (suffix sums) must give exactly level * F(0) at both
     # crossings, and a 20,001-point grid must find them to within one of
     # its steps (linear interpolation misplaces a crossing by less).
-    r, v, rho = demo_arrays(demo)[:3] if name == "demo" else SYNTHETIC[name]
+    r, v, rho = demo_arrays(demo_result)[:3] if name == "demo" else SYNTHETIC[name]
     Rc = core * r[0]
     for occult in (True, False):
         for n in (1.0, 2.0):
@@ -171,12 +166,12 @@ def _grid_edge(r, v, rho, K, Rc, n_w, sigma=0.0, depth=0.1, half=None):
 
 @pytest.mark.parametrize("source", ["demo", "beta1", "beta3"])
 @pytest.mark.parametrize("k0", [100.0, 1.0])
-def test_exact_edge_agrees_with_a_dense_grid(demo, source, k0):
+def test_exact_edge_agrees_with_a_dense_grid(demo_result, source, k0):
     # The edge found on the exact profile must agree with the linearly
     # interpolated crossing on a 40,001-point grid to within 1.5 of its steps
     # (linear interpolation misplaces a crossing by less than one step).
     if source == "demo":
-        r, v, rho, Rc = demo_arrays(demo)
+        r, v, rho, Rc = demo_arrays(demo_result)
     else:
         (r, v, rho), Rc = SYNTHETIC[source], R
     K = kernels.sobolev_strength(r, v, rho, Rc, k0)
@@ -190,9 +185,9 @@ def test_exact_edge_agrees_with_a_dense_grid(demo, source, k0):
     assert -v.max() < fast < 0
 
 
-def test_exact_edge_is_a_crossing_of_the_profile(demo):
+def test_exact_edge_is_a_crossing_of_the_profile(demo_result):
     # 1 - F/F_c reaches edge_depth at the edge, and not just outside it.
-    r, v, rho, Rc = demo_arrays(demo)
+    r, v, rho, Rc = demo_arrays(demo_result)
     K = kernels.sobolev_strength(r, v, rho, Rc, 100.0)
     w = np.linspace(-1.2, 1.2, 401) * v.max()
     for depth in (0.1, 0.5):
@@ -203,10 +198,10 @@ def test_exact_edge_is_a_crossing_of_the_profile(demo):
 
 
 @pytest.mark.parametrize("fwhm_kms", [0.05, 20.0, 60.0])
-def test_broadened_edge_equals_the_grid_measurement(demo, fwhm_kms):
+def test_broadened_edge_equals_the_grid_measurement(demo_result, fwhm_kms):
     # With broadening the edge is measured on the broadened grid profile:
     # the lazy evaluation must give exactly the number of the full profile.
-    r, v, rho, Rc = demo_arrays(demo)
+    r, v, rho, Rc = demo_arrays(demo_result)
     K = kernels.sobolev_strength(r, v, rho, Rc, 30.0)
     fwhm = fwhm_kms * 1e5
     sigma = fwhm / lines.FWHM_PER_SIGMA
@@ -233,14 +228,14 @@ def test_weak_line_has_no_edge():
 @pytest.mark.parametrize("kwargs", [{}, {"turbulence": "20 km/s", "resolution": 5000},
                                     {"emissivity_power": 1, "occultation": False},
                                     {"line_strength": 2.0, "edge_depth": 0.3}])
-def test_widths_cgs_equals_line_widths_and_the_profiles(demo, kwargs):
+def test_widths_cgs_equals_line_widths_and_the_profiles(demo_result, kwargs):
     settings = lines.LineSettings(**kwargs)
-    r, v, rho, Rc = demo_arrays(demo)
+    r, v, rho, Rc = demo_arrays(demo_result)
     got = lines.widths_cgs(r, v, rho, settings, Rc)
     assert got == lines.widths_cgs(r, v, rho, settings.cgs, Rc)
-    widths = lines.line_widths(demo, settings)
-    em = lines.emission_profile(demo, settings)
-    pc = lines.pcygni_profile(demo, settings)
+    widths = lines.line_widths(demo_result, settings)
+    em = lines.emission_profile(demo_result, settings)
+    pc = lines.pcygni_profile(demo_result, settings)
     for value, key, profile in zip(got, ("fwhm", "hwzi", "edge_velocity"), (em, em, pc),
                                      strict=True):
         assert np.isfinite(value)
@@ -248,10 +243,10 @@ def test_widths_cgs_equals_line_widths_and_the_profiles(demo, kwargs):
         assert getattr(profile, key).to_value(u.cm / u.s) == pytest.approx(value, rel=1e-15)
 
 
-def test_widths_cgs_of_model_b_with_its_thin_flow():
+def test_widths_cgs_of_model_b_with_its_thin_flow(bump_result):
     # The caller appends the thin flow (here: as line_widths does); the edge
     # is nan because that flow decelerates, as line_widths says.
-    result = windsolve.solve(windsolve.load_model(CONFIGS / "bump_wind.toml"))
+    result = bump_result
     r, v, rho, Rc = demo_arrays(result)
     fwhm, hwzi, edge = lines.widths_cgs(r, v, rho, lines.LineSettings(), Rc)
     widths = lines.line_widths(result)
@@ -285,12 +280,12 @@ def _exponential_tau(r, f):
     return np.concatenate([np.cumsum(seg[::-1])[::-1], [0.0]])
 
 
-def test_optical_core_radius_cgs(demo):
+def test_optical_core_radius_cgs(demo_result):
     # tau = int kappa rho dr from outside reaches 2/3 (the usual photosphere
     # definition, common practice), kappa rho exponential between points:
     # recomputed here with numpy; and the crossing found on that curve
     # (tau(Rc) = 2/3 to rounding, unlike the linear interpolation).
-    p = demo.profile
+    p = demo_result.profile
     r = p["radius"].to_value(u.cm)
     rho = p["density"].to_value(u.g / u.cm**3)
     kappa = p["opacity"].to_value(u.cm**2 / u.g)
@@ -301,7 +296,7 @@ def test_optical_core_radius_cgs(demo):
     k = np.log(f[i + 1] / f[i]) / (r[i + 1] - r[i])
     tau_at = tau[i + 1] + (f[i + 1] - f[i] * np.exp(k * (got - r[i]))) / k
     assert math.isclose(tau_at, 2 / 3, rel_tol=1e-12)
-    assert got == lines._optical_core(demo)
+    assert got == lines._optical_core(demo_result)
     assert lines.optical_core_radius_cgs(r, rho * 1e-30, kappa) is None
 
 
