@@ -224,6 +224,10 @@ def test_sweep_rows_give_the_widths_of_line_widths(settings):
 
 
 def lines_core_beyond_sonic_point(result):
-    from windsolve.lines import _optical_core
-    rc = _optical_core(result)
+    # the optical core (tau = 2/3 from outside), the default core of a Model A line
+    from windsolve.lines import optical_core_radius_cgs
+    p = result.profile
+    rc = optical_core_radius_cgs(p["radius"].to_value(u.cm),
+                                 p["density"].to_value(u.g / u.cm**3),
+                                 p["opacity"].to_value(u.cm**2 / u.g))
     return rc is not None and rc > result.summary["sonic_radius"].to_value(u.cm)
