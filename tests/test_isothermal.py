@@ -8,6 +8,7 @@ Gayley (1997); status reporting for flows without a transonic solution.
 """
 
 import math
+from pathlib import Path
 
 import astropy.constants as ac
 import astropy.units as u
@@ -313,3 +314,31 @@ def test_only_nodes_and_foci_reported_as_no_saddle():
     n = K.critical_points(Q, O, *out)
     assert n >= 1
     assert all(k in (critical.NODE, critical.FOCUS) for k in out[1][:n])
+
+
+# -- work counts: a slowdown fails a test, as scipy's tests bound nfev -------------------------
+# Bounds about 1.5 x the counts measured on 2026-12-02 (in the comment beside each).  A
+# solve's ``counters["shots"]`` counts its trial integrations; the stored points of a leg
+# (below r_c, and from r_c out) are the dense-output grid (every numerics MAX_STEP) plus
+# the integrator's accepted steps, so more steps per leg show there.  If a change makes
+# a count legitimately larger, measure it again and move the bound with the comment.
+
+CONFIGS = Path(__file__).resolve().parent.parent / "configs"
+WORK_BOUNDS = {  # config: (shots, points below r_c, points from r_c out)
+    "demo": (9, 165, 390),               # measured 6, 110, 260
+    "parker_reference": (3, 258, 350),   # measured 2, 172, 233
+    "porous_tiring": (10, 165, 390),     # measured 7, 110, 260
+}
+
+
+@pytest.mark.parametrize("name", sorted(WORK_BOUNDS))
+def test_work_per_solve_is_bounded(name, demo_result):
+    path = windsolve.demo_model_path() if name == "demo" else CONFIGS / f"{name}.toml"
+    result = demo_result if name == "demo" else windsolve.solve(windsolve.load_model(path))
+    assert result.converged, result.message
+    shots, inner, outer = WORK_BOUNDS[name]
+    r = result.profile["radius"].to_value(u.cm)
+    rc = result.summary["sonic_radius"].to_value(u.cm)
+    assert 1 <= result.counters["shots"] <= shots
+    assert 1 <= np.count_nonzero(r < rc) <= inner
+    assert 1 <= np.count_nonzero(r >= rc) <= outer
