@@ -48,26 +48,14 @@ BAD = "bad.h5"
 class Sources:
     """The intact result, family and sweep files, made once in ``directory``."""
 
-    def __init__(self, directory):
+    def __init__(self, directory, made=None):
         self.dir = Path(directory)
-        self.made = {}
+        self.made = dict(made or {})
 
     def get(self, which):
         if which not in self.made:
             self.made[which] = getattr(self, f"_make_{which}")(self.dir / f"{which}.h5")
         return self.made[which]
-
-    @staticmethod
-    def _make_result(path):
-        import windsolve
-        windsolve.solve(windsolve.load_model(demo_model_path())).to_hdf5(path)
-        return path
-
-    @staticmethod
-    def _make_diffusion(path):
-        import windsolve
-        windsolve.solve(windsolve.load_model(BUMP)).to_hdf5(path)
-        return path
 
     @staticmethod
     def _make_family(path):
@@ -519,8 +507,9 @@ for id, make, verbs, *fragments in WRONG_KIND:
 # -- the tests -------------------------------------------------------------------------------------
 
 @pytest.fixture(scope="session")
-def sources(tmp_path_factory):
-    return Sources(tmp_path_factory.mktemp("intact"))
+def sources(tmp_path_factory, demo_h5, bump_h5):
+    # the solved demo and bump wind come from conftest.py (solved once per session)
+    return Sources(tmp_path_factory.mktemp("intact"), {"result": demo_h5, "diffusion": bump_h5})
 
 
 @pytest.mark.parametrize("c", CASES, ids=[c.id for c in CASES])

@@ -602,22 +602,14 @@ def _call_main(argv, err):
 # -- the tests ----------------------------------------------------------------------------------
 
 @pytest.fixture(scope="session")
-def demo_result(tmp_path_factory):
-    path = tmp_path_factory.mktemp("result") / "demo.h5"
-    made = []
-
-    def get():
-        if not made:
-            import windsolve
-            windsolve.solve(windsolve.load_model(demo_model_path())).to_hdf5(path)
-            made.append(path)
-        return path
-    return get
+def demo_file(request):
+    """The solved demo file (conftest.py's demo_h5), fetched only by the cases that use it."""
+    return lambda: request.getfixturevalue("demo_h5")
 
 
 @pytest.mark.parametrize("c", CASES, ids=[c.id for c in CASES])
-def test_bad_input_one_line(c, tmp_path, capsys, demo_result):
-    ctx = Ctx(tmp_path, demo_result)
+def test_bad_input_one_line(c, tmp_path, capsys, demo_file):
+    ctx = Ctx(tmp_path, demo_file)
     code, out, err, warned, before, after = run_case(c, ctx, capture=capsys)
     assert problems(code, out, err, warned, before, after, c.fragments) == [], err
 
@@ -645,8 +637,8 @@ def test_bad_input_subprocess(case_id, tmp_path):
                     files_under(tmp_path), c.fragments) == [], proc.stderr
 
 
-def test_lines_turbulence_faster_than_light_subprocess(tmp_path, demo_result):
-    proc = subprocess.run([sys.executable, "-m", "windsolve", "lines", str(demo_result()),
+def test_lines_turbulence_faster_than_light_subprocess(tmp_path, demo_h5):
+    proc = subprocess.run([sys.executable, "-m", "windsolve", "lines", str(demo_h5),
                            "--turbulence", "1e6 km/s"], capture_output=True, text=True,
                           cwd=tmp_path, timeout=120)
     assert problems(proc.returncode, proc.stdout, proc.stderr, [], [], [],
@@ -676,12 +668,12 @@ def test_check_without_luminosity(tmp_path, capsys):
     assert float(rows["Gamma at the base (that opacity)"][0]) == 0.0
 
 
-def test_observed_csv_with_byte_order_mark(tmp_path, capsys, demo_result):
+def test_observed_csv_with_byte_order_mark(tmp_path, capsys, demo_h5):
     """A spreadsheet's UTF-8 CSV starts with a byte-order mark: read it as if it did not."""
     csv = tmp_path / "observed.csv"
     csv.write_text("\ufeff" + HEADER + "Calder Var A (invented),terminal_velocity,-,450,40,km/s\n",
                    encoding="utf-8")
-    code, out, err = _main(["compare", demo_result(), csv], capsys)
+    code, out, err = _main(["compare", str(demo_h5), csv], capsys)
     assert (code, err) == (0, ""), err
     assert "chi2 = " in out
 

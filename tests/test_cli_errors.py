@@ -265,10 +265,9 @@ def test_run_model_not_utf8(tmp_path, capsys, monkeypatch):
     assert_only(tmp_path, "model.toml")
 
 
-def test_run_output_directory_missing(tmp_path, capsys, monkeypatch):
+def test_run_output_directory_missing(tmp_path, capsys, monkeypatch, write_model, demo_text):
     """A good model, but -o points into a directory that does not exist."""
-    model = tmp_path / "model.toml"
-    model.write_text(DEMO, encoding="utf-8")
+    model = write_model(demo_text)
     out = tmp_path / "nowhere" / "out.h5"
     code, stdout, stderr = run_in_process(["run", model, "-o", out], capsys, monkeypatch,
                                           tmp_path)
@@ -276,9 +275,8 @@ def test_run_output_directory_missing(tmp_path, capsys, monkeypatch):
     assert_only(tmp_path, "model.toml")
 
 
-def test_run_output_is_a_directory(tmp_path, capsys, monkeypatch):
-    model = tmp_path / "model.toml"
-    model.write_text(DEMO, encoding="utf-8")
+def test_run_output_is_a_directory(tmp_path, capsys, monkeypatch, write_model, demo_text):
+    model = write_model(demo_text)
     out = tmp_path / "results"
     out.mkdir()
     code, stdout, stderr = run_in_process(["run", model, "-o", out], capsys, monkeypatch,
@@ -377,9 +375,9 @@ def test_missing_result_file_in_process(verb, tmp_path, capsys, monkeypatch):
     assert_only(tmp_path)
 
 
-def test_inspect_a_model_file_instead_of_a_result(tmp_path, capsys, monkeypatch):
-    model = tmp_path / "model.toml"
-    model.write_text(DEMO, encoding="utf-8")
+def test_inspect_a_model_file_instead_of_a_result(tmp_path, capsys, monkeypatch, write_model,
+                                                  demo_text):
+    model = write_model(demo_text)
     code, stdout, stderr = run_in_process(["inspect", model], capsys, monkeypatch, tmp_path)
     assert_one_line_error(code, stdout, stderr, ["model.toml", "not an HDF5 file"])
     assert_only(tmp_path, "model.toml")

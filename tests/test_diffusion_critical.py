@@ -158,7 +158,7 @@ def test_weak_saddle_critical_conditions_and_lines(tmp_path, capsys):
     assert main(["lines", str(out)]) == 0
 
 
-def test_bump_star_critical_point_against_scipy_reference(monkeypatch):
+def test_bump_star_critical_point_against_scipy_reference(monkeypatch, bump_model, bump_result):
     # Outside reference: benchmarks/scipy_reference_diffusion.py, an
     # independent solve (plain-Python right-hand side, scipy solve_ivp and
     # brentq, nothing compiled).  It ties its critical point at
@@ -169,9 +169,7 @@ def test_bump_star_critical_point_against_scipy_reference(monkeypatch):
         import scipy_reference_diffusion as reference
     finally:
         sys.path.remove(str(BENCHMARKS))
-    model = windsolve.load_model(CONFIGS / "bump_wind.toml")
-    result = windsolve.solve(model)
-    assert result.converged, result.message
+    model, result = bump_model, bump_result
     rc, Tc = sonic(result)
     P, O = model.kernel_arrays
     monkeypatch.setattr(B, "TIE_DISTANCE", 0.05)

@@ -11,7 +11,7 @@ import pytest
 from numba import njit
 from scipy.integrate._ivp import dop853_coefficients as scipy_dop853
 
-from windsolve.core import _dop853_tableau as T
+from windsolve.core import integrate as T  # the coefficients the compiled driver reads
 from windsolve.core.integrate import (
     REACHED_END,
     STEP_TOO_SMALL,

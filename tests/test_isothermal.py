@@ -8,6 +8,7 @@ Gayley (1997); status reporting for flows without a transonic solution.
 """
 
 import math
+from pathlib import Path
 
 import astropy.constants as ac
 import astropy.units as u
@@ -129,12 +130,8 @@ def _check_momentum_residual(result, a, M, skip_near_rc=2e-3):
     return np.max(np.abs(residual[inner]) / scale[inner])
 
 
-def test_momentum_equation_recomputed_from_written_profile(tmp_path):
-    model = windsolve.load_model(windsolve.demo_model_path())
-    result = windsolve.solve(model)
-    assert result.converged
-    path = result.to_hdf5(tmp_path / "demo.h5")
-    stored = windsolve.read_result(path)
+def test_momentum_equation_recomputed_from_written_profile(demo_h5):
+    stored = windsolve.read_result(demo_h5)
     M = stored.model.mass.to_value(u.g)
     a = stored.summary["sonic_velocity"].to_value(u.cm / u.s)
     # The check differentiates a spline through the stored samples; in the
@@ -149,10 +146,9 @@ def test_momentum_equation_recomputed_from_written_profile(tmp_path):
                        stored.summary["mass_loss_rate"].to_value(u.g / u.s), rtol=1e-12, atol=0)
 
 
-def test_critical_condition_at_reported_sonic_point():
+def test_critical_condition_at_reported_sonic_point(demo_model, demo_result):
     # At r_c: v = a and Gamma_eff = 1 - 2 a^2 r_c / (G M)  (N = 0).
-    model = windsolve.load_model(windsolve.demo_model_path())
-    result = windsolve.solve(model)
+    model, result = demo_model, demo_result
     p = result.profile
     rc = result.summary["sonic_radius"].to_value(u.cm)
     i = int(np.argmin(np.abs(p["radius"].to_value(u.cm) - rc)))
@@ -278,10 +274,10 @@ def test_second_singular_point_detected_by_monitor():
     assert K.monitor_outward(math.log(r_inside), y, Q, O) == 0
 
 
-def test_porosity_sets_a_saddle_near_the_base():
+def test_porosity_sets_a_saddle_near_the_base(demo_result):
     # Porosity-moderated super-Eddington wind (Owocki, Gayley & Shaviv 2004):
     # the saddle sits where Gamma_eff = 1 - 2 a^2 r/GM, close to R0.
-    result = windsolve.solve(windsolve.load_model(windsolve.demo_model_path()))
+    result = demo_result
     assert result.converged
     kinds = [c["kind"] for c in result.critical_points]
     assert kinds[0] == critical.KIND_NAMES[critical.SADDLE]
@@ -318,3 +314,31 @@ def test_only_nodes_and_foci_reported_as_no_saddle():
     n = K.critical_points(Q, O, *out)
     assert n >= 1
     assert all(k in (critical.NODE, critical.FOCUS) for k in out[1][:n])
+
+
+# -- work counts: a slowdown fails a test, as scipy's tests bound nfev -------------------------
+# Bounds about 1.5 x the counts measured on 2026-12-02 (in the comment beside each).  A
+# solve's ``counters["shots"]`` counts its trial integrations; the stored points of a leg
+# (below r_c, and from r_c out) are the dense-output grid (every numerics MAX_STEP) plus
+# the integrator's accepted steps, so more steps per leg show there.  If a change makes
+# a count legitimately larger, measure it again and move the bound with the comment.
+
+CONFIGS = Path(__file__).resolve().parent.parent / "configs"
+WORK_BOUNDS = {  # config: (shots, points below r_c, points from r_c out)
+    "demo": (9, 165, 390),               # measured 6, 110, 260
+    "parker_reference": (3, 258, 350),   # measured 2, 172, 233
+    "porous_tiring": (10, 165, 390),     # measured 7, 110, 260
+}
+
+
+@pytest.mark.parametrize("name", sorted(WORK_BOUNDS))
+def test_work_per_solve_is_bounded(name, demo_result):
+    path = windsolve.demo_model_path() if name == "demo" else CONFIGS / f"{name}.toml"
+    result = demo_result if name == "demo" else windsolve.solve(windsolve.load_model(path))
+    assert result.converged, result.message
+    shots, inner, outer = WORK_BOUNDS[name]
+    r = result.profile["radius"].to_value(u.cm)
+    rc = result.summary["sonic_radius"].to_value(u.cm)
+    assert 1 <= result.counters["shots"] <= shots
+    assert 1 <= np.count_nonzero(r < rc) <= inner
+    assert 1 <= np.count_nonzero(r >= rc) <= outer

@@ -23,14 +23,34 @@ V_INF = 1e8  # cm/s
 CONFIGS = pathlib.Path(__file__).parent.parent / "configs"
 
 
-@pytest.fixture(scope="module")
-def demo():
-    return windsolve.solve(windsolve.load_model(windsolve.demo_model_path()))
-
-
 def demo_arrays(result):
-    r, v, rho = lines._read_profile(result, "test")
-    return r, v, rho, lines._core_radius(result, None, r, "test")
+    """(r, v, rho, R_c) in cgs as ``line_widths`` describes them: the written profile,
+    for Model B followed by the ballistic thin flow above the photosphere,
+    v^2 = v_inf^2 + K / r with K = (v_ph^2 - v_inf^2) R_ph and rho from continuity, out
+    to ``lines.THIN_EXTENT`` R_ph; R_c by ``lines.default_core_radius_cgs``."""
+    p, s = result.profile, result.summary
+    r, v, rho, kappa = (p[key].to_value(unit) for key, unit in (
+        ("radius", u.cm), ("velocity", u.cm / u.s), ("density", u.g / u.cm**3),
+        ("opacity", u.cm**2 / u.g)))
+
+    def cgs(key, unit):
+        return s[key].to_value(unit) if key in s else math.nan
+    R_ph = cgs("photosphere_radius", u.cm)
+    if math.isfinite(R_ph):
+        v_inf, mdot = cgs("terminal_velocity", u.cm / u.s), cgs("mass_loss_rate", u.g / u.s)
+        K = (v[-1] ** 2 - v_inf**2) * R_ph
+        r_out = R_ph * np.geomspace(1.0, lines.THIN_EXTENT, lines.THIN_POINTS)[1:]
+        v_out = np.sqrt(v_inf**2 + K / r_out)
+        rho_out = mdot / (4.0 * np.pi * r_out**2 * v_out)
+        r_all, v, rho = (np.concatenate(pair) for pair in ((r, r_out), (v, v_out),
+                                                             (rho, rho_out)))
+    else:
+        r_all = r
+    radius = getattr(result.model, "radius", None)
+    Rc = lines.default_core_radius_cgs(r_all, (r, rho[:r.size], kappa), R_ph,
+                                       math.nan if radius is None else radius.to_value(u.cm),
+                                       cgs("base_radius", u.cm))
+    return r_all, v, rho, Rc
 
 
 def beta_law(beta=1.0, n=300, outer=100.0):
@@ -68,8 +88,8 @@ def _compare_emission(r, v, rho, Rc):
                                           fast)
 
 
-def test_fast_emission_equals_general_loop_on_the_demo(demo):
-    r, v, rho, Rc = demo_arrays(demo)
+def test_fast_emission_equals_general_loop_on_the_demo(demo_result):
+    r, v, rho, Rc = demo_arrays(demo_result)
     assert r[0] < Rc < r[-1]  # an occulting core inside the grid
     _compare_emission(r, v, rho, Rc)
 
@@ -95,9 +115,12 @@ def test_emission_falls_back_to_the_general_loop_when_v_falls_outward():
 
 
 def test_occultation_root_finds_the_bisection_crossing():
-    # The Newton root of v^2 (x^2 - 1) = w^2 x^2 is the crossing of
-    # v sqrt(1 - (Rc/r)^2) = w that the general loop finds by bisection,
-    # including the first sub-interval, which starts on the core (infinite slope).
+    # The suffix-sum path finds where the occultation edge v sqrt(1 - (Rc/r)^2)
+    # = w as the Newton root of v^2 (x^2 - 1) = w^2 x^2; the general loop finds
+    # it by bisection; including a shell that starts on the core (infinite
+    # slope).  One tabulated interval with j r^2 / v = 1 (rho = v / r^2, n = 1):
+    # F(w) / 2 pi is then the length of the seen part, so the two crossings
+    # t (in units of a sub-interval) differ by |dF| / (2 pi dr_sub): < 1e-12.
     rng = np.random.default_rng(3)
     Rc = 1e12
     for ra_over in (1.0, 1.0 + 1e-9, 1.01, 1.5, 20.0):
@@ -106,44 +129,55 @@ def test_occultation_root_finds_the_bisection_crossing():
             rb = ra * (1.0 + rng.uniform(1e-4, 0.3))
             va, vb = np.sort(rng.uniform(1e6, 1e8, 2))
             edge = lambda r, v: v * math.sqrt(max(1.0 - (Rc / r) ** 2, 0.0))  # noqa: E731
-            wk = rng.uniform(edge(ra, va), edge(rb, vb))
-            t_bis = kernels._occultation_crossing(ra, rb, va, vb, Rc, wk)
-            t_new = kernels._occultation_root(ra, rb, va, vb, Rc, wk, 0.5)
-            assert abs(t_new - t_bis) < 1e-12
+            wk = np.array([rng.uniform(edge(ra, va), edge(rb, vb))])
+            r, v = np.array([ra, rb]), np.array([va, vb])
+            rho = v / r**2
+            t_bis = kernels.emission_flux_general(r, v, rho, 1.0, Rc, True, wk)[0]
+            t_new = kernels.emission_flux_monotonic(r, v, rho, 1.0, Rc, True, wk)[0]
+            dr_sub = (rb - ra) / kernels.NSUB
+            assert 0.0 < t_new < 2 * math.pi * (rb - ra)
+            assert abs(t_new - t_bis) < 1e-12 * 2 * math.pi * dr_sub
 
 
 # -- emission widths: exact crossings == the limit of ever finer grids ------------------
 
 @pytest.mark.parametrize("name", sorted(SYNTHETIC) + ["demo"])
 @pytest.mark.parametrize("core", [1.0, 1.37, 8.2])
-def test_exact_emission_widths_are_where_the_profile_crosses_the_level(demo, name, core):
+def test_exact_emission_widths_are_where_the_profile_crosses_the_level(demo_result, name, core):
     # Unbroadened widths come from the flux sums alone (no grid).  The
     # grid evaluator (suffix sums) must give exactly level * F(0) at both
     # crossings, and a 20,001-point grid must find them to within one of
     # its steps (linear interpolation misplaces a crossing by less).
-    r, v, rho = demo_arrays(demo)[:3] if name == "demo" else SYNTHETIC[name]
+    # Through the kernel entry point emission_line (sigma = 0): the blue
+    # crossing w_- at a level is -HWZI (the red side, behind the core, is
+    # never the wider); the red one at level 0.5 is w_+ = FWHM + w_-.
+    r, v, rho = demo_arrays(demo_result)[:3] if name == "demo" else SYNTHETIC[name]
     Rc = core * r[0]
     for occult in (True, False):
         for n in (1.0, 2.0):
-            rf, vf, lf, lv = kernels._refine(r, v, rho, Rc if occult else r[0], 1)
-            lg, hi, full = kernels._emission_nodes(rf, vf, lf, lv, n, Rc, occult)
-            assert kernels.nondecreasing(vf) and kernels.nondecreasing(hi)
-            suffix = kernels._suffix_sums(full)
-            peak = 2 * math.pi * suffix[0]
+            peak = kernels.emission_flux(r, v, rho, n, Rc, occult, np.zeros(1))[0]
             fine = kernels.velocity_grid(v.max(), 0.0, 20001)
             step = fine[1] - fine[0]
+            # the suffix sums, normalised to F(0): the exact-profile path was taken
+            F_fine = kernels.emission_flux_monotonic(r, v, rho, n, Rc, occult, fine)
             for level in (0.5, 0.05, 0.2):
-                w_lo, w_hi = kernels._exact_crossing(level, rf, vf, lg, full, suffix, Rc,
-                                                     occult)
-                assert -v.max() <= w_lo < 0.0 <= w_hi <= v.max()
-                F = kernels._emission_prefix(rf, vf, lg, hi, full, Rc, occult,
-                                             np.array([w_lo, w_hi]))
+                f, fwhm, hwzi, ok = kernels.emission_line(r, v, rho, n, Rc, occult, fine, 0.0,
+                                                          level)
+                assert ok
+                np.testing.assert_array_equal(f, F_fine / peak)
+                w_lo = -hwzi
+                crossings = [w_lo] + ([fwhm + w_lo] if level == 0.5 else [])
+                assert -v.max() <= w_lo < 0.0
+                assert level != 0.5 or 0.0 <= crossings[1] <= v.max()
+                F = kernels.emission_flux_monotonic(r, v, rho, n, Rc, occult,
+                                                    np.array(crossings))
                 np.testing.assert_allclose(F / peak, level, rtol=1e-9)
-                f = kernels._emission_prefix(rf, vf, lg, hi, full, Rc, occult, fine) / peak
                 g_lo, g_hi = kernels.outermost_crossings(fine, f, level)
-                assert abs(g_lo - w_lo) <= step and abs(g_hi - w_hi) <= step
-                if not occult:  # both sides see the whole shell: symmetric
-                    assert w_hi == -w_lo
+                assert abs(g_lo - w_lo) <= step
+                if level == 0.5:
+                    assert abs(g_hi - crossings[1]) <= step
+                if not occult and level == 0.5:  # both sides see the whole shell: symmetric
+                    assert fwhm == 2 * hwzi
 
 
 def test_unbroadened_widths_do_not_depend_on_the_grid():
@@ -171,12 +205,12 @@ def _grid_edge(r, v, rho, K, Rc, n_w, sigma=0.0, depth=0.1, half=None):
 
 @pytest.mark.parametrize("source", ["demo", "beta1", "beta3"])
 @pytest.mark.parametrize("k0", [100.0, 1.0])
-def test_exact_edge_agrees_with_a_dense_grid(demo, source, k0):
+def test_exact_edge_agrees_with_a_dense_grid(demo_result, source, k0):
     # The edge found on the exact profile must agree with the linearly
     # interpolated crossing on a 40,001-point grid to within 1.5 of its steps
     # (linear interpolation misplaces a crossing by less than one step).
     if source == "demo":
-        r, v, rho, Rc = demo_arrays(demo)
+        r, v, rho, Rc = demo_arrays(demo_result)
     else:
         (r, v, rho), Rc = SYNTHETIC[source], R
     K = kernels.sobolev_strength(r, v, rho, Rc, k0)
@@ -190,9 +224,9 @@ def test_exact_edge_agrees_with_a_dense_grid(demo, source, k0):
     assert -v.max() < fast < 0
 
 
-def test_exact_edge_is_a_crossing_of_the_profile(demo):
+def test_exact_edge_is_a_crossing_of_the_profile(demo_result):
     # 1 - F/F_c reaches edge_depth at the edge, and not just outside it.
-    r, v, rho, Rc = demo_arrays(demo)
+    r, v, rho, Rc = demo_arrays(demo_result)
     K = kernels.sobolev_strength(r, v, rho, Rc, 100.0)
     w = np.linspace(-1.2, 1.2, 401) * v.max()
     for depth in (0.1, 0.5):
@@ -203,10 +237,10 @@ def test_exact_edge_is_a_crossing_of_the_profile(demo):
 
 
 @pytest.mark.parametrize("fwhm_kms", [0.05, 20.0, 60.0])
-def test_broadened_edge_equals_the_grid_measurement(demo, fwhm_kms):
+def test_broadened_edge_equals_the_grid_measurement(demo_result, fwhm_kms):
     # With broadening the edge is measured on the broadened grid profile:
     # the lazy evaluation must give exactly the number of the full profile.
-    r, v, rho, Rc = demo_arrays(demo)
+    r, v, rho, Rc = demo_arrays(demo_result)
     K = kernels.sobolev_strength(r, v, rho, Rc, 30.0)
     fwhm = fwhm_kms * 1e5
     sigma = fwhm / lines.FWHM_PER_SIGMA
@@ -233,14 +267,14 @@ def test_weak_line_has_no_edge():
 @pytest.mark.parametrize("kwargs", [{}, {"turbulence": "20 km/s", "resolution": 5000},
                                     {"emissivity_power": 1, "occultation": False},
                                     {"line_strength": 2.0, "edge_depth": 0.3}])
-def test_widths_cgs_equals_line_widths_and_the_profiles(demo, kwargs):
+def test_widths_cgs_equals_line_widths_and_the_profiles(demo_result, kwargs):
     settings = lines.LineSettings(**kwargs)
-    r, v, rho, Rc = demo_arrays(demo)
+    r, v, rho, Rc = demo_arrays(demo_result)
     got = lines.widths_cgs(r, v, rho, settings, Rc)
     assert got == lines.widths_cgs(r, v, rho, settings.cgs, Rc)
-    widths = lines.line_widths(demo, settings)
-    em = lines.emission_profile(demo, settings)
-    pc = lines.pcygni_profile(demo, settings)
+    widths = lines.line_widths(demo_result, settings)
+    em = lines.emission_profile(demo_result, settings)
+    pc = lines.pcygni_profile(demo_result, settings)
     for value, key, profile in zip(got, ("fwhm", "hwzi", "edge_velocity"), (em, em, pc),
                                      strict=True):
         assert np.isfinite(value)
@@ -248,10 +282,10 @@ def test_widths_cgs_equals_line_widths_and_the_profiles(demo, kwargs):
         assert getattr(profile, key).to_value(u.cm / u.s) == pytest.approx(value, rel=1e-15)
 
 
-def test_widths_cgs_of_model_b_with_its_thin_flow():
+def test_widths_cgs_of_model_b_with_its_thin_flow(bump_result):
     # The caller appends the thin flow (here: as line_widths does); the edge
     # is nan because that flow decelerates, as line_widths says.
-    result = windsolve.solve(windsolve.load_model(CONFIGS / "bump_wind.toml"))
+    result = bump_result
     r, v, rho, Rc = demo_arrays(result)
     fwhm, hwzi, edge = lines.widths_cgs(r, v, rho, lines.LineSettings(), Rc)
     widths = lines.line_widths(result)
@@ -285,12 +319,12 @@ def _exponential_tau(r, f):
     return np.concatenate([np.cumsum(seg[::-1])[::-1], [0.0]])
 
 
-def test_optical_core_radius_cgs(demo):
+def test_optical_core_radius_cgs(demo_result):
     # tau = int kappa rho dr from outside reaches 2/3 (the usual photosphere
     # definition, common practice), kappa rho exponential between points:
     # recomputed here with numpy; and the crossing found on that curve
     # (tau(Rc) = 2/3 to rounding, unlike the linear interpolation).
-    p = demo.profile
+    p = demo_result.profile
     r = p["radius"].to_value(u.cm)
     rho = p["density"].to_value(u.g / u.cm**3)
     kappa = p["opacity"].to_value(u.cm**2 / u.g)
@@ -301,7 +335,9 @@ def test_optical_core_radius_cgs(demo):
     k = np.log(f[i + 1] / f[i]) / (r[i + 1] - r[i])
     tau_at = tau[i + 1] + (f[i + 1] - f[i] * np.exp(k * (got - r[i]))) / k
     assert math.isclose(tau_at, 2 / 3, rel_tol=1e-12)
-    assert got == lines._optical_core(demo)
+    # ... and it is the default core of the demo's lines (Model A, an opaque inner wind)
+    default, given = (lines.line_widths(demo_result, core_radius=c) for c in (None, got * u.cm))
+    assert all(default[key] == given[key] for key in ("fwhm", "hwzi", "edge_velocity"))
     assert lines.optical_core_radius_cgs(r, rho * 1e-30, kappa) is None
 
 

@@ -53,11 +53,6 @@ def fwhm_of(w, f):
     return hi - lo
 
 
-@pytest.fixture(scope="module")
-def demo():
-    return windsolve.solve(windsolve.load_model(windsolve.demo_model_path()))
-
-
 def cgs(profile):
     return (profile["radius"].to_value(u.cm), profile["velocity"].to_value(u.cm / u.s),
             profile["density"].to_value(u.g / u.cm**3))
@@ -107,20 +102,20 @@ def test_constant_velocity_shell_flux_matches_integral():
 
 # -- (d) invariants of the emission line ----------------------------------------
 
-def test_emission_without_occultation_is_symmetric(demo):
+def test_emission_without_occultation_is_symmetric(demo_result):
     # Nothing distinguishes approaching from receding gas without a core.
     for power in (1, 2):
-        f = lines.emission_profile(demo, lines.LineSettings(emissivity_power=power,
+        f = lines.emission_profile(demo_result, lines.LineSettings(emissivity_power=power,
                                                             occultation=False)).flux
         np.testing.assert_allclose(f, f[::-1], rtol=1e-9, atol=1e-14)
 
 
 @pytest.mark.parametrize("source", ["demo", "beta"])
-def test_occultation_removes_only_red_flux(demo, source):
+def test_occultation_removes_only_red_flux(demo_result, source):
     # The disk hides gas behind it (z < 0), which recedes: only w > 0 loses
     # light.  The core is the first tabulated radius here, so no shell lies
     # inside it and the blue side must be unchanged.
-    profile = demo.profile if source == "demo" else beta_law_profile()
+    profile = demo_result.profile if source == "demo" else beta_law_profile()
     r, v, rho = cgs(profile)
     w = np.linspace(-1.2, 1.2, 401) * v.max()
     seen = kernels.emission_flux(r, v, rho, 2.0, r[0], True, w)
@@ -132,7 +127,7 @@ def test_occultation_removes_only_red_flux(demo, source):
     assert np.any(seen[red] < 0.99 * whole[red])
     # The same through the Quantity layer, where each profile has peak 1:
     # on the blue side the two differ by one constant factor.
-    src = demo if source == "demo" else profile
+    src = demo_result if source == "demo" else profile
     core = profile["radius"][0]
     a = lines.emission_profile(src, lines.LineSettings(occultation=True), core_radius=core).flux
     b = lines.emission_profile(src, lines.LineSettings(occultation=False), core_radius=core).flux
@@ -284,15 +279,15 @@ def test_sobolev_tau_of_a_steady_wind_is_k0_over_x2_w_dwdx():
 
 # -- (f) the Quantity layer and its kernels agree ------------------------------------
 
-def test_emission_profile_matches_kernel(demo):
+def test_emission_profile_matches_kernel(demo_result):
     # (f) internal: the Quantity layer is the kernel plus units, the default
     # core radius, peak normalisation and the +-1.2 v_max grid.  The default
     # core of a Model A result is where tau = integral of kappa rho dr from
     # outside reaches 2/3 (recomputed here: kappa rho exponential between
     # points, the crossing solved for on that curve).
-    p = lines.emission_profile(demo)
-    r, v, rho = cgs(demo.profile)
-    kappa = demo.profile["opacity"].to_value(u.cm**2 / u.g)
+    p = lines.emission_profile(demo_result)
+    r, v, rho = cgs(demo_result.profile)
+    kappa = demo_result.profile["opacity"].to_value(u.cm**2 / u.g)
     f = kappa * rho
     seg = np.diff(r) * (f[1:] - f[:-1]) / np.log(f[1:] / f[:-1])
     tau = np.concatenate([np.cumsum(seg[::-1])[::-1], [0.0]])
@@ -335,25 +330,25 @@ def test_broaden_matches_kernel():
 
 # -- results, files, widths ---------------------------------------------------------
 
-def test_line_widths_of_the_demo(demo):
+def test_line_widths_of_the_demo(demo_result):
     # The demo is an invented star: only the structure and the strong-line
     # edge at -v_max (Lamers & Cassinelli 1999, ch. 8, from memory) are checked.
-    widths = lines.line_widths(demo)
+    widths = lines.line_widths(demo_result)
     assert set(widths) == {"fwhm", "hwzi", "edge_velocity", "terminal_velocity"}
     for q in widths.values():
         assert q.unit == KM_S
-    v_inf = demo.summary["terminal_velocity"].to_value(KM_S)
+    v_inf = demo_result.summary["terminal_velocity"].to_value(KM_S)
     assert widths["terminal_velocity"].to_value(KM_S) == pytest.approx(v_inf, rel=1e-14)
-    p = lines.pcygni_profile(demo)
+    p = lines.pcygni_profile(demo_result)
     assert abs(widths["edge_velocity"].to_value(KM_S) + v_inf) <= step(p)
     assert widths["fwhm"].value > 0 and widths["hwzi"].value > 0
 
 
-def test_model_b_lines_come_from_the_thin_flow_above_the_photosphere():
+def test_model_b_lines_come_from_the_thin_flow_above_the_photosphere(bump_result):
     # Model B's profile stops at the photosphere (its core radius); the line
     # comes from the ballistic thin flow above it, v^2 = v_inf^2 + K / r
     # (docs/physics.md, eq. 23), so its widths sit between v_inf and v_ph.
-    result = windsolve.solve(windsolve.load_model(CONFIGS / "bump_wind.toml"))
+    result = bump_result
     widths = lines.line_widths(result)
     v_inf = result.summary["terminal_velocity"].to_value(KM_S)
     v_ph = result.summary["photosphere_velocity"].to_value(KM_S)
@@ -366,11 +361,11 @@ def test_model_b_lines_come_from_the_thin_flow_above_the_photosphere():
     assert np.isnan(widths["edge_velocity"].value)
 
 
-def test_result_read_back_from_hdf5_gives_same_widths(demo, tmp_path):
+def test_result_read_back_from_hdf5_gives_same_widths(demo_result, tmp_path):
     # (d) a result read back from its file (cgs datasets) gives the same widths.
-    path = demo.to_hdf5(tmp_path / "demo.h5")
+    path = demo_result.to_hdf5(tmp_path / "demo.h5")
     again = windsolve.read_result(path)
-    a = lines.line_widths(demo)
+    a = lines.line_widths(demo_result)
     b = lines.line_widths(again)
     for key in a:
         assert a[key].to_value(KM_S) == pytest.approx(b[key].to_value(KM_S), rel=1e-12)
@@ -449,14 +444,14 @@ def test_bad_profiles_give_one_line_model_errors(change, text):
     assert "\n" not in str(error.value)
 
 
-def test_bad_arguments_give_model_errors(demo):
+def test_bad_arguments_give_model_errors(demo_result):
     with pytest.raises(ModelError, match="core_radius"):
-        lines.emission_profile(demo, core_radius="3 K")
+        lines.emission_profile(demo_result, core_radius="3 K")
     with pytest.raises(ModelError, match="WindResult"):
         lines.emission_profile([1, 2, 3])
     with pytest.raises(ModelError, match="LineSettings"):
-        lines.emission_profile(demo, settings={"occultation": False})
-    failed = windsolve.WindResult(demo.model, False, "stalled", "stalled at 2 R0")
+        lines.emission_profile(demo_result, settings={"occultation": False})
+    failed = windsolve.WindResult(demo_result.model, False, "stalled", "stalled at 2 R0")
     with pytest.raises(ModelError, match="no converged profile"):
         lines.line_widths(failed)
 

@@ -167,7 +167,7 @@ def test_lines_reads_a_file_windsolve_did_not_write(tmp_path, capsys):
     assert len(err) == 1 and err[0].startswith("windsolve: error:")
 
 
-def test_widths_measured_inside_a_sweep_match_a_single_model(tmp_path, capsys):
+def test_widths_measured_inside_a_sweep_match_a_single_model(tmp_path, capsys, demo_result):
     from windsolve.lines import LineSettings, line_widths
     sweep_path = tmp_path / "sweep.toml"
     sweep_path.write_text(f'[sweep]\nbase = "{DEMO}"\ndesign = "grid"\n'
@@ -176,7 +176,7 @@ def test_widths_measured_inside_a_sweep_match_a_single_model(tmp_path, capsys):
     out = tmp_path / "sweep.h5"
     run_sweep(load_sweep(sweep_path), out, workers=1, quiet=True)
     table, attrs = read_sweep_table(out)
-    single = windsolve.solve(windsolve.load_model(DEMO))
+    single = demo_result
     widths = line_widths(single, LineSettings(turbulence="10 km/s"))
     for key in ("fwhm", "hwzi", "edge_velocity"):
         assert math.isclose(table[key][0], widths[key].to_value(u.cm / u.s), rel_tol=1e-6)
@@ -224,6 +224,10 @@ def test_sweep_rows_give_the_widths_of_line_widths(settings):
 
 
 def lines_core_beyond_sonic_point(result):
-    from windsolve.lines import _optical_core
-    rc = _optical_core(result)
+    # the optical core (tau = 2/3 from outside), the default core of a Model A line
+    from windsolve.lines import optical_core_radius_cgs
+    p = result.profile
+    rc = optical_core_radius_cgs(p["radius"].to_value(u.cm),
+                                 p["density"].to_value(u.g / u.cm**3),
+                                 p["opacity"].to_value(u.cm**2 / u.g))
     return rc is not None and rc > result.summary["sonic_radius"].to_value(u.cm)

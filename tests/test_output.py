@@ -20,11 +20,6 @@ SPEC_SUMMARY = ["converged", "status", "mass_loss_rate", "terminal_velocity", "s
                 "sonic_velocity"]
 
 
-@pytest.fixture(scope="module")
-def demo_result():
-    return windsolve.solve(windsolve.load_model(windsolve.demo_model_path()))
-
-
 def test_hdf5_layout(demo_result, tmp_path):
     path = demo_result.to_hdf5(tmp_path / "demo.h5")
     with h5py.File(path, "r") as f:

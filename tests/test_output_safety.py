@@ -280,13 +280,12 @@ def test_a_sigkilled_writer_leaves_a_temporary_the_next_run_removes(tmp_path):
     # A writer killed in mid-write: its .NAME.tmp-PID stays while it lives, and
     # is removed by the first write after it died.
     out = tmp_path / "wind.h5"
-    code = ("import sys, time\n"
-            "from windsolve._io import atomic_write\n"
-            "def write(tmp):\n"
-            "    with open(tmp, 'wb') as f:\n"
-            "        f.write(b'x' * 1000); f.flush()\n"
-            "        time.sleep(120)\n"
-            f"atomic_write({str(out)!r}, write)\n")
+    # The writer is `windsolve run -o`, held in mid-write where it flushes its
+    # temporary to the disk (os.fsync, before the rename).
+    code = ("import os, time\n"
+            "from windsolve.cli import main\n"
+            "os.fsync = lambda fd: time.sleep(120)\n"
+            f"main(['run', '-o', {str(out)!r}, '-q'])\n")
     writer = subprocess.Popen([sys.executable, "-c", code])
     tmp = tmp_path / f".wind.h5.tmp-{writer.pid}"
     try:

@@ -125,7 +125,7 @@ def test_bad_sweep_files(tmp_path, capsys, text, fragment):
     assert not out.exists() and not (tmp_path / "out.h5.partial").exists()
 
 
-def test_row_equals_single_solve_and_failures_are_recorded(tmp_path):
+def test_row_equals_single_solve_and_failures_are_recorded(tmp_path, demo_result):
     # L = 1e3 Lsun puts the Parker point beyond the outer radius: no solution.
     path = write(tmp_path, """design = "grid"
 [[axis]]
@@ -140,7 +140,7 @@ values = ["4e6 Lsun", "1e3 Lsun"]
     table, attrs = read_sweep_table(out)
     assert list(table["converged"]) == [True, False]
     assert table["status"][1] == "no_critical_point"
-    single = windsolve.solve(windsolve.load_model(DEMO))
+    single = demo_result
     assert table["mass_loss_rate"][0] == single.summary["mass_loss_rate"].value
     assert math.isnan(table["mass_loss_rate"][1])
     assert attrs["sweep_toml"] == path.read_text()
