@@ -37,9 +37,10 @@ import numpy as np
 from numba import njit
 
 from .constants import A_RAD, C_LIGHT, SIGMA_SB
-from .critical import classify, make_root_refiner
+from .critical import classify
 from .integrate import REACHED_END, STEP_TOO_SMALL, make_integrator
 from .opacity import effective_opacity, table_margin
+from .roots import make_illinois
 
 FOUR_PI = 4.0 * math.pi
 
@@ -237,7 +238,7 @@ def sonic_balance_lnT(lnT, P, O):
     return n_of(P[I_PREV_X], math.sqrt(P[I_KG] * T), T, P, O)
 
 
-refine_sonic_T = make_root_refiner(sonic_balance_lnT)
+refine_sonic_T = make_illinois(sonic_balance_lnT)
 
 
 @njit(cache=True, error_model="numpy")

@@ -34,7 +34,7 @@ import numpy as np
 from numba import njit
 
 from .constants import C_LIGHT
-from .critical import SADDLE, classify, make_root_refiner
+from .critical import SADDLE, classify
 from .integrate import REACHED_END, STEP_TOO_SMALL, make_scalar_integrator
 from .opacity import (
     LAW_ELECTRON_SCATTERING,
@@ -44,6 +44,7 @@ from .opacity import (
     effective_opacity,
     table_margin,
 )
+from .roots import make_illinois
 
 FOUR_PI = 4.0 * math.pi
 INV_FOUR_PI = 1.0 / FOUR_PI
@@ -236,8 +237,8 @@ def left_table(x, y, P, O):
 
 integrate_outward = make_scalar_integrator(rhs, monitor_outward)  # x = ln r, y = ln v
 integrate_inward = make_scalar_integrator(rhs_radius, monitor_inward)  # x = r, y = ln v
-refine_sonic = make_root_refiner(sonic_force_balance)
-refine_base = make_root_refiner(base_sonic_balance)
+refine_sonic = make_illinois(sonic_force_balance)
+refine_base = make_illinois(base_sonic_balance)
 
 
 @njit(cache=True, error_model="numpy")
