@@ -70,6 +70,10 @@ def grid():
                                      ("8 Msun", "10 Msun", "12 Msun")):
         specs.append(f"bump_wind.toml|photosphere_luminosity={L}|photosphere_temperature={T}"
                      f"|mass={M}")
+    # Model B with the invented opacity table (the tabulated twin of the bump law)
+    for T in ("4e4 K", "5e4 K", "6e4 K"):
+        specs.append(f"bump_wind.toml|opacity=table:invented_bump_table.txt"
+                     f"|photosphere_temperature={T}")
     # Model B, base anchor (near the base of the bump_wind solution: R ~ 0.514 Rsun,
     # L ~ 2.19e5 Lsun, T ~ 1e6 K, rho ~ 1.39e-5 g/cm3)
     photo_off = "photosphere_luminosity=None|photosphere_temperature=None"
@@ -94,6 +98,8 @@ def build(spec):
         changes[key] = {"None": None, "true": True, "false": False}.get(value, value)
         if key in ("porosity_exponent",):
             changes[key] = float(value)
+        if value.startswith("table:"):  # an opacity table in configs/
+            changes[key] = {"law": "table", "path": str(ROOT / "configs" / value[6:])}
     return _BASES[config].replace(**changes)
 
 
