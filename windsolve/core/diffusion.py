@@ -75,10 +75,17 @@ SIDE_TURN = 11  # shooting inward: N turned from + to - before the sonic point
 
 
 @njit(cache=True, error_model="numpy", inline="always")
+def specific_energy(r, v, T, rho, P):
+    """(Edot - L_r) / Mdot: kinetic energy, gas enthalpy, radiation enthalpy and
+    potential per gram at (r, v, T, rho) [erg g-1] (the energy integral)."""
+    return (0.5 * v * v + 2.5 * P[I_KG] * T
+            + (4.0 / 3.0) * A_RAD * T**4 / rho - P[I_GM] / r)
+
+
+@njit(cache=True, error_model="numpy", inline="always")
 def luminosity(r, v, T, rho, P):
     """L_r from the energy integral [erg s-1]."""
-    return P[I_EDOT] - P[I_MDOT] * (0.5 * v * v + 2.5 * P[I_KG] * T
-                                    + (4.0 / 3.0) * A_RAD * T**4 / rho - P[I_GM] / r)
+    return P[I_EDOT] - P[I_MDOT] * specific_energy(r, v, T, rho, P)
 
 
 @njit(cache=True, error_model="numpy")
@@ -200,8 +207,7 @@ def critical_state(mdot, rc, Tc, P, O):
     B = KG * 3.0 * k * rho / (4.0 * FOUR_PI * A_RAD * C_LIGHT * rc * rc * Tc**3)
     Lc = (P[I_GM] / (rc * rc) - 2.0 * KG * Tc / rc) / (A + B)
     P[I_MDOT] = mdot
-    P[I_EDOT] = Lc + mdot * (0.5 * vc * vc + 2.5 * KG * Tc
-                             + (4.0 / 3.0) * A_RAD * Tc**4 / rho - P[I_GM] / rc)
+    P[I_EDOT] = Lc + mdot * specific_energy(rc, vc, Tc, rho, P)
     ok = math.isfinite(Lc) and Lc > 0.0
     return ok, vc, rho, Lc
 
@@ -384,8 +390,7 @@ def photospheric_state(mdot, R, L, T, P):
     v = (S * S + W) / (2.0 * S)
     rho = mdot / (FOUR_PI * R * R * v)
     P[I_MDOT] = mdot
-    P[I_EDOT] = L + mdot * (0.5 * v * v + 2.5 * P[I_KG] * T
-                            + (4.0 / 3.0) * A_RAD * T**4 / rho - P[I_GM] / R)
+    P[I_EDOT] = L + mdot * specific_energy(R, v, T, rho, P)
     return v
 
 
