@@ -444,6 +444,17 @@ def shoot_dense(ln_mdot, R, L, T, P, O, rtol, max_step, dx_out, out_x, out_y):
 
 
 @njit(cache=True, error_model="numpy")
+def photosphere_radius(L, T):
+    """R_ph = sqrt(L / (4 pi sigma T_eff^4)) [cm].
+
+    ``T ** 4.0`` (a call of pow, as Python's float power makes) rather than
+    numba's repeated multiplication for ``T ** 4``: the Python callers' numbers
+    stay bit for bit.
+    """
+    return math.sqrt(L / (4.0 * math.pi * SIGMA_SB * T ** 4.0))
+
+
+@njit(cache=True, error_model="numpy")
 def effective_temperature(L, R):
     """T_eff = [L / (4 pi sigma R^2)]^(1/4) [K]."""
     return (L / (FOUR_PI * SIGMA_SB * R * R)) ** 0.25
