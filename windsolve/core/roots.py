@@ -98,3 +98,88 @@ def search_right(a, x, lo, hi):
         else:
             hi = mid
     return lo
+
+
+# make_brent's outcome codes
+ROOT_FOUND = 0
+ROOT_MAX_EVALS = 1  # max_evals calls of f without convergence
+ROOT_JUMP = 2  # the bracket collapsed onto a sign change with |f| > jump_tol: a jump, no root
+ROOT_F_FAILED = 3  # f returned a nonzero code (given as the second value)
+
+
+def make_brent(f):
+    """Return a compiled Brent root-finder for ``f(x, args) -> (code, fx, p, q)``
+    that carries the payload ``(p, q)`` (two floats) of every trial.
+
+    Brent's method (Brent 1973, Algorithms for Minimization without
+    Derivatives, ch. 4; the layout of scipy's ``brentq``).  ``code != 0`` from
+    ``f`` is a failed trial and ends the search.  The root-finder
+    ``brent(xpre, fpre, ppre, qpre, xcur, fcur, pcur, qcur, args, ftol, xtol,
+    jump_tol, evals, max_evals)`` starts from a bracket (fpre, fcur of
+    opposite sign) and stops once ``|f| < ftol``, or when the bracket or the
+    interpolated step falls below ``xtol``; a bracket that collapses with
+    ``|f| > jump_tol`` is a jump of f, not a root.  Returns ``(outcome,
+    f_code, x, p, q, evals)``: an outcome code above, the failed trial's code
+    (ROOT_F_FAILED), the last abscissa, its payload (NaN unless ROOT_FOUND)
+    and the count of calls so far (``evals`` given counts earlier ones).
+    Carrying the payload means the answer needs no extra call of f.
+    """
+
+    @njit(cache=True, error_model="numpy")
+    def brent(xpre, fpre, ppre, qpre, xcur, fcur, pcur, qcur, args, ftol, xtol, jump_tol,
+              evals, max_evals):
+        tol = 0.5 * xtol
+        xblk = 0.0
+        fblk = 0.0
+        pblk = math.nan
+        qblk = math.nan
+        spre = 0.0
+        scur = 0.0
+        while True:
+            if evals >= max_evals:
+                return ROOT_MAX_EVALS, 0, xcur, math.nan, math.nan, evals
+            if (fpre < 0.0) != (fcur < 0.0):
+                xblk, fblk, pblk, qblk = xpre, fpre, ppre, qpre
+                spre = xcur - xpre
+                scur = spre
+            if abs(fblk) < abs(fcur):
+                xpre, fpre, ppre, qpre = xcur, fcur, pcur, qcur
+                xcur, fcur, pcur, qcur = xblk, fblk, pblk, qblk
+                xblk, fblk, pblk, qblk = xpre, fpre, ppre, qpre
+            sbis = 0.5 * (xblk - xcur)
+            if abs(fcur) < ftol:
+                break
+            if abs(sbis) < tol:
+                if abs(fcur) > jump_tol:
+                    return ROOT_JUMP, 0, xcur, math.nan, math.nan, evals
+                break
+            if abs(spre) > tol and abs(fcur) < abs(fpre):
+                if xpre == xblk:
+                    stry = -fcur * (xcur - xpre) / (fcur - fpre)
+                else:
+                    dpre = (fpre - fcur) / (xpre - xcur)
+                    dblk = (fblk - fcur) / (xblk - xcur)
+                    stry = -fcur * (fblk * dblk - fpre * dpre) / (dblk * dpre * (fblk - fpre))
+                if 2.0 * abs(stry) < min(abs(spre), 3.0 * abs(sbis) - tol):
+                    spre = scur
+                    scur = stry
+                    if abs(stry) < tol and abs(fcur) < jump_tol:
+                        break  # the interpolated root is within xtol of xcur
+                else:
+                    spre = sbis
+                    scur = sbis
+            else:
+                spre = sbis
+                scur = sbis
+            xpre, fpre, ppre, qpre = xcur, fcur, pcur, qcur
+            if abs(scur) > tol:
+                xcur += scur
+            else:
+                xcur += tol if sbis > 0.0 else -tol
+            code, fcur, pcur, qcur = f(xcur, args)
+            evals += 1
+            if code != 0:
+                return ROOT_F_FAILED, code, xcur, math.nan, math.nan, evals
+        return ROOT_FOUND, 0, xcur, pcur, qcur, evals
+
+    return brent
