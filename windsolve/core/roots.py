@@ -74,7 +74,8 @@ def make_illinois(f):
 def search_left(a, x, lo, hi):
     """First i in [lo, hi) with a[i] >= x, else hi (a[lo:hi] non-decreasing).
 
-    ``lo + numpy.searchsorted(a[lo:hi], x, side="left")``, without the slice.
+    ``lo + numpy.searchsorted(a[lo:hi], x, side="left")``, without the slice
+    (but x = NaN gives lo, where numpy, sorting NaN last, gives hi).
     """
     while lo < hi:
         mid = (lo + hi) // 2
@@ -89,7 +90,8 @@ def search_left(a, x, lo, hi):
 def search_right(a, x, lo, hi):
     """First i in [lo, hi) with a[i] > x, else hi (a[lo:hi] non-decreasing).
 
-    ``lo + numpy.searchsorted(a[lo:hi], x, side="right")``, without the slice.
+    ``lo + numpy.searchsorted(a[lo:hi], x, side="right")``, without the slice
+    (but x = NaN gives lo, where numpy, sorting NaN last, gives hi).
     """
     while lo < hi:
         mid = (lo + hi) // 2
