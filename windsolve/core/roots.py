@@ -71,19 +71,25 @@ def make_illinois(f):
 
 
 @njit(cache=True, error_model="numpy", inline="always")
+def _search(a, x, lo, hi, right):
+    """First i in [lo, hi) with a[i] > x (right) or a[i] >= x (not right), else hi."""
+    while lo < hi:
+        mid = (lo + hi) // 2
+        if a[mid] < x or (right and a[mid] == x):
+            lo = mid + 1
+        else:
+            hi = mid
+    return lo
+
+
+@njit(cache=True, error_model="numpy", inline="always")
 def search_left(a, x, lo, hi):
     """First i in [lo, hi) with a[i] >= x, else hi (a[lo:hi] non-decreasing).
 
     ``lo + numpy.searchsorted(a[lo:hi], x, side="left")``, without the slice
     (but x = NaN gives lo, where numpy, sorting NaN last, gives hi).
     """
-    while lo < hi:
-        mid = (lo + hi) // 2
-        if a[mid] < x:
-            lo = mid + 1
-        else:
-            hi = mid
-    return lo
+    return _search(a, x, lo, hi, False)
 
 
 @njit(cache=True, error_model="numpy", inline="always")
@@ -93,13 +99,7 @@ def search_right(a, x, lo, hi):
     ``lo + numpy.searchsorted(a[lo:hi], x, side="right")``, without the slice
     (but x = NaN gives lo, where numpy, sorting NaN last, gives hi).
     """
-    while lo < hi:
-        mid = (lo + hi) // 2
-        if a[mid] <= x:
-            lo = mid + 1
-        else:
-            hi = mid
-    return lo
+    return _search(a, x, lo, hi, True)
 
 
 # make_brent's outcome codes
