@@ -26,7 +26,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .core import diffusion as D
-from .core.constants import C_LIGHT, SIGMA_SB
+from .core.constants import C_LIGHT
 from .core.critical import SADDLE
 
 DELTA = 1e-6  # start this fraction of r_c off the critical point
@@ -63,8 +63,7 @@ class Critical:
     kind: int
 
 
-def photosphere_radius(L, T):
-    return math.sqrt(L / (4.0 * math.pi * SIGMA_SB * T**4))
+photosphere_radius = D.photosphere_radius
 
 
 def critical(P, O, ln_mdot, ln_rc, ln_Tc):

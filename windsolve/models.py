@@ -697,7 +697,7 @@ class DiffusionWind(WindModel):
             return None
         L = self.cgs("photosphere_luminosity")
         T = self.cgs("photosphere_temperature")
-        return (math.sqrt(L / (4.0 * math.pi * SIGMA_SB * T**4)) * u.cm).to(u.Rsun)
+        return (diff_kernels.photosphere_radius(L, T) * u.cm).to(u.Rsun)
 
     @cached_property
     def kernel_arrays(self):

@@ -38,9 +38,10 @@ import numpy as np
 from numba import njit
 
 from .constants import A_RAD, C_LIGHT, SIGMA_SB
-from .critical import classify, make_root_refiner
+from .critical import classify
 from .integrate import REACHED_END, STEP_TOO_SMALL, make_integrator
 from .opacity import effective_opacity, table_margin
+from .roots import make_illinois
 
 FOUR_PI = 4.0 * math.pi
 
@@ -75,10 +76,17 @@ SIDE_TURN = 11  # shooting inward: N turned from + to - before the sonic point
 
 
 @njit(cache=True, error_model="numpy", inline="always")
+def specific_energy(r, v, T, rho, P):
+    """(Edot - L_r) / Mdot: kinetic energy, gas enthalpy, radiation enthalpy and
+    potential per gram at (r, v, T, rho) [erg g-1] (the energy integral)."""
+    return (0.5 * v * v + 2.5 * P[I_KG] * T
+            + (4.0 / 3.0) * A_RAD * T**4 / rho - P[I_GM] / r)
+
+
+@njit(cache=True, error_model="numpy", inline="always")
 def luminosity(r, v, T, rho, P):
     """L_r from the energy integral [erg s-1]."""
-    return P[I_EDOT] - P[I_MDOT] * (0.5 * v * v + 2.5 * P[I_KG] * T
-                                    + (4.0 / 3.0) * A_RAD * T**4 / rho - P[I_GM] / r)
+    return P[I_EDOT] - P[I_MDOT] * specific_energy(r, v, T, rho, P)
 
 
 @njit(cache=True, error_model="numpy")
@@ -200,8 +208,7 @@ def critical_state(mdot, rc, Tc, P, O):
     B = KG * 3.0 * k * rho / (4.0 * FOUR_PI * A_RAD * C_LIGHT * rc * rc * Tc**3)
     Lc = (P[I_GM] / (rc * rc) - 2.0 * KG * Tc / rc) / (A + B)
     P[I_MDOT] = mdot
-    P[I_EDOT] = Lc + mdot * (0.5 * vc * vc + 2.5 * KG * Tc
-                             + (4.0 / 3.0) * A_RAD * Tc**4 / rho - P[I_GM] / rc)
+    P[I_EDOT] = Lc + mdot * specific_energy(rc, vc, Tc, rho, P)
     ok = math.isfinite(Lc) and Lc > 0.0
     return ok, vc, rho, Lc
 
@@ -238,7 +245,7 @@ def sonic_balance_lnT(lnT, P, O):
     return n_of(P[I_PREV_X], math.sqrt(P[I_KG] * T), T, P, O)
 
 
-refine_sonic_T = make_root_refiner(sonic_balance_lnT)
+refine_sonic_T = make_illinois(sonic_balance_lnT)
 
 
 @njit(cache=True, error_model="numpy")
@@ -384,8 +391,7 @@ def photospheric_state(mdot, R, L, T, P):
     v = (S * S + W) / (2.0 * S)
     rho = mdot / (FOUR_PI * R * R * v)
     P[I_MDOT] = mdot
-    P[I_EDOT] = L + mdot * (0.5 * v * v + 2.5 * P[I_KG] * T
-                            + (4.0 / 3.0) * A_RAD * T**4 / rho - P[I_GM] / R)
+    P[I_EDOT] = L + mdot * specific_energy(R, v, T, rho, P)
     return v
 
 
@@ -436,6 +442,17 @@ def shoot_dense(ln_mdot, R, L, T, P, O, rtol, max_step, dx_out, out_x, out_y):
     elif st < 0:
         st = FAILED
     return st, math.exp(x), math.exp(y[0]), math.exp(y[1]), n
+
+
+@njit(cache=True, error_model="numpy")
+def photosphere_radius(L, T):
+    """R_ph = sqrt(L / (4 pi sigma T_eff^4)) [cm].
+
+    ``T ** 4.0`` (a call of pow, as Python's float power makes) rather than
+    numba's repeated multiplication for ``T ** 4``: the Python callers' numbers
+    stay bit for bit.
+    """
+    return math.sqrt(L / (4.0 * math.pi * SIGMA_SB * T ** 4.0))
 
 
 @njit(cache=True, error_model="numpy")

@@ -34,7 +34,7 @@ import numpy as np
 from numba import njit
 
 from .constants import C_LIGHT
-from .critical import SADDLE, classify, make_root_refiner
+from .critical import SADDLE, classify
 from .integrate import REACHED_END, STEP_TOO_SMALL, make_scalar_integrator
 from .opacity import (
     LAW_ELECTRON_SCATTERING,
@@ -44,6 +44,7 @@ from .opacity import (
     effective_opacity,
     table_margin,
 )
+from .roots import ROOT_F_FAILED, ROOT_JUMP, ROOT_MAX_EVALS, make_brent, make_illinois
 
 FOUR_PI = 4.0 * math.pi
 INV_FOUR_PI = 1.0 / FOUR_PI
@@ -236,8 +237,8 @@ def left_table(x, y, P, O):
 
 integrate_outward = make_scalar_integrator(rhs, monitor_outward)  # x = ln r, y = ln v
 integrate_inward = make_scalar_integrator(rhs_radius, monitor_inward)  # x = r, y = ln v
-refine_sonic = make_root_refiner(sonic_force_balance)
-refine_base = make_root_refiner(base_sonic_balance)
+refine_sonic = make_illinois(sonic_force_balance)
+refine_base = make_illinois(base_sonic_balance)
 
 
 @njit(cache=True, error_model="numpy")
@@ -485,6 +486,16 @@ def find_admissible(P, O, rtol, delta, guess, x_min, x_max, shots):
 
 
 @njit(cache=True, error_model="numpy")
+def _shot_for_brent(x, args):
+    """shoot_work for :data:`brent_shots`: (code, g, r_c, slope) at ln Mdot = x."""
+    P, O, rtol, delta, Q, none = args
+    return shoot_work(x, P, O, rtol, delta, Q, none)
+
+
+brent_shots = make_brent(_shot_for_brent)
+
+
+@njit(cache=True, error_model="numpy")
 def converge(P, O, rtol, delta, x, g, rc, slope, step0, x_min, x_max, shots, reason):
     """From an admissible trial (x, g): walk to a sign change of g, then Brent.
 
@@ -565,70 +576,24 @@ def converge(P, O, rtol, delta, x, g, rc, slope, step0, x_min, x_max, shots, rea
         code = NO_BRACKET_DENSE if g > 0.0 else NO_BRACKET_THIN
         # (the last admissible trial, for the user layer to describe)
         return code, x, rc, slope, shots, reason, seen_ok
-    # Brent's method on ln Mdot (Brent 1973, ch. 4; the layout of scipy's
-    # brentq), keeping r_c and the slope of every trial so that the answer
-    # needs no extra shot.  It stops when the bracket or the interpolated
-    # step falls below xtol = 0.1 rtol (a relative tolerance on Mdot), or
-    # once |g| < rtol (the mismatch is within the integration noise).
-    xtol = 0.1 * rtol
-    tol = 0.5 * xtol
-    xpre, fpre, rpre, slope_pre = x, g, rc, slope
-    xcur, fcur, rcur, slope_cur = x_far, g_far, rc_far, slope_far
-    xblk = 0.0
-    fblk = 0.0
-    rblk = math.nan
-    slope_blk = math.nan
-    spre = 0.0
-    scur = 0.0
-    while True:
-        if shots >= MAX_SHOTS:
-            return ROOT_NOT_CONVERGED, xcur, math.nan, math.nan, shots, reason, seen_ok
-        if (fpre < 0.0) != (fcur < 0.0):
-            xblk, fblk, rblk, slope_blk = xpre, fpre, rpre, slope_pre
-            spre = xcur - xpre
-            scur = spre
-        if abs(fblk) < abs(fcur):
-            xpre, fpre, rpre, slope_pre = xcur, fcur, rcur, slope_cur
-            xcur, fcur, rcur, slope_cur = xblk, fblk, rblk, slope_blk
-            xblk, fblk, rblk, slope_blk = xpre, fpre, rpre, slope_pre
-        sbis = 0.5 * (xblk - xcur)
-        if abs(fcur) < rtol:
-            break
-        if abs(sbis) < tol:
-            if abs(fcur) > JUMP_TOL:
-                # The bracket collapsed onto a sign change that is no root: g
-                # jumps there (the innermost saddle changes), so no Mdot near
-                # it meets the base density.
-                return NO_ROOT_JUMP, xcur, math.nan, math.nan, shots, reason, seen_ok
-            break
-        if abs(spre) > tol and abs(fcur) < abs(fpre):
-            if xpre == xblk:
-                stry = -fcur * (xcur - xpre) / (fcur - fpre)
-            else:
-                dpre = (fpre - fcur) / (xpre - xcur)
-                dblk = (fblk - fcur) / (xblk - xcur)
-                stry = -fcur * (fblk * dblk - fpre * dpre) / (dblk * dpre * (fblk - fpre))
-            if 2.0 * abs(stry) < min(abs(spre), 3.0 * abs(sbis) - tol):
-                spre = scur
-                scur = stry
-                if abs(stry) < tol and abs(fcur) < JUMP_TOL:
-                    break  # the interpolated root is within xtol of xcur
-            else:
-                spre = sbis
-                scur = sbis
-        else:
-            spre = sbis
-            scur = sbis
-        xpre, fpre, rpre, slope_pre = xcur, fcur, rcur, slope_cur
-        if abs(scur) > tol:
-            xcur += scur
-        else:
-            xcur += tol if sbis > 0.0 else -tol
-        c4, fcur, rcur, slope_cur = shoot_work(xcur, P, O, rtol, delta, Q, none)
-        shots += 1
-        if c4 != OK:
-            return c4, xcur, math.nan, math.nan, shots, c4, seen_ok
-    return OK, xcur, rcur, slope_cur, shots, reason, seen_ok
+    # Brent's method on ln Mdot (roots.make_brent), keeping r_c and the slope
+    # of every trial so that the answer needs no extra shot.  It stops when
+    # the bracket or the interpolated step falls below xtol = 0.1 rtol (a
+    # relative tolerance on Mdot), or once |g| < rtol (the mismatch is within
+    # the integration noise).
+    outcome, c4, x, rc, slope, shots = brent_shots(
+        x, g, rc, slope, x_far, g_far, rc_far, slope_far, (P, O, rtol, delta, Q, none),
+        rtol, 0.1 * rtol, JUMP_TOL, shots, MAX_SHOTS)
+    if outcome == ROOT_MAX_EVALS:
+        return ROOT_NOT_CONVERGED, x, math.nan, math.nan, shots, reason, seen_ok
+    if outcome == ROOT_JUMP:
+        # The bracket collapsed onto a sign change that is no root: g jumps
+        # there (the innermost saddle changes), so no Mdot near it meets the
+        # base density.
+        return NO_ROOT_JUMP, x, math.nan, math.nan, shots, reason, seen_ok
+    if outcome == ROOT_F_FAILED:
+        return c4, x, math.nan, math.nan, shots, c4, seen_ok
+    return OK, x, rc, slope, shots, reason, seen_ok
 
 
 @njit(cache=True, error_model="numpy")

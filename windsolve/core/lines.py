@@ -34,6 +34,8 @@ import math
 import numpy as np
 from numba import njit
 
+from .roots import search_left, search_right
+
 TWO_PI = 2.0 * math.pi
 SQRT_TWO_PI = math.sqrt(2.0 * math.pi)
 SQRT_TWO = math.sqrt(2.0)
@@ -651,14 +653,7 @@ def _pcygni_nodes(r, dv_tab, rf, vf, lf, K, Rc, df, rhof, s, lo, hi):
     """
     n = r.shape[0]
     # tabulated interval of node lo: the first j with r[j+1] >= rf[lo], at most n - 2
-    a = 0
-    b = n - 1
-    while a < b:
-        mid = (a + b) // 2
-        if r[mid] < rf[lo]:
-            a = mid + 1
-        else:
-            b = mid
+    a = search_left(r, rf[lo], 0, n - 1)
     j = min(max(a - 1, 0), n - 2)
     for i in range(lo, hi):
         while j < n - 2 and r[j + 1] < rf[i]:
@@ -747,16 +742,7 @@ def _pcygni_at(wk, i_first, rf, vf, lf, df, rhof, s, K, Rc, occult):
 @njit(cache=True, error_model="numpy")
 def _first_on_surface(vf, aw):
     """The first sub-interval i with vf[i+1] > aw (vf non-decreasing); m - 1 if none."""
-    m = vf.shape[0]
-    a = 0
-    b = m - 1
-    while a < b:
-        mid = (a + b) // 2
-        if vf[mid + 1] > aw:
-            b = mid
-        else:
-            a = mid + 1
-    return a
+    return search_right(vf, aw, 1, vf.shape[0]) - 1
 
 
 @njit(cache=True, error_model="numpy")
@@ -1087,15 +1073,7 @@ def monotonic_outside(r, v, Rc, rtol):
     rtol * max(v) below the running maximum (then v(r) really falls outward).
     """
     n = r.shape[0]
-    a = 0
-    b = n
-    while a < b:  # searchsorted(r, Rc, side="right")
-        mid = (a + b) // 2
-        if r[mid] <= Rc:
-            a = mid + 1
-        else:
-            b = mid
-    i0 = max(a - 1, 0)
+    i0 = max(search_right(r, Rc, 0, n) - 1, 0)
     tol = rtol * v.max()
     out = v.copy()
     running = v[i0]

@@ -51,6 +51,8 @@ import math
 import numpy as np
 from numba import njit
 
+from .roots import search_right
+
 LAW_ELECTRON_SCATTERING = 0
 LAW_KRAMERS = 1
 LAW_BUMP = 2
@@ -133,15 +135,8 @@ def _find_cell(O, start, n, x, inv_h):
         elif x >= O[start + i + 1] and i < n - 2:
             i += 1
         return i
-    lo = 0
-    hi = n - 1
-    while hi - lo > 1:
-        mid = (lo + hi) >> 1
-        if O[start + mid] <= x:
-            lo = mid
-        else:
-            hi = mid
-    return lo
+    # the nodes g_1 .. g_{n-2} at or below x (g_0 <= x is taken for granted)
+    return search_right(O, x, start + 1, start + n - 1) - start - 1
 
 
 @njit(cache=True, error_model="numpy")
