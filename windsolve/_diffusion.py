@@ -26,7 +26,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .core import diffusion as D
-from .core.constants import C_LIGHT
+from .core.constants import C_LIGHT, R_SUN
 from .core.critical import SADDLE
 
 DELTA = 1e-6  # start this fraction of r_c off the critical point
@@ -125,7 +125,7 @@ def _bracket(P, O, R_ph, L_ph, T_eff, rtol):
         r, rho, T = failures[D.OFF_TABLE]
         raise ModelBFailure(D.OFF_TABLE, f"below the photosphere the solution leaves the "
                                          f"opacity table (e.g. at rho = {rho:.3g} g/cm3, "
-                                         f"T = {T:.3g} K, r = {r / 6.957e10:.4g} Rsun); extend "
+                                         f"T = {T:.3g} K, r = {r / R_SUN:.4g} Rsun); extend "
                                          f"the table or set [opacity] clamp = true")
     raise ModelBFailure(D.INVALID, "no mass-loss rate gives a solution that passes smoothly "
                                    "through a sonic point below this photosphere (Gamma never "
@@ -219,8 +219,8 @@ def _check_above_base(c, T_in, R_in):
                  f"temperature {T_in:.4g} K")
         fix = "raise [boundary] base_temperature above T_c"
     elif c.rc <= R_in:
-        where = (f"the sonic point (r_c = {c.rc / 6.957e10:.4g} Rsun) lies inside "
-                 f"[star] radius = {R_in / 6.957e10:.4g} Rsun")
+        where = (f"the sonic point (r_c = {c.rc / R_SUN:.4g} Rsun) lies inside "
+                 f"[star] radius = {R_in / R_SUN:.4g} Rsun")
         fix = "lower [star] radius below r_c"
     else:
         return

@@ -18,6 +18,7 @@ from typing import TYPE_CHECKING
 import astropy.units as u
 import numpy as np
 
+from .core.constants import R_SUN, SIGMA_SB
 from .errors import ModelError
 
 if TYPE_CHECKING:
@@ -240,7 +241,7 @@ class FamilyResult:
         out = [head]
         mdot = self.column("mass_loss_rate") * (u.g / u.s).to(u.Msun / u.yr)
         vinf = self.column("terminal_velocity") / 1e5
-        rph = self.column("photosphere_radius") / 6.957e10
+        rph = self.column("photosphere_radius") / R_SUN
         teff = self.column("photosphere_temperature")
         tb = self.column("base_temperature")
         for i, m in enumerate(self.members):
@@ -292,7 +293,7 @@ def solve_family(model: "DiffusionWind", scan: str, start: float, stop: float, n
     check_family(model, scan, start, stop, num)
     values = np.geomspace(start, stop, int(num))
     L_ph = model.photosphere_luminosity
-    sigma = 5.6703744191844314e-05
+    sigma = SIGMA_SB
 
     def member_at_temperature(T):
         return solve(model.replace(photosphere_temperature=T * u.K))
@@ -302,7 +303,7 @@ def solve_family(model: "DiffusionWind", scan: str, start: float, stop: float, n
         temps = values
     elif scan == "photosphere_radius":
         L = L_ph.to_value(u.erg / u.s)
-        temps = (L / (4 * math.pi * sigma * (values * 6.957e10) ** 2)) ** 0.25
+        temps = (L / (4 * math.pi * sigma * (values * R_SUN) ** 2)) ** 0.25
     else:
         temps = _temperatures_for_mass_loss_rates(model, values, member_at_temperature)
     for i, T in enumerate(temps):
@@ -448,7 +449,7 @@ def plot_family(result: FamilyResult, path: str | Path) -> str | Path:
     plt = pyplot()
 
     ok = result.converged
-    rph = result.column("photosphere_radius")[ok] / 6.957e10
+    rph = result.column("photosphere_radius")[ok] / R_SUN
     panels = [
         (result.column("mass_loss_rate")[ok] * (u.g / u.s).to(u.Msun / u.yr),
          r"mass-loss rate  $\dot M$  [M$_\odot$ yr$^{-1}$]", "log"),
@@ -463,7 +464,7 @@ def plot_family(result: FamilyResult, path: str | Path) -> str | Path:
     if fixed_radius:  # fixed base radius: its temperature varies
         panels.append((result.column("base_temperature")[ok], "base temperature  [K]", "log"))
     else:  # fixed base temperature: where the envelope reaches it varies
-        panels.append((result.column("base_radius")[ok] / 6.957e10,
+        panels.append((result.column("base_radius")[ok] / R_SUN,
                        r"radius at the base temperature  [R$_\odot$]", "linear"))
     fig, axes = plt.subplots(2, 2, figsize=(10, 7), sharex=True, constrained_layout=True)
     for ax, (y, label, scale) in zip(axes.flat, panels, strict=True):

@@ -29,7 +29,7 @@ from ._units import fast_cgs, format_quantity, plain, to_quantity
 from .core import basics
 from .core import diffusion as diff_kernels
 from .core import isothermal as iso_kernels
-from .core.constants import C_LIGHT, K_B, M_U, SIGMA_SB, G
+from .core.constants import C_LIGHT, K_B, M_U, R_SUN, SIGMA_SB, G
 from .errors import ModelError
 from .opacity import Opacity, nearest
 from .physics import check_composition
@@ -674,7 +674,7 @@ class DiffusionWind(WindModel):
                     f"{plain(self.photosphere_temperature)}")
         if not r < self.MAX_PHOTOSPHERE_RADIUS:
             raise ModelError(f"{where()} put the photosphere at R = sqrt(L/(4 pi sigma T^4)) = "
-                             f"{r / 6.957e10:.4g} Rsun, larger than any star (the limit is "
+                             f"{r / R_SUN:.4g} Rsun, larger than any star (the limit is "
                              f"{self.MAX_PHOTOSPHERE_RADIUS:.0e} cm); raise the temperature "
                              f"or lower the luminosity")
         self._check_outside_horizon(
