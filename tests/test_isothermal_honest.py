@@ -101,6 +101,7 @@ def test_example_without_transonic_solution_exits_2_and_writes_nothing(tmp_path)
     lines = err.strip().splitlines()
     assert len(lines) == 1, err
     assert "no transonic solution" in lines[0]
+    assert "no solution: no" not in lines[0]  # said once, not twice
     assert "base density above base_density" in lines[0]  # the reason, in words
     assert "rtol" not in lines[0]
     assert not (tmp_path / "out.h5").exists()

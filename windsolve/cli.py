@@ -39,7 +39,10 @@ def cmd_run(args):
     result = solve(model)
     if not result.profile:
         # No solution at all: say why in one line (and only there), write nothing.
-        raise WindsolveError(f"no solution: {result.message}")
+        message = result.message
+        if not message.startswith(("no solution", "no transonic solution")):  # said once
+            message = f"no solution: {message}"
+        raise WindsolveError(message)
     if not args.quiet:
         print(f"model: {source}")
         print(result)
