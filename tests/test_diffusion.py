@@ -308,9 +308,12 @@ def test_work_per_solve_is_bounded(bump_result):
     # As scipy's tests bound nfev: the stored points of configs/bump_wind.toml
     # below r_c and from r_c out to the photosphere are the dense-output
     # points plus the integrator's accepted steps, bounded at about 1.5 x the
-    # counts measured on 2026-12-02 (25 and 139).  Model B's counters["shots"]
-    # is still always 0 (issue 11), so the shots of a solve cannot be bounded
-    # yet; bound them here once the counter counts.
+    # counts measured on 2026-12-02 (25 and 139).  Shots: every inward shot from
+    # the photosphere (bracket, bisection, the stored shot, the two dense shots
+    # that find where the bracketing shots agree): 49 measured on 2026-12-02,
+    # bounded at 74; at least the ~40 halvings that take a bracket of order 1 in
+    # ln Mdot down to 1e-14.
+    assert 40 <= bump_result.counters["shots"] <= 74
     r = bump_result.profile["radius"].to_value(u.cm)
     rc = bump_result.summary["sonic_radius"].to_value(u.cm)
     assert 1 <= np.count_nonzero(r < rc) <= 38

@@ -21,6 +21,7 @@ Base anchor (given R0, L0 and T0 or rho0)
 """
 
 import math
+import threading
 from dataclasses import dataclass
 
 import numpy as np
@@ -38,6 +39,23 @@ AGREEMENT_DX = 0.005  # spacing in ln r of the points where the bracketing shots
 PROFILE_STEP = 0.02  # largest step in ln r of stored profiles (as windsolve.solve.MAX_STEP)
 NO_X = np.empty(0)
 NO_Y = np.empty((0, 2))
+
+
+_shots = threading.local()  # per thread: dask workers may solve in several threads at once
+
+
+def reset_shots():
+    """Start counting the inward shots from the photosphere (of this thread) at 0."""
+    _shots.n = 0
+
+
+def shots():
+    """Inward shots from the photosphere run (by this thread) since :func:`reset_shots`."""
+    return getattr(_shots, "n", 0)
+
+
+def _count_shot():
+    _shots.n = getattr(_shots, "n", 0) + 1
 
 
 class ModelBFailure(Exception):
@@ -107,11 +125,13 @@ def _bracket(P, O, R_ph, L_ph, T_eff, rtol):
     x = math.log(mdot_min) + 1e-6
     failures = {}
     sides = (D.SIDE_SONIC, D.SIDE_TURN)
+    _count_shot()
     code_prev = D.shoot_from_photosphere(x, R_ph, L_ph, T_eff, Q, O, rtol)[0]
     step = 0.25
     xs = x
     for _ in range(MAX_SHOTS):
         xs += step
+        _count_shot()
         code, r, v, T = D.shoot_from_photosphere(xs, R_ph, L_ph, T_eff, Q, O, rtol)
         if code not in sides:
             failures[code] = (r, Q[D.I_MDOT] / (4.0 * math.pi * r * r * v), T)
@@ -267,6 +287,7 @@ def _solve_photosphere_anchor(P, O, L_ph, T_eff, rtol, out_x, out_y, max_step):
     # 1e-14 that can flip the side the stored shot falls on.
     while hi - lo > 1e-14 * (1.0 + abs(lo)):
         m = 0.5 * (lo + hi)
+        _count_shot()
         code = D.shoot_stored(m, R_ph, L_ph, T_eff, Q, O, rtol, max_step, NO_X, NO_Y)[0]
         if code == code_lo:
             lo = m
@@ -281,6 +302,7 @@ def _solve_photosphere_anchor(P, O, L_ph, T_eff, rtol, out_x, out_y, max_step):
     if out_x.shape[0] == 0:
         out_x = np.empty(SHOT_CAPACITY)
         out_y = np.empty((SHOT_CAPACITY, 2))
+    _count_shot()
     code, r, v, T, n = D.shoot_stored(x_sonic, R_ph, L_ph, T_eff, Q, O, rtol, max_step,
                                       out_x, out_y)
     if code != D.SIDE_SONIC or n < 2:
@@ -325,6 +347,7 @@ def _agreement_limit(P, O, R_ph, L_ph, T_eff, x_sonic, x_other, rtol, max_step):
     for x in (x_sonic, x_other):
         ox = np.empty(SHOT_CAPACITY)
         oy = np.empty((SHOT_CAPACITY, 2))
+        _count_shot()
         n = D.shoot_dense(x, R_ph, L_ph, T_eff, P.copy(), O, rtol, max_step, AGREEMENT_DX,
                           ox, oy)[4]
         xs.append(ox[:n])

@@ -392,8 +392,9 @@ def _diffusion_failure_result(model, summary, code, text, t0):
     from .core import diffusion as D
     status = {D.OFF_TABLE: "off_table", D.STALLED: "stalled", D.FALLBACK: "fallback",
               D.INVALID: "no_solution", D.SINGULAR: "no_solution"}.get(code, "failed")
+    from . import _diffusion as B
     return WindResult(model, False, status, text, summary,
-                      counters={"shots": 0, "seconds": time.perf_counter() - t0})
+                      counters={"shots": B.shots(), "seconds": time.perf_counter() - t0})
 
 
 def solve_diffusion(model, profile=True):
@@ -409,6 +410,7 @@ def solve_diffusion(model, profile=True):
     from .core.constants import C_LIGHT, G
 
     t0 = time.perf_counter()
+    B.reset_shots()  # every photosphere shot of this solve, base-anchor trials included
     P, O = model.kernel_arrays
     rtol = model.rtol
     M = model.cgs("mass")
@@ -502,7 +504,7 @@ def solve_diffusion(model, profile=True):
                f"{c.rc / R0:.5g} R_base (T_c = {c.Tc:.4g} K); photosphere at "
                f"{R_ph / R_SUN:.4g} Rsun")
     return WindResult(model, True, "converged", message, summary, profile, critical,
-                      {"shots": 0, "seconds": time.perf_counter() - t0})
+                      {"shots": B.shots(), "seconds": time.perf_counter() - t0})
 
 
 def solve(model: "WindModel", profile: bool = True) -> WindResult:
