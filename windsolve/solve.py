@@ -224,11 +224,10 @@ def _isothermal_failure(code, model, P=None, O=None, ln_mdot=math.nan, rc=math.n
     if code in (K.NO_BRACKET_DENSE, K.NO_BRACKET_THIN):
         if P is not None and math.isfinite(ln_mdot):
             return ("no_bracket", _no_bracket_message(code, model, P, O, ln_mdot))
-        if code == K.NO_BRACKET_DENSE:
-            return ("no_bracket", "every mass-loss rate with a critical point gives a base "
-                                  "density above base_density; raise base_density")
-        return ("no_bracket", "every mass-loss rate with a critical point gives a base "
-                              "density below base_density; lower base_density")
+        side = "above" if code == K.NO_BRACKET_DENSE else "below"
+        return ("no_bracket", f"no transonic solution: every mass-loss rate with a critical "
+                              f"point gives a base density {side} base_density (solve this "
+                              f"model alone for the reason and what to change)")
     if code == K.SONIC_ON_BASE:
         where = f" (Mdot = {math.exp(ln_mdot) / MSUN_YR:.4g} Msun/yr)" if math.isfinite(
             ln_mdot) else ""
@@ -256,7 +255,7 @@ def _isothermal_failure(code, model, P=None, O=None, ln_mdot=math.nan, rc=math.n
                       f"numerics.rtol")
 
 
-def solve_isothermal_cgs(model, profile=True, critical=True, widths=None):
+def solve_isothermal_cgs(model, profile=True, critical=True, widths=None, explain=True):
     """Model A in plain cgs floats: what :func:`solve_isothermal` wraps in units.
 
     Returns a dict with ``converged``, ``status``, ``message``, ``summary``
@@ -272,6 +271,10 @@ def solve_isothermal_cgs(model, profile=True, critical=True, widths=None):
     edge) [cm/s], the numbers ``line_widths(solve(model), settings)`` gives,
     measured in one compiled call
     (:func:`windsolve.core.isothermal_lines.outer_state_and_widths`).
+
+    ``explain=False`` (sweep rows) skips the failure diagnostics that tell a
+    single solve why no rate works and what to change: they re-solve the model
+    or scan its admissible rates, about 50 times the cost of a converged row.
     """
     t0 = time.perf_counter()
     P, O = model.kernel_arrays
@@ -299,7 +302,8 @@ def solve_isothermal_cgs(model, profile=True, critical=True, widths=None):
             K.survey(P, O, x_max - K.LN_RANGE, x_max, codes)
             if np.any(codes == K.NO_SADDLE):
                 code = K.NO_SADDLE
-        out["status"], out["message"] = _isothermal_failure(code, model, P, O, ln_mdot, rc)
+        out["status"], out["message"] = _isothermal_failure(code, model, P if explain else None,
+                                                            O, ln_mdot, rc)
         out["counters"]["seconds"] = time.perf_counter() - t0
         return out
     out["ln_mdot"] = ln_mdot

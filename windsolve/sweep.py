@@ -559,7 +559,8 @@ def isothermal_row(model, record, observables):
     from .solve import solve_isothermal_cgs
 
     settings = None if observables is None else _line_settings(observables).cgs
-    raw = solve_isothermal_cgs(model, profile=False, critical=False, widths=settings)
+    raw = solve_isothermal_cgs(model, profile=False, critical=False, widths=settings,
+                               explain=False)
     record["converged"] = raw["converged"]
     record["status"] = raw["status"]
     record["message"] = raw["message"]
