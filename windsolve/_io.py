@@ -51,11 +51,15 @@ def output_error(path, error):
     return OutputError(f"{path}: cannot write ({reason}); {hint}")
 
 
-def check_output_path(path):
-    """OutputError (one line) if ``path`` is a directory or its directory is missing."""
+def check_output_path(path, example=None):
+    """OutputError (one line) if ``path`` is a directory or its directory is missing.
+
+    ``example``: a file name the message suggests for a directory (e.g. "wind.h5").
+    """
     path = Path(path)
     if path.is_dir():
-        raise OutputError(f"{path}: cannot write (it is a directory); give a file name")
+        such = f" such as {example}" if example else ""
+        raise OutputError(f"{path}: cannot write (it is a directory); give a file name{such}")
     if not path.parent.is_dir():
         raise OutputError(f"{path}: cannot write (directory {path.parent} does not exist); "
                           f"create it first or choose another path")

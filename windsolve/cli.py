@@ -57,12 +57,8 @@ def cmd_run(args):
 
 
 def _check_output(path, default_ext):
-    path = Path(path)
-    if path.is_dir():
-        raise WindsolveError(f"output {path} is a directory; give a file name such as "
-                             f"wind{default_ext}")
-    if not path.parent.exists():
-        raise WindsolveError(f"output directory {path.parent} does not exist; create it first")
+    from ._io import check_output_path
+    check_output_path(path, example=f"wind{default_ext}")
 
 
 def cmd_check(args):
