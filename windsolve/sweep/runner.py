@@ -1,0 +1,460 @@
+"""Running a sweep: the output's lock, the journal, the executor loop, the stall check.
+
+:func:`run_sweep` sends batches of rows to an executor (a local process pool
+or a dask cluster), journals every finished batch to ``OUT.h5.partial`` and
+writes the table when every row is done.
+"""
+
+import json
+import logging
+import math
+import os
+import time
+from collections.abc import Mapping
+from concurrent.futures import FIRST_COMPLETED, BrokenExecutor, CancelledError, wait
+from pathlib import Path
+
+from .._version import __version__
+from ..errors import ModelError, OutputError, WindsolveError
+from .spec import Sweep
+from .table import write_sweep_table
+from .worker import _worker_init, journal_batch
+
+# Models per task when the sweep file does not say: the model's
+# ModelSpec.sweep_batch (enough that a task is tens of milliseconds of work;
+# each task costs the main process a few hundred microseconds), and at least
+# four tasks per worker.
+TASKS_PER_WORKER = 4
+
+
+class _BatchLimits(Mapping):
+    """``{kind: ModelSpec.sweep_batch}``, read from the model registry."""
+
+    def __getitem__(self, kind):
+        from ..registry import MODEL_SPECS
+        return MODEL_SPECS[kind].sweep_batch
+
+    def __iter__(self):
+        from ..registry import MODEL_SPECS
+        return iter(MODEL_SPECS)
+
+    def __len__(self):
+        from ..registry import MODEL_SPECS
+        return len(MODEL_SPECS)
+
+
+BATCH_LIMIT = _BatchLimits()
+JOURNAL_SUFFIX = ".partial"
+FSYNC_INTERVAL = 1.0  # [s] the journal is flushed every batch, written to disk this often
+LOCK_SUFFIX = ".lock"  # OUT.h5.lock: held (fcntl.flock) while a sweep writes OUT.h5
+DEFAULT_STALL_TIMEOUT = 600.0  # [s] no batch finished for this long: the sweep stops
+
+
+def _trim_journal(journal):
+    """Cut a last line that a kill left unfinished, so appended lines start clean."""
+    with open(journal, "rb+") as f:
+        data = f.read()
+        if data and not data.endswith(b"\n"):
+            f.truncate(data.rfind(b"\n") + 1)
+
+
+def _read_journal(journal, sweep, design):
+    """Finished rows from a journal written for the same sweep design.
+
+    The header and every record must carry ``design`` (:meth:`Sweep.design_digest`):
+    rows journaled by another sweep (another sweep file, an edited base model,
+    or two runs that once shared an output) refuse the resume instead of
+    entering the table.
+    """
+    done = {}
+    with open(journal, encoding="utf-8", errors="replace") as f:
+        lines = f.read().split("\n")
+    if not lines or not lines[0].strip():
+        return done
+    try:
+        header = json.loads(lines[0])
+    except json.JSONDecodeError:
+        header = None
+    if not isinstance(header, dict) or "sweep" not in header:
+        raise OutputError(f"{journal}: not a windsolve sweep journal; delete it") from None
+    if header.get("sweep") != design or header.get("rows") != len(sweep):
+        raise OutputError(f"{journal} belongs to a different sweep (another sweep file, base "
+                          f"model or design); delete it or write to another output")
+    for number, line in enumerate(lines[1:], start=2):
+        if not line.strip():
+            continue
+        try:
+            record = json.loads(line)
+        except json.JSONDecodeError:
+            continue  # a line cut short by a kill: that row runs again
+        row = record.get("row") if isinstance(record, dict) else None
+        if (record.get("design") if isinstance(record, dict) else None) != design or \
+                not isinstance(row, int) or not 0 <= row < len(sweep):
+            raise OutputError(f"{journal} line {number} holds a row of another sweep (two runs "
+                              f"wrote to one output?); its rows cannot be trusted: delete it "
+                              f"and run the sweep again")
+        done[row] = record
+    return done
+
+
+def _lock_output(out):
+    """Hold an OS lock (fcntl.flock) on ``OUT.lock`` while a sweep writes ``OUT`` and its journal.
+
+    Returns the function that releases it.  A second sweep on the same output
+    gets a one-line OutputError naming the process that holds it.  The kernel
+    drops the lock when its holder dies (even by SIGKILL), so a lock file left
+    by a killed run is harmless; a run that ends removes its lock file.
+    Without fcntl (Windows) there is no lock: the journal's design check still
+    refuses rows of another sweep, but two runs at once are not detected.
+    """
+    try:
+        import fcntl
+    except ImportError:
+        return lambda: None
+    lock = out.with_name(out.name + LOCK_SUFFIX)
+    while True:
+        try:
+            fd = os.open(lock, os.O_RDWR | os.O_CREAT, 0o644)
+        except OSError as error:
+            raise OutputError(f"{lock}: cannot create the sweep's lock file "
+                              f"({error.strerror or error})") from None
+        try:
+            fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except OSError:
+            holder = _lock_holder(fd)
+            os.close(fd)
+            who = f" (pid {holder})" if holder else ""
+            raise OutputError(f"{out} is being written by another windsolve sweep{who}; wait "
+                              f"for it to finish or choose another -o") from None
+        # The holder we waited for may have removed its lock file (and a
+        # third run made a new one): hold the lock of the file at the path.
+        try:
+            same = os.stat(lock).st_ino == os.fstat(fd).st_ino
+        except FileNotFoundError:
+            same = False
+        if same:
+            break
+        os.close(fd)
+    try:
+        os.ftruncate(fd, 0)
+        os.write(fd, f"{os.getpid()}\n".encode())
+    except OSError as error:  # e.g. a disk with no byte free: give the lock back
+        try:
+            lock.unlink()
+        except OSError:
+            pass
+        os.close(fd)
+        raise OutputError(f"{lock}: cannot write the sweep's lock file "
+                          f"({error.strerror or error}); free some space or choose "
+                          f"another -o") from None
+
+    def release():
+        try:
+            lock.unlink()  # while still held: a waiting run then retries on a new file
+        except OSError:
+            pass
+        os.close(fd)
+
+    return release
+
+
+def _lock_holder(fd):
+    """The pid written in a lock file ("" when unreadable)."""
+    for _ in range(20):  # the holder writes its pid just after it takes the lock
+        try:
+            text = os.pread(fd, 32, 0).decode().strip()
+        except (OSError, UnicodeDecodeError):
+            return ""
+        if text.isdigit():
+            return text
+        time.sleep(0.01)
+    return ""
+
+
+def _check_stall_timeout(stall_timeout):
+    """None for no limit (None or 0), else the number of seconds."""
+    if stall_timeout is None:
+        return None
+    try:
+        value = float(stall_timeout)
+    except (TypeError, ValueError):
+        value = math.nan
+    if not (value >= 0 and math.isfinite(value)):
+        raise ModelError(f"stall timeout {stall_timeout!r}: give a number of seconds >= 0 "
+                         f"(0: wait for ever)")
+    return value or None
+
+
+def run_sweep(sweep: Sweep, out: str | Path, workers: int | None = None,
+              scheduler: str | None = None, resume: bool = False, quiet: bool = False,
+              stall_timeout: float | None = DEFAULT_STALL_TIMEOUT
+              ) -> tuple[dict[int, dict], bool]:
+    """Run every row not already done; returns (records by row, interrupted).
+
+    Parameters
+    ----------
+    sweep : Sweep
+        From :func:`load_sweep`.
+    out : str or Path
+        The sweep's HDF5 file, written when every row is done (its layout:
+        docs/physics.md, section 9).  Rows are journaled to ``OUT.h5.partial``
+        as they finish.
+    workers : int, optional
+        Local worker processes (default: one per core).
+    scheduler : str, optional
+        Address of a dask.distributed scheduler to run the rows on instead.
+    resume : bool
+        Finish an interrupted run from its journal (the journal must belong
+        to the same design).
+    quiet : bool
+        No progress bar.
+    stall_timeout : float or None [s]
+        When no batch has finished for this long (a dask cluster that lost
+        its workers, a stuck worker) the sweep stops; ``None`` or 0 waits
+        for ever.
+
+    Returns
+    -------
+    records : dict of int to dict
+        Per finished row: ``converged``, ``status``, ``message``, the summary
+        values in cgs (``mass_loss_rate`` [g/s], ``terminal_velocity``
+        [cm/s], ...) and, with ``[observables]``, the line widths [cm/s].
+    interrupted : bool
+        True after Ctrl-C: the finished rows stay in the journal and the
+        table is not written.
+
+    Raises
+    ------
+    OutputError
+        A journal of an interrupted run exists and ``resume`` is False, the
+        journal belongs to another design, or the output is locked by
+        another running sweep.
+    WindsolveError
+        The sweep stalled for ``stall_timeout`` (the rows finished so far
+        stay in the journal for ``resume=True``).
+
+    Notes
+    -----
+    A row that fails is recorded with its status and message; it never stops
+    the sweep.  The output is locked while the sweep runs (see
+    :func:`_lock_output`).
+    """
+    out = Path(out)
+    stall_timeout = _check_stall_timeout(stall_timeout)
+    release = _lock_output(out)
+    try:
+        return _run_locked(sweep, out, workers, scheduler, resume, quiet, stall_timeout)
+    finally:
+        release()
+
+
+def _one_line(text):
+    return " ".join(str(text).split())
+
+
+def _run_locked(sweep, out, workers, scheduler, resume, quiet, stall_timeout):
+    journal = out.with_name(out.name + JOURNAL_SUFFIX)
+    if journal.exists() and not resume:
+        raise OutputError(f"{journal} holds an interrupted run of a sweep; pass --resume to "
+                          f"finish it, or delete it to start again")
+    design = sweep.design_digest()
+    done = {}
+    if resume and journal.exists():
+        _trim_journal(journal)
+        done = _read_journal(journal, sweep, design)
+    todo = [i for i in range(len(sweep)) if i not in done]
+    executor, close, describe = _executor(workers, scheduler)
+    batch = sweep.batch or _default_batch(sweep.kind, len(todo), workers, scheduler)
+    batches = [todo[k:k + batch] for k in range(0, len(todo), batch)]
+    bar = None
+    if not quiet:
+        from tqdm import tqdm
+        bar = tqdm(total=len(sweep), initial=len(done), unit="model", desc="sweep")
+    converged = sum(1 for r in done.values() if r.get("converged"))
+    interrupted = False
+    aborted = True  # until the loop ends normally or by Ctrl-C
+    pending = set()
+    # Wake up at least once a second (and ten times within a short stall
+    # timeout) to notice and report a sweep in which nothing finishes.
+    tick = 1.0 if stall_timeout is None else min(1.0, max(0.05, stall_timeout / 10))
+    report = 5.0 if stall_timeout is None else min(5.0, stall_timeout / 2)  # [s] of no progress
+    try:
+        with open(journal, "a", encoding="utf-8") as jf:
+            if jf.tell() == 0:
+                jf.write(json.dumps({"sweep": design, "rows": len(sweep),
+                                     "windsolve": __version__}) + "\n")
+                jf.flush()
+            queue = iter(batches)
+            synced = progressed = time.monotonic()
+            stalled_shown = 0
+            # Keep a bounded number of batches in flight, so memory stays flat.
+            limit = max(4 * (workers or os.cpu_count() or 1), 8)
+            try:
+                while True:
+                    while len(pending) < limit:
+                        b = next(queue, None)
+                        if b is None:
+                            break
+                        pending.add(executor.submit(journal_batch, sweep.base,
+                                                    [(i, sweep.rows[i]) for i in b],
+                                                    sweep.profiles, sweep.observables, design))
+                    if not pending:
+                        break
+                    finished, pending = wait(pending, timeout=tick,
+                                             return_when=FIRST_COMPLETED)
+                    now = time.monotonic()
+                    if not finished:
+                        idle = now - progressed
+                        if stall_timeout is not None and idle >= stall_timeout:
+                            where = describe()
+                            raise WindsolveError(
+                                f"no model finished in {stall_timeout:g} s ({where}); the "
+                                f"{len(done)} models finished so far are kept in {journal}: "
+                                f"rerun with --resume once it runs, or allow longer with "
+                                f"--stall-timeout SECONDS")
+                        if bar is not None and int(idle / report) > stalled_shown:
+                            stalled_shown = int(idle / report)
+                            bar.set_postfix_str(f"no model finished for {idle:.0f} s "
+                                                f"({describe()})")
+                        continue
+                    progressed, stalled_shown = now, 0
+                    for fut in finished:
+                        try:
+                            text, records = fut.result()
+                        except BrokenExecutor as error:
+                            raise WindsolveError(
+                                f"a worker process died ({_one_line(error)}); the models "
+                                f"finished so far are kept: rerun with --resume") from None
+                        except CancelledError:
+                            raise WindsolveError(
+                                f"a task was cancelled by the executor ({describe()}: lost "
+                                f"the connection?); the models finished so far are kept in "
+                                f"{journal}: rerun with --resume") from None
+                        except Exception as error:  # noqa: BLE001 -- e.g. dask's KilledWorker
+                            why = ": ".join(filter(None, (type(error).__name__,
+                                                          _one_line(error))))
+                            raise WindsolveError(
+                                f"a task failed on the executor ({why}); the models finished "
+                                f"so far are kept in {journal}: rerun with --resume") from None
+                        jf.write(text)
+                        for record in records:
+                            done[record["row"]] = record
+                            converged += bool(record.get("converged"))
+                        jf.flush()  # in the OS's hands: a killed sweep keeps it
+                        if now - synced >= FSYNC_INTERVAL:  # on the disk: a crash keeps it
+                            os.fsync(jf.fileno())
+                            synced = now
+                        if bar is not None:
+                            bar.update(len(records))
+                            failed = len(done) - converged
+                            bar.set_postfix(converged=converged, failed=failed, refresh=False)
+                aborted = False
+            except KeyboardInterrupt:
+                interrupted, aborted = True, False
+            finally:
+                jf.flush()
+                os.fsync(jf.fileno())
+    finally:
+        if bar is not None:
+            bar.close()  # before any error line is printed
+        close(pending, abort=aborted)
+    if interrupted:
+        return done, True
+    write_sweep_table(sweep, done, out)
+    journal.unlink()
+    return done, False
+
+
+def _default_batch(kind, n_todo, workers, scheduler):
+    """Models per task: the model's ModelSpec.sweep_batch, fewer when that would
+    leave workers idle (fewer than TASKS_PER_WORKER tasks each)."""
+    from ..registry import spec_for
+    n_workers = workers or (8 if scheduler is not None else os.cpu_count() or 1)
+    spread = -(-n_todo // (TASKS_PER_WORKER * n_workers))  # ceil
+    return max(1, min(spec_for(kind).sweep_batch, spread))
+
+
+def _executor(workers, scheduler):
+    """(executor, close, describe): a local process pool or a dask cluster's executor.
+
+    ``close(pending, abort)`` cancels the futures still pending and shuts the
+    executor down (``abort``: also end our local workers now, e.g. a stuck
+    one; a dask cluster's workers are not ours to end); ``describe()`` says
+    in a few words what runs the sweep (for stall reports).
+    """
+    if scheduler is not None:
+        try:
+            from distributed import Client
+        except ImportError:
+            raise WindsolveError("--scheduler needs dask.distributed: pip install "
+                                 "\"windsolve[cluster]\"") from None
+        try:
+            client = Client(scheduler, timeout="10s")
+        except (OSError, TimeoutError) as error:
+            raise WindsolveError(f"cannot reach the dask scheduler at {scheduler} "
+                                 f"({error})") from None
+
+        def describe():
+            # Asked in a daemon thread: a scheduler that hangs must not hang the report.
+            answer = []
+
+            def ask():
+                try:
+                    answer.append(len(client.scheduler_info().get("workers", {})))
+                except Exception:  # noqa: BLE001 -- a report only
+                    pass
+
+            import threading
+            asking = threading.Thread(target=ask, daemon=True)
+            asking.start()
+            asking.join(timeout=3.0)
+            if not answer:
+                return f"the dask scheduler at {scheduler} does not answer"
+            n = answer[0]
+            return f"the dask scheduler at {scheduler} has {n} worker{'s' * (n != 1)}"
+
+        # The client's own log lines ("Couldn't gather keys, rescheduling" when
+        # a worker dies) would land on the progress bar's line; what they mean
+        # is reported by the stall check.  Back to the user's level on close.
+        # Closing the client cancels the futures still pending, for which
+        # dask's executor logs a traceback each ("Exception in callback ...
+        # FutureCancelledError"): quiet too while the sweep runs and closes.
+        quiet_loggers = {name: logging.getLogger(name).level
+                         for name in ("distributed", "distributed.client", "tornado.application")}
+        for name in quiet_loggers:
+            logging.getLogger(name).setLevel(logging.CRITICAL)
+
+        def close(pending=(), abort=False):
+            try:
+                client.close()
+            finally:
+                for name, level in quiet_loggers.items():
+                    logging.getLogger(name).setLevel(level)
+
+        return client.get_executor(), close, describe
+    import multiprocessing
+    from concurrent.futures import ProcessPoolExecutor
+    n = workers or os.cpu_count() or 1
+    # "spawn": workers start clean (no inherited threads or locks) and load
+    # the compiled kernels from numba's on-disk cache.
+    from ..registry import plugin_modules
+    pool = ProcessPoolExecutor(max_workers=n, mp_context=multiprocessing.get_context("spawn"),
+                               initializer=_worker_init,
+                               initargs=(os.getpid(), plugin_modules()))
+
+    def close(pending=(), abort=False):
+        if abort:  # a stuck worker would keep this process from exiting
+            # Kill without cancelling first: the pool then fails every pending future
+            # itself.  (Cancelled futures of a pool that breaks make CPython 3.11's
+            # manager thread print an InvalidStateError traceback.)
+            for process in list((getattr(pool, "_processes", None) or {}).values()):
+                process.kill()  # SIGKILL: ends a stopped or stuck worker too
+            pool.shutdown(wait=False)
+            return
+        for fut in pending:
+            fut.cancel()
+        pool.shutdown(wait=False, cancel_futures=True)
+
+    return pool, close, lambda: f"{n} local worker process{'es' * (n != 1)}"
+
+

@@ -1,0 +1,207 @@
+"""The sweep's HDF5 file: its columns, the writer and the checked reader."""
+
+import json
+import math
+import operator
+from pathlib import Path
+
+import numpy as np
+
+from .spec import AxisView, _wide
+
+
+def _summary_columns():
+    from ..result import SUMMARY_UNITS
+    return list(SUMMARY_UNITS)
+
+
+SUMMARY_COLUMNS = _summary_columns()
+
+
+WIDTH_COLUMNS = ("fwhm", "hwzi", "edge_velocity")
+
+
+
+def axis_views(path):
+    """[AxisView] of a sweep file's axes, in sweep order (older files: the table's units)."""
+    import astropy.units as u
+
+    from .._io import column, dataset_unit, group, open_hdf5
+    views = []
+    with open_hdf5(path) as f:
+        g = group(f, "table", path)
+        for key in _axes_attr(f, path):
+            column(g, key, path)
+            dataset_unit(g, key, path)  # a unit astropy reads
+            d = g[key]
+            cgs = str(d.attrs.get("units", "1"))
+            cgs = "" if cgs in ("1", "none") else cgs
+            shown = str(d.attrs.get("shown_unit", ""))
+            factor, unit = 1.0, cgs
+            if shown and cgs:
+                try:
+                    factor, unit = float(u.Unit(cgs).to(u.Unit(shown))), shown
+                except (ValueError, u.UnitsError):
+                    pass
+            log = bool(d.attrs["log"]) if "log" in d.attrs else _wide(d[()])
+            views.append(AxisView(key, factor, unit, cgs, log))
+    return views
+
+
+
+# -- output --------------------------------------------------------------------------
+
+def write_sweep_table(sweep, records, out):
+    """The sweep's HDF5 file: /table (one dataset per column) and /profiles."""
+    from .._io import dataset, stamp, strings, write_hdf5
+    from ..result import HYDROSTATIC_EFOLDS, SUMMARY_UNITS, _unit_text, write_profile
+
+    n = len(sweep)
+    keys = list(SUMMARY_COLUMNS) + ["seconds"]
+    if sweep.observables is not None:
+        keys += list(WIDTH_COLUMNS)
+    rows = [records[i] for i in range(n)]
+    try:  # one C-level lookup a row when every row has every column (as run_batch makes them)
+        get = operator.itemgetter(*keys)
+        data = np.array([get(row) for row in rows], dtype=float).reshape(n, len(keys))
+    except KeyError:
+        data = np.array([[row.get(key, math.nan) for key in keys] for row in rows],
+                        dtype=float).reshape(n, len(keys))
+    index = {key: j for j, key in enumerate(keys)}
+
+    def column(key):
+        return data[:, index[key]]
+
+    def fill(f):
+        stamp(f, sweep.kind)
+        f.attrs["sweep_toml"] = sweep.text
+        f.attrs["sweep_file"] = str(sweep.path)
+        f.attrs["design"] = sweep.design
+        f.attrs["axes"] = json.dumps([a.key for a in sweep.axes])
+        g = f.create_group("table")
+        for a in sweep.axes:
+            d = dataset(g, a.key, a.numbers, a.unit or "1")
+            d.attrs["shown_unit"] = a.shown_unit
+            d.attrs["log"] = a.log
+        for key in SUMMARY_COLUMNS:
+            dataset(g, key, column(key), _unit_text(SUMMARY_UNITS[key]))
+        if sweep.observables is not None:
+            for key in WIDTH_COLUMNS:
+                dataset(g, key, column(key), "cm / s")
+            f.attrs["observables"] = json.dumps(sweep.observables)
+        dataset(g, "converged", np.array([bool(row.get("converged")) for row in rows]), "1")
+        # (a hydrostatic base, not a wind: see windsolve.result.HYDROSTATIC_EFOLDS)
+        dataset(g, "hydrostatic", np.nan_to_num(column("base_density_efolds"))
+                > HYDROSTATIC_EFOLDS, "1")
+        for key in ("status", "message"):
+            strings(g, key, (row.get(key, "") for row in rows))
+        dataset(g, "seconds", column("seconds"), "s")
+        for i, row in enumerate(rows):
+            if row.get("profile"):
+                write_profile(f.create_group(f"profiles/{i}"), row["profile"])
+
+    return write_hdf5(out, fill)
+
+
+SWEEP_REQUIRED = ("mass_loss_rate", "terminal_velocity")  # numbers of every converged row
+
+
+def read_sweep_table(path: str | Path) -> tuple[dict[str, np.ndarray], dict]:
+    """{column: numpy array} and the root attributes of a sweep file.
+
+    Parameters
+    ----------
+    path : str or Path
+        A sweep's HDF5 file (layout: docs/physics.md, section 9).
+
+    Returns
+    -------
+    table : dict of str to numpy.ndarray
+        One 1-D array per column, row i being model i of the design: the axes
+        by dotted key, the summary values (``mass_loss_rate`` [g/s],
+        ``terminal_velocity`` [cm/s], ``sonic_radius`` [cm], ...), the line
+        widths [cm/s] when measured, ``converged`` and ``status``; summary
+        and width columns in cgs whatever unit the file names.
+    attrs : dict
+        The file's root attributes (sweep file text, version, ...).
+
+    Raises
+    ------
+    OutputError
+        A damaged file, in one line naming the file and column.  Every column
+        is checked: one-dimensional, one length, numbers or text, a unit of
+        the right dimension, finite or NaN, speeds below light, no NaN in a
+        converged row's mass-loss rate and terminal velocity.
+    """
+    import astropy.units as u
+
+    from .._io import (
+        check_photosphere,
+        check_values,
+        column,
+        dataset_unit,
+        group,
+        open_hdf5,
+        require_kind,
+        text_attr,
+    )
+    from ..errors import OutputError
+    from ..models import MODELS
+    from ..result import SUMMARY_POSITIVE, SUMMARY_UNITS
+
+    known = dict(SUMMARY_UNITS, seconds=u.s, **{k: u.cm / u.s for k in WIDTH_COLUMNS})
+    with open_hdf5(path) as f:
+        require_kind(f, path, "sweep", "; compare and plot read it as a whole")
+        kind = text_attr(f.attrs, "model", path, "the file", default="")
+        if "model" in f.attrs and kind not in MODELS:
+            raise OutputError(f"{path}: the model attribute is \"{kind}\", not a windsolve "
+                              f"model kind (one of: {', '.join(MODELS)})")
+        axes = _axes_attr(f, path)
+        g = group(f, "table", path)
+        n = column(g, "converged", path).size
+        if n == 0:
+            raise OutputError(f"{path}: /table has no rows (a sweep has at least one model); "
+                              f"the file is damaged")
+        table = {"converged": column(g, "converged", path, n).astype(bool)}
+        table["status"] = column(g, "status", path, n, text=True)
+        for key in (*axes, *SWEEP_REQUIRED, *g.keys()):
+            if key in table:
+                continue
+            d = g.get(key)
+            if (key not in axes and key not in SWEEP_REQUIRED
+                    and getattr(d, "dtype", None) is not None and d.dtype.kind in "OSU"):
+                table[key] = column(g, key, path, n, text=True)
+                continue
+            values = column(g, key, path, n)
+            where = f"/table/{key}"
+            unit = dataset_unit(g, key, path, known.get(key))
+            check_values(values, path, where, unit, positive=key in SUMMARY_POSITIVE,
+                         allow_nan=key not in axes, cgs=known.get(key))
+            if key in known and unit != known[key]:
+                values = values * unit.to(known[key])
+            if key in SWEEP_REQUIRED and np.isnan(values[table["converged"]]).any():
+                i = int(np.flatnonzero(table["converged"] & np.isnan(values))[0])
+                raise OutputError(f"{path}: {where} is NaN at row {i}, a converged model; "
+                                  f"the file is damaged")
+            table[key] = values
+        if all(f"photosphere_{k}" in table for k in ("luminosity", "radius", "temperature")):
+            check_photosphere(path, "/table", *(table[f"photosphere_{k}"] for k in
+                                                ("luminosity", "radius", "temperature")),
+                              rows=table["converged"])
+        attrs = dict(f.attrs)
+    return table, attrs
+
+
+def _axes_attr(f, path):
+    """The sweep's axis keys from its ``axes`` attribute (a JSON list of names)."""
+    from .._io import text_attr
+    from ..errors import OutputError
+    text = text_attr(f.attrs, "axes", path, "the file")
+    try:
+        axes = json.loads(text)
+    except json.JSONDecodeError:
+        axes = None
+    if not (isinstance(axes, list) and axes and all(isinstance(a, str) for a in axes)):
+        raise OutputError(f"{path}: the axes attribute {text[:40]!r} is not a JSON list of "
+                          f"the swept keys; the file is damaged")
+    return axes
