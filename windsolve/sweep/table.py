@@ -51,8 +51,34 @@ def axis_views(path):
 
 # -- output --------------------------------------------------------------------------
 
+def check_statuses(statuses):
+    """Refuse a row status outside the vocabulary :data:`windsolve.result.STATUSES`.
+
+    Parameters
+    ----------
+    statuses : iterable of str
+        The rows' ``status`` words (a missing one as ``None``).
+
+    Raises
+    ------
+    ValueError
+        A status that is not a key of STATUSES (a solver or a plug-in model
+        reporting a word nobody can look up); the message names it.
+    """
+    from ..result import STATUSES
+    unknown = set(statuses) - STATUSES.keys()
+    if unknown:
+        bad = ", ".join(sorted(repr(s) for s in unknown))
+        raise ValueError(f"sweep row status {bad} is not in windsolve.result.STATUSES; a "
+                         f"solver reports one of {', '.join(STATUSES)}")
+
+
 def write_sweep_table(sweep, records, out):
-    """The sweep's HDF5 file: /table (one dataset per column) and /profiles."""
+    """The sweep's HDF5 file: /table (one dataset per column) and /profiles.
+
+    Raises ValueError (and writes nothing) when a row's status is not in
+    :data:`windsolve.result.STATUSES`.
+    """
     from .._io import dataset, stamp, strings, write_hdf5
     from ..result import HYDROSTATIC_EFOLDS, SUMMARY_UNITS, _unit_text, write_profile
 
@@ -61,6 +87,7 @@ def write_sweep_table(sweep, records, out):
     if sweep.observables is not None:
         keys += list(WIDTH_COLUMNS)
     rows = [records[i] for i in range(n)]
+    check_statuses({row.get("status") for row in rows})
     try:  # one C-level lookup a row when every row has every column (as run_batch makes them)
         get = operator.itemgetter(*keys)
         data = np.array([get(row) for row in rows], dtype=float).reshape(n, len(keys))
