@@ -2,7 +2,7 @@
 
 Run by hand from the repository root (windsolve installed)::
 
-    python benchmarks/bench_sweep.py [N]
+    python benchmarks/bench_sweep.py [N] [--baseline OLD_CHECKOUT [--worker-only]]
 
 Builds a Model A grid sweep of N models (default 2000) around the demo model
 (luminosity x porosity length), and measures in the same run:
@@ -11,7 +11,11 @@ Builds a Model A grid sweep of N models (default 2000) around the demo model
   same row models, summary only, as the workers do);
 * ``windsolve sweep`` with 1 and with 2 local workers (wall time including
   worker start-up, which is reported separately from a 1-model sweep);
-* peak resident memory of a sweep process at 1,000 and 10,000 models.
+* peak resident memory of a sweep process at 1,000 and 10,000 models;
+* with ``--baseline OLD_CHECKOUT``: rows per second of a worker's job
+  (``journal_batch`` over the sweep's rows) with this checkout against the
+  windsolve of OLD_CHECKOUT, each in a fresh process, interleaved, best of
+  REPEATS (``--worker-only``: only that).
 
 Wall times are the shortest of REPEATS runs: on this two-core virtual
 machine a single run varies by 10 % and more.  What two cores can give at
@@ -138,8 +142,66 @@ def machine_scaling(path):
     return run(2) / run(1)
 
 
+WORKER_CODE = """
+import sys, time
+from windsolve.sweep import journal_batch, load_sweep
+sweep = load_sweep(sys.argv[1])
+items = [(i, sweep.rows[i]) for i in range(len(sweep))]
+batch = 200  # Model A's ModelSpec.sweep_batch
+journal_batch(sweep.base, items[:batch], design="bench")  # kernels loaded, base parsed
+best = float("inf")
+for _ in range(int(sys.argv[2])):
+    t0 = time.perf_counter()
+    for k in range(0, len(items), batch):
+        journal_batch(sweep.base, items[k:k + batch], design="bench")
+    best = min(best, time.perf_counter() - t0)
+import windsolve
+print(windsolve.__file__, len(items) / best)
+"""
+
+
+def worker_rows_per_second(path, root, passes=3):
+    """Rows per second of a worker's job (journal_batch over every row of the sweep,
+    in batches of 200, best of ``passes``) with the windsolve of ``root`` (a checkout),
+    in a fresh process."""
+    # Run from the checkout's root: ``python -c`` puts the working directory first on
+    # sys.path, before an editable install of another checkout.
+    res = subprocess.run([sys.executable, "-c", WORKER_CODE, str(path), str(passes)],
+                         check=True, capture_output=True, text=True, cwd=root)
+    where, rate = res.stdout.split()[-2:]
+    if not Path(where).resolve().is_relative_to(Path(root).resolve()):
+        raise RuntimeError(f"the benchmark imported {where}, not the windsolve of {root}")
+    return float(rate)
+
+
+def compare_worker_path(baseline, n=2000, rounds=REPEATS):
+    """Worker-path rows/s of this checkout against ``baseline`` (e.g. a worktree of
+    main: ``git worktree add ../sweep-old 042755c``), interleaved, best of ``rounds``."""
+    with tempfile.TemporaryDirectory() as tmp:
+        path = Path(tmp) / "sweep.toml"
+        path.write_text(sweep_text(max(1, n // 20), 20))
+        new = old = 0.0
+        for _ in range(rounds):
+            old = max(old, worker_rows_per_second(path, baseline))
+            new = max(new, worker_rows_per_second(path, ROOT))
+    print(f"worker path (journal_batch, Model A demo grid of {n} rows, best of {rounds} "
+          f"interleaved): {old:7.0f} rows/s at {baseline}, {new:7.0f} rows/s here: "
+          f"{new / old:.2f}x   (goal >= 1.5x)")
+    return old, new
+
+
 def main():
-    n = int(sys.argv[1]) if len(sys.argv) > 1 else 2000
+    args = sys.argv[1:]
+    baseline = None
+    if "--baseline" in args:
+        k = args.index("--baseline")
+        baseline = args[k + 1]
+        del args[k:k + 2]
+        compare_worker_path(baseline)
+        if "--worker-only" in args:
+            return
+        args = [a for a in args if a != "--worker-only"]
+    n = int(args[0]) if args else 2000
     n_h = 20
     n_l = max(1, n // n_h)
     with tempfile.TemporaryDirectory() as tmp:

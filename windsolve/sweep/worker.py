@@ -95,6 +95,178 @@ def journal_batch(base, items, profiles=False, observables=None, design=None):
     return "".join(json.dumps(record) + "\n" for record in records), records
 
 
+# -- a Model A row from the base model's kernel vectors ------------------------------
+
+FAST_ROWS = True  # False: every row is built by apply_changes (the reference path)
+
+# Model A keys (-> field) whose checked cgs value goes to known slots of the kernel
+# vectors (P, O) and into no cross-field rule of IsothermalWind but the ones
+# :meth:`_FastRows.row` guards.  A row changing any other key (radius, composition,
+# opacity law parameters, ...) is built by apply_changes.
+FAST_KEYS = {
+    "star.mass": "mass",
+    "star.luminosity": "luminosity",
+    "gas.sound_speed": "sound_speed",
+    "gas.temperature": "temperature",
+    "boundary.base_density": "base_density",
+    "numerics.outer_radius": "outer_radius",
+    "numerics.rtol": "rtol",
+    "porosity.length": "porosity_length",
+    "porosity.radial_exponent": "porosity_exponent",
+}
+_FAST_ROWS = {}  # base key -> _FastRows (of the base model in _BASE_CACHE)
+_INVALID = object()
+
+
+def _fast_row(base_key, base_model, changes):
+    """The row as a :class:`_RowModel`, or None: build it with apply_changes."""
+    fast = _FAST_ROWS.get(base_key)
+    if fast is None:
+        from ..models import IsothermalWind
+        if type(base_model) is not IsothermalWind:
+            return None
+        fast = _FAST_ROWS[base_key] = _FastRows(base_model)
+    return fast.row(changes)
+
+
+class _RowModel:
+    """What a Model A row's solve reads of its model, without building the model.
+
+    ``kernel_arrays``, ``rtol``, ``a``, ``T`` and :meth:`cgs` of the fields
+    the solve reads are set from the base model and the row's checked values;
+    anything else (a failure message's wording) builds the row's model once
+    through :func:`apply_changes` and asks it, so a row reads exactly what
+    its model would give.
+    """
+
+    kind = "isothermal"
+
+    def __init__(self, base, changes, arrays, rtol, a, T, cgs):
+        self._base = base
+        self._changes = changes
+        self._full = None
+        self.kernel_arrays = arrays
+        self.rtol = rtol
+        self.a = a
+        self.T = T
+        self._cgs = cgs
+
+    def _model(self):
+        if self._full is None:
+            self._full = apply_changes(self._base, self._changes)
+        return self._full
+
+    def cgs(self, name):
+        value = self._cgs.get(name)
+        return self._model().cgs(name) if value is None else value
+
+    def __getattr__(self, name):  # only for attributes not set above
+        if name.startswith("_"):
+            raise AttributeError(name)
+        return getattr(self._model(), name)
+
+
+class _FastRows:
+    """Model A rows of one base model: (P, O) from the base's, each axis value read once.
+
+    Each distinct value of a key is read and checked once per worker
+    (:meth:`Param.read <windsolve.models.Param.read>`, then its cgs float,
+    the numbers the model itself would hold); a value that fails, or a row
+    that a cross-field rule of :class:`~windsolve.models.IsothermalWind` might
+    refuse (the sound speed reaching c, an overflowing base mass flux, a
+    radius inside 2GM/c^2, an outer radius not beyond the base, both or
+    the other of sound_speed and temperature), goes to apply_changes, which
+    says why exactly as before.  The guards keep a margin, so the rule's
+    own float rounding never decides.
+    """
+
+    def __init__(self, base):
+        from ..core.constants import C_LIGHT, G
+        self.base = base
+        self.params = base.params()
+        self.P, self.O = base.kernel_arrays
+        self.R0 = base.cgs("radius")
+        self.fixed = {"radius": self.R0, "outer_radius": base.cgs("outer_radius"),
+                      "base_density": base.cgs("base_density")}
+        self.gas = "sound_speed" if base.sound_speed is not None else "temperature"
+        self.h = None if base.porosity_length is None else base.cgs("porosity_length")
+        self.q = float(base.porosity_exponent)
+        self.G, self.C = G, C_LIGHT
+        self.numbers = {}  # (key, type, value) -> cgs float, or _INVALID
+
+    def number(self, key, value):
+        """The checked cgs float of a model-file value, or _INVALID."""
+        try:
+            k = (key, type(value), value)
+            hit = self.numbers.get(k)
+        except TypeError:  # unhashable (a table where a number belongs): apply_changes says
+            return _INVALID
+        if hit is None:
+            p = self.params[FAST_KEYS[key]]
+            try:
+                hit = p.cgs(p.read(value))
+            except Exception:  # noqa: BLE001 -- apply_changes gives the row its error
+                hit = _INVALID
+            self.numbers[k] = hit
+        return hit
+
+    def row(self, changes):
+        """A :class:`_RowModel` of the row, or None when apply_changes must build it."""
+        from ..core import basics
+        from ..core import isothermal as K
+        from ..core import opacity as KO
+
+        vals = {}
+        for key, value in changes.items():
+            if key not in FAST_KEYS:
+                return None
+            x = self.number(key, value)
+            if x is _INVALID:
+                return None
+            vals[FAST_KEYS[key]] = x
+        base = self.base
+        a, T = base.a, base.T
+        if "sound_speed" in vals or "temperature" in vals:
+            if self.gas not in vals or len({"sound_speed", "temperature"} & vals.keys()) != 1:
+                return None
+            if self.gas == "sound_speed":  # as IsothermalWind.a and .T compute them
+                a = vals["sound_speed"]
+                T = basics.gas_temperature(a, base.mu)
+            else:
+                T = vals["temperature"]
+                a = basics.isothermal_sound_speed(T, base.mu)
+            if not a < 0.999 * self.C:
+                return None
+        R0 = self.R0
+        cgs = dict(self.fixed)
+        cgs.update(vals)
+        if ("base_density" in vals or a != base.a) and not (
+                4.0 * math.pi * R0 * R0 * cgs["base_density"] * a < 1e300):
+            return None
+        if "mass" in vals and not R0 > 1.000001 * 2.0 * self.G * vals["mass"] / (
+                self.C * self.C):
+            return None
+        if "outer_radius" in vals and not vals["outer_radius"] > 1.000001 * R0:
+            return None
+        P = self.P.copy()
+        if "mass" in vals:
+            P[K.I_GM] = self.G * vals["mass"]
+        P[K.I_A2] = a ** 2
+        P[K.I_T] = T
+        if "luminosity" in vals:
+            P[K.I_L0] = vals["luminosity"]
+        if "base_density" in vals:
+            P[K.I_RHO0] = vals["base_density"]
+        if "outer_radius" in vals:
+            P[K.I_ROUT] = vals["outer_radius"]
+        O = self.O.copy()
+        h = vals.get("porosity_length", self.h)
+        if h is not None:  # (h0, R0, q) as IsothermalWind.kernel_arrays packs them
+            O[KO.SLOT_H0], O[KO.SLOT_R0], O[KO.SLOT_Q] = (
+                h, R0, float(vals.get("porosity_exponent", self.q)))
+        return _RowModel(base, changes, (P, O), vals.get("rtol", base.rtol), a, T, cgs)
+
+
 def run_batch(base, items, profiles=False, observables=None):
     """Solve a batch of rows in a worker: base model file, [(row, changes)] -> records.
 
@@ -117,8 +289,15 @@ def run_batch(base, items, profiles=False, observables=None):
         try:
             if base_key not in _BASE_CACHE:  # parse the base once per worker
                 _BASE_CACHE.clear()
+                _FAST_ROWS.clear()
                 _BASE_CACHE[base_key] = model_from_dict(base, source="sweep base")
-            model = apply_changes(_BASE_CACHE[base_key], changes)
+            model = None
+            if not profiles and FAST_ROWS:
+                # A row changing only keys with known kernel-vector slots: its (P, O)
+                # from the base model's, not the model rebuilt and checked again.
+                model = _fast_row(base_key, _BASE_CACHE[base_key], changes)
+            if model is None:
+                model = apply_changes(_BASE_CACHE[base_key], changes)
             solve_row = spec_for(model).solve_row
             if solve_row is not None and not profiles:
                 # No stored profiles: the model's unit-free solve, plain floats all the way.
