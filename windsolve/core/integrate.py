@@ -3,11 +3,14 @@
 The layout follows ``scipy.integrate._ivp``: a stepper owns one step, a
 driver owns the loop and the result, and tuning constants are the upper-case
 module names scipy uses.  Unlike ``solve_ivp`` the right-hand side and the
-stop test are compiled in: :func:`make_integrator` builds, once per model at
+stop test are compiled in: :func:`make_integrator` (array state) and
+:func:`make_scalar_integrator` (one float) build, once per model at
 import time, an integrator closed over that model's ``rhs`` and ``monitor``,
 so a whole shooting leg runs without touching the interpreter (a few
 microseconds instead of about a millisecond).  (Passing the functions as
-arguments instead stops numba from caching the callers on disk.)
+arguments instead stops numba from caching the callers on disk.)  Both
+are the one driver :func:`_make_driver` -- one loop, one step-size control,
+one output -- compiled with the state's operations of their kind.
 
 Signatures expected from the model:
 
@@ -164,7 +167,11 @@ def interpolate(F, y_old, t, out_y, row):
 
 
 def make_integrator(rhs, monitor):
-    """Return a compiled ``integrate`` closed over ``rhs`` and ``monitor``."""
+    """Return a compiled ``integrate`` closed over ``rhs`` and ``monitor``.
+
+    The state ``y`` is a float64 array (``rhs(x, y, P, O, dydx)`` writes
+    into ``dydx``); the loop is :func:`_make_driver`'s, the steps below.
+    """
 
     @njit(cache=True, error_model="numpy")
     def dense_coefficients(x, y, y_new, f_new, h, P, O, K, F, y_stage, f_stage):
@@ -221,111 +228,49 @@ def make_integrator(rhs, monitor):
         for j in range(n):
             K[N_STAGES, j] = f_new[j]
 
+    # The work space is (K, F, y_new, f_new, y_stage, f_stage).
     @njit(cache=True, error_model="numpy")
-    def integrate(x0, y0, x_end, P, O, rtol, atol, h_start, max_step,
-                  out_x, out_y, dx_out=0.0):
-        """Integrate y' = rhs(x, y) from x0 to x_end (either direction).
-
-        Parameters
-        ----------
-        x0, x_end : float
-            Start and end of the interval; ``x_end < x0`` integrates backwards.
-        y0 : float64[n]
-            Initial state (copied).
-        rtol, atol : float
-            Error tolerances, per component ``atol + rtol * |y|``.
-        h_start : float
-            First trial step size (positive; the direction is taken from x_end).
-        max_step : float
-            Largest step size allowed (use ``np.inf`` for none).  Limits the
-            spacing of stored points.
-        out_x, out_y : float64[m], float64[m, n]
-            Storage for accepted points, starting with (x0, y0).  Pass arrays of
-            length 0 to store nothing.  Storage stops silently when full.
-        dx_out : float
-            0 (default): store every accepted step.  > 0: store, besides
-            the steps, the points x0 + k dx_out (in the direction of
-            integration) from the steps' 7th-order dense output, so that
-            the output is at least that fine without limiting the steps.
-
-        Returns
-        -------
-        status : int
-            ``REACHED_END``, ``STEP_TOO_SMALL``, ``TOO_MANY_STEPS`` or the
-            monitor's non-zero code.
-        x, y : float, float64[n]
-            The last accepted point.
-        n_out : int
-            Number of points stored.
-        nfev : int
-            Right-hand-side evaluations.
-        """
+    def begin(x, y0, P, O):
         n = y0.shape[0]
-        direction = 1.0 if x_end >= x0 else -1.0
-        x = x0
         y = y0.copy()
         f = np.empty(n)
         rhs(x, y, P, O, f)
-        nfev = 1
-        K = np.empty((N_STAGES_EXTENDED, n))
-        F = np.empty((INTERPOLATOR_POWER, n))
-        y_new = np.empty(n)
-        f_new = np.empty(n)
-        y_stage = np.empty(n)
-        f_stage = np.empty(n)
-        capacity = out_x.shape[0]
-        n_out = 0
-        if capacity > 0:
-            out_x[0] = x
-            for j in range(n):
-                out_y[0, j] = y[j]
-            n_out = 1
-        dense = dx_out > 0.0
-        k_next = 1  # index of the next dense output point x0 + k dx_out
-        h_abs = min(abs(h_start), max_step)
-        steps = 0
-        while direction * (x_end - x) > 0.0:
-            min_step, h_abs = step_bounds(x, direction, h_abs, max_step)
-            accepted = False
-            rejected = False
-            while not accepted:
-                steps += 1
-                if steps > MAX_STEPS:
-                    return TOO_MANY_STEPS, x, y, n_out, nfev
-                if h_abs < min_step:
-                    return STEP_TOO_SMALL, x, y, n_out, nfev
-                x_new, h = trial_point(x, h_abs, direction, x_end)
-                h_abs = abs(h)
-                dop853_step(x, y, f, h, P, O, K, y_new, f_new, y_stage, f_stage)
-                nfev += N_STAGES
-                en = error_norm(K, h, y, y_new, rtol, atol)
-                h_abs, accepted, rejected = next_step(en, h_abs, rejected)
-            if dense and n_out < capacity:
-                x_k = x0 + direction * k_next * dx_out
-                if direction * (x_new - x_k) > 0.0:
-                    dense_coefficients(x, y, y_new, f_new, h, P, O, K, F, y_stage, f_stage)
-                    nfev += N_STAGES_EXTENDED - N_STAGES - 1
-                while direction * (x_new - x_k) > 0.0 and n_out < capacity:
-                    interpolate(F, y, (x_k - x) / h, out_y, n_out)
-                    out_x[n_out] = x_k
-                    n_out += 1
-                    k_next += 1
-                    x_k = x0 + direction * k_next * dx_out
-            x = x_new
-            for j in range(n):
-                y[j] = y_new[j]
-                f[j] = f_new[j]
-            code = monitor(x, y, P, O)
-            if n_out < capacity:
-                out_x[n_out] = x
-                for j in range(n):
-                    out_y[n_out, j] = y[j]
-                n_out += 1
-            if code != 0:
-                return code, x, y, n_out, nfev
-        return REACHED_END, x, y, n_out, nfev
+        work = (np.empty((N_STAGES_EXTENDED, n)), np.empty((INTERPOLATOR_POWER, n)),
+                np.empty(n), np.empty(n), np.empty(n), np.empty(n))
+        return y, f, work
 
-    return integrate
+    @njit(cache=True, error_model="numpy")
+    def step(x, y, f, h, P, O, work):
+        K, F, y_new, f_new, y_stage, f_stage = work
+        dop853_step(x, y, f, h, P, O, K, y_new, f_new, y_stage, f_stage)
+        return y_new, f_new
+
+    @njit(cache=True, error_model="numpy")
+    def norm(work, h, y, y_new, rtol, atol):
+        return error_norm(work[0], h, y, y_new, rtol, atol)
+
+    @njit(cache=True, error_model="numpy")
+    def dense(x, y, y_new, f_new, h, P, O, work):
+        K, F, _, _, y_stage, f_stage = work
+        dense_coefficients(x, y, y_new, f_new, h, P, O, K, F, y_stage, f_stage)
+
+    @njit(cache=True, error_model="numpy")
+    def store_dense(work, y, t, out_y, row):
+        interpolate(work[1], y, t, out_y, row)
+
+    @njit(cache=True, error_model="numpy")
+    def store(out_y, row, y):
+        for j in range(y.shape[0]):
+            out_y[row, j] = y[j]
+
+    @njit(cache=True, error_model="numpy")
+    def accept(y, f, y_new, f_new):
+        for j in range(y.shape[0]):
+            y[j] = y_new[j]
+            f[j] = f_new[j]
+        return y, f
+
+    return _make_driver(monitor, begin, step, norm, dense, store_dense, store, accept)
 
 
 def make_scalar_integrator(rhs, monitor):
@@ -334,14 +279,23 @@ def make_scalar_integrator(rhs, monitor):
     ``rhs(x, y, P, O) -> dy/dx`` and ``monitor(x, y, P, O) -> int`` take a
     float ``y``; the returned ``integrate`` has the signature and results of
     the general one with ``y0``, ``y`` floats and ``out_y`` one-dimensional.
-    Same method, same step-size control, the same numbers (bit for bit on
-    Model A's legs); but no arrays in the inner loop: the array driver takes
-    1.1-1.3x as long per Model A leg (benchmarks/bench_dop853_drivers.py).
+    The same driver (:func:`_make_driver`: the same loop, step-size control
+    and output), specialised with steps on floats: no arrays in the inner
+    loop.  A one-element array state through :func:`make_integrator` gives
+    the same numbers bit for bit but takes 1.1-1.3x as long per Model A leg
+    (benchmarks/bench_dop853_drivers.py).
     """
 
+    # The work space is (K, F): the stages and the interpolant's coefficients.
     @njit(cache=True, error_model="numpy")
-    def step(x, y, f, h, P, O, K):
+    def begin(x, y0, P, O):
+        work = (np.empty(N_STAGES_EXTENDED), np.empty(INTERPOLATOR_POWER))
+        return y0, rhs(x, y0, P, O), work
+
+    @njit(cache=True, error_model="numpy")
+    def step(x, y, f, h, P, O, work):
         """One DOP853 step from (x, y) with derivative f: (y_new, f_new); fills K."""
+        K = work[0]
         K[0] = f
         for s in range(1, N_STAGES):
             acc = 0.0
@@ -357,8 +311,13 @@ def make_scalar_integrator(rhs, monitor):
         return y_new, f_new
 
     @njit(cache=True, error_model="numpy")
-    def dense(x, y, y_new, f_new, h, P, O, K, F):
+    def norm(work, h, y, y_new, rtol, atol):
+        return error_norm_scalar(work[0], h, y, y_new, rtol, atol)
+
+    @njit(cache=True, error_model="numpy")
+    def dense(x, y, y_new, f_new, h, P, O, work):
         """The step's interpolant into F (as ``dense_coefficients``, one component)."""
+        K, F = work
         for e in range(N_STAGES_EXTENDED - N_STAGES - 1):
             s = N_STAGES + 1 + e
             acc = 0.0
@@ -376,23 +335,83 @@ def make_scalar_integrator(rhs, monitor):
             F[3 + i] = h * acc
 
     @njit(cache=True, error_model="numpy")
+    def store_dense(work, y, t, out_y, row):
+        out_y[row] = interpolate_scalar(work[1], y, t)
+
+    @njit(cache=True, error_model="numpy")
+    def store(out_y, row, y):
+        out_y[row] = y
+
+    @njit(cache=True, error_model="numpy")
+    def accept(y, f, y_new, f_new):
+        return y_new, f_new
+
+    return _make_driver(monitor, begin, step, norm, dense, store_dense, store, accept)
+
+
+def _make_driver(monitor, begin, step, norm, dense, store_dense, store, accept):
+    """The one DOP853 driver: the loop, step-size control and output, compiled
+    with the state's operations (array or float) chosen by the caller.
+
+    ``begin(x0, y0, P, O) -> (y, f, work)`` makes the state, its derivative
+    and the work space; ``step`` one trial step -> ``(y_new, f_new)``;
+    ``norm`` its error norm; ``dense`` the step's interpolant into the work
+    space; ``store_dense`` / ``store`` write an interpolated / accepted state
+    into ``out_y[row]``; ``accept(y, f, y_new, f_new) -> (y, f)`` moves the
+    accepted step into the state.
+    """
+
+    @njit(cache=True, error_model="numpy")
     def integrate(x0, y0, x_end, P, O, rtol, atol, h_start, max_step,
                   out_x, out_y, dx_out=0.0):
-        """Integrate y' = rhs(x, y) for one float y (see ``make_integrator``)."""
+        """Integrate y' = rhs(x, y) from x0 to x_end (either direction).
+
+        Parameters
+        ----------
+        x0, x_end : float
+            Start and end of the interval; ``x_end < x0`` integrates backwards.
+        y0 : float64[n] (or float, one-equation driver)
+            Initial state (copied).
+        rtol, atol : float
+            Error tolerances, per component ``atol + rtol * |y|``.
+        h_start : float
+            First trial step size (positive; the direction is taken from x_end).
+        max_step : float
+            Largest step size allowed (use ``np.inf`` for none).  Limits the
+            spacing of stored points.
+        out_x, out_y : float64[m], float64[m, n] (float64[m], one equation)
+            Storage for accepted points, starting with (x0, y0).  Pass arrays of
+            length 0 to store nothing.  Storage stops silently when full.
+        dx_out : float
+            0 (default): store every accepted step.  > 0: store, besides
+            the steps, the points x0 + k dx_out (in the direction of
+            integration) from the steps' 7th-order dense output, so that
+            the output is at least that fine without limiting the steps.
+
+        Returns
+        -------
+        status : int
+            ``REACHED_END``, ``STEP_TOO_SMALL``, ``TOO_MANY_STEPS`` or the
+            monitor's non-zero code.
+        x, y : float, float64[n] (or float)
+            The last accepted point.
+        n_out : int
+            Number of points stored.
+        nfev : int
+            Right-hand-side evaluations.
+        """
         direction = 1.0 if x_end >= x0 else -1.0
         x = x0
-        y = y0
-        f = rhs(x, y, P, O)
+        y, f, work = begin(x, y0, P, O)
         nfev = 1
-        K = np.empty(N_STAGES_EXTENDED)
-        F = np.empty(INTERPOLATOR_POWER)
         capacity = out_x.shape[0]
         n_out = 0
         if capacity > 0:
             out_x[0] = x
-            out_y[0] = y
+            store(out_y, 0, y)
             n_out = 1
-        k_next = 1
+        with_dense = dx_out > 0.0
+        k_next = 1  # index of the next dense output point x0 + k dx_out
         h_abs = min(abs(h_start), max_step)
         steps = 0
         while direction * (x_end - x) > 0.0:
@@ -407,28 +426,27 @@ def make_scalar_integrator(rhs, monitor):
                     return STEP_TOO_SMALL, x, y, n_out, nfev
                 x_new, h = trial_point(x, h_abs, direction, x_end)
                 h_abs = abs(h)
-                y_new, f_new = step(x, y, f, h, P, O, K)
+                y_new, f_new = step(x, y, f, h, P, O, work)
                 nfev += N_STAGES
-                en = error_norm_scalar(K, h, y, y_new, rtol, atol)
+                en = norm(work, h, y, y_new, rtol, atol)
                 h_abs, accepted, rejected = next_step(en, h_abs, rejected)
-            if dx_out > 0.0 and n_out < capacity:
+            if with_dense and n_out < capacity:
                 x_k = x0 + direction * k_next * dx_out
                 if direction * (x_new - x_k) > 0.0:
-                    dense(x, y, y_new, f_new, h, P, O, K, F)
+                    dense(x, y, y_new, f_new, h, P, O, work)
                     nfev += N_STAGES_EXTENDED - N_STAGES - 1
                 while direction * (x_new - x_k) > 0.0 and n_out < capacity:
+                    store_dense(work, y, (x_k - x) / h, out_y, n_out)
                     out_x[n_out] = x_k
-                    out_y[n_out] = interpolate_scalar(F, y, (x_k - x) / h)
                     n_out += 1
                     k_next += 1
                     x_k = x0 + direction * k_next * dx_out
             x = x_new
-            y = y_new
-            f = f_new
+            y, f = accept(y, f, y_new, f_new)
             code = monitor(x, y, P, O)
             if n_out < capacity:
                 out_x[n_out] = x
-                out_y[n_out] = y
+                store(out_y, n_out, y)
                 n_out += 1
             if code != 0:
                 return code, x, y, n_out, nfev
