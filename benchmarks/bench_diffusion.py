@@ -10,7 +10,7 @@ L_ph = 2e5 Lsun, T_eff = 5e4 K, X = 0.7, Z = 0.02, bump opacity with A = 3 at
 :func:`windsolve.load_model`.  Timed, as medians of ``time.perf_counter``
 after a warm-up call:
 
-(a) :func:`windsolve._diffusion.solve_photosphere_anchor` (the compiled
+(a) :func:`windsolve.models.diffusion.shooting.solve_photosphere_anchor` (the compiled
     shooting, bisection and critical-point refinement; no step limit),
 (b) :func:`windsolve.solve` on the model (the same solve with the stored
     profile's step limit, plus the subsonic leg, profile and units),
@@ -37,8 +37,8 @@ from scipy_reference_diffusion import _Wind, solve_reference  # this script's fo
 from timing import median_ms  # this script's folder
 
 import windsolve
-from windsolve import _diffusion as B
-from windsolve.core import diffusion as D
+from windsolve.models.diffusion import kernels as D
+from windsolve.models.diffusion import shooting as B
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 CONFIG = os.path.join(ROOT, "configs", "bump_wind.toml")

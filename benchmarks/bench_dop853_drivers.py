@@ -4,7 +4,7 @@ Run by hand from the repository root::
 
     PYTHONPATH=. python benchmarks/bench_dop853_drivers.py
 
-The same right-hand side and monitor (``core.isothermal.rhs_radius``,
+The same right-hand side and monitor (``models.isothermal.kernels.rhs_radius``,
 ``monitor_inward``) wrapped for ``make_integrator`` (state as a 1-element
 array), integrated from the converged critical point of each config down to
 R0.  Prints the evaluation counts (equal), whether the end states agree bit
@@ -20,8 +20,8 @@ import numpy as np
 from numba import njit
 
 import windsolve
-from windsolve.core import isothermal as K
 from windsolve.core.integrate import make_integrator
+from windsolve.models.isothermal import kernels as K
 
 
 @njit(error_model="numpy")

@@ -37,9 +37,9 @@ from scipy.special import lambertw
 from scipy_reference import effective_opacity, solve_reference  # this script's folder
 from timing import median_ms  # this script's folder
 
-from windsolve.core import isothermal as iso
 from windsolve.core import opacity as op
 from windsolve.core.constants import C_LIGHT, M_U, SIGMA_T, G
+from windsolve.models.isothermal import kernels as iso
 
 RTOL = 1e-8
 DELTA = 1e-6
@@ -114,7 +114,7 @@ def import_time_s():
     root = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
     env["PYTHONPATH"] = root + os.pathsep + env.get("PYTHONPATH", "")
     t0 = time.perf_counter()
-    subprocess.run([sys.executable, "-c", "import windsolve.core.isothermal"],
+    subprocess.run([sys.executable, "-c", "import windsolve.models.isothermal.kernels"],
                    check=True, env=env)
     return time.perf_counter() - t0
 
@@ -177,7 +177,8 @@ def main():
     print(f"  opacity laws, reference vs kernel: max rel diff {opacity_agreement():.1e}")
     print(f"goal: <= {GOAL_MS:g} ms median, >= {GOAL_RATIO:g}x "
           f"(slowest windsolve median here: {worst:.3f} ms)")
-    print(f"subprocess 'import windsolve.core.isothermal': {import_time_s():.2f} s (info)")
+    print(f"subprocess 'import windsolve.models.isothermal.kernels': "
+          f"{import_time_s():.2f} s (info)")
     api_ms()
 
 

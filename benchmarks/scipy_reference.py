@@ -1,7 +1,7 @@
 """A deliberately plain scipy reference for the Model A (isothermal) solve.
 
 This module solves the same eigenvalue problem as
-:func:`windsolve.core.isothermal.solve`, from the same parameter vectors
+:func:`windsolve.models.isothermal.kernels.solve`, from the same parameter vectors
 ``P`` and ``O``, the way a one-off shooting script would: a Python
 right-hand side handed to :func:`scipy.integrate.solve_ivp` (``DOP853``), the
 critical point found by a numpy scan refined with :func:`scipy.optimize.brentq`,
@@ -46,9 +46,9 @@ import numpy as np
 from scipy.integrate import solve_ivp
 from scipy.optimize import brentq
 
-from windsolve.core import isothermal as iso
 from windsolve.core import opacity as op
 from windsolve.core.constants import C_LIGHT
+from windsolve.models.isothermal import kernels as iso
 
 FOUR_PI = 4.0 * math.pi
 N_GRID = iso.N_GRID
@@ -281,7 +281,7 @@ def solve_reference(P, O, rtol=1e-8, delta=1e-6, bracket=None):
     ----------
     P : ndarray of float64
         Model A parameter vector (slots ``I_*`` of
-        :mod:`windsolve.core.isothermal`, cgs); the trial slots are ignored.
+        :mod:`windsolve.models.isothermal.kernels`, cgs); the trial slots are ignored.
     O : ndarray of float64
         Opacity vector (:mod:`windsolve.core.opacity`).
     rtol : float

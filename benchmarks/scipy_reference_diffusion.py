@@ -1,6 +1,6 @@
 """A deliberately plain scipy reference for the photosphere-anchored Model B solve.
 
-Solves the problem of :func:`windsolve._diffusion.solve_photosphere_anchor`,
+Solves the problem of :func:`windsolve.models.diffusion.shooting.solve_photosphere_anchor`,
 from the same vectors ``P, O`` (``model.kernel_arrays``), the way a one-off
 shooting script would: a plain-Python right-hand side (floats, :mod:`math`)
 in :func:`scipy.integrate.solve_ivp` (``DOP853``) with terminal events, and
@@ -44,10 +44,10 @@ import numpy as np
 from scipy.integrate import solve_ivp
 from scipy.optimize import brentq
 
-from windsolve import _diffusion as B
-from windsolve.core import diffusion as D
 from windsolve.core import opacity as op
 from windsolve.core.constants import A_RAD, C_LIGHT, SIGMA_SB
+from windsolve.models.diffusion import kernels as D
+from windsolve.models.diffusion import shooting as B
 
 FOUR_PI = 4.0 * math.pi
 RTOL_SCIPY = 1e-13  # solve_ivp's relative tolerance (the kernel uses 0; see above)
@@ -224,7 +224,7 @@ def shoot(w, ln_mdot, R, L, T, rtol):
 
 
 def bracket(w, R, L, T, rtol, count):
-    """(lo, hi, code at lo) in ln Mdot, as windsolve._diffusion._bracket."""
+    """(lo, hi, code at lo) in ln Mdot, as windsolve.models.diffusion.shooting._bracket."""
     W = 2.0 * w.GM * (1.0 - w.KES * L / (FOUR_PI * C_LIGHT * w.GM)) / R
     mdot_min = FOUR_PI * R * math.sqrt(W) / (3.0 * w.KES) if W > 0 else 1e-30
     x = xs = math.log(mdot_min) + 1e-6
@@ -252,7 +252,8 @@ def short_outward(c, vc, p, dTdr, rc, Tc, r_target, rtol):
 
 
 def refine_critical(w, ln_mdot, stop, tie, rtol):
-    """(r_c, T_c) nearest the stop, tied to the shot (as windsolve._diffusion._refine_critical)."""
+    """(r_c, T_c) nearest the stop, tied to the shot
+    (as windsolve.models.diffusion.shooting._refine_critical)."""
     mdot = math.exp(ln_mdot)
     r_s, v_s, T_s = stop
     rc, Tc = r_s, T_s

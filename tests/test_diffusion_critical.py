@@ -4,7 +4,7 @@ Issue 10, items 1 and 3.  (d) invariants: a weakly repelling saddle, where
 the converged inward shot leaves the separatrix far outside its stop, must
 give a critical point that does not depend on how far out it is tied to the
 shot; the critical conditions N = 0 and D = 0 recomputed from the equations
-of docs/physics.md, section 5 (the docstring of windsolve.core.diffusion) at the
+of docs/physics.md, section 5 (the docstring of windsolve.models.diffusion.kernels) at the
 reported point; a written profile that increases strictly in r and that
 `windsolve lines` accepts.  (e) a sonic point hotter than the requested base
 temperature is "no solution" (exit 2, one line, nothing written).
@@ -23,8 +23,8 @@ import pytest
 
 import windsolve
 from windsolve import DiffusionWind
-from windsolve import _diffusion as B
 from windsolve.cli import main
+from windsolve.models.diffusion import shooting as B
 
 BENCHMARKS = Path(__file__).resolve().parent.parent / "benchmarks"
 CONFIGS = Path(__file__).resolve().parent.parent / "configs"

@@ -263,7 +263,7 @@ def test_critical_point_beyond_outer_radius_is_reported():
 def test_second_singular_point_detected_by_monitor():
     # A supersonic flow decelerating back to v = a with N < 0 must stop with
     # the "second singular point" code rather than integrate through it.
-    from windsolve.core import isothermal as K
+    from windsolve.models.isothermal import kernels as K
     model, rc, a = parker_model(0.5)
     P, O = model.kernel_arrays
     Q = K.set_mass_loss_rate(P, math.log(1e10))
@@ -295,7 +295,7 @@ def test_only_nodes_and_foci_reported_as_no_saddle():
     # densest and falls outward, so N(r, a) crosses zero downward (dN/dr < 0):
     # a node or focus, never a saddle, and the Parker point lies beyond the
     # outer radius.  No transonic wind; the result must say why.
-    from windsolve.core import isothermal as K
+    from windsolve.models.isothermal import kernels as K
     model = IsothermalWind(name="no saddle test", mass="10 Msun", radius="10 Rsun",
                            luminosity="1e5 Lsun", temperature="1e4 K",
                            base_density="1e-6 g/cm3", opacity={"law": "kramers"},

@@ -3,7 +3,7 @@ is flagged, and the messages name the real cause (issue 10, items 2 and 4, two m
 
 Tiers: (d) no result is accepted whose sonic point sits on the base; (a)/(b) outside
 checks -- the critical-point condition and the subsonic branch evaluated here from the
-equations in the docstring of ``windsolve.core.isothermal`` (Parker 1958 with a radiative
+equations in the docstring of ``windsolve.models.isothermal.kernels`` (Parker 1958 with a radiative
 force, photon tiring as Owocki & Gayley 1997, porosity as Owocki, Gayley & Shaviv 2004,
 eq. 4) with scipy; Parker's isothermal wind in closed form (Lamers & Cassinelli 1999,
 "Introduction to Stellar Winds", ch. 3; Cranmer 2004, Am. J. Phys. 72, 1397); (e) the

@@ -142,7 +142,7 @@ measure with the same kernels; :func:`line_widths` resolves its input and
 calls :func:`widths_cgs`, the astropy-free entry point for sweep workers.
 A Model A sweep worker goes one step further: the kernel that finishes the
 solution also measures its widths
-(:func:`windsolve.core.isothermal_lines.outer_state_and_widths`), from the
+(:func:`windsolve.models.isothermal.width_kernels.outer_state_and_widths`), from the
 same profile points, so its numbers are those of ``line_widths(solve(m))``.
 The emission profile is a suffix sum of exact per-sub-interval integrals
 when v(r) rises outward (O(m + N_w) for m sub-intervals and N_w
@@ -208,7 +208,7 @@ class LineSettingsCGS(NamedTuple):
     that call :func:`widths_cgs` many times pay no astropy cost per call.
     The fields are in the order of the line arguments of the kernels
     :func:`windsolve.core.lines.line_widths` and
-    :func:`windsolve.core.isothermal_lines.outer_state_and_widths`.
+    :func:`windsolve.models.isothermal.width_kernels.outer_state_and_widths`.
     """
 
     emissivity_power: float

@@ -75,7 +75,7 @@ def model_from_dict(data: dict, source: str = "model") -> "WindModel":
         the nearest valid one), a value without a unit or with the wrong
         dimension, or an inconsistent model.
     """
-    from .models import MODELS
+    from .registry import MODELS
     kind = data.get("model")
     if kind is None:
         raise ModelError(f"{source}: the top-level key model is missing; add e.g. "

@@ -326,7 +326,7 @@ def match_parameter(model: "WindModel", key: str, start: "u.Quantity | str | flo
     """
     from scipy.optimize import brentq
 
-    from .models import MODELS
+    from .registry import MODELS
     from .solve import solve
     from .sweep import apply_changes
     start, stop, unit = _match_range(MODELS[model.kind], key, start, stop)

@@ -16,20 +16,46 @@ import importlib
 import math
 from dataclasses import dataclass, field
 
+import astropy.units as u
+
 __all__ = ["ModelSpec", "register", "unregister", "spec_for", "plugin_modules", "MODEL_SPECS",
            "default_core_radius", "photosphere_core_radius"]
 
 MODEL_SPECS = {}  # kind -> ModelSpec, in registration order
+MODELS = {}  # kind -> model class, for model files and result files (kept by register)
+
+# The cgs unit of every summary value a solver reports; a model's entry adds the
+# keys new to windsolve (register), so result and sweep files can carry them.
+SUMMARY_UNITS = {
+    "mass_loss_rate": u.g / u.s,
+    "terminal_velocity": u.cm / u.s,
+    "sonic_radius": u.cm,
+    "sonic_velocity": u.cm / u.s,
+    "photosphere_radius": u.cm,
+    "photosphere_temperature": u.K,
+    "photosphere_luminosity": u.erg / u.s,
+    "energy_flux": u.erg / u.s,
+    "base_eddington_factor": u.dimensionless_unscaled,
+    "outer_radius": u.cm,
+    "photosphere_velocity": u.cm / u.s,
+    "sonic_temperature": u.K,
+    "base_radius": u.cm,
+    "base_temperature": u.K,
+    "base_density": u.g / u.cm**3,
+    "base_luminosity": u.erg / u.s,
+    "base_density_efolds": u.dimensionless_unscaled,
+}
 
 
-def _lazy(module, name):
-    """A function that imports ``module`` and calls its ``name`` on first use
-    (entries are declared before the solver modules, which import this one, load)."""
+def lazy(module, name):
+    """A function that imports ``module`` (absolute name) and calls its ``name`` on
+    first use: an entry can name code of a layer above the model's room (a sweep
+    row's solve) or code that is slow to import, without importing it."""
     found = []
 
     def call(*args, **kwargs):
         if not found:
-            found.append(getattr(importlib.import_module(module, __package__), name))
+            found.append(getattr(importlib.import_module(module), name))
         return found[0](*args, **kwargs)
     call.__name__ = call.__qualname__ = name
     call.__doc__ = f"{module}.{name}"
@@ -37,7 +63,6 @@ def _lazy(module, name):
 
 
 def _cm(q):
-    import astropy.units as u
     return float(q.to_value(u.cm)) if isinstance(q, u.Quantity) else math.nan
 
 
@@ -131,11 +156,8 @@ def register(spec, replace=False):
 
     Raises ValueError when the kind is taken (unless ``replace``) or when the
     class's ``kind`` differs from the entry's.  Summary keys new to windsolve
-    are appended to :data:`windsolve.result.SUMMARY_UNITS`.
+    are appended to :data:`SUMMARY_UNITS`.
     """
-    from .models import MODELS
-    from .result import SUMMARY_UNITS
-
     if spec.model_class.kind != spec.kind:
         raise ValueError(f"ModelSpec {spec.kind!r}: its model_class has kind "
                          f"{spec.model_class.kind!r}")
@@ -154,64 +176,21 @@ def register(spec, replace=False):
 def unregister(kind):
     """Remove a model registered by :func:`register` (tests use it to clean up);
     summary keys it added stay known."""
-    from .models import MODELS
     MODEL_SPECS.pop(kind, None)
     MODELS.pop(kind, None)
 
 
-BUILTIN_MODULES = frozenset({"windsolve.models"})
+BUILTIN_PACKAGE = "windsolve."
 
 
 def plugin_modules():
     """Modules that define registered model classes outside windsolve: sweep pool
     workers import them (registering their models there too) before they solve."""
-    return sorted({spec.model_class.__module__ for spec in MODEL_SPECS.values()}
-                  - BUILTIN_MODULES)
+    return sorted({spec.model_class.__module__ for spec in MODEL_SPECS.values()
+                   if not spec.model_class.__module__.startswith(BUILTIN_PACKAGE)})
 
 
 def spec_for(model_or_kind):
     """The :class:`ModelSpec` of a model (or of a kind string); KeyError if unknown."""
     kind = model_or_kind if isinstance(model_or_kind, str) else model_or_kind.kind
     return MODEL_SPECS[kind]
-
-
-def _register_builtin():
-    from .models import DiffusionWind, IsothermalWind
-    from .result import SUMMARY_UNITS
-
-    def units(*keys):
-        return {key: SUMMARY_UNITS[key] for key in keys}
-
-    register(ModelSpec(
-        kind="isothermal",
-        model_class=IsothermalWind,
-        solve=_lazy(".solve", "solve_isothermal"),
-        solve_row=_lazy(".sweep", "isothermal_row"),
-        check=_lazy(".cli", "check_isothermal"),
-        summary_units=units("mass_loss_rate", "terminal_velocity", "sonic_radius",
-                            "sonic_velocity", "base_eddington_factor", "outer_radius",
-                            "base_density_efolds"),
-        sweep_batch=200,
-        terminal_label="velocity at outer radius",
-        converged_note="(an isothermal flow keeps accelerating slowly: the 'terminal' "
-                       "velocity is v at the outer radius)",
-        core_radius=default_core_radius,
-    ))
-    register(ModelSpec(
-        kind="diffusion",
-        model_class=DiffusionWind,
-        solve=_lazy(".solve", "solve_diffusion"),
-        check=_lazy(".cli", "check_diffusion"),
-        summary_units=units("mass_loss_rate", "terminal_velocity", "sonic_radius",
-                            "sonic_velocity", "photosphere_radius", "photosphere_temperature",
-                            "photosphere_luminosity", "energy_flux", "photosphere_velocity",
-                            "sonic_temperature", "base_radius", "base_temperature",
-                            "base_density", "base_luminosity"),
-        sweep_batch=10,
-        core_radius=photosphere_core_radius,
-        extend_profile=_lazy(".lines", "thin_extension"),
-        photosphere_family=lambda model: model.anchor == "photosphere",
-    ))
-
-
-_register_builtin()

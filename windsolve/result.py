@@ -16,6 +16,7 @@ import numpy as np
 
 from ._io import dataset, open_hdf5, stamp, strings, write_hdf5
 from .errors import OutputError
+from .registry import SUMMARY_UNITS
 
 __all__ = ["WindResult", "PROFILE_UNITS", "SUMMARY_UNITS", "STATUSES"]
 
@@ -54,25 +55,7 @@ PROFILE_UNITS = {
     "eddington_factor": u.dimensionless_unscaled,
     "optical_depth": u.dimensionless_unscaled,
 }
-SUMMARY_UNITS = {
-    "mass_loss_rate": u.g / u.s,
-    "terminal_velocity": u.cm / u.s,
-    "sonic_radius": u.cm,
-    "sonic_velocity": u.cm / u.s,
-    "photosphere_radius": u.cm,
-    "photosphere_temperature": u.K,
-    "photosphere_luminosity": u.erg / u.s,
-    "energy_flux": u.erg / u.s,
-    "base_eddington_factor": u.dimensionless_unscaled,
-    "outer_radius": u.cm,
-    "photosphere_velocity": u.cm / u.s,
-    "sonic_temperature": u.K,
-    "base_radius": u.cm,
-    "base_temperature": u.K,
-    "base_density": u.g / u.cm**3,
-    "base_luminosity": u.erg / u.s,
-    "base_density_efolds": u.dimensionless_unscaled,
-}
+# (the cgs unit of every summary value: declared with the models, windsolve.registry)
 
 # A Model A solution is flagged ``hydrostatic`` when its base lies more than
 # this many density e-folds below the sonic point: ln(rho0 / rho_c) > 30,
@@ -333,7 +316,7 @@ def stored_model(f, path):
     from ._io import text_attr
     from .errors import WindsolveError
     from .modelfile import model_from_dict
-    from .models import MODELS
+    from .registry import MODELS
 
     kind = text_attr(f.attrs, "model", path, "the file", default="")
     if "model" in f.attrs and kind not in MODELS:

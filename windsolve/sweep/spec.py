@@ -259,7 +259,7 @@ def load_sweep(path: str | Path) -> Sweep:
     import tomllib
 
     from ..modelfile import model_from_dict, read_model_file
-    from ..models import MODELS
+    from ..registry import MODELS
 
     path = Path(path)
     try:

@@ -173,7 +173,7 @@ def read_sweep_table(path: str | Path) -> tuple[dict[str, np.ndarray], dict]:
         text_attr,
     )
     from ..errors import OutputError
-    from ..models import MODELS
+    from ..registry import MODELS
     from ..result import SUMMARY_POSITIVE, SUMMARY_UNITS
 
     known = dict(SUMMARY_UNITS, seconds=u.s, **{k: u.cm / u.s for k in WIDTH_COLUMNS})

@@ -46,10 +46,10 @@ def isothermal_row(model, record, observables):
     The same numbers as ``solve(model)`` and ``line_widths`` give: the
     summary in the cgs units of SUMMARY_UNITS and, with ``observables``, the
     widths measured in the same compiled call that finishes the solution
-    (:func:`windsolve.solve.solve_isothermal_cgs` with ``widths``).  Model A's
+    (:func:`windsolve.models.isothermal.solve_isothermal_cgs` with ``widths``).  Model A's
     ``ModelSpec.solve_row``.
     """
-    from ..solve import solve_isothermal_cgs
+    from ..models.isothermal import solve_isothermal_cgs
 
     settings = None if observables is None else _line_settings(observables).cgs
     raw = solve_isothermal_cgs(model, profile=False, critical=False, widths=settings,
@@ -213,8 +213,8 @@ class _FastRows:
     def row(self, changes):
         """A :class:`_RowModel` of the row, or None when apply_changes must build it."""
         from ..core import basics
-        from ..core import isothermal as K
         from ..core import opacity as KO
+        from ..models.isothermal import kernels as K
 
         vals = {}
         for key, value in changes.items():

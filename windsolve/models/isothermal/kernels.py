@@ -33,10 +33,10 @@ import math
 import numpy as np
 from numba import njit
 
-from .constants import C_LIGHT
-from .critical import SADDLE, classify
-from .integrate import REACHED_END, STEP_TOO_SMALL, make_scalar_integrator
-from .opacity import (
+from ...core.constants import C_LIGHT
+from ...core.critical import SADDLE, classify
+from ...core.integrate import REACHED_END, STEP_TOO_SMALL, make_scalar_integrator
+from ...core.opacity import (
     LAW_ELECTRON_SCATTERING,
     SLOT_H0,
     SLOT_KES,
@@ -44,7 +44,7 @@ from .opacity import (
     effective_opacity,
     table_margin,
 )
-from .roots import ROOT_F_FAILED, ROOT_JUMP, ROOT_MAX_EVALS, make_brent, make_illinois
+from ...core.roots import ROOT_F_FAILED, ROOT_JUMP, ROOT_MAX_EVALS, make_brent, make_illinois
 
 FOUR_PI = 4.0 * math.pi
 INV_FOUR_PI = 1.0 / FOUR_PI

@@ -1,6 +1,6 @@
 """Model B drivers: find the regular solution by shooting from the photosphere.
 
-The compiled legs live in :mod:`windsolve.core.diffusion`; this module only
+The compiled legs live in :mod:`windsolve.models.diffusion.kernels`; this module only
 decides which legs to run.  Everything here is plain floats in cgs.
 
 Photosphere anchor (given L_ph, T_eff, hence R_ph)
@@ -26,9 +26,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .core import diffusion as D
-from .core.constants import C_LIGHT, R_SUN
-from .core.critical import SADDLE
+from ...core.constants import C_LIGHT, R_SUN
+from ...core.critical import SADDLE
+from . import kernels as D
 
 DELTA = 1e-6  # start this fraction of r_c off the critical point
 MAX_SHOTS = 200

@@ -27,7 +27,7 @@ point (:func:`short_outward`) and inward to the
 base (:func:`inward_leg`); :func:`shoot_from_photosphere` integrates inward
 from a photospheric state, the robust way to bracket Mdot (outward
 integration of the diffusion equation amplifies errors, see
-:mod:`windsolve._diffusion`).
+:mod:`windsolve.models.diffusion.shooting`).
 
 Parameter vector ``P`` (slots ``I_*``); the user layer builds it.
 """
@@ -37,11 +37,11 @@ import math
 import numpy as np
 from numba import njit
 
-from .constants import A_RAD, C_LIGHT, SIGMA_SB
-from .critical import classify
-from .integrate import REACHED_END, STEP_TOO_SMALL, make_integrator
-from .opacity import effective_opacity, table_margin
-from .roots import make_illinois
+from ...core.constants import A_RAD, C_LIGHT, SIGMA_SB
+from ...core.critical import classify
+from ...core.integrate import REACHED_END, STEP_TOO_SMALL, make_integrator
+from ...core.opacity import effective_opacity, table_margin
+from ...core.roots import make_illinois
 
 FOUR_PI = 4.0 * math.pi
 

@@ -2,7 +2,7 @@
 
 What a sweep row with an ``[observables]`` table needs, without handing
 arrays back and forth to Python: the outward profile stored from r_c
-(:func:`windsolve.core.isothermal.outward_part`), its density and opacity,
+(:func:`windsolve.models.isothermal.kernels.outward_part`), its density and opacity,
 the optical core radius (tau = 2/3 summed from outside), the subsonic part
 only when that radius does not lie beyond the first interval outside r_c
 (or without occultation, when the P Cygni edge needs the core of the whole
@@ -16,8 +16,8 @@ import math
 import numpy as np
 from numba import njit
 
-from . import isothermal as K
-from .lines import MONOTONIC_RTOL, line_widths, optical_core_radius
+from ...core.lines import MONOTONIC_RTOL, line_widths, optical_core_radius
+from . import kernels as K
 
 
 @njit(cache=True, error_model="numpy")
@@ -27,7 +27,7 @@ def outer_state_and_widths(ln_mdot, P, O, rtol, delta, max_step, capacity, n, oc
 
     Returns ``(status_in, status_out, r_end, v_end, fwhm, hwzi, edge)``:
     status_out, r_end and v_end are those of
-    :func:`windsolve.core.isothermal.end_state` (the stored leg takes the
+    :func:`windsolve.models.isothermal.kernels.end_state` (the stored leg takes the
     same steps); status_in is OK unless the subsonic part was needed and
     did not reach R0.  The widths [cm/s] are nan unless both are OK.  The
     line arguments are those of :func:`windsolve.core.lines.line_widths`;

@@ -1,0 +1,143 @@
+"""Model B's solver: the photosphere- and base-anchored shooting, WindResult."""
+
+import math
+import time
+
+import astropy.units as u
+import numpy as np
+
+from ...core.constants import R_SUN
+from ...core.critical import KIND_NAMES
+from ...result import (
+    WindResult,
+)
+from ..base import (
+    CAPACITY,
+    CM2_G,
+    CM_S,
+    ERG_S,
+    G_CM3,
+    G_S,
+    MAX_STEP,
+)
+
+
+def _diffusion_failure_result(model, summary, code, text, t0):
+    from . import kernels as D
+    status = {D.OFF_TABLE: "off_table", D.STALLED: "stalled", D.FALLBACK: "fallback",
+              D.INVALID: "no_solution", D.SINGULAR: "no_solution"}.get(code, "failed")
+    from . import shooting as B
+    return WindResult(model, False, status, text, summary,
+                      counters={"shots": B.shots(), "seconds": time.perf_counter() - t0})
+
+
+def solve_diffusion(model, profile=True):
+    """Solve Model B (:class:`~windsolve.models.DiffusionWind`).
+
+    ``profile`` is accepted for symmetry; the profile is always computed
+    (the base values come from it).
+    """
+    from scipy.integrate import cumulative_trapezoid
+
+    from ...core.constants import C_LIGHT, G
+    from . import kernels as D
+    from . import shooting as B
+
+    t0 = time.perf_counter()
+    B.reset_shots()  # every photosphere shot of this solve, base-anchor trials included
+    P, O = model.kernel_arrays
+    rtol = model.rtol
+    M = model.cgs("mass")
+    nan = np.nan
+    summary = {key: nan * unit for key, unit in (
+        ("mass_loss_rate", G_S), ("terminal_velocity", CM_S),
+        ("sonic_radius", u.cm), ("sonic_velocity", CM_S),
+        ("photosphere_radius", u.cm), ("photosphere_temperature", u.K),
+        ("photosphere_luminosity", ERG_S), ("energy_flux", ERG_S))}
+    kes = P[D.I_KES]
+    if model.opacity.law == "electron_scattering" and model.porosity_length is None:
+        L = (model.cgs("photosphere_luminosity") if model.anchor == "photosphere"
+             else model.cgs("luminosity"))
+        gamma = kes * L / (4 * math.pi * G * M * C_LIGHT)
+        if gamma < 1.0:
+            return _diffusion_failure_result(
+                model, summary, D.INVALID,
+                f"no wind: with electron scattering alone Gamma = {gamma:.4g} < 1 "
+                f"everywhere, so radiation cannot lift the gas; a continuum-driven wind "
+                f"needs Gamma > 1 somewhere (a larger luminosity or an opacity that rises "
+                f"inward, e.g. the bump law or a table)", t0)
+    xo = np.empty(CAPACITY)
+    yo = np.empty((CAPACITY, 2))
+    try:
+        if model.anchor == "photosphere":
+            L_ph = model.cgs("photosphere_luminosity")
+            T_ph = model.cgs("photosphere_temperature")
+        else:
+            kind = "temperature" if model.base_temperature is not None else "density"
+            L_ph, T_ph = B.solve_base_anchor(P, O, model.cgs("luminosity"), kind,
+                                             model.cgs(f"base_{kind}"), rtol)
+        sol, no = B.solve_photosphere_anchor(P, O, L_ph, T_ph, rtol, xo, yo, MAX_STEP,
+                                             diagnose=model.anchor == "photosphere")
+    except B.ModelBFailure as failure:
+        return _diffusion_failure_result(model, summary, failure.code, failure.text, t0)
+    c = sol.crit
+    R_ph, v_ph, L_ph = sol.R_ph, sol.v_ph, sol.L_ph
+    # Profile: inward leg from the critical point (reversed), the critical
+    # point, then the wind branch and the shot outside it (sol.outer_*):
+    # strictly increasing in r by construction.
+    xi = np.empty(CAPACITY)
+    yi = np.empty((CAPACITY, 2))
+    st_in, r_b, v_b, T_b, L_b, ni = B.inward(c, O, rtol, xi, yi, MAX_STEP)
+    if st_in != D.OK:
+        return _diffusion_failure_result(
+            model, summary, st_in,
+            "the subsonic solution below the sonic point does not reach the base "
+            f"({'the radiation is used up' if st_in == D.STALLED else f'code {st_in}'})", t0)
+    x = np.concatenate([xi[:ni][::-1], [math.log(c.rc)], sol.outer_x])
+    lnv = np.concatenate([yi[:ni, 0][::-1], [math.log(c.vc)], sol.outer_y[:, 0]])
+    lnT = np.concatenate([yi[:ni, 1][::-1], [math.log(c.Tc)], sol.outer_y[:, 1]])
+    keep = x > np.maximum.accumulate(np.concatenate([[-np.inf], x[:-1]]))
+    r, v, T = np.exp(x[keep]), np.exp(lnv[keep]), np.exp(lnT[keep])
+    rho, L, kappa, gamma = D.profile_quantities(r, v, T, c.P, O)
+    # tau(r) = 2/3 + integral of kappa rho dr from r to R_ph (in ln r).
+    integrand = kappa * rho * r
+    from_out = cumulative_trapezoid(integrand[::-1], -np.log(r[::-1]), initial=0.0)
+    tau = D.TAU_PH + from_out[::-1]
+    w2 = D.terminal_velocity_squared(R_ph, v_ph, L_ph, c.P)
+    summary.update({
+        "mass_loss_rate": c.mdot * G_S,
+        "terminal_velocity": math.sqrt(w2) * CM_S,
+        "sonic_radius": c.rc * u.cm,
+        "sonic_velocity": c.vc * CM_S,
+        "photosphere_radius": R_ph * u.cm,
+        "photosphere_temperature": D.effective_temperature(L_ph, R_ph) * u.K,
+        "photosphere_luminosity": L_ph * ERG_S,
+        "energy_flux": c.P[D.I_EDOT] * ERG_S,
+        "photosphere_velocity": v_ph * CM_S,
+        "sonic_temperature": c.Tc * u.K,
+        "base_radius": r[0] * u.cm,
+        "base_temperature": T[0] * u.K,
+        "base_density": rho[0] * G_CM3,
+        "base_luminosity": L[0] * ERG_S,
+    })
+    profile = {
+        "radius": r << u.cm,
+        "velocity": v << CM_S,
+        "density": rho << G_CM3,
+        "temperature": T << u.K,
+        "luminosity": L << ERG_S,
+        "opacity": kappa << CM2_G,
+        "eddington_factor": gamma << u.one,
+        "optical_depth": tau << u.one,
+    }
+    kind, pp, pm, dTdr, k1 = D.critical_slopes(c.rc, c.vc, c.Tc, c.P, O)
+    critical = [{"radius": c.rc, "kind": KIND_NAMES[int(kind)], "slope_plus": float(pp),
+                 "slope_minus": float(pm)}]
+    R0 = r[0]
+    message = (f"converged: transonic solution through the saddle at r_c = "
+               f"{c.rc / R0:.5g} R_base (T_c = {c.Tc:.4g} K); photosphere at "
+               f"{R_ph / R_SUN:.4g} Rsun")
+    return WindResult(model, True, "converged", message, summary, profile, critical,
+                      {"shots": B.shots(), "seconds": time.perf_counter() - t0})
+
+
