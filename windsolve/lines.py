@@ -164,6 +164,7 @@ import numpy as np
 from ._units import plain, to_quantity
 from .core import lines as kernels
 from .core.constants import C_LIGHT
+from .core.profile import default_core_radius_cgs, optical_core_radius_cgs
 from .errors import ModelError
 from .result import PROFILE_UNITS, WindResult
 
@@ -176,6 +177,7 @@ __all__ = [
     "line_widths",
     "widths_cgs",
     "optical_core_radius_cgs",
+    "default_core_radius_cgs",
     "broaden",
     "FWHM_PER_SIGMA",
 ]
@@ -511,30 +513,6 @@ def thin_extension(result, r, v, rho):
             np.concatenate([rho, rho_out]))
 
 
-def optical_core_radius_cgs(r, rho, kappa):
-    """Radius [cm] where tau = integral of kappa rho dr from outside reaches 2/3, or None.
-
-    Parameters
-    ----------
-    r, rho, kappa : ndarray
-        Radius [cm] (increasing), density [g/cm3] and opacity [cm2/g] of a
-        profile, float64.
-
-    Returns
-    -------
-    float or None
-        The tau = 2/3 radius (summed from the outer end inward with kappa rho
-        exponential in r between points, as the line kernels interpolate
-        rho), the default core radius of a Model A result;
-        None if the whole profile is optically thin (tau(r[0]) <= 2/3).
-        Kernel :func:`windsolve.core.lines.optical_core_radius`.
-    """
-    rc = kernels.optical_core_radius(np.ascontiguousarray(r, dtype=np.float64),
-                                     np.ascontiguousarray(rho, dtype=np.float64),
-                                     np.ascontiguousarray(kappa, dtype=np.float64))
-    return None if math.isnan(rc) else float(rc)
-
-
 def _optical_core(result):
     """Radius where tau = integral of kappa rho dr from outside reaches 2/3, or None.
 
@@ -572,28 +550,6 @@ def _core_radius(source, core_radius, r, what):
                         else math.nan)
         return _line_rules(source)[0](r, _optical_arrays(source), source.summary,
                                       model_radius)
-    return float(r[0])
-
-
-def default_core_radius_cgs(r, optical, photosphere_radius, model_radius, base_radius):
-    """The default R_c [cm] of a solved wind (rules of :func:`line_widths`).
-
-    The photosphere when finite (Model B); else the tau = 2/3 radius of
-    ``optical`` = (radius, density, opacity) arrays of the profile (Model A,
-    :func:`optical_core_radius_cgs`; None to skip); else the model's radius;
-    else ``base_radius``; else r[0].  Plain floats (NaN = absent), for sweep
-    workers as well as :func:`line_widths`.
-    """
-    if math.isfinite(photosphere_radius):
-        return photosphere_radius
-    if optical is not None:
-        rc = optical_core_radius_cgs(*optical)
-        if rc is not None:
-            return rc
-    if math.isfinite(model_radius):
-        return model_radius
-    if math.isfinite(base_radius):
-        return base_radius
     return float(r[0])
 
 

@@ -17,7 +17,8 @@ import numpy as np
 from numba import njit
 
 from . import isothermal as K
-from .lines import MONOTONIC_RTOL, line_widths, optical_core_radius
+from .lines import MONOTONIC_RTOL, line_widths
+from .profile import optical_core_radius
 
 
 @njit(cache=True, error_model="numpy")
