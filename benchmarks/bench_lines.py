@@ -31,7 +31,9 @@ import numpy as np
 from timing import median_ms  # this script's folder
 
 import windsolve
-from windsolve.lines import LineSettings, _core_radius, _read_profile, line_widths, widths_cgs
+from windsolve.lines import LineSettings, line_widths, widths_cgs
+from windsolve.lines.core_radius import _core_radius
+from windsolve.lines.synthesis import _read_profile
 from windsolve.observe import read_observed, sweep_chi2
 from windsolve.sweep import load_sweep, read_sweep_table, write_sweep_table
 

@@ -70,11 +70,11 @@ def default_core_radius(r, optical, summary, model_radius):
     """The default R_c [cm] of line synthesis for a model without a photosphere.
 
     The tau = 2/3 radius of ``optical`` = (radius, density, opacity) arrays
-    (None to skip; :func:`windsolve.lines.optical_core_radius_cgs`), else
+    (None to skip; :func:`windsolve.core.profile.optical_core_radius_cgs`), else
     ``model_radius`` [cm] (NaN = none), else the ``summary``'s (Quantities)
-    ``base_radius``, else r[0] (:func:`windsolve.lines.default_core_radius_cgs`).
+    ``base_radius``, else r[0] (:func:`windsolve.core.profile.default_core_radius_cgs`).
     """
-    from .lines import default_core_radius_cgs
+    from .core.profile import default_core_radius_cgs
     return default_core_radius_cgs(r, optical, math.nan, model_radius,
                                    _cm(summary.get("base_radius")))
 
@@ -82,7 +82,7 @@ def default_core_radius(r, optical, summary, model_radius):
 def photosphere_core_radius(r, optical, summary, model_radius):
     """The default R_c [cm] of a model whose profile ends at its photosphere: the
     summary's ``photosphere_radius`` when finite, else as :func:`default_core_radius`."""
-    from .lines import default_core_radius_cgs
+    from .core.profile import default_core_radius_cgs
     return default_core_radius_cgs(r, optical, _cm(summary.get("photosphere_radius")),
                                    model_radius, _cm(summary.get("base_radius")))
 

@@ -16,7 +16,8 @@ import math
 import numpy as np
 from numba import njit
 
-from ...core.lines import MONOTONIC_RTOL, line_widths, optical_core_radius
+from ...core.lines import MONOTONIC_RTOL, line_widths
+from ...core.profile import optical_core_radius
 from . import kernels as K
 
 
