@@ -342,8 +342,8 @@ def test_sweep_table_has_the_hydrostatic_column(tmp_path):
     path.write_text(f'[sweep]\nbase = "{base}"\ndesign = "grid"\n[[axis]]\n'
                     f'key = "gas.sound_speed"\nvalues = ["60 km/s", "200 km/s"]\n')
     out = tmp_path / "out.h5"
-    done, interrupted = run_sweep(load_sweep(path), out, workers=1, quiet=True)
-    assert not interrupted
+    run = run_sweep(load_sweep(path), out, workers=1, quiet=True)
+    assert not run.interrupted and (run.rows, run.done, run.hydrostatic) == (2, 2, 1)
     table, attrs = read_sweep_table(out)
     assert list(table["converged"]) == [True, True]
     assert list(table["hydrostatic"]) == [True, False]

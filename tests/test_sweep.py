@@ -134,8 +134,10 @@ values = ["4e6 Lsun", "1e3 Lsun"]
 """)
     sweep = load_sweep(path)
     out = tmp_path / "out.h5"
-    done, interrupted = run_sweep(sweep, out, workers=1, quiet=True)
-    assert not interrupted and out.exists()
+    run = run_sweep(sweep, out, workers=1, quiet=True)
+    assert not run.interrupted and out.exists() and run.path == out
+    assert (run.rows, run.done, run.converged, run.failed) == (2, 2, 1, 1)
+    assert run.statuses == {"converged": 1, "no_critical_point": 1}
     assert not (tmp_path / "out.h5.partial").exists()
     table, attrs = read_sweep_table(out)
     assert list(table["converged"]) == [True, False]

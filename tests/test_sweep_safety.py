@@ -324,8 +324,8 @@ def test_cluster_without_workers_stops_after_the_stall_timeout(tmp_path):
     # A live executor finishes it: the uninterrupted run's table.
     reference = tmp_path / "reference.h5"
     run_sweep(load_sweep(path), reference, workers=1, quiet=True)
-    done, interrupted = run_sweep(load_sweep(path), out, workers=1, resume=True, quiet=True)
-    assert not interrupted and not journal.exists()
+    run = run_sweep(load_sweep(path), out, workers=1, resume=True, quiet=True)
+    assert not run.interrupted and not journal.exists() and run.done == run.rows
     a, b = table_without_timing(reference), table_without_timing(out)
     for key in a:
         np.testing.assert_array_equal(a[key], b[key], err_msg=key)

@@ -129,8 +129,6 @@ def cmd_family(args):
 
 
 def cmd_sweep(args):
-    from collections import Counter
-
     from .sweep import load_sweep, run_sweep
     sweep = load_sweep(args.sweep)
     if args.profiles:
@@ -144,26 +142,22 @@ def cmd_sweep(args):
         print(f"{args.sweep}: {len(sweep)} {sweep.kind} models ({sweep.design} design over "
               f"{', '.join(a.key for a in sweep.axes)}) on {where}")
     try:
-        done, interrupted = run_sweep(sweep, args.output, workers=args.workers,
-                                      scheduler=args.scheduler, resume=args.resume,
-                                      quiet=args.quiet,
-                                      stall_timeout=args.stall_timeout)
+        run = run_sweep(sweep, args.output, workers=args.workers,
+                        scheduler=args.scheduler, resume=args.resume, quiet=args.quiet,
+                        stall_timeout=args.stall_timeout)
     except OSError as error:  # its journal or lock file (the table's write says so itself)
         from ._io import output_error
         raise output_error(error.filename or args.output, error) from None
-    if interrupted:
-        print(f"windsolve: interrupted: {len(done)} of {len(sweep)} models done and kept; "
+    if run.interrupted:
+        print(f"windsolve: interrupted: {run.done} of {len(sweep)} models done and kept; "
               f"resume with: windsolve sweep {args.sweep} -o {args.output} --resume",
               file=sys.stderr)
         return 130
     if not args.quiet:
         from .result import HYDROSTATIC_EFOLDS
-        counts = Counter(r.get("status", "?") for r in done.values())
-        print("  " + ", ".join(f"{k}: {v}" for k, v in counts.most_common()))
-        static = sum(1 for r in done.values() if r.get("converged")
-                     and r.get("base_density_efolds", 0.0) > HYDROSTATIC_EFOLDS)
-        if static:
-            print(f"  {static} converged models have a hydrostatic base (more than "
+        print("  " + ", ".join(f"{k}: {v}" for k, v in run.statuses.items()))
+        if run.hydrostatic:
+            print(f"  {run.hydrostatic} converged models have a hydrostatic base (more than "
                   f"{HYDROSTATIC_EFOLDS:g} density e-folds below the sonic point: an "
                   f"atmosphere, not a wind); see the table's hydrostatic column")
         print(f"wrote {args.output}")

@@ -16,8 +16,10 @@ to the output (``OUT.h5.partial``, JSON lines, flushed after every batch, so a
 killed sweep loses at most the batches in flight, and fsynced at least once a
 second, so a machine that crashes loses at most about a second more), and
 ``--resume`` runs only the missing rows.  The HDF5 file is written at the end
-from the finished rows (under a temporary name, then renamed), in design
-order, so a resumed sweep gives the same table as an uninterrupted one.
+from the journal, streamed chunk by chunk (under a temporary name, then
+renamed), in design order, so a resumed sweep gives the same table as an
+uninterrupted one; the main process keeps no record, only a few bytes a row
+saying how it ended.
 
 One run per output: the output is locked (``OUT.h5.lock``, fcntl.flock) for
 the whole run, every journal record carries a hash of the resolved design
@@ -37,9 +39,11 @@ from .runner import (
     JOURNAL_SUFFIX,
     LOCK_SUFFIX,
     TASKS_PER_WORKER,
+    SweepRun,
     _check_stall_timeout,
     _default_batch,
     _executor,
+    _journal_chunks,
     _lock_output,
     _read_journal,
     _trim_journal,
@@ -58,14 +62,16 @@ from .spec import (
     load_sweep,
 )
 from .table import (
+    ROWS_PER_CHUNK,
     SUMMARY_COLUMNS,
     SWEEP_REQUIRED,
     WIDTH_COLUMNS,
     axis_views,
     read_sweep_table,
+    write_sweep_rows,
     write_sweep_table,
 )
-from .worker import _worker_init, isothermal_row, journal_batch, run_batch
+from .worker import _worker_init, isothermal_row, journal_batch, row_end, run_batch
 
-__all__ = ["Sweep", "load_sweep", "run_sweep", "read_sweep_table", "axis_views", "DESIGNS",
-           "SUMMARY_COLUMNS"]
+__all__ = ["Sweep", "SweepRun", "load_sweep", "run_sweep", "read_sweep_table", "axis_views",
+           "DESIGNS", "SUMMARY_COLUMNS"]

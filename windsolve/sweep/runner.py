@@ -2,7 +2,9 @@
 
 :func:`run_sweep` sends batches of rows to an executor (a local process pool
 or a dask cluster), journals every finished batch to ``OUT.h5.partial`` and
-writes the table when every row is done.
+writes the table from the journal when every row is done.  The main process
+keeps no record: only which rows are done and how each ended (a few bytes a
+row), so its memory stays flat however many rows the sweep has.
 """
 
 import json
@@ -12,13 +14,16 @@ import os
 import time
 from collections.abc import Mapping
 from concurrent.futures import FIRST_COMPLETED, BrokenExecutor, CancelledError, wait
+from dataclasses import dataclass
 from pathlib import Path
+
+import numpy as np
 
 from .._version import __version__
 from ..errors import ModelError, OutputError, WindsolveError
 from .spec import Sweep
-from .table import write_sweep_table
-from .worker import _worker_init, journal_batch
+from .table import ROWS_PER_CHUNK, write_sweep_rows
+from .worker import _worker_init, journal_batch, row_end
 
 # Models per task when the sweep file does not say: the model's
 # ModelSpec.sweep_batch (enough that a task is tens of milliseconds of work;
@@ -58,43 +63,148 @@ def _trim_journal(journal):
             f.truncate(data.rfind(b"\n") + 1)
 
 
-def _read_journal(journal, sweep, design):
-    """Finished rows from a journal written for the same sweep design.
+def _journal_records(journal, sweep, design):
+    """``(row, record)`` of every journaled row, line by line (never the whole file at once).
 
     The header and every record must carry ``design`` (:meth:`Sweep.design_digest`):
     rows journaled by another sweep (another sweep file, an edited base model,
     or two runs that once shared an output) refuse the resume instead of
-    entering the table.
+    entering the table.  A line cut short by a kill is skipped (that row runs
+    again).
     """
-    done = {}
-    with open(journal, encoding="utf-8", errors="replace") as f:
-        lines = f.read().split("\n")
-    if not lines or not lines[0].strip():
-        return done
-    try:
-        header = json.loads(lines[0])
-    except json.JSONDecodeError:
-        header = None
-    if not isinstance(header, dict) or "sweep" not in header:
-        raise OutputError(f"{journal}: not a windsolve sweep journal; delete it") from None
-    if header.get("sweep") != design or header.get("rows") != len(sweep):
-        raise OutputError(f"{journal} belongs to a different sweep (another sweep file, base "
-                          f"model or design); delete it or write to another output")
-    for number, line in enumerate(lines[1:], start=2):
-        if not line.strip():
-            continue
+    with open(journal, encoding="utf-8", errors="replace", newline="\n") as f:
+        first = f.readline()
+        if not first.strip():
+            return
         try:
-            record = json.loads(line)
+            header = json.loads(first)
         except json.JSONDecodeError:
-            continue  # a line cut short by a kill: that row runs again
-        row = record.get("row") if isinstance(record, dict) else None
-        if (record.get("design") if isinstance(record, dict) else None) != design or \
-                not isinstance(row, int) or not 0 <= row < len(sweep):
-            raise OutputError(f"{journal} line {number} holds a row of another sweep (two runs "
-                              f"wrote to one output?); its rows cannot be trusted: delete it "
-                              f"and run the sweep again")
-        done[row] = record
-    return done
+            header = None
+        if not isinstance(header, dict) or "sweep" not in header:
+            raise OutputError(f"{journal}: not a windsolve sweep journal; delete it") from None
+        if header.get("sweep") != design or header.get("rows") != len(sweep):
+            raise OutputError(f"{journal} belongs to a different sweep (another sweep file, "
+                              f"base model or design); delete it or write to another output")
+        for number, line in enumerate(f, start=2):
+            if not line.strip():
+                continue
+            try:
+                record = json.loads(line)
+            except json.JSONDecodeError:
+                continue  # a line cut short by a kill: that row runs again
+            row = record.get("row") if isinstance(record, dict) else None
+            if (record.get("design") if isinstance(record, dict) else None) != design or \
+                    not isinstance(row, int) or not 0 <= row < len(sweep):
+                raise OutputError(f"{journal} line {number} holds a row of another sweep (two "
+                                  f"runs wrote to one output?); its rows cannot be trusted: "
+                                  f"delete it and run the sweep again")
+            yield row, record
+
+
+def _journal_chunks(journal, sweep, design, size=None):
+    """:func:`_journal_records` in lists of ``size`` (default ROWS_PER_CHUNK; what the
+    table's writer takes)."""
+    size = size or ROWS_PER_CHUNK
+    chunk = []
+    for item in _journal_records(journal, sweep, design):
+        chunk.append(item)
+        if len(chunk) == size:
+            yield chunk
+            chunk = []
+    if chunk:
+        yield chunk
+
+
+class _Progress:
+    """Which rows of a sweep are done and how each ended: four bytes a row, no records."""
+
+    def __init__(self, n):
+        self.code = np.full(n, -1, dtype=np.int16)  # index in self.words; -1: not done
+        self.converged = np.zeros(n, dtype=bool)
+        self.hydrostatic = np.zeros(n, dtype=bool)
+        self.words = {}  # status -> code
+        self.done = self.n_converged = self.n_hydrostatic = 0
+        self.by_code = []  # rows done, per code
+
+    def add(self, row, converged, status, hydrostatic):
+        """Count a finished row (a row given again replaces its earlier end)."""
+        code = self.words.get(status)
+        if code is None:
+            code = self.words[status] = len(self.words)
+            self.by_code.append(0)
+        old = int(self.code[row])
+        if old < 0:
+            self.done += 1
+        else:
+            self.by_code[old] -= 1
+            self.n_converged -= bool(self.converged[row])
+            self.n_hydrostatic -= bool(self.hydrostatic[row])
+        self.code[row] = code
+        self.converged[row] = converged
+        self.hydrostatic[row] = hydrostatic
+        self.by_code[code] += 1
+        self.n_converged += converged
+        self.n_hydrostatic += hydrostatic
+
+    def todo(self):
+        """Row numbers not done (a numpy array)."""
+        return np.flatnonzero(self.code < 0)
+
+    def statuses(self):
+        """{status: rows}, most frequent first."""
+        counts = [(word, self.by_code[code]) for word, code in self.words.items()
+                  if self.by_code[code]]
+        return dict(sorted(counts, key=lambda wc: (-wc[1], str(wc[0]))))
+
+
+def _read_journal(journal, sweep, design):
+    """How the rows of a journal written for the same sweep design ended (a :class:`_Progress`).
+
+    Raises OutputError for a journal of another sweep (see :func:`_journal_records`).
+    """
+    progress = _Progress(len(sweep))
+    for _, record in _journal_records(journal, sweep, design):
+        progress.add(*row_end(record))
+    return progress
+
+
+@dataclass(frozen=True)
+class SweepRun:
+    """What :func:`run_sweep` did: where the table is and how the rows ended (no records).
+
+    Attributes
+    ----------
+    path : Path
+        The sweep's HDF5 file (not written when ``interrupted``); read it with
+        :func:`read_sweep_table`.
+    rows : int
+        Rows in the sweep.
+    done : int
+        Rows finished (``rows`` unless interrupted), including rows a resume
+        took from the journal.
+    converged : int
+        Finished rows that converged.
+    failed : int
+        Finished rows that did not (``done - converged``).
+    hydrostatic : int
+        Converged rows with a hydrostatic base (the table's ``hydrostatic``
+        column; see :data:`windsolve.result.HYDROSTATIC_EFOLDS`).
+    statuses : dict of str to int
+        Finished rows by status (:data:`windsolve.result.STATUSES`), most
+        frequent first.
+    interrupted : bool
+        True after Ctrl-C: the finished rows stay in the journal and the
+        table is not written.
+    """
+
+    path: Path
+    rows: int
+    done: int
+    converged: int
+    failed: int
+    hydrostatic: int
+    statuses: dict
+    interrupted: bool
 
 
 def _lock_output(out):
@@ -187,18 +297,17 @@ def _check_stall_timeout(stall_timeout):
 
 def run_sweep(sweep: Sweep, out: str | Path, workers: int | None = None,
               scheduler: str | None = None, resume: bool = False, quiet: bool = False,
-              stall_timeout: float | None = DEFAULT_STALL_TIMEOUT
-              ) -> tuple[dict[int, dict], bool]:
-    """Run every row not already done; returns (records by row, interrupted).
+              stall_timeout: float | None = DEFAULT_STALL_TIMEOUT) -> SweepRun:
+    """Run every row not already done and write the table; returns a :class:`SweepRun`.
 
     Parameters
     ----------
     sweep : Sweep
         From :func:`load_sweep`.
     out : str or Path
-        The sweep's HDF5 file, written when every row is done (its layout:
-        docs/physics.md, section 9).  Rows are journaled to ``OUT.h5.partial``
-        as they finish.
+        The sweep's HDF5 file, written from the journal when every row is
+        done (its layout: docs/physics.md, section 9).  Rows are journaled to
+        ``OUT.h5.partial`` as they finish; this process keeps no record.
     workers : int, optional
         Local worker processes (default: one per core).
     scheduler : str, optional
@@ -215,13 +324,11 @@ def run_sweep(sweep: Sweep, out: str | Path, workers: int | None = None,
 
     Returns
     -------
-    records : dict of int to dict
-        Per finished row: ``converged``, ``status``, ``message``, the summary
-        values in cgs (``mass_loss_rate`` [g/s], ``terminal_velocity``
-        [cm/s], ...) and, with ``[observables]``, the line widths [cm/s].
-    interrupted : bool
-        True after Ctrl-C: the finished rows stay in the journal and the
-        table is not written.
+    SweepRun
+        The table's path, the rows done, converged, failed and hydrostatic,
+        the rows by status, and ``interrupted`` (True after Ctrl-C: the
+        finished rows stay in the journal and the table is not written).
+        The rows' values are in the table: :func:`read_sweep_table`.
 
     Raises
     ------
@@ -229,6 +336,9 @@ def run_sweep(sweep: Sweep, out: str | Path, workers: int | None = None,
         A journal of an interrupted run exists and ``resume`` is False, the
         journal belongs to another design, or the output is locked by
         another running sweep.
+    ValueError
+        A row's status is not in :data:`windsolve.result.STATUSES` (the table
+        is not written; the journal is kept).
     WindsolveError
         The sweep stalled for ``stall_timeout`` (the rows finished so far
         stay in the journal for ``resume=True``).
@@ -258,19 +368,19 @@ def _run_locked(sweep, out, workers, scheduler, resume, quiet, stall_timeout):
         raise OutputError(f"{journal} holds an interrupted run of a sweep; pass --resume to "
                           f"finish it, or delete it to start again")
     design = sweep.design_digest()
-    done = {}
     if resume and journal.exists():
         _trim_journal(journal)
-        done = _read_journal(journal, sweep, design)
-    todo = [i for i in range(len(sweep)) if i not in done]
+        progress = _read_journal(journal, sweep, design)
+    else:
+        progress = _Progress(len(sweep))
+    todo = progress.todo()
     executor, close, describe = _executor(workers, scheduler)
     batch = sweep.batch or _default_batch(sweep.kind, len(todo), workers, scheduler)
-    batches = [todo[k:k + batch] for k in range(0, len(todo), batch)]
+    batches = (todo[k:k + batch].tolist() for k in range(0, len(todo), batch))
     bar = None
     if not quiet:
         from tqdm import tqdm
-        bar = tqdm(total=len(sweep), initial=len(done), unit="model", desc="sweep")
-    converged = sum(1 for r in done.values() if r.get("converged"))
+        bar = tqdm(total=len(sweep), initial=progress.done, unit="model", desc="sweep")
     interrupted = False
     aborted = True  # until the loop ends normally or by Ctrl-C
     pending = set()
@@ -284,7 +394,7 @@ def _run_locked(sweep, out, workers, scheduler, resume, quiet, stall_timeout):
                 jf.write(json.dumps({"sweep": design, "rows": len(sweep),
                                      "windsolve": __version__}) + "\n")
                 jf.flush()
-            queue = iter(batches)
+            queue = batches
             synced = progressed = time.monotonic()
             stalled_shown = 0
             # Keep a bounded number of batches in flight, so memory stays flat.
@@ -309,7 +419,8 @@ def _run_locked(sweep, out, workers, scheduler, resume, quiet, stall_timeout):
                             where = describe()
                             raise WindsolveError(
                                 f"no model finished in {stall_timeout:g} s ({where}); the "
-                                f"{len(done)} models finished so far are kept in {journal}: "
+                                f"{progress.done} models finished so far are kept in "
+                                f"{journal}: "
                                 f"rerun with --resume once it runs, or allow longer with "
                                 f"--stall-timeout SECONDS")
                         if bar is not None and int(idle / report) > stalled_shown:
@@ -320,7 +431,7 @@ def _run_locked(sweep, out, workers, scheduler, resume, quiet, stall_timeout):
                     progressed, stalled_shown = now, 0
                     for fut in finished:
                         try:
-                            text, records = fut.result()
+                            text, ends = fut.result()
                         except BrokenExecutor as error:
                             raise WindsolveError(
                                 f"a worker process died ({_one_line(error)}); the models "
@@ -337,17 +448,17 @@ def _run_locked(sweep, out, workers, scheduler, resume, quiet, stall_timeout):
                                 f"a task failed on the executor ({why}); the models finished "
                                 f"so far are kept in {journal}: rerun with --resume") from None
                         jf.write(text)
-                        for record in records:
-                            done[record["row"]] = record
-                            converged += bool(record.get("converged"))
+                        for end in ends:
+                            progress.add(*end)
                         jf.flush()  # in the OS's hands: a killed sweep keeps it
                         if now - synced >= FSYNC_INTERVAL:  # on the disk: a crash keeps it
                             os.fsync(jf.fileno())
                             synced = now
                         if bar is not None:
-                            bar.update(len(records))
-                            failed = len(done) - converged
-                            bar.set_postfix(converged=converged, failed=failed, refresh=False)
+                            bar.update(len(ends))
+                            bar.set_postfix(converged=progress.n_converged,
+                                            failed=progress.done - progress.n_converged,
+                                            refresh=False)
                 aborted = False
             except KeyboardInterrupt:
                 interrupted, aborted = True, False
@@ -358,11 +469,15 @@ def _run_locked(sweep, out, workers, scheduler, resume, quiet, stall_timeout):
         if bar is not None:
             bar.close()  # before any error line is printed
         close(pending, abort=aborted)
-    if interrupted:
-        return done, True
-    write_sweep_table(sweep, done, out)
-    journal.unlink()
-    return done, False
+    if not interrupted:
+        # Streamed from the journal, chunk by chunk: no record is held for the table.
+        write_sweep_rows(sweep, _journal_chunks(journal, sweep, design), out)
+        journal.unlink()
+    return SweepRun(path=out, rows=len(sweep), done=progress.done,
+                    converged=progress.n_converged,
+                    failed=progress.done - progress.n_converged,
+                    hydrostatic=progress.n_hydrostatic, statuses=progress.statuses(),
+                    interrupted=interrupted)
 
 
 def _default_batch(kind, n_todo, workers, scheduler):

@@ -73,31 +73,99 @@ def check_statuses(statuses):
                          f"solver reports one of {', '.join(STATUSES)}")
 
 
-def write_sweep_table(sweep, records, out):
-    """The sweep's HDF5 file: /table (one dataset per column) and /profiles.
+# Rows parsed and written at a time: the writer holds one chunk's records (a record
+# parsed from the journal is some 3 kB of Python objects).
+ROWS_PER_CHUNK = 1024
 
-    Raises ValueError (and writes nothing) when a row's status is not in
-    :data:`windsolve.result.STATUSES`.
+
+def write_sweep_table(sweep, records, out):
+    """The sweep's HDF5 file from records held in memory (see :func:`write_sweep_rows`).
+
+    Parameters
+    ----------
+    sweep : Sweep
+        The sweep the records belong to.
+    records : mapping of int to dict
+        A record (as :func:`run_batch` makes them) for every row ``0 .. len(sweep) - 1``.
+    out : str or Path
+        The HDF5 file to write.
+
+    Returns
+    -------
+    Path
+        ``out``.
+
+    Raises
+    ------
+    ValueError
+        A row's status is not in :data:`windsolve.result.STATUSES`, or a row
+        has no record; nothing is written.
     """
-    from .._io import dataset, stamp, strings, write_hdf5
+    n = len(sweep)
+
+    def chunks():
+        for start in range(0, n, ROWS_PER_CHUNK):
+            chunk = []
+            for i in range(start, min(n, start + ROWS_PER_CHUNK)):
+                if i not in records:
+                    raise ValueError(f"sweep row {i} has no record; the table needs every row")
+                chunk.append((i, records[i]))
+            yield chunk
+
+    return write_sweep_rows(sweep, chunks(), out)
+
+
+def _runs(rows):
+    """[(start, stop)] positions of the runs of consecutive row numbers in sorted ``rows``."""
+    breaks = np.flatnonzero(np.diff(rows) != 1) + 1
+    edges = [0, *breaks.tolist(), len(rows)]
+    return list(zip(edges[:-1], edges[1:], strict=True))
+
+
+def write_sweep_rows(sweep, chunks, out):
+    """The sweep's HDF5 file: /table (one dataset per column) and /profiles, streamed.
+
+    The columns are created at their full length and filled chunk by chunk,
+    each row's profile (if any) written as its chunk passes, so the memory
+    this takes is one chunk's records (plus the file being built), whatever
+    the number of rows.
+
+    Parameters
+    ----------
+    sweep : Sweep
+        The sweep the rows belong to.
+    chunks : iterable of list of (int, dict)
+        ``(row, record)`` pairs in any order, every row ``0 .. len(sweep) - 1``
+        at least once; a row given again replaces the earlier record (as a
+        journal read line by line would).
+    out : str or Path
+        The HDF5 file, written atomically (:func:`windsolve._io.write_hdf5`).
+
+    Returns
+    -------
+    Path
+        ``out``.
+
+    Raises
+    ------
+    ValueError
+        A row's status is not in :data:`windsolve.result.STATUSES` (checked
+        chunk by chunk), a row number out of range, or a row without a
+        record; nothing is written.
+    """
+    import h5py
+
+    from .._io import dataset, stamp, write_hdf5
     from ..result import HYDROSTATIC_EFOLDS, SUMMARY_UNITS, _unit_text, write_profile
 
     n = len(sweep)
     keys = list(SUMMARY_COLUMNS) + ["seconds"]
-    if sweep.observables is not None:
+    widths = sweep.observables is not None
+    if widths:
         keys += list(WIDTH_COLUMNS)
-    rows = [records[i] for i in range(n)]
-    check_statuses({row.get("status") for row in rows})
-    try:  # one C-level lookup a row when every row has every column (as run_batch makes them)
-        get = operator.itemgetter(*keys)
-        data = np.array([get(row) for row in rows], dtype=float).reshape(n, len(keys))
-    except KeyError:
-        data = np.array([[row.get(key, math.nan) for key in keys] for row in rows],
-                        dtype=float).reshape(n, len(keys))
+    get = operator.itemgetter(*keys)
     index = {key: j for j, key in enumerate(keys)}
-
-    def column(key):
-        return data[:, index[key]]
+    efolds = index["base_density_efolds"]
 
     def fill(f):
         stamp(f, sweep.kind)
@@ -110,22 +178,66 @@ def write_sweep_table(sweep, records, out):
             d = dataset(g, a.key, a.numbers, a.unit or "1")
             d.attrs["shown_unit"] = a.shown_unit
             d.attrs["log"] = a.log
-        for key in SUMMARY_COLUMNS:
-            dataset(g, key, column(key), _unit_text(SUMMARY_UNITS[key]))
-        if sweep.observables is not None:
+
+        def column(key, dtype, units):
+            d = g.create_dataset(key, shape=(n,), dtype=dtype)
+            d.attrs["units"] = units
+            return d
+
+        # Created in the order (and with the types) the columns always had.
+        numbers = {key: column(key, float, _unit_text(SUMMARY_UNITS[key]))
+                   for key in SUMMARY_COLUMNS}
+        if widths:
             for key in WIDTH_COLUMNS:
-                dataset(g, key, column(key), "cm / s")
+                numbers[key] = column(key, float, "cm / s")
             f.attrs["observables"] = json.dumps(sweep.observables)
-        dataset(g, "converged", np.array([bool(row.get("converged")) for row in rows]), "1")
+        converged = column("converged", bool, "1")
         # (a hydrostatic base, not a wind: see windsolve.result.HYDROSTATIC_EFOLDS)
-        dataset(g, "hydrostatic", np.nan_to_num(column("base_density_efolds"))
-                > HYDROSTATIC_EFOLDS, "1")
-        for key in ("status", "message"):
-            strings(g, key, (row.get(key, "") for row in rows))
-        dataset(g, "seconds", column("seconds"), "s")
-        for i, row in enumerate(rows):
-            if row.get("profile"):
-                write_profile(f.create_group(f"profiles/{i}"), row["profile"])
+        hydrostatic = column("hydrostatic", bool, "1")
+        text = {key: column(key, h5py.string_dtype(), "none") for key in ("status", "message")}
+        numbers["seconds"] = column("seconds", float, "s")
+        seen = np.zeros(n, dtype=bool)
+        for chunk in chunks:
+            if not chunk:
+                continue
+            chunk = sorted(chunk, key=operator.itemgetter(0))  # stable: a later copy last
+            rows = np.array([i for i, _ in chunk], dtype=np.int64)
+            if rows[0] < 0 or rows[-1] >= n:
+                raise ValueError(f"sweep row {int(rows[0] if rows[0] < 0 else rows[-1])} is "
+                                 f"outside the sweep's {n} rows")
+            last = np.append(rows[1:] != rows[:-1], True)  # a row given twice: the later
+            records = [r for (_, r), keep in zip(chunk, last, strict=True) if keep]
+            rows = rows[last]
+            check_statuses({r.get("status") for r in records})
+            m = len(records)
+            try:  # one C-level lookup a row when every row has every column
+                data = np.array([get(r) for r in records], dtype=float).reshape(m, len(keys))
+            except KeyError:
+                data = np.array([[r.get(key, math.nan) for key in keys] for r in records],
+                                dtype=float).reshape(m, len(keys))
+            targets = [(d, data[:, index[key]]) for key, d in numbers.items()]
+            targets.append((converged, np.array([bool(r.get("converged")) for r in records])))
+            targets.append((hydrostatic, np.nan_to_num(data[:, efolds]) > HYDROSTATIC_EFOLDS))
+            targets += [(d, np.array([r.get(key, "") for r in records], dtype=h5py.string_dtype()))
+                        for key, d in text.items()]
+            runs = _runs(rows)
+            for d, v in targets:
+                if len(runs) <= 32:  # a few contiguous slices (the usual journal order)
+                    for a, b in runs:
+                        d[rows[a]:rows[a] + (b - a)] = v[a:b]
+                else:  # scattered rows (a resumed journal with holes): one selection
+                    d[rows] = v
+            for i, r, again in zip(rows.tolist(), records, seen[rows].tolist(), strict=True):
+                name = f"profiles/{i}"
+                if again and name in f:
+                    del f[name]
+                if r.get("profile"):
+                    write_profile(f.create_group(name), r["profile"])
+            seen[rows] = True
+            del chunk, records, targets, data  # before the next chunk is read
+        if not seen.all():
+            raise ValueError(f"sweep row {int(np.flatnonzero(~seen)[0])} has no record; the "
+                             f"table needs every row")
 
     return write_hdf5(out, fill)
 

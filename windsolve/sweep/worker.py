@@ -81,18 +81,38 @@ def _line_settings(observables):
 
 
 def journal_batch(base, items, profiles=False, observables=None, design=None):
-    """:func:`run_batch` and its rows as the journal's JSON lines: ``(text, records)``.
+    """:func:`run_batch` and its rows as the journal's JSON lines: ``(text, ends)``.
 
     Serialising in the worker keeps that work off the main process, which
-    appends the text to the journal and keeps the records (unpickling them
-    costs it far less than parsing the JSON would).  Every record carries
-    ``design`` (:meth:`Sweep.design_digest`), so a resume can tell that each
-    journaled row belongs to its sweep.
+    appends the text to the journal and keeps only how each row ended: the
+    records themselves go to the journal alone (the table is written from
+    it).  ``ends`` holds :func:`row_end` of every record.  Every record
+    carries ``design`` (:meth:`Sweep.design_digest`), so a resume can tell
+    that each journaled row belongs to its sweep.
     """
     records = run_batch(base, items, profiles, observables)
     for record in records:
         record["design"] = design
-    return "".join(json.dumps(record) + "\n" for record in records), records
+    return "".join(json.dumps(record) + "\n" for record in records), \
+        [row_end(record) for record in records]
+
+
+def row_end(record):
+    """How a row ended, in a few bytes: ``(row, converged, status, hydrostatic)``.
+
+    ``hydrostatic``: converged with a hydrostatic base (more than
+    :data:`windsolve.result.HYDROSTATIC_EFOLDS` density e-folds below the
+    sonic point).  A status that is not text (a damaged journal) is given as
+    its repr, so it can be counted (the table's writer refuses it).
+    """
+    from ..result import HYDROSTATIC_EFOLDS
+    status = record.get("status")
+    if status is not None and not isinstance(status, str):
+        status = repr(status)
+    converged = bool(record.get("converged"))
+    efolds = record.get("base_density_efolds", 0.0)
+    static = converged and isinstance(efolds, (int, float)) and efolds > HYDROSTATIC_EFOLDS
+    return record["row"], converged, status, bool(static)
 
 
 # -- a Model A row from the base model's kernel vectors ------------------------------
