@@ -3,3 +3,8 @@
 The user-facing layer (``windsolve.physics``, ``windsolve.models``,
 ``windsolve.solve``) validates input, converts units once and calls these.
 """
+
+from ._cachelock import install as _install_cache_lock
+
+# Before any kernel below is compiled or loaded from numba's cache (see _cachelock).
+CACHE_LOCKED = _install_cache_lock()
