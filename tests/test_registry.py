@@ -213,7 +213,7 @@ def test_a_kind_cannot_be_registered_twice():
 @pytest.mark.parametrize("changes", [{}, {"luminosity": "5e5 Lsun"},
                                      {"sound_speed": "1000 km/s"}])
 def test_every_status_a_solve_reports_is_in_the_vocabulary(changes, tmp_path):
-    from windsolve.result import STATUSES
+    from windsolve.status import STATUSES
     model = windsolve.load_model(CONFIGS / "parker_reference.toml").replace(**changes)
     result = windsolve.solve(model)
     assert result.status in STATUSES
@@ -223,7 +223,7 @@ def test_every_status_a_solve_reports_is_in_the_vocabulary(changes, tmp_path):
 
 
 def test_the_vocabulary_has_one_line_per_status_and_the_writer_refuses_others(tmp_path):
-    from windsolve.result import STATUSES
+    from windsolve.status import STATUSES
     for status, meaning in STATUSES.items():
         assert status.isidentifier() and status.islower()
         assert meaning and "\n" not in meaning
@@ -247,3 +247,54 @@ def test_builtin_specs_name_every_summary_value_their_solvers_report():
         for key, unit in spec.summary_units.items():
             assert SUMMARY_UNITS[key] == unit
             assert result.summary[key].unit.is_equivalent(unit)
+
+
+# -- the unit-free result type -----------------------------------------------------------------
+
+def test_the_status_vocabulary_has_one_home_that_result_re_exports():
+    import windsolve.result
+    import windsolve.status
+    assert windsolve.result.STATUSES is windsolve.status.STATUSES
+
+
+@pytest.mark.parametrize("fixture", ["demo_result", "bump_result"])
+def test_a_result_is_its_unit_free_solution_with_units(fixture, request):
+    """WindResult.from_cgs(model, result.to_cgs()) gives the result back, value for value
+    (both models: from_cgs is the only place a solver's cgs numbers get their units)."""
+    from windsolve.result import PROFILE_UNITS, SUMMARY_UNITS, SolutionCGS
+    result = request.getfixturevalue(fixture)
+    solution = result.to_cgs()
+    assert isinstance(solution, SolutionCGS)
+    assert all(isinstance(v, float) for v in solution.summary.values())
+    assert solution.ln_mdot == pytest.approx(math.log(solution.summary["mass_loss_rate"]),
+                                             rel=1e-15)
+    again = WindResult.from_cgs(result.model, solution)
+    assert (again.converged, again.status, again.message) == (result.converged, result.status,
+                                                              result.message)
+    assert list(again.summary) == list(result.summary)
+    for key, q in result.summary.items():
+        assert again.summary[key].unit == SUMMARY_UNITS[key]
+        assert again.summary[key].to_value(q.unit) == pytest.approx(q.value, rel=1e-15,
+                                                                     nan_ok=True)
+    assert list(again.profile) == [k for k in PROFILE_UNITS if k in result.profile]
+    for key, q in result.profile.items():
+        assert np.array_equal(again.profile[key].to_value(q.unit), q.value)
+
+
+def test_model_a_cgs_solve_is_what_solve_reports(demo_model, demo_result):
+    """The cgs solve (what sweep rows use) carries the numbers solve() shows, in cgs."""
+    from windsolve.models.isothermal import solve_isothermal_cgs
+    from windsolve.result import PROFILE_UNITS, SUMMARY_UNITS
+    solution = solve_isothermal_cgs(demo_model)
+    assert solution.status == demo_result.status and solution.widths is None
+    for key, q in demo_result.summary.items():
+        assert solution.summary[key] == q.to_value(SUMMARY_UNITS[key]), key
+    assert math.exp(solution.ln_mdot) == solution.summary["mass_loss_rate"]
+    for key, q in demo_result.profile.items():
+        assert np.array_equal(solution.profile[key], q.to_value(PROFILE_UNITS[key])), key
+    assert np.all(solution.profile["temperature"] == demo_model.T)
+    # without a profile: the outer end only (the base Eddington factor then comes from the
+    # base speed Mdot / (4 pi R0^2 rho0) instead of the integrated one: equal to ~1e-9)
+    short = solve_isothermal_cgs(demo_model, profile=False)
+    assert short.profile == {} and short.summary["mass_loss_rate"] == (
+        solution.summary["mass_loss_rate"])

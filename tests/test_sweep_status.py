@@ -1,4 +1,4 @@
-"""Sweep row statuses come from one vocabulary, windsolve.result.STATUSES.
+"""Sweep row statuses come from one vocabulary, windsolve.status.STATUSES.
 
 The words a sweep can write are found in the program's source (every status
 assignment, ``status=`` keyword, ``record["status"] = ...`` and every
@@ -12,7 +12,7 @@ from pathlib import Path
 import pytest
 
 import windsolve
-from windsolve.result import STATUSES
+from windsolve.status import STATUSES
 from windsolve.sweep import load_sweep, run_batch, write_sweep_table
 
 PACKAGE = Path(windsolve.__file__).parent
@@ -82,7 +82,7 @@ def test_every_status_a_sweep_can_write_is_in_the_vocabulary():
                  "error"):
         assert word in found, f"the source scan no longer finds status {word!r}"
     unknown = {w: where for w, where in found.items() if w not in STATUSES}
-    assert not unknown, f"statuses outside windsolve.result.STATUSES: {unknown}"
+    assert not unknown, f"statuses outside windsolve.status.STATUSES: {unknown}"
 
 
 @pytest.fixture

@@ -8,6 +8,7 @@ failed, and the numbers that could not be computed are NaN.
 """
 
 import json
+import math
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -17,30 +18,9 @@ import numpy as np
 from ._io import dataset, open_hdf5, stamp, strings, write_hdf5
 from .errors import OutputError
 from .registry import SUMMARY_UNITS
+from .status import STATUSES, check_statuses
 
-__all__ = ["WindResult", "PROFILE_UNITS", "SUMMARY_UNITS", "STATUSES"]
-
-# The status vocabulary: every ``WindResult.status`` (and every sweep row's
-# status) is one of these words; one line of meaning each.  A new model's
-# solver uses these words (to_hdf5 refuses any other); the message says the rest.
-STATUSES = {
-    "converged": "a complete transonic solution through a saddle, out to the outer radius "
-                 "(Model B: to the photosphere)",
-    "no_critical_point": "no mass-loss rate gives a critical point: gravity wins everywhere, "
-                         "or the gas is unbound from the base out",
-    "no_saddle": "critical points exist but none is a saddle (X-type): no transonic solution",
-    "stalled": "photon tiring uses up the luminosity: the flow stalls before it escapes",
-    "second_singular_point": "the supersonic solution falls back to the sound speed (N != 0) "
-                             "before the outer radius",
-    "no_bracket": "no mass-loss rate with a critical point meets the base condition",
-    "sonic_point_on_base": "the only candidate's sonic point lies on the base: it has no "
-                           "subsonic part",
-    "no_solution": "no steady transonic solution exists for these parameters",
-    "off_table": "the solution leaves the opacity table (no opacity where it goes)",
-    "fallback": "the matter above the photosphere does not escape (v_inf^2 <= 0)",
-    "failed": "a numerical failure: an integration or iteration did not converge",
-    "error": "a sweep row whose model could not be built or solved (the message says why)",
-}
+__all__ = ["WindResult", "SolutionCGS", "PROFILE_UNITS", "SUMMARY_UNITS", "STATUSES"]
 
 MSUN_PER_YR = u.Msun / u.yr
 
@@ -90,6 +70,51 @@ def write_profile(group, profile):
 def _unit_text(unit):
     text = u.Unit(unit).to_string()
     return text if text else "1"  # CF convention for dimensionless
+
+
+@dataclass(slots=True)
+class SolutionCGS:
+    """A solve's outcome in plain cgs floats and arrays: what :class:`WindResult` wraps in units.
+
+    A solver builds one and :meth:`WindResult.from_cgs` puts the units on
+    (once, at the boundary); a sweep worker reads its numbers directly, so a
+    row costs no unit handling.
+
+    Attributes
+    ----------
+    converged : bool
+        As :attr:`WindResult.converged`.
+    status : str
+        One of :data:`windsolve.status.STATUSES`.
+    message : str
+        One line, in words.
+    summary : dict of float
+        Summary key -> value in the cgs unit of :data:`SUMMARY_UNITS`
+        [g/s, cm/s, cm, K, erg/s, or dimensionless]; NaN when unknown.
+    profile : dict of ndarray
+        Profile key -> float array in the cgs unit of :data:`PROFILE_UNITS`,
+        on one increasing radial grid; empty when none was computed.
+    critical_points : list of dict
+        As :attr:`WindResult.critical_points` (``radius`` in cm).
+    counters : dict
+        ``shots`` (trial integrations), ``seconds`` (wall time) and
+        model-specific counts.
+    ln_mdot : float
+        ln of the mass-loss rate [g/s] the shooting converged to (NaN if none).
+    widths : tuple of float or None
+        (FWHM, HWZI, blue edge) [cm/s] when the solver measured them in the
+        same compiled call (Model A sweep rows), else None.
+    """
+
+    converged: bool
+    status: str
+    message: str
+    summary: dict
+    profile: dict = field(default_factory=dict)
+    critical_points: list = field(default_factory=list)
+    counters: dict = field(default_factory=dict)
+    ln_mdot: float = math.nan
+    widths: tuple | None = None
 
 
 @dataclass
@@ -149,6 +174,41 @@ class WindResult:
     profile: dict = field(default_factory=dict)
     critical_points: list = field(default_factory=list)
     counters: dict = field(default_factory=dict)
+
+    @classmethod
+    def from_cgs(cls, model, solution: SolutionCGS) -> "WindResult":
+        """The result of ``model`` from its unit-free :class:`SolutionCGS`.
+
+        Parameters
+        ----------
+        model : WindModel
+            The model that was solved.
+        solution : SolutionCGS
+            Its outcome in cgs; the summary values get the units of
+            :data:`SUMMARY_UNITS`, the profile arrays (not copied) those of
+            :data:`PROFILE_UNITS`, in that order.
+
+        Returns
+        -------
+        WindResult
+        """
+        summary = {key: value * SUMMARY_UNITS[key] for key, value in solution.summary.items()}
+        profile = {key: solution.profile[key] << unit for key, unit in PROFILE_UNITS.items()
+                   if key in solution.profile}
+        return cls(model, solution.converged, solution.status, solution.message, summary,
+                   profile, solution.critical_points, solution.counters)
+
+    def to_cgs(self) -> SolutionCGS:
+        """This result without units: a :class:`SolutionCGS` (the inverse of :meth:`from_cgs`).
+
+        ``ln_mdot`` is ln of the summary's mass-loss rate [g/s]; ``widths`` None.
+        """
+        summary = {key: float(q.to_value(SUMMARY_UNITS[key])) for key, q in self.summary.items()}
+        profile = {key: q.to_value(PROFILE_UNITS[key]) for key, q in self.profile.items()}
+        mdot = summary.get("mass_loss_rate", math.nan)
+        return SolutionCGS(self.converged, self.status, self.message, summary, profile,
+                           list(self.critical_points), dict(self.counters),
+                           math.log(mdot) if mdot > 0 else math.nan)
 
     @property
     def hydrostatic(self) -> bool:
@@ -236,9 +296,7 @@ class WindResult:
         """
         from .modelfile import dumps
 
-        if self.status not in STATUSES:
-            raise ValueError(f"status {self.status!r} is not in windsolve.result.STATUSES; a "
-                             f"solver reports one of {', '.join(STATUSES)}")
+        check_statuses([self.status])
         path = Path(path)
         if path.is_dir():
             raise OutputError(f"{path} is a directory; give a file name such as wind.h5")

@@ -190,7 +190,7 @@ class SweepRun:
         Converged rows with a hydrostatic base (the table's ``hydrostatic``
         column; see :data:`windsolve.result.HYDROSTATIC_EFOLDS`).
     statuses : dict of str to int
-        Finished rows by status (:data:`windsolve.result.STATUSES`), most
+        Finished rows by status (:data:`windsolve.status.STATUSES`), most
         frequent first.
     interrupted : bool
         True after Ctrl-C: the finished rows stay in the journal and the
@@ -337,7 +337,7 @@ def run_sweep(sweep: Sweep, out: str | Path, workers: int | None = None,
         journal belongs to another design, or the output is locked by
         another running sweep.
     ValueError
-        A row's status is not in :data:`windsolve.result.STATUSES` (the table
+        A row's status is not in :data:`windsolve.status.STATUSES` (the table
         is not written; the journal is kept).
     WindsolveError
         The sweep stalled for ``stall_timeout`` (the rows finished so far

@@ -52,25 +52,9 @@ def axis_views(path):
 # -- output --------------------------------------------------------------------------
 
 def check_statuses(statuses):
-    """Refuse a row status outside the vocabulary :data:`windsolve.result.STATUSES`.
-
-    Parameters
-    ----------
-    statuses : iterable of str
-        The rows' ``status`` words (a missing one as ``None``).
-
-    Raises
-    ------
-    ValueError
-        A status that is not a key of STATUSES (a solver or a plug-in model
-        reporting a word nobody can look up); the message names it.
-    """
-    from ..result import STATUSES
-    unknown = set(statuses) - STATUSES.keys()
-    if unknown:
-        bad = ", ".join(sorted(repr(s) for s in unknown))
-        raise ValueError(f"sweep row status {bad} is not in windsolve.result.STATUSES; a "
-                         f"solver reports one of {', '.join(STATUSES)}")
+    """Refuse a row status outside :data:`windsolve.status.STATUSES` (one line, ValueError)."""
+    from ..status import check_statuses as check
+    check(statuses, "sweep row status")
 
 
 # Rows parsed and written at a time: the writer holds one chunk's records (a record
@@ -98,7 +82,7 @@ def write_sweep_table(sweep, records, out):
     Raises
     ------
     ValueError
-        A row's status is not in :data:`windsolve.result.STATUSES`, or a row
+        A row's status is not in :data:`windsolve.status.STATUSES`, or a row
         has no record; nothing is written.
     """
     n = len(sweep)
@@ -149,7 +133,7 @@ def write_sweep_rows(sweep, chunks, out):
     Raises
     ------
     ValueError
-        A row's status is not in :data:`windsolve.result.STATUSES` (checked
+        A row's status is not in :data:`windsolve.status.STATUSES` (checked
         chunk by chunk), a row number out of range, or a row without a
         record; nothing is written.
     """

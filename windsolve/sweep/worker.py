@@ -52,16 +52,16 @@ def isothermal_row(model, record, observables):
     from ..models.isothermal import solve_isothermal_cgs
 
     settings = None if observables is None else _line_settings(observables).cgs
-    raw = solve_isothermal_cgs(model, profile=False, critical=False, widths=settings,
-                               explain=False)
-    record["converged"] = raw["converged"]
-    record["status"] = raw["status"]
-    record["message"] = raw["message"]
-    summary = raw["summary"]
+    solution = solve_isothermal_cgs(model, profile=False, critical=False, widths=settings,
+                                    explain=False)
+    record["converged"] = solution.converged
+    record["status"] = solution.status
+    record["message"] = solution.message
+    summary = solution.summary
     for key in SUMMARY_COLUMNS:
         record[key] = summary.get(key, math.nan)
     if observables is not None:
-        record["fwhm"], record["hwzi"], record["edge_velocity"] = raw.get("widths", _NO_WIDTHS)
+        record["fwhm"], record["hwzi"], record["edge_velocity"] = solution.widths or _NO_WIDTHS
 
 
 _NO_WIDTHS = (math.nan,) * 3

@@ -3,23 +3,12 @@
 import math
 import time
 
-import astropy.units as u
 import numpy as np
 
 from ...core.constants import R_SUN
 from ...core.critical import KIND_NAMES
-from ...result import (
-    WindResult,
-)
-from ..base import (
-    CAPACITY,
-    CM2_G,
-    CM_S,
-    ERG_S,
-    G_CM3,
-    G_S,
-    MAX_STEP,
-)
+from ...result import SolutionCGS, WindResult
+from ..base import CAPACITY, MAX_STEP
 
 
 def _diffusion_failure_result(model, summary, code, text, t0):
@@ -27,8 +16,9 @@ def _diffusion_failure_result(model, summary, code, text, t0):
     status = {D.OFF_TABLE: "off_table", D.STALLED: "stalled", D.FALLBACK: "fallback",
               D.INVALID: "no_solution", D.SINGULAR: "no_solution"}.get(code, "failed")
     from . import shooting as B
-    return WindResult(model, False, status, text, summary,
-                      counters={"shots": B.shots(), "seconds": time.perf_counter() - t0})
+    return WindResult.from_cgs(model, SolutionCGS(
+        False, status, text, summary,
+        counters={"shots": B.shots(), "seconds": time.perf_counter() - t0}))
 
 
 def solve_diffusion(model, profile=True):
@@ -48,12 +38,10 @@ def solve_diffusion(model, profile=True):
     P, O = model.kernel_arrays
     rtol = model.rtol
     M = model.cgs("mass")
-    nan = np.nan
-    summary = {key: nan * unit for key, unit in (
-        ("mass_loss_rate", G_S), ("terminal_velocity", CM_S),
-        ("sonic_radius", u.cm), ("sonic_velocity", CM_S),
-        ("photosphere_radius", u.cm), ("photosphere_temperature", u.K),
-        ("photosphere_luminosity", ERG_S), ("energy_flux", ERG_S))}
+    summary = dict.fromkeys(  # cgs floats (SUMMARY_UNITS); NaN until known
+        ("mass_loss_rate", "terminal_velocity", "sonic_radius", "sonic_velocity",
+         "photosphere_radius", "photosphere_temperature", "photosphere_luminosity",
+         "energy_flux"), math.nan)
     kes = P[D.I_KES]
     if model.opacity.law == "electron_scattering" and model.porosity_length is None:
         L = (model.cgs("photosphere_luminosity") if model.anchor == "photosphere"
@@ -105,31 +93,23 @@ def solve_diffusion(model, profile=True):
     tau = D.TAU_PH + from_out[::-1]
     w2 = D.terminal_velocity_squared(R_ph, v_ph, L_ph, c.P)
     summary.update({
-        "mass_loss_rate": c.mdot * G_S,
-        "terminal_velocity": math.sqrt(w2) * CM_S,
-        "sonic_radius": c.rc * u.cm,
-        "sonic_velocity": c.vc * CM_S,
-        "photosphere_radius": R_ph * u.cm,
-        "photosphere_temperature": D.effective_temperature(L_ph, R_ph) * u.K,
-        "photosphere_luminosity": L_ph * ERG_S,
-        "energy_flux": c.P[D.I_EDOT] * ERG_S,
-        "photosphere_velocity": v_ph * CM_S,
-        "sonic_temperature": c.Tc * u.K,
-        "base_radius": r[0] * u.cm,
-        "base_temperature": T[0] * u.K,
-        "base_density": rho[0] * G_CM3,
-        "base_luminosity": L[0] * ERG_S,
+        "mass_loss_rate": c.mdot,
+        "terminal_velocity": math.sqrt(w2),
+        "sonic_radius": c.rc,
+        "sonic_velocity": c.vc,
+        "photosphere_radius": R_ph,
+        "photosphere_temperature": D.effective_temperature(L_ph, R_ph),
+        "photosphere_luminosity": L_ph,
+        "energy_flux": c.P[D.I_EDOT],
+        "photosphere_velocity": v_ph,
+        "sonic_temperature": c.Tc,
+        "base_radius": r[0],
+        "base_temperature": T[0],
+        "base_density": rho[0],
+        "base_luminosity": L[0],
     })
-    profile = {
-        "radius": r << u.cm,
-        "velocity": v << CM_S,
-        "density": rho << G_CM3,
-        "temperature": T << u.K,
-        "luminosity": L << ERG_S,
-        "opacity": kappa << CM2_G,
-        "eddington_factor": gamma << u.one,
-        "optical_depth": tau << u.one,
-    }
+    profile = {"radius": r, "velocity": v, "density": rho, "temperature": T, "luminosity": L,
+               "opacity": kappa, "eddington_factor": gamma, "optical_depth": tau}
     kind, pp, pm, dTdr, k1 = D.critical_slopes(c.rc, c.vc, c.Tc, c.P, O)
     critical = [{"radius": c.rc, "kind": KIND_NAMES[int(kind)], "slope_plus": float(pp),
                  "slope_minus": float(pm)}]
@@ -137,7 +117,8 @@ def solve_diffusion(model, profile=True):
     message = (f"converged: transonic solution through the saddle at r_c = "
                f"{c.rc / R0:.5g} R_base (T_c = {c.Tc:.4g} K); photosphere at "
                f"{R_ph / R_SUN:.4g} Rsun")
-    return WindResult(model, True, "converged", message, summary, profile, critical,
-                      {"shots": B.shots(), "seconds": time.perf_counter() - t0})
+    return WindResult.from_cgs(model, SolutionCGS(
+        True, "converged", message, summary, profile, critical,
+        {"shots": B.shots(), "seconds": time.perf_counter() - t0}, math.log(c.mdot)))
 
 

@@ -2,16 +2,13 @@
 
 import math
 import time
-from typing import TYPE_CHECKING
 
-import astropy.units as u
 import numpy as np
 
 from ...core.critical import KIND_NAMES
 from ...result import (
     HYDROSTATIC_EFOLDS,
-    PROFILE_UNITS,
-    SUMMARY_UNITS,
+    SolutionCGS,
     WindResult,
     base_density_efolds,
 )
@@ -25,10 +22,6 @@ from ..base import (
     RSUN,
 )
 from . import kernels as K
-
-if TYPE_CHECKING:
-    pass
-
 
 SURVEY_POINTS = 400  # trial mass-loss rates scanned to explain a failure
 
@@ -241,16 +234,14 @@ def _isothermal_failure(code, model, P=None, O=None, ln_mdot=math.nan, rc=math.n
 def solve_isothermal_cgs(model, profile=True, critical=True, widths=None, explain=True):
     """Model A in plain cgs floats: what :func:`solve_isothermal` wraps in units.
 
-    Returns a dict with ``converged``, ``status``, ``message``, ``summary``
-    (floats in the cgs units of :data:`~windsolve.result.SUMMARY_UNITS`),
-    ``profile`` (float arrays in those of ``PROFILE_UNITS``, temperature
-    left out as it is the model's T; empty without ``profile``),
-    ``critical`` (the critical points, only with ``critical``), ``ln_mdot``
-    and ``counters``.  Sweep workers use it directly, so that a model's row
-    costs no unit handling.
+    Returns a :class:`~windsolve.result.SolutionCGS`: the summary in the cgs
+    units of :data:`~windsolve.result.SUMMARY_UNITS`, the profile (empty
+    without ``profile``; the temperature is the model's T everywhere) in those
+    of ``PROFILE_UNITS``, the critical points only with ``critical``.  Sweep
+    workers use it directly, so that a model's row costs no unit handling.
 
     With ``widths`` (a :class:`~windsolve.lines.LineSettingsCGS`) and no
-    ``profile``, a converged result also has ``widths``: (FWHM, HWZI, blue
+    ``profile``, a converged solution also has ``widths``: (FWHM, HWZI, blue
     edge) [cm/s], the numbers ``line_widths(solve(model), settings)`` gives,
     measured in one compiled call
     (:func:`windsolve.models.isothermal.width_kernels.outer_state_and_widths`).
@@ -274,8 +265,7 @@ def solve_isothermal_cgs(model, profile=True, critical=True, widths=None, explai
         "base_eddington_factor": K.base_eddington_factor(P, O),
         "base_density_efolds": nan,
     }
-    out = {"converged": False, "summary": summary, "profile": {}, "critical": [],
-           "counters": {"shots": int(shots)}}
+    counters = {"shots": int(shots)}
     if code != K.OK:
         if code in (K.NO_CRITICAL_POINT_BOUND, K.NO_CRITICAL_POINT_UNBOUND):
             # The search met no saddle; say so more precisely when some
@@ -285,11 +275,10 @@ def solve_isothermal_cgs(model, profile=True, critical=True, widths=None, explai
             K.survey(P, O, x_max - K.LN_RANGE, x_max, codes)
             if np.any(codes == K.NO_SADDLE):
                 code = K.NO_SADDLE
-        out["status"], out["message"] = _isothermal_failure(code, model, P if explain else None,
-                                                            O, ln_mdot, rc)
-        out["counters"]["seconds"] = time.perf_counter() - t0
-        return out
-    out["ln_mdot"] = ln_mdot
+        status, message = _isothermal_failure(code, model, P if explain else None, O,
+                                              ln_mdot, rc)
+        counters["seconds"] = time.perf_counter() - t0
+        return SolutionCGS(False, status, message, summary, counters=counters)
     v0 = math.exp(ln_mdot) / (FOUR_PI * R0**2 * model.cgs("base_density"))
     if profile:
         st_in, st_out, r, v = K.profile(ln_mdot, P, O, rtol, DELTA, MAX_STEP, CAPACITY)
@@ -310,10 +299,13 @@ def solve_isothermal_cgs(model, profile=True, critical=True, widths=None, explai
     efolds = base_density_efolds(summary["mass_loss_rate"], rc, model.a,
                                  model.cgs("base_density"))
     summary["base_density_efolds"] = efolds
-    out["hydrostatic"] = bool(efolds > HYDROSTATIC_EFOLDS)
-    if profile:
-        out["profile"] = {"radius": r, "velocity": v, "density": rho, "luminosity": L,
-                          "opacity": kappa, "eddington_factor": gamma}
+    hydrostatic = bool(efolds > HYDROSTATIC_EFOLDS)
+    arrays = {}
+    if profile:  # isothermal: T is the model's everywhere
+        arrays = {"radius": r, "velocity": v, "density": rho,
+                  "temperature": np.full_like(r, model.T), "luminosity": L,
+                  "opacity": kappa, "eddington_factor": gamma}
+    points = []
     if critical:
         Q = K.set_mass_loss_rate(P, ln_mdot)
         cr = np.empty(64)
@@ -321,11 +313,12 @@ def solve_isothermal_cgs(model, profile=True, critical=True, widths=None, explai
         cpp = np.empty(64)
         cpm = np.empty(64)
         n = K.critical_points(Q, O, cr, ck, cpp, cpm)
-        out["critical"] = [{"radius": float(cr[i]), "kind": KIND_NAMES[int(ck[i])],
+        points = [{"radius": float(cr[i]), "kind": KIND_NAMES[int(ck[i])],
                             "slope_plus": float(cpp[i]), "slope_minus": float(cpm[i])}
                            for i in range(n)]
     r_end = r[-1] / R0
     converged = False
+    measured_widths = None
     if st_in != K.OK:
         # The shooting reached R0 with this Mdot; a profile that does not is
         # an integration problem, not physics: say so rather than guess.
@@ -334,10 +327,10 @@ def solve_isothermal_cgs(model, profile=True, critical=True, widths=None, explai
         converged, status = True, "converged"
         summary["terminal_velocity"] = float(v[-1])
         if widths is not None and not profile:
-            out["widths"] = tuple(measured)
+            measured_widths = tuple(measured)
         message = (f"converged: transonic solution through the saddle at "
                    f"r_c = {rc / R0:.5g} R0")
-        if out["hydrostatic"]:
+        if hydrostatic:
             message += (f"; but the base lies {efolds:.4g} density e-folds below it (more "
                         f"than {HYDROSTATIC_EFOLDS:g}): a hydrostatic atmosphere, not a wind")
     elif st_out == K.STALLED:
@@ -357,21 +350,12 @@ def solve_isothermal_cgs(model, profile=True, critical=True, widths=None, explai
     else:
         status = "failed"
         message = f"the outward integration failed at r = {r_end:.5g} R0"
-    out.update(converged=converged, status=status, message=message)
-    out["counters"]["seconds"] = time.perf_counter() - t0
-    return out
+    counters["seconds"] = time.perf_counter() - t0
+    return SolutionCGS(converged, status, message, summary, arrays, points, counters, ln_mdot,
+                       measured_widths)
 
 
 def solve_isothermal(model, profile=True):
-    """Solve Model A (:class:`~windsolve.models.IsothermalWind`)."""
-    raw = solve_isothermal_cgs(model, profile)
-    summary = {key: value * SUMMARY_UNITS[key] for key, value in raw["summary"].items()}
-    summary["outer_radius"] = model.outer_radius.to(u.cm)
-    prof = {}
-    if raw["profile"]:  # isothermal: T is the model's everywhere
-        arrays = dict(raw["profile"], temperature=np.full_like(raw["profile"]["radius"], model.T))
-        prof = {key: arrays[key] << unit for key, unit in PROFILE_UNITS.items() if key in arrays}
-    return WindResult(model, raw["converged"], raw["status"], raw["message"], summary,
-                      prof, raw["critical"], raw["counters"])
-
-
+    """Solve Model A (:class:`~windsolve.models.IsothermalWind`): :func:`solve_isothermal_cgs`
+    with units (:meth:`~windsolve.result.WindResult.from_cgs`)."""
+    return WindResult.from_cgs(model, solve_isothermal_cgs(model, profile))
