@@ -594,6 +594,7 @@ class _Parser(argparse.ArgumentParser):
 def build_parser():
     from ._version import __version__
     from .family import MAX_MEMBERS
+    from .observe import QUANTITIES
     parser = _Parser(prog="windsolve", description=DESCRIPTION)
     parser.add_argument("--version", action="version", version=f"windsolve {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
@@ -672,7 +673,7 @@ def build_parser():
                    help="the other end, same dimension")
     p.add_argument("--observed", required=True, help="observed-widths CSV")
     p.add_argument("--quantity", default="terminal_velocity",
-                   choices=["terminal_velocity", "fwhm", "hwzi", "edge_velocity"],
+                   choices=QUANTITIES,
                    help="which observed quantity to match (default terminal_velocity)")
     p.add_argument("--object", help="which object of the CSV (when it holds several)")
     _add_line_options(p)

@@ -28,6 +28,7 @@ import numpy as np
 from ._io import read_input_text
 from .errors import ModelError
 from .opacity import nearest
+from .registry import LINE_WIDTHS
 
 if TYPE_CHECKING:
     from .lines import LineSettings
@@ -37,7 +38,7 @@ if TYPE_CHECKING:
 __all__ = ["QUANTITIES", "Observation", "read_observed", "predict", "compare_result",
            "sweep_chi2", "match_parameter"]
 
-QUANTITIES = ("terminal_velocity", "fwhm", "hwzi", "edge_velocity")
+QUANTITIES = ("terminal_velocity", *LINE_WIDTHS)
 COLUMNS = ("object", "quantity", "line", "value", "uncertainty", "unit")
 
 

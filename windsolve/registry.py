@@ -46,6 +46,11 @@ SUMMARY_UNITS = {
     "base_density_efolds": u.dimensionless_unscaled,
 }
 
+# The line widths windsolve measures (windsolve.lines.line_widths), in the order its
+# measuring kernels return them [cm/s]; observations name them so (windsolve.observe) and
+# sweep tables store them as columns of these names.
+LINE_WIDTHS = ("fwhm", "hwzi", "edge_velocity")
+
 
 def lazy(module, name):
     """A function that imports ``module`` (absolute name) and calls its ``name`` on

@@ -7,6 +7,7 @@ from pathlib import Path
 
 import numpy as np
 
+from ..registry import LINE_WIDTHS
 from .spec import AxisView, _wide
 
 
@@ -18,7 +19,7 @@ def _summary_columns():
 SUMMARY_COLUMNS = _summary_columns()
 
 
-WIDTH_COLUMNS = ("fwhm", "hwzi", "edge_velocity")
+WIDTH_COLUMNS = LINE_WIDTHS  # (windsolve.registry.LINE_WIDTHS)
 
 
 

@@ -61,7 +61,7 @@ def isothermal_row(model, record, observables):
     for key in SUMMARY_COLUMNS:
         record[key] = summary.get(key, math.nan)
     if observables is not None:
-        record["fwhm"], record["hwzi"], record["edge_velocity"] = solution.widths or _NO_WIDTHS
+        record.update(zip(WIDTH_COLUMNS, solution.widths or _NO_WIDTHS, strict=True))
 
 
 _NO_WIDTHS = (math.nan,) * 3
@@ -337,8 +337,8 @@ def run_batch(base, items, profiles=False, observables=None):
                     record[name] = math.nan
                 if result.converged:
                     from ..lines import result_widths_cgs
-                    fwhm, hwzi, edge = result_widths_cgs(result, _line_settings(observables))
-                    record["fwhm"], record["hwzi"], record["edge_velocity"] = fwhm, hwzi, edge
+                    record.update(zip(WIDTH_COLUMNS, result_widths_cgs(
+                        result, _line_settings(observables)), strict=True))
             if profiles and result.profile:
                 record["profile"] = {k: q.to_value(PROFILE_UNITS[k]).tolist()
                                      for k, q in result.profile.items()}
