@@ -109,7 +109,7 @@ def test_main_process_memory_does_not_grow_like_the_records(tmp_path, monkeypatc
     # The journal is streamed to the table in chunks of 256 rows here, so both sizes
     # are many chunks.  A record held per row is about 2 kB of Python objects (a dict
     # of some 25 floats and strings); the file being built in memory
-    # (windsolve._io.write_hdf5) costs its own few hundred bytes a row.
+    # (windsolve.io.write_hdf5) costs its own few hundred bytes a row.
     monkeypatch.setattr(runner, "ROWS_PER_CHUNK", 256)
     small, large = 500, 5000
     peaks = [main_process_peak(sweep_file(tmp_path, n // 2, name=f"s{n}.toml"),

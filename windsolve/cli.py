@@ -57,7 +57,7 @@ def cmd_run(args):
 
 
 def _check_output(path, default_ext):
-    from ._io import check_output_path
+    from .io import check_output_path
     check_output_path(path, example=f"wind{default_ext}")
 
 
@@ -146,7 +146,7 @@ def cmd_sweep(args):
                         scheduler=args.scheduler, resume=args.resume, quiet=args.quiet,
                         stall_timeout=args.stall_timeout)
     except OSError as error:  # its journal or lock file (the table's write says so itself)
-        from ._io import output_error
+        from .io import output_error
         raise output_error(error.filename or args.output, error) from None
     if run.interrupted:
         print(f"windsolve: interrupted: {run.done} of {len(sweep)} models done and kept; "
@@ -283,7 +283,7 @@ def cmd_compare(args):
     for target in (args.output, args.plot):
         if target is not None:
             _check_output(target, ".csv")
-    from ._io import hdf5_kind
+    from .io import hdf5_kind
     is_sweep = hdf5_kind(args.file) == "sweep"  # one line if it is no windsolve file
     if not is_sweep:
         from .result import WindResult
@@ -304,7 +304,7 @@ def cmd_compare(args):
                   f"{p / 1e5:13.1f} {z:17.2f}")
         print(f"  chi2 = {chi2:.3f} for {len(rows)} measurements")
         if args.output is not None:
-            from ._io import write_csv
+            from .io import write_csv
             write_csv(args.output, [["quantity", "line", "observed_km_s", "uncertainty_km_s",
                                      "model_km_s", "residual_sigma"]]
                       + [[o.quantity, o.line, o.value / 1e5, o.uncertainty / 1e5, p / 1e5, z]
@@ -358,10 +358,10 @@ def cmd_match(args):
 def cmd_inspect(args):
     import numpy as np
 
-    from ._io import open_hdf5
-    from .result import read_windsolve_file
+    from .files import read_any_file
+    from .io import open_hdf5
     path = Path(args.file)
-    read_windsolve_file(path)  # one line naming what is wrong with a damaged file
+    read_any_file(path)  # one line naming what is wrong with a damaged file
     f = open_hdf5(path)
     if args.csv is not None:
         f.close()
@@ -420,50 +420,15 @@ def cmd_inspect(args):
 
 def _export_csv(path, target):
     """Write the /table of a sweep or family file as CSV (units in the header)."""
-    import csv
-
-    import h5py
-    import numpy as np
-
-    from ._io import check_output_path
-    from .errors import OutputError
+    from .io import export_table_csv
+    export_table_csv(path, target, sys.stdout)
     if target != "-":
-        check_output_path(target)
-    with h5py.File(path, "r") as f:
-        if "table" not in f:
-            raise OutputError(f"{path}: no /table to export (only sweep and family files "
-                              f"have one)")
-        g = f["table"]
-        keys = list(g.keys())
-        if "axes" in f.attrs:  # axis columns first, in sweep order
-            import json
-            axes = json.loads(f.attrs["axes"])
-            keys = axes + [k for k in keys if k not in axes]
-        cols = []
-        for key in keys:
-            data = g[key][()]
-            if data.dtype.kind in "OS":
-                data = np.array([x.decode() if isinstance(x, bytes) else str(x) for x in data])
-            cols.append(data)
-        units = [g[k].attrs.get("units", "") for k in keys]
-    header = ["row"] + [f"{k} [{u}]" if u not in ("", "1", "none") else k
-                        for k, u in zip(keys, units, strict=True)]
-    rows = ([i] + [repr(float(c[i])) if c.dtype.kind == "f" else
-                   (bool(c[i]) if c.dtype.kind == "b" else c[i]) for c in cols]
-            for i in range(len(cols[0]) if cols else 0))
-    if target == "-":
-        w = csv.writer(sys.stdout)
-        w.writerow(header)
-        w.writerows(rows)
-        return EXIT_OK
-    from ._io import write_csv
-    write_csv(target, [header, *rows])
-    print(f"wrote {target}")
+        print(f"wrote {target}")
     return EXIT_OK
 
 
 def cmd_plot(args):
-    from ._io import hdf5_kind
+    from .io import hdf5_kind
     from .plotting import plot_profile
     from .result import WindResult
     out = Path(args.output) if args.output else Path(args.file).with_suffix(".png")

@@ -119,7 +119,7 @@ class FamilyResult:
         OutputError
             The file cannot be written.
         """
-        from ._io import dataset, stamp, strings, write_hdf5
+        from .io import dataset, stamp, strings, write_hdf5
         from .modelfile import dumps
         from .result import _unit_text, write_profile
 
@@ -165,7 +165,8 @@ class FamilyResult:
         """
         from pathlib import Path
 
-        from ._io import (
+        from .errors import OutputError
+        from .io import (
             check_photosphere,
             check_values,
             column,
@@ -175,7 +176,6 @@ class FamilyResult:
             require_kind,
             text_attr,
         )
-        from .errors import OutputError
         from .result import WindResult, stored_model
 
         path = Path(path)

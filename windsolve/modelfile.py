@@ -1,18 +1,17 @@
 """Model files: TOML in, TOML out.
 
 Reading uses :mod:`tomllib`; writing (the resolved model stored with every
-result) uses the small writer below, which covers the value types a model
-file holds: strings, numbers, booleans and one level of tables.
+result) uses the small writer :func:`windsolve.io.tomlfile.dumps` (imported
+here), which covers the value types a model file holds: strings, numbers,
+booleans and one level of tables.
 """
 
-import math
-import tomllib
 from pathlib import Path
 from typing import TYPE_CHECKING
 
-from ._io import read_input_text
 from ._units import plain
 from .errors import ModelError
+from .io import dumps, parse_toml, read_input_text
 from .opacity import nearest
 
 if TYPE_CHECKING:
@@ -43,10 +42,7 @@ def read_model_file(path: str | Path) -> dict:
     text = read_input_text(path, "a model file",
                            "give the path of a model file (see configs/ for examples)",
                            "a model file is TOML text, saved as UTF-8")
-    try:
-        return tomllib.loads(text)
-    except tomllib.TOMLDecodeError as error:
-        raise ModelError(f"{path}: not valid TOML: {error}") from None
+    return parse_toml(text, path)
 
 
 def model_from_dict(data: dict, source: str = "model") -> "WindModel":
@@ -112,52 +108,3 @@ def load_model(path: str | Path) -> "WindModel":
         anything is wrong (see :func:`read_model_file`, :func:`model_from_dict`).
     """
     return model_from_dict(read_model_file(path), source=str(path))
-
-
-def _value(value):
-    if isinstance(value, bool):
-        return "true" if value else "false"
-    if isinstance(value, int):
-        return str(value)
-    if isinstance(value, float):
-        if math.isnan(value):
-            return "nan"
-        if math.isinf(value):
-            return "inf" if value > 0 else "-inf"
-        return repr(value)
-    if isinstance(value, str):
-        escaped = value.replace("\\", "\\\\").replace('"', '\\"')
-        return f'"{escaped}"'
-    raise TypeError(f"cannot write {type(value).__name__} to TOML")
-
-
-def dumps(data: dict) -> str:
-    """Write nested dicts (one level of tables) as TOML text.
-
-    Parameters
-    ----------
-    data : dict
-        Top-level values and one level of tables of strings, numbers and
-        booleans (a resolved model's :meth:`~windsolve.models.WindModel.to_dict`).
-
-    Returns
-    -------
-    str
-        TOML text that :mod:`tomllib` reads back to ``data``.
-
-    Raises
-    ------
-    TypeError
-        A value of a type the writer does not cover.
-    """
-    lines = []
-    for key, value in data.items():
-        if not isinstance(value, dict):
-            lines.append(f"{key} = {_value(value)}")
-    for key, value in data.items():
-        if isinstance(value, dict):
-            lines.append("")
-            lines.append(f"[{key}]")
-            for k, v in value.items():
-                lines.append(f"{k} = {_value(v)}")
-    return "\n".join(lines) + "\n"

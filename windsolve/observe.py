@@ -25,8 +25,8 @@ from typing import TYPE_CHECKING
 import astropy.units as u
 import numpy as np
 
-from ._io import read_input_text
 from .errors import ModelError
+from .io import read_input_text
 from .opacity import nearest
 from .registry import LINE_WIDTHS
 
@@ -401,7 +401,7 @@ def _match_range(model_cls, key, start, stop):
 def write_chi2_csv(path, views, table, chi2):
     """row, axis values (cgs, as in the sweep table; the unit in the header), chi2 -- for a
     sweep comparison.  ``views``: :func:`windsolve.sweep.axis_views` of the sweep file."""
-    from ._io import write_csv
+    from .io import write_csv
     rows = [["row"] + [f"{v.key} [{v.cgs_unit}]" if v.cgs_unit else v.key for v in views]
             + ["chi2"]]
     rows += [[i] + [repr(float(table[v.key][i])) for v in views] + [repr(float(chi2[i]))]

@@ -24,7 +24,7 @@ def _figure(figsize):
 
 def save(plt, fig, path):
     """Write a figure (format by extension) and close it; one-line OutputError."""
-    from ._io import write_figure
+    from .io import write_figure
     try:
         write_figure(fig, path, dpi=120)
     except ValueError as error:  # a format matplotlib cannot write

@@ -15,8 +15,8 @@ from pathlib import Path
 import astropy.units as u
 import numpy as np
 
-from ._io import dataset, open_hdf5, stamp, strings, write_hdf5
 from .errors import OutputError
+from .io import dataset, open_hdf5, stamp, strings, write_hdf5
 from .registry import SUMMARY_UNITS
 from .status import STATUSES, check_statuses
 
@@ -369,10 +369,8 @@ def stored_model(f, path):
     complete model (absent, empty, not TOML, incomplete: a file written by another program
     is read for what it has).  A ``model`` stamp that is not a model kind, or that
     contradicts the stored model, is an OutputError."""
-    import tomllib
-
-    from ._io import text_attr
     from .errors import WindsolveError
+    from .io import parse_toml, text_attr
     from .modelfile import model_from_dict
     from .registry import MODELS
 
@@ -386,8 +384,8 @@ def stored_model(f, path):
     if not isinstance(text, str) or not text.strip():
         return None
     try:
-        model = model_from_dict(tomllib.loads(text), source=str(path))
-    except (tomllib.TOMLDecodeError, WindsolveError, KeyError, TypeError, ValueError):
+        model = model_from_dict(parse_toml(text, path), source=str(path))
+    except (WindsolveError, KeyError, TypeError, ValueError):  # parse_toml: a ModelError
         return None
     if kind and model.kind != kind:
         raise OutputError(f"{path}: the model attribute says \"{kind}\" but the stored model "
@@ -407,7 +405,7 @@ def read_result(path, cls=None):
     required.  Raises a one-line OutputError naming the file and the dataset or
     attribute.
     """
-    from ._io import (
+    from .io import (
         check_photosphere,
         check_values,
         column,
@@ -532,19 +530,3 @@ def _check_continuity(path, profile, mdot):
                           f"/summary mass_loss_rate at index {i}; a units attribute of "
                           f"/profile/radius, velocity or density (or of the mass-loss rate) "
                           f"does not describe its numbers")
-
-
-def read_windsolve_file(path):
-    """Check any windsolve HDF5 file (result, family or sweep) with its reader; its kind."""
-    from ._io import hdf5_kind
-    kind = hdf5_kind(path)
-    if kind == "result":
-        read_result(path)
-    elif kind == "family":
-        from .family import FamilyResult
-        FamilyResult.from_hdf5(path)
-    else:
-        from .sweep import axis_views, read_sweep_table
-        read_sweep_table(path)
-        axis_views(path)
-    return kind

@@ -54,10 +54,10 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from ._io import write_hdf5 as _write_hdf5_file
-from ._io import write_text as _write_text_file
 from .core import opacity as kernels
 from .errors import ModelError
+from .io import write_hdf5 as _write_hdf5_file
+from .io import write_text as _write_text_file
 
 if TYPE_CHECKING:
     from numpy.typing import ArrayLike

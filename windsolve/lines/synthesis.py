@@ -76,7 +76,7 @@ class LineProfile:
 
         Written under a temporary name and renamed when complete.
         """
-        from .._io import write_text
+        from ..io import write_text
         data = np.column_stack([self.velocity.to_value(KM_S), np.asarray(self.flux)])
         buffer = io.StringIO()
         np.savetxt(buffer, data, delimiter=",", header="velocity_km_s,flux", comments="",

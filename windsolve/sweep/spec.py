@@ -256,8 +256,7 @@ def load_sweep(path: str | Path) -> Sweep:
         (with the nearest valid one), or a row whose model is invalid: one
         line naming the file, the key and the fix.
     """
-    import tomllib
-
+    from ..io import parse_toml
     from ..modelfile import model_from_dict, read_model_file
     from ..registry import MODELS
 
@@ -268,10 +267,7 @@ def load_sweep(path: str | Path) -> Sweep:
         raise ModelError(f"{path}: no such file; give the path of a sweep file") from None
     except (OSError, UnicodeDecodeError) as error:
         raise ModelError(f"{path}: cannot read ({error})") from None
-    try:
-        data = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as error:
-        raise ModelError(f"{path}: not valid TOML: {error}") from None
+    data = parse_toml(text, path)
     tables = ("sweep", "model", "axis", "observables")
     for k in data:
         if k not in tables:

@@ -27,7 +27,7 @@ def axis_views(path):
     """[AxisView] of a sweep file's axes, in sweep order (older files: the table's units)."""
     import astropy.units as u
 
-    from .._io import column, dataset_unit, group, open_hdf5
+    from ..io import column, dataset_unit, group, open_hdf5
     views = []
     with open_hdf5(path) as f:
         g = group(f, "table", path)
@@ -124,7 +124,7 @@ def write_sweep_rows(sweep, chunks, out):
         at least once; a row given again replaces the earlier record (as a
         journal read line by line would).
     out : str or Path
-        The HDF5 file, written atomically (:func:`windsolve._io.write_hdf5`).
+        The HDF5 file, written atomically (:func:`windsolve.io.write_hdf5`).
 
     Returns
     -------
@@ -140,7 +140,7 @@ def write_sweep_rows(sweep, chunks, out):
     """
     import h5py
 
-    from .._io import dataset, stamp, write_hdf5
+    from ..io import dataset, stamp, write_hdf5
     from ..result import HYDROSTATIC_EFOLDS, SUMMARY_UNITS, _unit_text, write_profile
 
     n = len(sweep)
@@ -259,7 +259,8 @@ def read_sweep_table(path: str | Path) -> tuple[dict[str, np.ndarray], dict]:
     """
     import astropy.units as u
 
-    from .._io import (
+    from ..errors import OutputError
+    from ..io import (
         check_photosphere,
         check_values,
         column,
@@ -269,7 +270,6 @@ def read_sweep_table(path: str | Path) -> tuple[dict[str, np.ndarray], dict]:
         require_kind,
         text_attr,
     )
-    from ..errors import OutputError
     from ..registry import MODELS
     from ..result import SUMMARY_POSITIVE, SUMMARY_UNITS
 
@@ -318,8 +318,8 @@ def read_sweep_table(path: str | Path) -> tuple[dict[str, np.ndarray], dict]:
 
 def _axes_attr(f, path):
     """The sweep's axis keys from its ``axes`` attribute (a JSON list of names)."""
-    from .._io import text_attr
     from ..errors import OutputError
+    from ..io import text_attr
     text = text_attr(f.attrs, "axes", path, "the file")
     try:
         axes = json.loads(text)
