@@ -46,7 +46,8 @@ class AxisView:
     log: bool  # shown on a log scale (Axis.log; older files: values over more than 30x)
 
     @property
-    def label(self):
+    def label(self) -> str:
+        """Axis label: the key and, in brackets, the unit shown."""
         return f"{self.key} [{self.unit}]" if self.unit else self.key
 
 
@@ -67,11 +68,11 @@ class Sweep:
     observables: dict = None  # line settings: widths are measured in the workers
 
     @property
-    def digest(self):
+    def digest(self) -> str:
         """A hash of the sweep file's text (see :meth:`design_digest` for the journal)."""
         return hashlib.sha256(self.text.encode()).hexdigest()[:16]
 
-    def design_digest(self):
+    def design_digest(self) -> str:
         """A hash of the resolved design: every row's model and what is stored of it.
 
         The base model as read (so an edited ``base = "model.toml"`` is a

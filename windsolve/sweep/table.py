@@ -22,8 +22,25 @@ WIDTH_COLUMNS = ("fwhm", "hwzi", "edge_velocity")
 
 
 
-def axis_views(path):
-    """[AxisView] of a sweep file's axes, in sweep order (older files: the table's units)."""
+def axis_views(path: str | Path) -> list[AxisView]:
+    """How to show each axis of a sweep file, in sweep order.
+
+    Parameters
+    ----------
+    path : str or Path
+        A sweep output file (HDF5).
+
+    Returns
+    -------
+    list of AxisView
+        Each axis in the unit the sweep file wrote it in (older files: the
+        table's cgs unit), with its scale.
+
+    Raises
+    ------
+    OutputError
+        The file, its table or an axis column is missing or damaged.
+    """
     import astropy.units as u
 
     from .._io import column, dataset_unit, group, open_hdf5
