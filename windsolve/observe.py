@@ -67,6 +67,7 @@ class Observation:
     row: int  # line number in the file
 
     def label(self) -> str:
+        """The quantity, with the line's name in parentheses when it has one."""
         return f"{self.quantity}" + (f" ({self.line})" if self.line not in ("", "-") else "")
 
 

@@ -218,6 +218,26 @@ def apply_changes(model, changes):
     Rebuilding through :meth:`WindModel.replace` reuses the base model's
     already-parsed values: several times cheaper than reading a model file
     per row, which matters in a sweep of thousands.
+
+    Parameters
+    ----------
+    model : WindModel
+        The base model.
+    changes : dict
+        Dotted model-file key -> value as written in a model file (a string
+        with units, a number); ``opacity.*`` keys change the opacity table.
+
+    Returns
+    -------
+    WindModel
+        The changed model.
+
+    Raises
+    ------
+    ModelError
+        A changed value is invalid.
+    KeyError
+        A key is not one of the model's.
     """
     by_key = {p.key: name for name, p in model.params().items()}
     kwargs = {}
