@@ -467,8 +467,10 @@ def table_kernel_data(table: "OpacityTable", clamp: bool = False) -> tuple:
 
     Returns
     -------
-    tuple of ndarray
-        (params, extra), as :func:`windsolve.core.opacity.pack_table` returns them.
+    params : tuple of float
+        The law's parameter slots (grid edges, clamp flag).
+    extra : ndarray
+        The table block, as :func:`windsolve.core.opacity.pack_table` returns them.
     """
     nodes = node_derivatives(table.log_T, table.log_R, table.log_kappa)
     return kernels.pack_table(table.log_T, table.log_R, nodes, clamp)

@@ -158,7 +158,7 @@ class Param:
         Returns
         -------
         str, float, bool
-            A Quantity as a string with units (``"50 solMass"``); anything else as it is.
+            A Quantity as a string with units (``"50.0 solMass"``); anything else as it is.
         """
         if isinstance(value, u.Quantity):
             return format_quantity(value)
