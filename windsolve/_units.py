@@ -20,7 +20,18 @@ EXAMPLES = (
 
 
 def example_for(unit):
-    """A sample value with a unit of the same physical type as ``unit``."""
+    """A sample value with a unit of the same physical type as ``unit``.
+
+    Parameters
+    ----------
+    unit : astropy unit or str
+        The unit wanted.
+
+    Returns
+    -------
+    str
+        E.g. ``"25 km/s"`` for a speed; ``"1 <unit>"`` for a type without an example.
+    """
     unit = u.Unit(unit)
     for ref, _, example in EXAMPLES:
         if unit.is_equivalent(ref):
@@ -29,7 +40,19 @@ def example_for(unit):
 
 
 def kind_of(unit):
-    """Plain name of the physical type of ``unit`` ("speed", "luminosity")."""
+    """Plain name of the physical type of ``unit`` ("speed", "luminosity").
+
+    Parameters
+    ----------
+    unit : astropy unit or str
+        Any unit.
+
+    Returns
+    -------
+    str
+        ``"bare number"`` for dimensionless, a name from the examples, or
+        ``"quantity in <unit>"``.
+    """
     unit = u.Unit(unit)
     if unit == u.dimensionless_unscaled:
         return "bare number"
@@ -52,6 +75,15 @@ def plain(value):
     Numbers plainly (``0.5``, never ``np.float64(0.5)``), Quantities as
     ``50.0 solMass``, strings quoted, flags as true/false, lists and tables in
     TOML's spelling.
+
+    Parameters
+    ----------
+    value : object
+        Any value a model file or keyword may hold.
+
+    Returns
+    -------
+    str
     """
     if isinstance(value, u.Quantity):
         if value.isscalar:
@@ -80,7 +112,22 @@ _SCALES = {}
 
 
 def unit_scale(have, want):
-    """The factor that turns a number in unit ``have`` into one in ``want`` (cached)."""
+    """The factor that turns a number in unit ``have`` into one in ``want`` (cached).
+
+    Parameters
+    ----------
+    have, want : astropy unit
+        Equivalent units; the cache is keyed by the unit objects' identity.
+
+    Returns
+    -------
+    float
+
+    Raises
+    ------
+    astropy.units.UnitConversionError
+        The units are not equivalent.
+    """
     entry = _SCALES.get((id(have), id(want)))
     if entry is None or entry[0] is not have or entry[1] is not want:
         entry = (have, want, float(have.to(want)))
@@ -91,13 +138,39 @@ def unit_scale(have, want):
 
 
 def fast_cgs(q, unit):
-    """float(q in ``unit``) for a scalar Quantity, without astropy's per-call cost."""
+    """float(q in ``unit``) for a scalar Quantity, without astropy's per-call cost.
+
+    Parameters
+    ----------
+    q : Quantity
+        A scalar Quantity.
+    unit : astropy unit
+        A unit equivalent to ``q``'s (usually cgs).
+
+    Returns
+    -------
+    float
+    """
     return float(q.value) * unit_scale(q.unit, unit)
 
 
 def check_cgs_range(q, unit, where):
-    """Raise ModelError unless ``q`` in ``unit`` is a finite double, and nonzero when
-    ``q`` is (a value whose cgs form over- or underflows cannot be computed with)."""
+    """Refuse a value whose form in ``unit`` over- or underflows a double.
+
+    Parameters
+    ----------
+    q : Quantity
+        A scalar Quantity.
+    unit : astropy unit
+        The (cgs) unit it will be computed in.
+    where : str
+        The setting's name, for the message (e.g. ``"[star] mass"``).
+
+    Raises
+    ------
+    ModelError
+        ``q`` is finite but not in ``unit``, or nonzero but 0 in ``unit``.
+    """
     number = float(q.value)
     value = number * unit_scale(q.unit, unit)
     if math.isfinite(number) and not math.isfinite(value):
@@ -119,6 +192,28 @@ def to_quantity(value, unit, where, convert=True):
     ``value`` may be a Quantity, a string astropy parses ("1.2 Msun"), or —
     only when ``unit`` is dimensionless — a plain number.  ``where`` names the
     setting in messages (e.g. ``"[star] mass"``).
+
+    Parameters
+    ----------
+    value : Quantity, str or float
+        The value as given.
+    unit : astropy unit or str
+        The unit (physical type) wanted, usually cgs.
+    where : str
+        The setting's name, for messages.
+    convert : bool
+        Return the Quantity in ``unit`` (True) or in the unit it was written in.
+
+    Returns
+    -------
+    Quantity
+        A scalar Quantity of ``unit``'s physical type.
+
+    Raises
+    ------
+    ModelError
+        Not a number (with a unit), the wrong physical type, no unit where one
+        is needed, an array, or out of double range in ``unit``.
     """
     unit = u.Unit(unit)
     if isinstance(value, bool | np.bool_):
@@ -169,11 +264,41 @@ def _example(unit):
 
 
 def to_cgs(value, unit, where):
-    """Plain float in ``unit`` (the kernels' cgs) from anything ``to_quantity`` takes."""
+    """Plain float in ``unit`` (the kernels' cgs) from anything ``to_quantity`` takes.
+
+    Parameters
+    ----------
+    value : Quantity, str or float
+        The value as given.
+    unit : astropy unit or str
+        The unit of the result.
+    where : str
+        The setting's name, for messages.
+
+    Returns
+    -------
+    float
+
+    Raises
+    ------
+    ModelError
+        As :func:`to_quantity`.
+    """
     return float(to_quantity(value, unit, where).to_value(unit))
 
 
 def format_quantity(q):
-    """A string astropy parses back to the same value ("6.957e+10 cm")."""
+    """A string astropy parses back to the same value ("6.957e+10 cm").
+
+    Parameters
+    ----------
+    q : Quantity
+        A scalar Quantity.
+
+    Returns
+    -------
+    str
+        The value's repr and its unit (the bare number when dimensionless).
+    """
     unit = q.unit.to_string()
     return f"{float(q.value)!r} {unit}".strip() if unit else repr(float(q.value))

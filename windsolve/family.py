@@ -89,7 +89,23 @@ class FamilyResult:
     ends: str = ""  # where and why the family ends (empty if it does not)
 
     def column(self, key: str) -> np.ndarray:
-        """One summary value of every member, in cgs (``COLUMNS[key]``); NaN where unknown."""
+        """One summary value of every member, in cgs (``COLUMNS[key]``); NaN where unknown.
+
+        Parameters
+        ----------
+        key : str
+            A summary key of :data:`COLUMNS`, e.g. ``"mass_loss_rate"``.
+
+        Returns
+        -------
+        ndarray
+            One value per member, in the cgs unit of ``COLUMNS[key]``.
+
+        Raises
+        ------
+        KeyError
+            ``key`` is not a family column.
+        """
         unit = COLUMNS[key]
         return np.array([m.summary[key].to_value(unit) if key in m.summary else np.nan
                          for m in self.members])

@@ -68,6 +68,7 @@ class Observation:
     row: int  # line number in the file
 
     def label(self) -> str:
+        """The quantity, with the line's name in parentheses when it has one."""
         return f"{self.quantity}" + (f" ({self.line})" if self.line not in ("", "-") else "")
 
 
@@ -398,9 +399,32 @@ def _match_range(model_cls, key, start, stop):
     return start, stop, unit
 
 
-def write_chi2_csv(path, views, table, chi2):
-    """row, axis values (cgs, as in the sweep table; the unit in the header), chi2 -- for a
-    sweep comparison.  ``views``: :func:`windsolve.sweep.axis_views` of the sweep file."""
+def write_chi2_csv(path: str | Path, views: list, table: dict[str, np.ndarray],
+                   chi2: np.ndarray) -> Path:
+    """Write a sweep comparison as CSV: row, axis values, chi2.
+
+    Parameters
+    ----------
+    path : str or Path
+        The CSV file.
+    views : list of AxisView
+        :func:`windsolve.sweep.axis_views` of the sweep file; each axis is written
+        in cgs, as in the sweep table, its unit in the header.
+    table : dict of ndarray
+        The sweep table (:func:`windsolve.sweep.read_sweep_table`).
+    chi2 : ndarray
+        chi^2 per row (docs/physics.md, eq. 31).
+
+    Returns
+    -------
+    Path
+        The file written.
+
+    Raises
+    ------
+    OutputError
+        The file cannot be written.
+    """
     from .io import write_csv
     rows = [["row"] + [f"{v.key} [{v.cgs_unit}]" if v.cgs_unit else v.key for v in views]
             + ["chi2"]]

@@ -39,10 +39,31 @@ class LawParameter:
     positive: bool = False
 
     @property
-    def is_quantity(self):
+    def is_quantity(self) -> bool:
+        """True unless the parameter is a flag (``bool``) or a file path (``Path``)."""
         return self.unit not in (bool, Path)
 
-    def read(self, value, where):
+    def read(self, value, where: str):
+        """Check a value from the model file and return it in its stored form.
+
+        Parameters
+        ----------
+        value : str, float, Quantity, bool or path
+            As written (a number or a string with units, a flag, a path).
+        where : str
+            The key's place, for messages (e.g. ``"[opacity] amplitude"``).
+
+        Returns
+        -------
+        Quantity, bool or str
+            A Quantity in the value's own unit (checked against ``unit``), the flag,
+            or an absolute path string.
+
+        Raises
+        ------
+        ModelError
+            Wrong type or unit, not finite, or not positive where it must be.
+        """
         if self.unit is bool:
             if not isinstance(value, bool):
                 raise ModelError(f"{where} = {plain(value)}: write true or false")
@@ -148,8 +169,21 @@ OPACITY_LAWS = {law.name: law for law in (
 )}
 
 
-def nearest(word, choices):
-    """' (did you mean "x"?)' for the closest of ``choices``, or ''."""
+def nearest(word: str, choices) -> str:
+    """A hint naming the closest of ``choices`` to a mistyped word.
+
+    Parameters
+    ----------
+    word : str
+        What was written.
+    choices : iterable of str
+        The valid words.
+
+    Returns
+    -------
+    str
+        ``' (did you mean "x"?)'``, or ``''`` when nothing is close.
+    """
     match = difflib.get_close_matches(word, list(choices), n=1, cutoff=0.5)
     return f' (did you mean "{match[0]}"?)' if match else ""
 
@@ -246,7 +280,7 @@ class Opacity:
         object.__setattr__(self, "law", law)
         object.__setattr__(self, "params", values)
 
-    def cgs(self):
+    def cgs(self) -> dict:
         """Parameter values by name: Quantities as plain floats in cgs; paths
         (absolute, as strings) and flags as they are."""
         spec = {p.name: p for p in OPACITY_LAWS[self.law].parameters}
@@ -254,16 +288,34 @@ class Opacity:
                 for k, q in self.params.items()}
 
     @property
-    def formula(self):
+    def formula(self) -> str:
         """The law's formula as one line of text (from :data:`OPACITY_LAWS`)."""
         return OPACITY_LAWS[self.law].formula
 
-    def kernel_vector(self, X, Z, porosity=(0.0, 1.0, 0.0)):
+    def kernel_vector(self, X: float, Z: float,
+                      porosity: tuple = (0.0, 1.0, 0.0)) -> np.ndarray:
         """The flat float vector ``O`` the kernels take (see core.opacity).
 
         For the table law this reads and checks the file (once per version
-        of the file; see :func:`windsolve.tables.load_table`) and raises a
-        one-line ModelError naming it when it is missing or malformed.
+        of the file; see :func:`windsolve.tables.load_table`).
+
+        Parameters
+        ----------
+        X, Z : float
+            Hydrogen and metal mass fractions [dimensionless].
+        porosity : tuple of float
+            (h0 [cm], R0 [cm], q [dimensionless]) of docs/physics.md, eq. 10;
+            h0 = 0 for no porosity.
+
+        Returns
+        -------
+        ndarray
+            The packed vector (:func:`windsolve.core.opacity.pack`).
+
+        Raises
+        ------
+        ModelError
+            A table file is missing or malformed (one line naming it).
         """
         spec = OPACITY_LAWS[self.law]
         kes = basics.electron_scattering_opacity(X, Z)
@@ -271,7 +323,7 @@ class Opacity:
         return kernels.pack(spec.code, kes, spec.pack(values, X, Z), porosity,
                             spec.extra(values, X, Z))
 
-    def to_toml(self):
+    def to_toml(self) -> dict:
         """The ``[opacity]`` table, every value written out."""
         table = {"law": self.law}
         for name, q in self.params.items():

@@ -1,15 +1,32 @@
 """Pictures of a result (matplotlib, imported only when plotting)."""
 
+from typing import TYPE_CHECKING
+
 import astropy.units as u
 import numpy as np
 
 from .errors import OutputError
 
+if TYPE_CHECKING:
+    from pathlib import Path
+    from types import ModuleType
+
+    from matplotlib.figure import Figure
+
+    from .lines import LineProfile
+    from .result import WindResult
+
 __all__ = ["plot_profile", "plot_sweep", "plot_line", "plot_residuals", "plot_chi2"]
 
 
-def pyplot():
-    """matplotlib.pyplot on the file-only Agg backend (imported only when plotting)."""
+def pyplot() -> "ModuleType":
+    """matplotlib.pyplot on the file-only Agg backend (imported only when plotting).
+
+    Returns
+    -------
+    module
+        ``matplotlib.pyplot``, with the Agg backend selected.
+    """
     import matplotlib
 
     matplotlib.use("Agg")
@@ -22,8 +39,28 @@ def _figure(figsize):
     return plt, plt.subplots(figsize=figsize, constrained_layout=True)
 
 
-def save(plt, fig, path):
-    """Write a figure (format by extension) and close it; one-line OutputError."""
+def save(plt: "ModuleType", fig: "Figure", path: "str | Path") -> "str | Path":
+    """Write a figure (format by extension) and close it.
+
+    Parameters
+    ----------
+    plt : module
+        ``matplotlib.pyplot`` (from :func:`pyplot`), which closes the figure.
+    fig : matplotlib.figure.Figure
+        The figure.
+    path : str or Path
+        Output file; PNG, PDF or SVG by its extension.
+
+    Returns
+    -------
+    str or Path
+        ``path``.
+
+    Raises
+    ------
+    OutputError
+        One line when the file cannot be written (also a format matplotlib lacks).
+    """
     from .io import write_figure
     try:
         write_figure(fig, path, dpi=120)
@@ -34,11 +71,27 @@ def save(plt, fig, path):
     return path
 
 
-def plot_profile(result, path=None):
+def plot_profile(result: "WindResult", path: "str | Path | None" = None) -> "Figure":
     """Velocity, density, Eddington factor and luminosity against radius.
 
-    The sonic (critical) point is marked in every panel.  Returns the figure;
-    writes it to ``path`` (PNG, PDF, SVG by extension) when given.
+    The sonic (critical) point is marked in every panel; Model B results add
+    temperature and optical depth.
+
+    Parameters
+    ----------
+    result : WindResult
+        A solved result (with a profile).
+    path : str, Path or None
+        Write the figure there (PNG, PDF, SVG by extension) when given.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+
+    Raises
+    ------
+    OutputError
+        The result has no profile, or the file cannot be written.
     """
     import matplotlib.ticker
 
@@ -103,12 +156,29 @@ def plot_profile(result, path=None):
     return fig
 
 
-def plot_sweep(path, out):
+def plot_sweep(path: "str | Path", out: "str | Path") -> "str | Path":
     """Mdot and v_inf over a sweep: against one axis, or colour maps over two.
 
     Failed models are marked with grey crosses and counted in the title;
     each axis is shown in the unit the sweep file wrote it in
     (:func:`windsolve.sweep.axis_views`).
+
+    Parameters
+    ----------
+    path : str or Path
+        A sweep output file (HDF5).
+    out : str or Path
+        The picture to write (format by extension).
+
+    Returns
+    -------
+    str or Path
+        ``out``.
+
+    Raises
+    ------
+    OutputError
+        The sweep file cannot be read, or the picture cannot be written.
     """
     plt = pyplot()
 
@@ -178,8 +248,29 @@ def _speed(x):
     return f"{x:.0f}" if abs(x) >= 10 else f"{x:.3g}"
 
 
-def plot_line(line, path, title=""):
-    """A synthetic line profile with its measured widths marked."""
+def plot_line(line: "LineProfile", path: "str | Path", title: str = "") -> "str | Path":
+    """A synthetic line profile with its measured widths marked (FWHM, HWZI, blue edge).
+
+    Parameters
+    ----------
+    line : LineProfile
+        The profile (:func:`windsolve.lines.emission_profile` or
+        :func:`windsolve.lines.pcygni_profile`).
+    path : str or Path
+        The picture to write (format by extension).
+    title : str
+        Title text before the line's kind.
+
+    Returns
+    -------
+    str or Path
+        ``path``.
+
+    Raises
+    ------
+    OutputError
+        The picture cannot be written.
+    """
     plt, (fig, ax) = _figure((8, 4.5))
     w = line.velocity.to_value(u.km / u.s)
     ax.plot(w, line.flux, color="#1f4e79", lw=1.6)
@@ -216,8 +307,29 @@ def plot_line(line, path, title=""):
     return save(plt, fig, path)
 
 
-def plot_residuals(rows, chi2, path):
-    """Model minus observation, in units of the uncertainty, per measurement."""
+def plot_residuals(rows: list, chi2: float, path: "str | Path") -> "str | Path":
+    """Model minus observation, in units of the uncertainty, per measurement.
+
+    Parameters
+    ----------
+    rows : list of tuple
+        (Observation, model value, normalised residual [dimensionless]) per
+        measurement, as :func:`windsolve.observe.compare_result` gives them.
+    chi2 : float
+        Their chi^2 (docs/physics.md, eq. 31), shown in the title.
+    path : str or Path
+        The picture to write (format by extension).
+
+    Returns
+    -------
+    str or Path
+        ``path``.
+
+    Raises
+    ------
+    OutputError
+        The picture cannot be written.
+    """
     plt, (fig, ax) = _figure((7, 0.6 * len(rows) + 1.8))
     labels = [o.label() for o, _, _ in rows]
     z = [r[2] for r in rows]
@@ -231,11 +343,30 @@ def plot_residuals(rows, chi2, path):
     return save(plt, fig, path)
 
 
-def plot_chi2(table, views, chi2, path):
+def plot_chi2(table: dict, views: list, chi2: np.ndarray, path: "str | Path") -> "str | Path":
     """chi^2 against one axis, or a map over the first two; failed models marked.
 
-    ``views``: :func:`windsolve.sweep.axis_views` (each axis in the unit the
-    sweep file wrote it in, on a log scale if it was log-spaced).
+    Parameters
+    ----------
+    table : dict of ndarray
+        The sweep table (:func:`windsolve.sweep.read_sweep_table`), cgs columns.
+    views : list of AxisView
+        :func:`windsolve.sweep.axis_views` (each axis in the unit the sweep file
+        wrote it in, on a log scale if it was log-spaced).
+    chi2 : ndarray
+        chi^2 per row (docs/physics.md, eq. 31); NaN for failed models.
+    path : str or Path
+        The picture to write (format by extension).
+
+    Returns
+    -------
+    str or Path
+        ``path``.
+
+    Raises
+    ------
+    OutputError
+        The picture cannot be written.
     """
     ok = np.isfinite(chi2)
     plt, (fig, ax) = _figure((7.5, 5))

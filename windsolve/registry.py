@@ -52,10 +52,24 @@ SUMMARY_UNITS = {
 LINE_WIDTHS = ("fwhm", "hwzi", "edge_velocity")
 
 
-def lazy(module, name):
-    """A function that imports ``module`` (absolute name) and calls its ``name`` on
-    first use: an entry can name code of a layer above the model's room (a sweep
-    row's solve) or code that is slow to import, without importing it."""
+def lazy(module: str, name: str):
+    """A function that imports ``module`` and calls its ``name`` on first use.
+
+    An entry can so name code of a layer above the model's room (a sweep row's
+    solve) or code that is slow to import, without importing it.
+
+    Parameters
+    ----------
+    module : str
+        Absolute module name, e.g. ``"windsolve.models.isothermal.solve"``.
+    name : str
+        Name of the function in that module.
+
+    Returns
+    -------
+    callable
+        Forwards its arguments to ``module.name``, imported on the first call.
+    """
     found = []
 
     def call(*args, **kwargs):
@@ -71,22 +85,59 @@ def _cm(q):
     return float(q.to_value(u.cm)) if isinstance(q, u.Quantity) else math.nan
 
 
-def default_core_radius(r, optical, summary, model_radius):
+def default_core_radius(r, optical: "tuple | None", summary: dict,
+                        model_radius: float) -> float:
     """The default R_c [cm] of line synthesis for a model without a photosphere.
 
-    The tau = 2/3 radius of ``optical`` = (radius, density, opacity) arrays
-    (None to skip; :func:`windsolve.core.profile.optical_core_radius_cgs`), else
-    ``model_radius`` [cm] (NaN = none), else the ``summary``'s (Quantities)
-    ``base_radius``, else r[0] (:func:`windsolve.core.profile.default_core_radius_cgs`).
+    The tau = 2/3 radius of ``optical`` (:func:`windsolve.core.profile.optical_core_radius_cgs`),
+    else ``model_radius``, else the summary's ``base_radius``, else ``r[0]``
+    (docs/physics.md, section 7, "Core radius").
+
+    Parameters
+    ----------
+    r : ndarray
+        Radii of the profile [cm].
+    optical : tuple of ndarray or None
+        (radius [cm], density [g cm^-3], opacity [cm^2 g^-1]), or None to skip the
+        optical-depth rule.
+    summary : dict
+        The result's summary (Quantities); ``base_radius`` is used if present.
+    model_radius : float
+        The model's radius [cm], NaN for none.
+
+    Returns
+    -------
+    float
+        Core radius R_c [cm].
     """
     from .core.profile import default_core_radius_cgs
     return default_core_radius_cgs(r, optical, math.nan, model_radius,
                                    _cm(summary.get("base_radius")))
 
 
-def photosphere_core_radius(r, optical, summary, model_radius):
-    """The default R_c [cm] of a model whose profile ends at its photosphere: the
-    summary's ``photosphere_radius`` when finite, else as :func:`default_core_radius`."""
+def photosphere_core_radius(r, optical: "tuple | None", summary: dict,
+                            model_radius: float) -> float:
+    """The default R_c [cm] of a model whose profile ends at its photosphere.
+
+    The summary's ``photosphere_radius`` when finite, else as
+    :func:`default_core_radius`.
+
+    Parameters
+    ----------
+    r : ndarray
+        Radii of the profile [cm].
+    optical : tuple of ndarray or None
+        (radius [cm], density [g cm^-3], opacity [cm^2 g^-1]), or None.
+    summary : dict
+        The result's summary (Quantities): ``photosphere_radius``, ``base_radius``.
+    model_radius : float
+        The model's radius [cm], NaN for none.
+
+    Returns
+    -------
+    float
+        Core radius R_c [cm].
+    """
     from .core.profile import default_core_radius_cgs
     return default_core_radius_cgs(r, optical, _cm(summary.get("photosphere_radius")),
                                    model_radius, _cm(summary.get("base_radius")))
@@ -156,12 +207,28 @@ class ModelSpec:
     photosphere_family: object = None
 
 
-def register(spec, replace=False):
+def register(spec: ModelSpec, replace: bool = False) -> ModelSpec:
     """Add a model to the registry (and its class to :data:`windsolve.models.MODELS`).
 
-    Raises ValueError when the kind is taken (unless ``replace``) or when the
-    class's ``kind`` differs from the entry's.  Summary keys new to windsolve
-    are appended to :data:`SUMMARY_UNITS`.
+    Summary keys new to windsolve are appended to :data:`SUMMARY_UNITS`.
+
+    Parameters
+    ----------
+    spec : ModelSpec
+        The model's entry.
+    replace : bool
+        Replace an entry of the same kind instead of refusing it.
+
+    Returns
+    -------
+    ModelSpec
+        ``spec``.
+
+    Raises
+    ------
+    ValueError
+        The kind is taken (unless ``replace``), the class's ``kind`` differs from
+        the entry's, or a summary key comes with a unit other than windsolve's.
     """
     if spec.model_class.kind != spec.kind:
         raise ValueError(f"ModelSpec {spec.kind!r}: its model_class has kind "
@@ -178,9 +245,16 @@ def register(spec, replace=False):
     return spec
 
 
-def unregister(kind):
-    """Remove a model registered by :func:`register` (tests use it to clean up);
-    summary keys it added stay known."""
+def unregister(kind: str) -> None:
+    """Remove a model registered by :func:`register` (tests use it to clean up).
+
+    Summary keys it added stay known; an unknown kind is ignored.
+
+    Parameters
+    ----------
+    kind : str
+        The model's ``kind``.
+    """
     MODEL_SPECS.pop(kind, None)
     MODELS.pop(kind, None)
 
@@ -188,14 +262,37 @@ def unregister(kind):
 BUILTIN_PACKAGE = "windsolve."
 
 
-def plugin_modules():
-    """Modules that define registered model classes outside windsolve: sweep pool
-    workers import them (registering their models there too) before they solve."""
+def plugin_modules() -> list:
+    """Modules that define registered model classes outside windsolve.
+
+    Sweep pool workers import them (registering their models there too) before
+    they solve.
+
+    Returns
+    -------
+    list of str
+        Module names, sorted.
+    """
     return sorted({spec.model_class.__module__ for spec in MODEL_SPECS.values()
                    if not spec.model_class.__module__.startswith(BUILTIN_PACKAGE)})
 
 
-def spec_for(model_or_kind):
-    """The :class:`ModelSpec` of a model (or of a kind string); KeyError if unknown."""
+def spec_for(model_or_kind) -> ModelSpec:
+    """The :class:`ModelSpec` of a model (or of a kind string).
+
+    Parameters
+    ----------
+    model_or_kind : WindModel or str
+        A model, or its ``kind``.
+
+    Returns
+    -------
+    ModelSpec
+
+    Raises
+    ------
+    KeyError
+        No model of that kind is registered.
+    """
     kind = model_or_kind if isinstance(model_or_kind, str) else model_or_kind.kind
     return MODEL_SPECS[kind]

@@ -52,15 +52,43 @@ PROFILE_UNITS = {
 HYDROSTATIC_EFOLDS = 30.0
 
 
-def base_density_efolds(mdot, rc, a, rho0):
-    """ln(rho0 / rho_c), rho_c = Mdot / (4 pi r_c^2 a): density e-folds from base to sonic point."""
+def base_density_efolds(mdot: float, rc: float, a: float, rho0: float) -> float:
+    """Density e-folds from the base to the sonic point, ln(rho0 / rho_c).
+
+    With rho_c = Mdot / (4 pi r_c^2 a) (continuity, docs/physics.md, eq. 13 at the
+    critical point of eq. 16); see :data:`HYDROSTATIC_EFOLDS`.
+
+    Parameters
+    ----------
+    mdot : float
+        Mass-loss rate [g s^-1].
+    rc : float
+        Critical (sonic) radius [cm].
+    a : float
+        Isothermal sound speed [cm s^-1].
+    rho0 : float
+        Base density [g cm^-3].
+
+    Returns
+    -------
+    float
+        ln(rho0 / rho_c) [dimensionless]; NaN unless all four are positive.
+    """
     if not (mdot > 0.0 and rc > 0.0 and a > 0.0 and rho0 > 0.0):
         return float("nan")
     return float(np.log(rho0 * 4.0 * np.pi * rc * rc * a / mdot))
 
 
-def write_profile(group, profile):
-    """Profile Quantities as cgs datasets with units (results, families, sweeps)."""
+def write_profile(group, profile: dict) -> None:
+    """Write profile columns as cgs datasets with units (results, families, sweeps).
+
+    Parameters
+    ----------
+    group : h5py.Group
+        The group to write into.
+    profile : dict
+        Column name (a key of :data:`PROFILE_UNITS`) -> Quantity or cgs values.
+    """
     for key, q in profile.items():
         unit = PROFILE_UNITS[key]
         values = q.to_value(unit) if hasattr(q, "to_value") else q  # sweeps send cgs lists
@@ -364,11 +392,27 @@ SUMMARY_POSITIVE = ("mass_loss_rate", "sonic_radius", "sonic_velocity", "photosp
                     "base_radius", "base_temperature", "base_density")
 
 
-def stored_model(f, path):
-    """The model of a file's ``model_toml`` attribute, or None when the file has no
-    complete model (absent, empty, not TOML, incomplete: a file written by another program
-    is read for what it has).  A ``model`` stamp that is not a model kind, or that
-    contradicts the stored model, is an OutputError."""
+def stored_model(f, path: str | Path):
+    """The model of a file's ``model_toml`` attribute.
+
+    Parameters
+    ----------
+    f : h5py.File
+        An open windsolve HDF5 file.
+    path : str or Path
+        The file's name, for messages.
+
+    Returns
+    -------
+    WindModel or None
+        None when the file has no complete model (absent, empty, not TOML,
+        incomplete: a file written by another program is read for what it has).
+
+    Raises
+    ------
+    OutputError
+        The ``model`` stamp is not a model kind, or contradicts the stored model.
+    """
     from .errors import WindsolveError
     from .io import parse_toml, text_attr
     from .modelfile import model_from_dict
@@ -393,7 +437,7 @@ def stored_model(f, path):
     return model
 
 
-def read_result(path, cls=None):
+def read_result(path: str | Path, cls: "type | None" = None) -> "WindResult":
     """A :class:`WindResult` from a result file, after checking every dataset, unit and value.
 
     The one reader of result files: the layout (groups, 1-D numeric datasets of
@@ -402,8 +446,23 @@ def read_result(path, cls=None):
     temperature > 0, opacity and optical depth >= 0, every speed below the speed
     of light, continuity 4 pi r^2 rho v = Mdot) and the model stamp.  Only
     /summary (converged, status) and /profile radius, velocity and density are
-    required.  Raises a one-line OutputError naming the file and the dataset or
-    attribute.
+    required.
+
+    Parameters
+    ----------
+    path : str or Path
+        An HDF5 result file (docs/physics.md, section 9).
+    cls : type or None
+        The class to build (a subclass of :class:`WindResult`); None for WindResult.
+
+    Returns
+    -------
+    WindResult
+
+    Raises
+    ------
+    OutputError
+        In one line naming the file and the dataset or attribute at fault.
     """
     from .io import (
         check_photosphere,

@@ -129,8 +129,8 @@ class OpacityTable:
         object.__setattr__(self, "description", tuple(str(s) for s in lines))
 
     @property
-    def shape(self):
-        """(nT, nR)."""
+    def shape(self) -> tuple:
+        """(nT, nR): the number of temperature and R nodes."""
         return self.log_kappa.shape
 
 
@@ -319,11 +319,28 @@ def _read_hdf5(path, where):
 
 # --- writing -------------------------------------------------------------------
 
-def write_text(table, path):
+def write_text(table: "OpacityTable", path: str | Path) -> Path:
     """Write ``table`` as a text matrix (layout in the module docstring).
 
     Numbers are written with the shortest repr that reads back exactly, so a
     text round trip loses nothing.  Writes to a temporary name and renames.
+
+    Parameters
+    ----------
+    table : OpacityTable
+        The table to write.
+    path : str or Path
+        The output file.
+
+    Returns
+    -------
+    Path
+        The path written.
+
+    Raises
+    ------
+    OutputError
+        The file cannot be written.
     """
     cells = [[repr(float(x)) for x in row] for row in table.log_kappa]
     heads = [repr(float(x)) for x in table.log_T]
@@ -337,8 +354,26 @@ def write_text(table, path):
     return _write_text_file(path, text)
 
 
-def write_hdf5(table, path):
-    """Write ``table`` in the HDF5 layout of the module docstring (via rename)."""
+def write_hdf5(table: "OpacityTable", path: str | Path) -> Path:
+    """Write ``table`` in the HDF5 layout of the module docstring (via rename).
+
+    Parameters
+    ----------
+    table : OpacityTable
+        The table to write.
+    path : str or Path
+        The output file.
+
+    Returns
+    -------
+    Path
+        The path written.
+
+    Raises
+    ------
+    OutputError
+        The file cannot be written.
+    """
     from ._version import __version__
 
     def fill(f):
@@ -380,7 +415,8 @@ def write_table(table: "OpacityTable", path: str | Path) -> Path:
 
 # --- interpolation data -----------------------------------------------------------
 
-def node_derivatives(log_T, log_R, log_kappa):
+def node_derivatives(log_T: "ArrayLike", log_R: "ArrayLike",
+                     log_kappa: "ArrayLike") -> np.ndarray:
     """Node values and derivatives of the bicubic interpolant, shape (nT, nR, 4).
 
     Per node: log10 kappa, d/dlog10 T, d/dlog10 R and d2/dlog10 T dlog10 R,
@@ -392,6 +428,20 @@ def node_derivatives(log_T, log_R, log_kappa):
     and fourth order.  Finite-difference (Catmull-Rom) derivatives would
     give only third order; Akima's would resist overshoot but are third order
     at best and only C1.
+
+    Parameters
+    ----------
+    log_T : array_like (nT,)
+        log10 of the temperature nodes [K], increasing.
+    log_R : array_like (nR,)
+        log10 R nodes, R = rho / T6^3 [g cm^-3] (docs/physics.md, eq. 8), increasing.
+    log_kappa : array_like (nT, nR)
+        log10 of the opacity [cm^2 g^-1] at the nodes.
+
+    Returns
+    -------
+    ndarray (nT, nR, 4)
+        log10 kappa and its three derivatives at every node.
     """
     from scipy.interpolate import CubicSpline
     log_T = np.asarray(log_T, dtype=float)
@@ -403,8 +453,25 @@ def node_derivatives(log_T, log_R, log_kappa):
     return np.stack([f, f_T, f_R, f_TR], axis=-1)
 
 
-def table_kernel_data(table, clamp=False):
-    """(params, extra) for :func:`windsolve.core.opacity.pack` (the table block)."""
+def table_kernel_data(table: "OpacityTable", clamp: bool = False) -> tuple:
+    """The table block of the compiled opacity: (params, extra) for
+    :func:`windsolve.core.opacity.pack`.
+
+    Parameters
+    ----------
+    table : OpacityTable
+        The table.
+    clamp : bool
+        Clamp points outside the grid to its edge instead of reporting them
+        (docs/physics.md, section 2, "Tables").
+
+    Returns
+    -------
+    params : tuple of float
+        The law's parameter slots (grid edges, clamp flag).
+    extra : ndarray
+        The table block, as :func:`windsolve.core.opacity.pack_table` returns them.
+    """
     nodes = node_derivatives(table.log_T, table.log_R, table.log_kappa)
     return kernels.pack_table(table.log_T, table.log_R, nodes, clamp)
 
@@ -539,11 +606,30 @@ def _check_size(n_T, n_R, where):
                          f"{MAX_TABLE_NODES} a table may have (nT x nR); use fewer nodes")
 
 
-def grid(start, stop, num, name):
+def grid(start: float, stop: float, num: int, name: str) -> np.ndarray:
     """``num`` evenly spaced values from ``start`` to ``stop`` (checked).
 
     At most ``MAX_TABLE_NODES // MIN_NODES`` values: with the fewest nodes on the
     other axis, the table then still has at most :data:`MAX_TABLE_NODES`.
+
+    Parameters
+    ----------
+    start, stop : float
+        The first and last value (a log10 axis of a table: dex).
+    num : int
+        Number of values, at least ``MIN_NODES``.
+    name : str
+        The axis's name, for messages.
+
+    Returns
+    -------
+    ndarray
+        The values, rounded to 12 decimals.
+
+    Raises
+    ------
+    ModelError
+        A bound is not finite, ``start >= stop``, or ``num`` is out of range.
     """
     start, stop = float(start), float(stop)
     if not (math.isfinite(start) and math.isfinite(stop)):

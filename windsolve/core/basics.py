@@ -25,7 +25,22 @@ FOUR_PI = 4.0 * math.pi
 
 @njit(cache=True, error_model="numpy")
 def electrons_per_unit(X, Z):
-    """Free electrons per m_u of gas: X/A_H + 2Y/A_He + Z/2 (fully ionised)."""
+    """Free electrons per m_u of gas, 1/mu_e = X/A_H + 2Y/A_He + Z/2 (fully ionised).
+
+    Parameters
+    ----------
+    X, Z : float
+        Hydrogen and metal mass fractions [dimensionless]; Y = 1 - X - Z.
+
+    Returns
+    -------
+    float
+        1/mu_e [dimensionless].
+
+    References
+    ----------
+    docs/physics.md, eq. 1.
+    """
     Y = 1.0 - X - Z
     return X / A_H + 2.0 * Y / A_HE + 0.5 * Z
 
@@ -36,6 +51,20 @@ def mean_molecular_weight(X, Z):
 
     1/mu = 2X/A_H + 3Y/A_He + Z/2 for a fully ionised gas (see the note
     above on metals).
+
+    Parameters
+    ----------
+    X, Z : float
+        Hydrogen and metal mass fractions [dimensionless].
+
+    Returns
+    -------
+    float
+        mu [dimensionless, units of m_u].
+
+    References
+    ----------
+    docs/physics.md, eq. 2.
     """
     Y = 1.0 - X - Z
     return 1.0 / (2.0 * X / A_H + 3.0 * Y / A_HE + 0.5 * Z)
@@ -43,41 +72,158 @@ def mean_molecular_weight(X, Z):
 
 @njit(cache=True, error_model="numpy")
 def mean_mass_per_electron(X, Z):
-    """mu_e: mass per free electron in units of m_u, fully ionised gas."""
+    """mu_e: mass per free electron in units of m_u, fully ionised gas.
+
+    Parameters
+    ----------
+    X, Z : float
+        Hydrogen and metal mass fractions [dimensionless].
+
+    Returns
+    -------
+    float
+        mu_e [dimensionless].
+
+    References
+    ----------
+    docs/physics.md, eq. 1.
+    """
     return 1.0 / electrons_per_unit(X, Z)
 
 
 @njit(cache=True, error_model="numpy")
 def electron_scattering_opacity(X, Z):
-    """kappa_es = sigma_T n_e / rho = (sigma_T / m_u) / mu_e  [cm2 g-1]."""
+    """kappa_es = sigma_T n_e / rho = (sigma_T / m_u) / mu_e  [cm2 g-1].
+
+    Parameters
+    ----------
+    X, Z : float
+        Hydrogen and metal mass fractions [dimensionless].
+
+    Returns
+    -------
+    float
+        Electron-scattering opacity [cm^2 g^-1].
+
+    References
+    ----------
+    docs/physics.md, eq. 5.
+    """
     return SIGMA_T / M_U * electrons_per_unit(X, Z)
 
 
 @njit(cache=True, error_model="numpy")
 def eddington_luminosity(mass, kappa):
-    """L_Edd = 4 pi G M c / kappa  [erg s-1] for mass [g], kappa [cm2 g-1]."""
+    """L_Edd = 4 pi G M c / kappa  [erg s-1].
+
+    Parameters
+    ----------
+    mass : float
+        Stellar mass [g].
+    kappa : float
+        Flux-mean opacity [cm^2 g^-1].
+
+    Returns
+    -------
+    float
+        Eddington luminosity [erg s^-1].
+
+    References
+    ----------
+    docs/physics.md, eq. 11.
+    """
     return FOUR_PI * G * mass * C_LIGHT / kappa
 
 
 @njit(cache=True, error_model="numpy")
 def eddington_factor(luminosity, mass, kappa):
-    """Gamma = kappa L / (4 pi G M c) (dimensionless); independent of radius."""
+    """Gamma = kappa L / (4 pi G M c) (dimensionless); independent of radius.
+
+    Parameters
+    ----------
+    luminosity : float
+        Radiative luminosity [erg s^-1].
+    mass : float
+        Stellar mass [g].
+    kappa : float
+        Flux-mean opacity [cm^2 g^-1].
+
+    Returns
+    -------
+    float
+        Eddington factor [dimensionless].
+
+    References
+    ----------
+    docs/physics.md, eq. 12.
+    """
     return kappa * luminosity / (FOUR_PI * G * mass * C_LIGHT)
 
 
 @njit(cache=True, error_model="numpy")
 def isothermal_sound_speed(T, mu):
-    """a = sqrt(k T / (mu m_u))  [cm s-1]."""
+    """a = sqrt(k T / (mu m_u))  [cm s-1].
+
+    Parameters
+    ----------
+    T : float
+        Gas temperature [K].
+    mu : float
+        Mean molecular weight [dimensionless].
+
+    Returns
+    -------
+    float
+        Isothermal sound speed [cm s^-1].
+
+    References
+    ----------
+    docs/physics.md, eq. 3.
+    """
     return math.sqrt(K_B * T / (mu * M_U))
 
 
 @njit(cache=True, error_model="numpy")
 def gas_temperature(a, mu):
-    """Inverse of :func:`isothermal_sound_speed`: T = mu m_u a^2 / k  [K]."""
+    """Inverse of :func:`isothermal_sound_speed`: T = mu m_u a^2 / k  [K].
+
+    Parameters
+    ----------
+    a : float
+        Isothermal sound speed [cm s^-1].
+    mu : float
+        Mean molecular weight [dimensionless].
+
+    Returns
+    -------
+    float
+        Gas temperature [K].
+
+    References
+    ----------
+    docs/physics.md, eq. 3.
+    """
     return mu * M_U * a * a / K_B
 
 
 @njit(cache=True, error_model="numpy")
 def escape_speed(mass, r):
-    """v_esc = sqrt(2 G M / r)  [cm s-1]."""
+    """v_esc = sqrt(2 G M / r)  [cm s-1].
+
+    Parameters
+    ----------
+    mass : float
+        Stellar mass [g].
+    r : float
+        Radius [cm].
+
+    Returns
+    -------
+    float
+        Escape speed [cm s^-1].
+
+    References
+    ----------
+    docs/physics.md, eq. 4.
+    """
     return math.sqrt(2.0 * G * mass / r)

@@ -36,9 +36,27 @@ KIND_NAMES = {SADDLE: "saddle (X-type)", NODE: "node", FOCUS: "focus (spiral)",
 def classify(b, c, k1):
     """Topology and slopes of a critical point from 2 p^2 - b p - c = 0.
 
-    Returns ``(kind, p_plus, p_minus)``; for a focus both slopes are NaN.
-    For a saddle ``p_plus`` is the root with 2p - k1 > 0, the accelerating
-    (wind) branch.
+    Parameters
+    ----------
+    b : float
+        Linear coefficient [s^-1]: dN/dv (Model A) or N_v + k1 (Model B).
+    c : float
+        Constant coefficient [s^-2]: dN/dr (Model A) or N_r + N_T T' (Model B).
+    k1 : float
+        (k / (mu m_u)) T' / v [s^-1]; 0 for Model A.
+
+    Returns
+    -------
+    kind : int
+        SADDLE, NODE, FOCUS or DEGENERATE.
+    p_plus, p_minus : float
+        The larger and smaller slope dv/dr [s^-1]; NaN for a focus.  For a
+        saddle ``p_plus`` is the root with 2p - k1 > 0, the accelerating
+        (wind) branch.
+
+    References
+    ----------
+    docs/physics.md, eqs. 25 and 26.
     """
     disc = b * b + 8.0 * c
     if disc < 0.0:

@@ -59,7 +59,28 @@ TOO_MANY_STEPS = -2
 
 @njit(cache=True, error_model="numpy")
 def error_norm(K, h, y, y_new, rtol, atol):
-    """DOP853's blended 5th/3rd-order error estimate (as scipy's DOP853)."""
+    """DOP853's blended 5th/3rd-order error estimate (as scipy's DOP853).
+
+    Parameters
+    ----------
+    K : ndarray (N_STAGES + 1, n)
+        The step's stage derivatives.
+    h : float
+        Step size (x's unit).
+    y, y_new : ndarray (n,)
+        State before and after the step.
+    rtol, atol : float
+        Relative and absolute tolerance.
+
+    Returns
+    -------
+    float
+        Error norm; below 1 accepts the step.
+
+    References
+    ----------
+    Hairer, Norsett & Wanner (1993), section II.10.
+    """
     n = y.shape[0]
     err5 = 0.0
     err3 = 0.0
@@ -81,7 +102,23 @@ def error_norm(K, h, y, y_new, rtol, atol):
 @njit(cache=True, error_model="numpy")
 def step_bounds(x, direction, h_abs, max_step):
     """(min_step, h_abs): the smallest step resolvable at x, and h_abs kept within
-    [min_step, max_step] before a step is tried."""
+    [min_step, max_step] before a step is tried.
+
+    Parameters
+    ----------
+    x : float
+        Current abscissa.
+    direction : float
+        +1 or -1, the direction of integration.
+    h_abs : float
+        Proposed step size (> 0).
+    max_step : float
+        Largest step allowed.
+
+    Returns
+    -------
+    min_step, h_abs : float
+    """
     min_step = 10.0 * abs(np.nextafter(x, direction * np.inf) - x)
     if h_abs > max_step:
         h_abs = max_step
@@ -92,7 +129,24 @@ def step_bounds(x, direction, h_abs, max_step):
 
 @njit(cache=True, error_model="numpy")
 def trial_point(x, h_abs, direction, x_end):
-    """(x_new, h) of a trial step of size h_abs, not past x_end."""
+    """(x_new, h) of a trial step of size h_abs, not past x_end.
+
+    Parameters
+    ----------
+    x : float
+        Current abscissa.
+    h_abs : float
+        Step size (> 0).
+    direction : float
+        +1 or -1.
+    x_end : float
+        End of the interval.
+
+    Returns
+    -------
+    x_new, h : float
+        The trial point and the signed step.
+    """
     x_new = x + h_abs * direction
     if direction * (x_new - x_end) > 0.0:
         x_new = x_end
@@ -101,7 +155,24 @@ def trial_point(x, h_abs, direction, x_end):
 
 @njit(cache=True, error_model="numpy")
 def error_norm_scalar(K, h, y, y_new, rtol, atol):
-    """:func:`error_norm` for one component (K one-dimensional)."""
+    """:func:`error_norm` for one component (K one-dimensional).
+
+    Parameters
+    ----------
+    K : ndarray (N_STAGES + 1,)
+        The step's stage derivatives.
+    h : float
+        Step size.
+    y, y_new : float
+        State before and after the step.
+    rtol, atol : float
+        Relative and absolute tolerance.
+
+    Returns
+    -------
+    float
+        Error norm.
+    """
     scale = atol + max(abs(y), abs(y_new)) * rtol
     e5 = 0.0
     e3 = 0.0
@@ -117,7 +188,21 @@ def error_norm_scalar(K, h, y, y_new, rtol, atol):
 
 @njit(cache=True, error_model="numpy")
 def interpolate_scalar(F, y_old, t):
-    """:func:`interpolate` for one component: the dense-output value at t."""
+    """:func:`interpolate` for one component: the dense-output value at t.
+
+    Parameters
+    ----------
+    F : ndarray (INTERPOLATOR_POWER,)
+        The step's interpolant coefficients.
+    y_old : float
+        State at the start of the step.
+    t : float
+        (x - x_old) / h, in [0, 1].
+
+    Returns
+    -------
+    float
+    """
     acc = 0.0
     for i in range(INTERPOLATOR_POWER - 1, -1, -1):
         acc += F[i]
@@ -137,6 +222,20 @@ def next_step(en, h_abs, rejected):
     last accepted one (then the step may not grow; Hairer, Norsett & Wanner
     1993, II.4).  A non-finite norm (e.g. a stage across a singular point)
     is an infinitely bad step.
+
+    Parameters
+    ----------
+    en : float
+        Error norm of the trial step (:func:`error_norm`).
+    h_abs : float
+        Its size.
+    rejected : bool
+        A step has been rejected since the last accepted one.
+
+    Returns
+    -------
+    h_abs : float
+    accepted, rejected : bool
     """
     if not math.isfinite(en):
         return h_abs * MIN_FACTOR, False, True
@@ -153,7 +252,21 @@ def next_step(en, h_abs, rejected):
 
 @njit(cache=True, error_model="numpy")
 def interpolate(F, y_old, t, out_y, row):
-    """out_y[row] = the dense-output polynomial F at t = (x - x_old) / h."""
+    """out_y[row] = the dense-output polynomial F at t = (x - x_old) / h.
+
+    Parameters
+    ----------
+    F : ndarray (INTERPOLATOR_POWER, n)
+        The step's interpolant coefficients.
+    y_old : ndarray (n,)
+        State at the start of the step.
+    t : float
+        (x - x_old) / h, in [0, 1].
+    out_y : ndarray (m, n)
+        Output, written in place.
+    row : int
+        The row of ``out_y`` written.
+    """
     n = y_old.shape[0]
     for j in range(n):
         acc = 0.0
@@ -171,6 +284,19 @@ def make_integrator(rhs, monitor):
 
     The state ``y`` is a float64 array (``rhs(x, y, P, O, dydx)`` writes
     into ``dydx``); the loop is :func:`_make_driver`'s, the steps below.
+
+    Parameters
+    ----------
+    rhs : numba dispatcher
+        Compiled ``rhs(x, y, P, O, dydx)``.
+    monitor : numba dispatcher
+        Compiled ``monitor(x, y, P, O) -> int``, called after every accepted step.
+
+    Returns
+    -------
+    numba dispatcher
+        ``integrate(x0, y0, x_end, P, O, rtol, atol, h_start, max_step, out_x,
+        out_y, dx_out=0.0)`` (see its docstring).
     """
 
     @njit(cache=True, error_model="numpy")
@@ -231,6 +357,7 @@ def make_integrator(rhs, monitor):
     # The work space is (K, F, y_new, f_new, y_stage, f_stage).
     @njit(cache=True, error_model="numpy")
     def begin(x, y0, P, O):
+        """(y, f, work): a copy of the state, its derivative and the work space."""
         n = y0.shape[0]
         y = y0.copy()
         f = np.empty(n)
@@ -241,30 +368,36 @@ def make_integrator(rhs, monitor):
 
     @njit(cache=True, error_model="numpy")
     def step(x, y, f, h, P, O, work):
+        """One trial step: (y_new, f_new), the stages kept in ``work``."""
         K, F, y_new, f_new, y_stage, f_stage = work
         dop853_step(x, y, f, h, P, O, K, y_new, f_new, y_stage, f_stage)
         return y_new, f_new
 
     @njit(cache=True, error_model="numpy")
     def norm(work, h, y, y_new, rtol, atol):
+        """The trial step's error norm (:func:`error_norm`)."""
         return error_norm(work[0], h, y, y_new, rtol, atol)
 
     @njit(cache=True, error_model="numpy")
     def dense(x, y, y_new, f_new, h, P, O, work):
+        """The accepted step's interpolant into ``work``."""
         K, F, _, _, y_stage, f_stage = work
         dense_coefficients(x, y, y_new, f_new, h, P, O, K, F, y_stage, f_stage)
 
     @njit(cache=True, error_model="numpy")
     def store_dense(work, y, t, out_y, row):
+        """out_y[row] = the interpolated state at t = (x - x_old) / h."""
         interpolate(work[1], y, t, out_y, row)
 
     @njit(cache=True, error_model="numpy")
     def store(out_y, row, y):
+        """out_y[row] = y."""
         for j in range(y.shape[0]):
             out_y[row, j] = y[j]
 
     @njit(cache=True, error_model="numpy")
     def accept(y, f, y_new, f_new):
+        """Copy the accepted step into the state: (y, f)."""
         for j in range(y.shape[0]):
             y[j] = y_new[j]
             f[j] = f_new[j]
@@ -284,11 +417,24 @@ def make_scalar_integrator(rhs, monitor):
     loop.  A one-element array state through :func:`make_integrator` gives
     the same numbers bit for bit but takes 1.1-1.3x as long per Model A leg
     (benchmarks/bench_dop853_drivers.py).
+
+    Parameters
+    ----------
+    rhs : numba dispatcher
+        Compiled ``rhs(x, y, P, O) -> float``.
+    monitor : numba dispatcher
+        Compiled ``monitor(x, y, P, O) -> int``.
+
+    Returns
+    -------
+    numba dispatcher
+        ``integrate``, as :func:`make_integrator` gives it.
     """
 
     # The work space is (K, F): the stages and the interpolant's coefficients.
     @njit(cache=True, error_model="numpy")
     def begin(x, y0, P, O):
+        """(y, f, work): the state, its derivative and the work space (K, F)."""
         work = (np.empty(N_STAGES_EXTENDED), np.empty(INTERPOLATOR_POWER))
         return y0, rhs(x, y0, P, O), work
 
@@ -312,6 +458,7 @@ def make_scalar_integrator(rhs, monitor):
 
     @njit(cache=True, error_model="numpy")
     def norm(work, h, y, y_new, rtol, atol):
+        """The trial step's error norm (:func:`error_norm_scalar`)."""
         return error_norm_scalar(work[0], h, y, y_new, rtol, atol)
 
     @njit(cache=True, error_model="numpy")
@@ -336,14 +483,17 @@ def make_scalar_integrator(rhs, monitor):
 
     @njit(cache=True, error_model="numpy")
     def store_dense(work, y, t, out_y, row):
+        """out_y[row] = the interpolated state at t = (x - x_old) / h."""
         out_y[row] = interpolate_scalar(work[1], y, t)
 
     @njit(cache=True, error_model="numpy")
     def store(out_y, row, y):
+        """out_y[row] = y."""
         out_y[row] = y
 
     @njit(cache=True, error_model="numpy")
     def accept(y, f, y_new, f_new):
+        """The accepted step becomes the state: (y_new, f_new)."""
         return y_new, f_new
 
     return _make_driver(monitor, begin, step, norm, dense, store_dense, store, accept)

@@ -92,6 +92,26 @@ def kramers(rho, T, kes, coeff):
     46, 836); the textbook coefficients C_ff = 3.68e22 and C_bf = 4.34e25 (cgs)
     are those quoted in Hansen, Kawaler & Trimble (2004), Stellar Interiors,
     section 4.4 (section number from memory).
+
+    Parameters
+    ----------
+    rho : float
+        Density [g cm^-3].
+    T : float
+        Temperature [K].
+    kes : float
+        Electron-scattering opacity [cm^2 g^-1].
+    coeff : float
+        (C_ff (1 - Z) + C_bf (g/t) Z) (1 + X) [cgs: cm^5 g^-2 K^3.5].
+
+    Returns
+    -------
+    float
+        kappa [cm^2 g^-1].
+
+    References
+    ----------
+    docs/physics.md, eq. 6.
     """
     return kes + coeff * rho * T ** -3.5
 
@@ -101,6 +121,34 @@ def bump(rho, T, kes, amplitude, rho_ref, s, log_tb, width):
     """Parametric opacity bump, a transparent stand-in for the iron bump.
 
     kappa = kappa_es [1 + A (rho/rho_ref)**s exp(-(log10 T - log10 T_b)**2 / (2 w**2))]
+
+    Parameters
+    ----------
+    rho : float
+        Density [g cm^-3].
+    T : float
+        Temperature [K].
+    kes : float
+        Electron-scattering opacity [cm^2 g^-1].
+    amplitude : float
+        A [dimensionless].
+    rho_ref : float
+        Reference density [g cm^-3].
+    s : float
+        Density exponent [dimensionless].
+    log_tb : float
+        log10 of the peak temperature [log10 K].
+    width : float
+        Width w [dex].
+
+    Returns
+    -------
+    float
+        kappa [cm^2 g^-1].
+
+    References
+    ----------
+    docs/physics.md, eq. 7.
     """
     d = (math.log10(T) - log_tb) / width
     return kes * (1.0 + amplitude * (rho / rho_ref) ** s * math.exp(-0.5 * d * d))
@@ -110,7 +158,24 @@ def bump(rho, T, kes, amplitude, rho_ref, s, log_tb, width):
 
 @njit(cache=True, error_model="numpy", inline="always")
 def table_coordinates(rho, T):
-    """(log10 T, log10 R) of a point, R = rho / (T / 1e6 K)**3 (cgs)."""
+    """(log10 T, log10 R) of a point, R = rho / (T / 1e6 K)**3 (cgs).
+
+    Parameters
+    ----------
+    rho : float
+        Density [g cm^-3].
+    T : float
+        Temperature [K].
+
+    Returns
+    -------
+    log_T, log_R : float
+        log10 T [log10 K] and log10 R [log10 g cm^-3].
+
+    References
+    ----------
+    docs/physics.md, eq. 8.
+    """
     log_T = math.log10(T)
     return log_T, math.log10(rho) - 3.0 * log_T + 18.0
 
@@ -164,6 +229,20 @@ def table_log_opacity(O, log_T, log_R):
     derivatives (C1); with the spline derivatives of
     :func:`windsolve.tables.node_derivatives` the result is the tensor-product
     cubic spline (C2, error O(h^4)).
+
+    Parameters
+    ----------
+    O : ndarray
+        Opacity vector of the tabulated law (module docstring).
+    log_T : float
+        log10 T [log10 K], on the table.
+    log_R : float
+        log10 R [log10 g cm^-3], on the table.
+
+    Returns
+    -------
+    f, f_T, f_R : float
+        log10 kappa [log10 cm^2 g^-1] and its derivatives [dimensionless].
     """
     nT = int(O[SLOT_NT])
     nR = int(O[SLOT_NR])
@@ -226,6 +305,18 @@ def table_log_opacity_value(O, log_T, log_R):
     """log10 kappa alone: :func:`table_log_opacity` without the gradient.
 
     The wind kernels' hot path (about half the cost of value and gradient).
+
+    Parameters
+    ----------
+    O : ndarray
+        Opacity vector of the tabulated law.
+    log_T, log_R : float
+        The point on the table [log10 K, log10 g cm^-3].
+
+    Returns
+    -------
+    float
+        log10 kappa [log10 cm^2 g^-1].
     """
     nT = int(O[SLOT_NT])
     nR = int(O[SLOT_NR])
@@ -277,6 +368,24 @@ def table_opacity(O, rho, T):
     NaN outside the table unless slot 6 asks for clamping, in which case
     log10 T and log10 R are each moved onto the nearest table edge.  A NaN
     input gives NaN either way.
+
+    Parameters
+    ----------
+    O : ndarray
+        Opacity vector of the tabulated law.
+    rho : float
+        Density [g cm^-3].
+    T : float
+        Temperature [K].
+
+    Returns
+    -------
+    float
+        kappa [cm^2 g^-1], or NaN.
+
+    References
+    ----------
+    docs/physics.md, section 2 ("Tables").
     """
     log_T, log_R = table_coordinates(rho, T)
     if _outside(O, log_T, log_R):
@@ -303,6 +412,19 @@ def off_table(O, rho, T):
     (a NaN there comes from elsewhere).  Wind kernels use it to stop with a
     status that names (rho, T) instead of a bare NaN; note that an adaptive
     step never *accepts* an off-table point (see :func:`table_margin`).
+
+    Parameters
+    ----------
+    O : ndarray
+        Opacity vector.
+    rho : float
+        Density [g cm^-3].
+    T : float
+        Temperature [K].
+
+    Returns
+    -------
+    bool
     """
     if O[SLOT_LAW] != LAW_TABLE or O[SLOT_CLAMP] != 0.0:
         return False
@@ -312,7 +434,26 @@ def off_table(O, rho, T):
 
 @njit(cache=True, error_model="numpy", inline="always")
 def opacity(O, rho, T):
-    """Opacity of the law encoded in ``O`` at density rho [g cm-3], T [K]."""
+    """Opacity of the law encoded in ``O`` at density rho [g cm-3], T [K].
+
+    Parameters
+    ----------
+    O : ndarray
+        Opacity vector (module docstring).
+    rho : float
+        Density [g cm^-3].
+    T : float
+        Temperature [K].
+
+    Returns
+    -------
+    float
+        kappa [cm^2 g^-1], without porosity; NaN for an unknown law code.
+
+    References
+    ----------
+    docs/physics.md, eqs. 5-8.
+    """
     # Compare the float slot directly: converting it to an integer first
     # costs measurably in the innermost loop.
     law = O[SLOT_LAW]
@@ -338,6 +479,20 @@ def table_margin(O, rho, T):
     the step shrinks until the integrator gives up just short of the edge.  A
     small margin at that last accepted point is how a driver tells "left the
     table" from other step-size failures.
+
+    Parameters
+    ----------
+    O : ndarray
+        Opacity vector.
+    rho : float
+        Density [g cm^-3].
+    T : float
+        Temperature [K].
+
+    Returns
+    -------
+    float
+        The margin [dex].
     """
     if O[SLOT_LAW] != LAW_TABLE or O[SLOT_CLAMP] != 0.0:
         return np.inf
@@ -352,6 +507,20 @@ def tabulate_log_opacity(O, log_T, log_R):
 
     The converter behind :func:`windsolve.tables.tabulate`; NaN where the
     law gives no positive opacity.
+
+    Parameters
+    ----------
+    O : ndarray
+        Opacity vector.
+    log_T : ndarray (nT,)
+        log10 T [log10 K].
+    log_R : ndarray (nR,)
+        log10 R [log10 g cm^-3] (docs/physics.md, eq. 8).
+
+    Returns
+    -------
+    ndarray (nT, nR)
+        log10 kappa [log10 cm^2 g^-1].
     """
     out = np.empty((log_T.shape[0], log_R.shape[0]))
     for i in range(log_T.shape[0]):
@@ -370,6 +539,20 @@ def porosity_factor(tau_b):
     Shaviv (1998, ApJ 494, L193); Owocki, Gayley & Shaviv (2004, ApJ 616, 525),
     eq. 4 (a single clump size).  Uses a series for tau_b < 1e-5 to avoid the
     0/0 cancellation.
+
+    Parameters
+    ----------
+    tau_b : float
+        Optical depth of one clump, kappa rho h [dimensionless].
+
+    Returns
+    -------
+    float
+        kappa_eff / kappa [dimensionless].
+
+    References
+    ----------
+    docs/physics.md, eq. 9.
     """
     if tau_b < 1e-5:
         return 1.0 - 0.5 * tau_b + tau_b * tau_b / 6.0
@@ -378,7 +561,24 @@ def porosity_factor(tau_b):
 
 @njit(cache=True, error_model="numpy", inline="always")
 def porosity_length(O, r):
-    """h(r) = h0 (r / R0)**q [cm]."""
+    """h(r) = h0 (r / R0)**q [cm].
+
+    Parameters
+    ----------
+    O : ndarray
+        Opacity vector (slots 8-10 hold h0, R0, q).
+    r : float
+        Radius [cm].
+
+    Returns
+    -------
+    float
+        Porosity length [cm].
+
+    References
+    ----------
+    docs/physics.md, eq. 10.
+    """
     q = O[SLOT_Q]
     # A general pow costs ~20 ns, several times the rest of this call;
     # the common exponents 0 and 1 skip it.
@@ -391,7 +591,28 @@ def porosity_length(O, r):
 
 @njit(cache=True, error_model="numpy", inline="always")
 def effective_opacity(O, rho, T, r):
-    """Opacity with the porosity modifier applied when h0 > 0."""
+    """Opacity with the porosity modifier applied when h0 > 0.
+
+    Parameters
+    ----------
+    O : ndarray
+        Opacity vector.
+    rho : float
+        Density [g cm^-3].
+    T : float
+        Temperature [K].
+    r : float
+        Radius [cm].
+
+    Returns
+    -------
+    float
+        kappa_eff [cm^2 g^-1].
+
+    References
+    ----------
+    docs/physics.md, eqs. 9 and 10.
+    """
     k = opacity(O, rho, T)
     if O[SLOT_H0] > 0.0:
         k *= porosity_factor(k * rho * porosity_length(O, r))
@@ -403,6 +624,24 @@ def pack(law_code, kes, params=(), porosity=(0.0, 1.0, 0.0), extra=None):
 
     ``extra`` (1-D floats) is appended after slot 10: the table block of the
     tabulated law (see :func:`pack_table`).
+
+    Parameters
+    ----------
+    law_code : int
+        One of the ``LAW_*`` codes.
+    kes : float
+        Electron-scattering opacity [cm^2 g^-1].
+    params : sequence of float
+        The law's parameters for slots 2-7 [cgs].
+    porosity : tuple of float
+        (h0 [cm], R0 [cm], q [dimensionless]).
+    extra : array_like or None
+        The table block, or None.
+
+    Returns
+    -------
+    ndarray
+        The vector ``O``.
     """
     n_extra = 0 if extra is None else len(extra)
     O = np.zeros(N_SLOTS + n_extra)
@@ -422,6 +661,29 @@ def pack_table(log_T, log_R, nodes, clamp=False):
     ``nodes`` has shape (nT, nR, 4): log10 kappa, d/dlog T, d/dlog R and the
     cross derivative at each node.  Checks only the shapes; the user layer
     (:mod:`windsolve.tables`) validates the content.
+
+    Parameters
+    ----------
+    log_T : array_like (nT,)
+        log10 T nodes [log10 K].
+    log_R : array_like (nR,)
+        log10 R nodes [log10 g cm^-3].
+    nodes : array_like (nT, nR, 4)
+        Node values and derivatives.
+    clamp : bool
+        Clamp to the table edge instead of NaN outside.
+
+    Returns
+    -------
+    params : tuple of float
+        Slots 2-6 (grid edges, clamp flag).
+    extra : ndarray
+        The table block (slot 11 on).
+
+    Raises
+    ------
+    ValueError
+        The shapes do not agree.
     """
     log_T = np.asarray(log_T, dtype=float)
     log_R = np.asarray(log_R, dtype=float)

@@ -70,6 +70,24 @@ def optical_core_radius(r, rho, kappa):
     crossing is solved for within its interval.  (A trapezoid sum on the
     same points misplaces the radius by a few 1e-4 of itself on a solved
     wind, which moved a FWHM dominated by gas just outside it by up to 1 %.)
+
+    Parameters
+    ----------
+    r : ndarray
+        Radius [cm], increasing.
+    rho : ndarray
+        Density [g cm^-3].
+    kappa : ndarray
+        Opacity [cm^2 g^-1].
+
+    Returns
+    -------
+    float
+        The tau = 2/3 radius [cm], or NaN.
+
+    References
+    ----------
+    docs/physics.md, section 7 ("Core radius").
     """
     n = r.shape[0]
     tau = np.empty(n)
@@ -131,6 +149,28 @@ def default_core_radius_cgs(r, optical, photosphere_radius, model_radius, base_r
     :func:`optical_core_radius_cgs`; None to skip); else the model's radius;
     else ``base_radius``; else r[0].  Plain floats (NaN = absent), for sweep
     workers as well as :func:`windsolve.lines.line_widths`.
+
+    Parameters
+    ----------
+    r : ndarray
+        Radius of the profile [cm], increasing.
+    optical : tuple of ndarray or None
+        (radius [cm], density [g cm^-3], opacity [cm^2 g^-1]), or None.
+    photosphere_radius : float
+        R_ph [cm], NaN for none.
+    model_radius : float
+        The model's radius [cm], NaN for none.
+    base_radius : float
+        The summary's base radius [cm], NaN for none.
+
+    Returns
+    -------
+    float
+        R_c [cm].
+
+    References
+    ----------
+    docs/physics.md, section 7 ("Core radius").
     """
     if math.isfinite(photosphere_radius):
         return photosphere_radius

@@ -27,11 +27,44 @@ def make_illinois(f):
     throw it off.  A factory, like
     :func:`windsolve.core.integrate.make_integrator`, so that callers stay
     cacheable on disk.
+
+    Parameters
+    ----------
+    f : numba dispatcher
+        Compiled ``f(x, P, O) -> float``.
+
+    Returns
+    -------
+    numba dispatcher
+        ``refine_root(lo, hi, f_lo, f_hi, P, O, xtol) -> x``: at most 200 steps,
+        ending when the estimate moves, or the bracket shrinks, by at most
+        ``xtol (1 + |x|)``.
+
+    References
+    ----------
+    docs/physics.md, section 8.
     """
 
     @njit(cache=True, error_model="numpy")
     def refine_root(lo, hi, f_lo, f_hi, P, O, xtol):
-        """Root of f in [lo, hi] given f(lo) = f_lo, f(hi) = f_hi of opposite sign."""
+        """Root of f in [lo, hi] given f(lo) = f_lo, f(hi) = f_hi of opposite sign.
+
+        Parameters
+        ----------
+        lo, hi : float
+            The bracket (in f's own variable).
+        f_lo, f_hi : float
+            f at lo and hi, of opposite sign (or one zero).
+        P, O : ndarray
+            The kernels' parameter vectors, passed to f.
+        xtol : float
+            Relative tolerance on x [dimensionless].
+
+        Returns
+        -------
+        float
+            The estimate of the root.
+        """
         if f_lo == 0.0:
             return lo
         if f_hi == 0.0:
@@ -88,6 +121,20 @@ def search_left(a, x, lo, hi):
 
     ``lo + numpy.searchsorted(a[lo:hi], x, side="left")``, without the slice
     (but x = NaN gives lo, where numpy, sorting NaN last, gives hi).
+
+    Parameters
+    ----------
+    a : ndarray
+        Array, non-decreasing on [lo, hi).
+    x : float
+        The value sought.
+    lo, hi : int
+        The slice searched.
+
+    Returns
+    -------
+    int
+        An index into ``a``, in [lo, hi].
     """
     return _search(a, x, lo, hi, False)
 
@@ -98,6 +145,20 @@ def search_right(a, x, lo, hi):
 
     ``lo + numpy.searchsorted(a[lo:hi], x, side="right")``, without the slice
     (but x = NaN gives lo, where numpy, sorting NaN last, gives hi).
+
+    Parameters
+    ----------
+    a : ndarray
+        Array, non-decreasing on [lo, hi).
+    x : float
+        The value sought.
+    lo, hi : int
+        The slice searched.
+
+    Returns
+    -------
+    int
+        An index into ``a``, in [lo, hi].
     """
     return _search(a, x, lo, hi, True)
 
@@ -125,11 +186,45 @@ def make_brent(f):
     (ROOT_F_FAILED), the last abscissa, its payload (NaN unless ROOT_FOUND)
     and the count of calls so far (``evals`` given counts earlier ones).
     Carrying the payload means the answer needs no extra call of f.
+
+    Parameters
+    ----------
+    f : numba dispatcher
+        Compiled ``f(x, args) -> (code, fx, p, q)``.
+
+    Returns
+    -------
+    numba dispatcher
+        The compiled ``brent`` described above.
     """
 
     @njit(cache=True, error_model="numpy")
     def brent(xpre, fpre, ppre, qpre, xcur, fcur, pcur, qcur, args, ftol, xtol, jump_tol,
               evals, max_evals):
+        """Brent's method from the bracket (xpre, xcur), carrying each trial's (p, q).
+
+        Parameters
+        ----------
+        xpre, fpre, ppre, qpre : float
+            One end of the bracket, f there and its payload.
+        xcur, fcur, pcur, qcur : float
+            The other end (f of opposite sign), f there and its payload.
+        args : tuple
+            Passed to f.
+        ftol : float
+            Stop when |f| < ftol (f's unit).
+        xtol : float
+            Absolute tolerance on x (x's unit).
+        jump_tol : float
+            A bracket collapsing with |f| above this is a jump, not a root.
+        evals, max_evals : int
+            Calls of f made so far, and the most allowed.
+
+        Returns
+        -------
+        tuple
+            (outcome, f_code, x, p, q, evals), as :func:`make_brent` says.
+        """
         tol = 0.5 * xtol
         xblk = 0.0
         fblk = 0.0

@@ -142,12 +142,12 @@ class LineSettings:
             self.hwzi_fraction, self.edge_depth, self.line_strength, self.n_velocity))
 
     @property
-    def cgs(self):
+    def cgs(self) -> LineSettingsCGS:
         """These settings as a :class:`LineSettingsCGS` (floats, cgs; computed once)."""
         return self._cgs
 
     @property
-    def instrument_fwhm(self):
+    def instrument_fwhm(self) -> u.Quantity:
         """Instrumental FWHM [km/s]: the given speed, c / R, or 0."""
         if self.resolution is None:
             return 0.0 * KM_S
@@ -156,7 +156,7 @@ class LineSettings:
         return (C_LIGHT / CM_PER_KM / self.resolution) * KM_S
 
     @property
-    def broadening_fwhm(self):
+    def broadening_fwhm(self) -> u.Quantity:
         """FWHM [km/s] of the one Gaussian applied: turbulence and instrument in quadrature."""
         return np.hypot(self.turbulence, self.instrument_fwhm)
 

@@ -10,6 +10,7 @@ Quantities), resolves the core radius and calls the kernels of
 import io
 from collections.abc import Mapping
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import astropy.units as u
 import numpy as np
@@ -27,6 +28,9 @@ from .settings import (
     LineSettingsCGS,
     _check_settings,
 )
+
+if TYPE_CHECKING:
+    from pathlib import Path
 
 GRID_MARGIN = kernels.GRID_MARGIN  # the grid spans this many v_max ...
 BROADENING_MARGIN = kernels.BROADENING_MARGIN  # ... plus this many broadening FWHM
@@ -71,10 +75,25 @@ class LineProfile:
     hwzi: object
     edge_velocity: object
 
-    def to_csv(self, path):
+    def to_csv(self, path: "str | Path") -> "Path":
         """Write ``velocity_km_s,flux`` (one header line, then one row per point).
 
         Written under a temporary name and renamed when complete.
+
+        Parameters
+        ----------
+        path : str or Path
+            The CSV file.
+
+        Returns
+        -------
+        Path
+            The file written.
+
+        Raises
+        ------
+        OutputError
+            The file cannot be written.
         """
         from ..io import write_text
         data = np.column_stack([self.velocity.to_value(KM_S), np.asarray(self.flux)])
@@ -344,12 +363,32 @@ def line_widths(result: WindResult | Mapping, settings: LineSettings = DEFAULT_S
     return out
 
 
-def result_widths_cgs(result, settings, core_radius=None):
+def result_widths_cgs(result: WindResult | Mapping, settings: LineSettings,
+                      core_radius: "u.Quantity | str | None" = None) -> tuple:
     """(fwhm, hwzi, edge_velocity) [cm/s] of a result: :func:`line_widths` without units.
 
     Reads the arrays (appending Model B's thin flow) and resolves the core
     radius exactly as :func:`line_widths`, then calls :func:`widths_cgs`;
     what a sweep worker records.
+
+    Parameters
+    ----------
+    result : WindResult or mapping
+        A result, or a profile mapping of radius, velocity and density Quantities.
+    settings : LineSettings
+        The line settings.
+    core_radius : Quantity [length], str or None
+        R_c; None for the model's default (docs/physics.md, section 7).
+
+    Returns
+    -------
+    tuple of float
+        (fwhm, hwzi, edge_velocity) [cm s^-1], NaN where not measurable.
+
+    Raises
+    ------
+    ModelError
+        The profile or the core radius is unusable (as :func:`line_widths`).
     """
     what = "line_widths"
     r, v, rho = _read_profile(result, what)
@@ -357,7 +396,8 @@ def result_widths_cgs(result, settings, core_radius=None):
     return widths_cgs(r, v, rho, settings, Rc)
 
 
-def widths_cgs(r, v, rho, settings, core_radius):
+def widths_cgs(r: np.ndarray, v: np.ndarray, rho: np.ndarray,
+               settings: LineSettings | LineSettingsCGS, core_radius: float) -> tuple:
     """The widths of :func:`line_widths` from plain cgs arrays, without astropy.
 
     For sweep workers: one compiled call (kernel
@@ -389,6 +429,11 @@ def widths_cgs(r, v, rho, settings, core_radius):
         line has no flux; edge_velocity when no point lies outside R_c, when
         v(r) falls outward outside R_c (by more than 1e-6 v_max), or when the
         trough never reaches ``edge_depth``.
+
+    Raises
+    ------
+    ModelError
+        ``settings`` is neither a LineSettings nor a LineSettingsCGS.
     """
     c = settings._cgs if isinstance(settings, LineSettings) else settings
     if not isinstance(c, LineSettingsCGS):
@@ -399,7 +444,8 @@ def widths_cgs(r, v, rho, settings, core_radius):
                                MONOTONIC_RTOL)
 
 
-def broaden(velocity, flux, fwhm, continuum=0.0):
+def broaden(velocity: u.Quantity, flux: "np.ndarray | list", fwhm: "u.Quantity | str",
+            continuum: float = 0.0) -> np.ndarray:
     """Convolve a profile on an evenly spaced velocity grid with a Gaussian of given FWHM.
 
     Parameters
@@ -419,6 +465,16 @@ def broaden(velocity, flux, fwhm, continuum=0.0):
     ndarray
         The broadened profile (exact convolution of the piecewise-linear
         profile; kernel :func:`windsolve.core.lines.broadening.gaussian_broaden`).
+
+    Raises
+    ------
+    ModelError
+        The arrays differ in shape or are not 1-D, the grid is not evenly spaced
+        and increasing, or ``fwhm`` is negative or not finite.
+
+    References
+    ----------
+    docs/physics.md, eq. 30.
     """
     w = np.asarray(_speed_array(velocity, "broaden: velocity"))
     f = np.asarray(flux, dtype=np.float64)

@@ -12,7 +12,7 @@ THIN_EXTENT = 100.0  # the optically thin flow above a photosphere is followed t
 THIN_POINTS = 200
 
 
-def thin_extension(result, r, v, rho):
+def thin_extension(result, r: np.ndarray, v: np.ndarray, rho: np.ndarray) -> tuple:
     """Append the ballistic thin flow above a Model B photosphere (its ModelSpec's
     ``extend_profile``).
 
@@ -21,6 +21,23 @@ def thin_extension(result, r, v, rho):
     with K = (v_ph^2 - v_inf^2) R_ph, and rho from continuity.  That is the
     gas an observer's lines come from, so it is added here (out to
     THIN_EXTENT R_ph); profiles without a photosphere are returned as they are.
+
+    Parameters
+    ----------
+    result : WindResult
+        The result whose summary gives R_ph, v_inf and Mdot.
+    r, v, rho : ndarray
+        The solved profile: radius [cm], velocity [cm s^-1], density [g cm^-3];
+        it must end at R_ph for the thin flow to be added.
+
+    Returns
+    -------
+    tuple of ndarray
+        (r, v, rho) [cgs], with THIN_POINTS - 1 points appended above R_ph.
+
+    References
+    ----------
+    docs/physics.md, eqs. 13 and 23.
     """
     s = result.summary
     R_ph = s.get("photosphere_radius")

@@ -65,19 +65,41 @@ class Param:
     check: str = ""  # "", "positive", "nonnegative", "fraction", "rtol"
 
     @property
-    def section(self):
+    def section(self) -> str:
+        """The model-file table of the key (``"star"`` for ``"star.mass"``)."""
         return self.key.rpartition(".")[0]
 
     @property
-    def name(self):
+    def name(self) -> str:
+        """The key's name inside its table (``"mass"`` for ``"star.mass"``)."""
         return self.key.rpartition(".")[2]
 
     @property
-    def where(self):
+    def where(self) -> str:
+        """The key as messages name it, e.g. ``"[star] mass"``."""
         return f"[{self.section}] {self.name}" if self.section else self.name
 
-    def read(self, value):
-        """Convert and check one value; raises ModelError naming the key."""
+    def read(self, value: "u.Quantity | float | str | bool") -> "u.Quantity | float | str | bool":
+        """Convert and check one value.
+
+        Parameters
+        ----------
+        value : str, float, Quantity or bool
+            As written in the model file or passed as a keyword (a string with
+            units such as ``"50 Msun"``, a Quantity, a number, a flag, a string).
+
+        Returns
+        -------
+        Quantity, float, bool or str
+            A Quantity (in the value's own unit, checked against :attr:`kind`),
+            or the plain value for ``float``, ``bool`` and ``str`` parameters.
+
+        Raises
+        ------
+        ModelError
+            Wrong type or unit, not finite, or outside what :attr:`check` allows;
+            the message names the key.
+        """
         where = self.where
         if self.kind is bool:
             if not isinstance(value, bool):
@@ -108,25 +130,79 @@ class Param:
                              f"between 1e-13 and 1e-3 (1e-8 is the default)")
         return value
 
-    def cgs(self, value):
-        """Plain float in the declared (cgs) unit."""
+    def cgs(self, value) -> float:
+        """Plain float in the declared (cgs) unit.
+
+        Parameters
+        ----------
+        value : Quantity or float
+            A value returned by :meth:`read`.
+
+        Returns
+        -------
+        float
+            The value in :attr:`kind` (a plain number is returned as a float).
+        """
         if isinstance(value, u.Quantity):
             return float(value.to_value(self.kind))
         return float(value)
 
-    def dump(self, value):
-        """Value as written in a model file."""
+    def dump(self, value: "u.Quantity | float | str | bool") -> "str | float | bool":
+        """Value as written in a model file.
+
+        Parameters
+        ----------
+        value : Quantity, float, bool or str
+            A value returned by :meth:`read`.
+
+        Returns
+        -------
+        str, float, bool
+            A Quantity as a string with units (``"50.0 solMass"``); anything else as it is.
+        """
         if isinstance(value, u.Quantity):
             return format_quantity(value)
         return value
 
 
-def format_value(value):
+def format_value(value) -> str:
+    """A value as messages show it (:func:`windsolve._units.plain`).
+
+    Parameters
+    ----------
+    value : Quantity, float, str or object
+        Any parameter value.
+
+    Returns
+    -------
+    str
+    """
     return plain(value)
 
 
-def param(key, kind, doc, default=REQUIRED, check=""):
-    """A dataclass field that declares a model-file parameter."""
+def param(key: str, kind, doc: str, default=REQUIRED, check: str = ""):
+    """A dataclass field that declares a model-file parameter.
+
+    Parameters
+    ----------
+    key : str
+        Dotted key in the model file, e.g. ``"star.mass"``.
+    kind : astropy unit or type
+        The cgs unit of a dimensional value (``u.g``, ``u.cm / u.s``), or
+        ``float``, ``bool`` or ``str``.
+    doc : str
+        One line saying what it is (used in messages about a missing key).
+    default : object
+        Value when omitted; :data:`REQUIRED` for none (the key must be given),
+        None for an optional parameter without a value.
+    check : str
+        ``""``, ``"positive"``, ``"nonnegative"``, ``"fraction"`` or ``"rtol"``.
+
+    Returns
+    -------
+    dataclasses.Field
+        A field defaulting to None, with the :class:`Param` in its metadata.
+    """
     meta = {"param": Param(key, kind, doc, default, check)}
     return field(default=None, metadata=meta)
 
@@ -144,7 +220,7 @@ class WindModel:
 
     # -- declarations -----------------------------------------------------
     @classmethod
-    def params(cls):
+    def params(cls) -> dict:
         """``{field name: Param}`` for every declared parameter (built once per class;
         do not change it)."""
         found = cls.__dict__.get("_param_declarations")
@@ -162,7 +238,8 @@ class WindModel:
         return keys
 
     @staticmethod
-    def opacity_parameter_names():
+    def opacity_parameter_names() -> list[str]:
+        """Names of every opacity-law parameter (all laws), sorted."""
         from ..opacity import OPACITY_LAWS
         return sorted({p.name for law in OPACITY_LAWS.values() for p in law.parameters})
 

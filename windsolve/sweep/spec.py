@@ -46,7 +46,8 @@ class AxisView:
     log: bool  # shown on a log scale (Axis.log; older files: values over more than 30x)
 
     @property
-    def label(self):
+    def label(self) -> str:
+        """Axis label: the key and, in brackets, the unit shown."""
         return f"{self.key} [{self.unit}]" if self.unit else self.key
 
 
@@ -67,11 +68,11 @@ class Sweep:
     observables: dict = None  # line settings: widths are measured in the workers
 
     @property
-    def digest(self):
+    def digest(self) -> str:
         """A hash of the sweep file's text (see :meth:`design_digest` for the journal)."""
         return hashlib.sha256(self.text.encode()).hexdigest()[:16]
 
-    def design_digest(self):
+    def design_digest(self) -> str:
         """A hash of the resolved design: every row's model and what is stored of it.
 
         The base model as read (so an edited ``base = "model.toml"`` is a
@@ -217,6 +218,26 @@ def apply_changes(model, changes):
     Rebuilding through :meth:`WindModel.replace` reuses the base model's
     already-parsed values: several times cheaper than reading a model file
     per row, which matters in a sweep of thousands.
+
+    Parameters
+    ----------
+    model : WindModel
+        The base model.
+    changes : dict
+        Dotted model-file key -> value as written in a model file (a string
+        with units, a number); ``opacity.*`` keys change the opacity table.
+
+    Returns
+    -------
+    WindModel
+        The changed model.
+
+    Raises
+    ------
+    ModelError
+        A changed value is invalid.
+    KeyError
+        A key is not one of the model's.
     """
     by_key = {p.key: name for name, p in model.params().items()}
     kwargs = {}

@@ -23,8 +23,25 @@ WIDTH_COLUMNS = LINE_WIDTHS  # (windsolve.registry.LINE_WIDTHS)
 
 
 
-def axis_views(path):
-    """[AxisView] of a sweep file's axes, in sweep order (older files: the table's units)."""
+def axis_views(path: str | Path) -> list[AxisView]:
+    """How to show each axis of a sweep file, in sweep order.
+
+    Parameters
+    ----------
+    path : str or Path
+        A sweep output file (HDF5).
+
+    Returns
+    -------
+    list of AxisView
+        Each axis in the unit the sweep file wrote it in (older files: the
+        table's cgs unit), with its scale.
+
+    Raises
+    ------
+    OutputError
+        The file, its table or an axis column is missing or damaged.
+    """
     import astropy.units as u
 
     from ..io import column, dataset_unit, group, open_hdf5
@@ -53,7 +70,18 @@ def axis_views(path):
 # -- output --------------------------------------------------------------------------
 
 def check_statuses(statuses):
-    """Refuse a row status outside :data:`windsolve.status.STATUSES` (one line, ValueError)."""
+    """Refuse a row status outside :data:`windsolve.status.STATUSES`.
+
+    Parameters
+    ----------
+    statuses : iterable of str
+        The rows' ``status`` words (a missing one as ``None``).
+
+    Raises
+    ------
+    ValueError
+        One line naming the unknown words (:func:`windsolve.status.check_statuses`).
+    """
     from ..status import check_statuses as check
     check(statuses, "sweep row status")
 

@@ -48,6 +48,17 @@ def isothermal_row(model, record, observables):
     widths measured in the same compiled call that finishes the solution
     (:func:`windsolve.models.isothermal.solve_isothermal_cgs` with ``widths``).  Model A's
     ``ModelSpec.solve_row``.
+
+    Parameters
+    ----------
+    model : IsothermalWind
+        The row's model.
+    record : dict
+        The row's record, filled in place (converged, status, message, every
+        summary column [cgs] and, with ``observables``, fwhm, hwzi and
+        edge_velocity [cm s^-1]).
+    observables : dict or None
+        LineSettings keywords, or None to measure no widths.
     """
     from ..models.isothermal import solve_isothermal_cgs
 
@@ -89,6 +100,26 @@ def journal_batch(base, items, profiles=False, observables=None, design=None):
     it).  ``ends`` holds :func:`row_end` of every record.  Every record
     carries ``design`` (:meth:`Sweep.design_digest`), so a resume can tell
     that each journaled row belongs to its sweep.
+
+    Parameters
+    ----------
+    base : dict
+        The base model file (nested dicts).
+    items : list of tuple
+        (row index, {dotted key: value}) per row.
+    profiles : bool
+        Store each row's profile in its record.
+    observables : dict or None
+        LineSettings keywords, or None.
+    design : str or None
+        The sweep's design digest.
+
+    Returns
+    -------
+    text : str
+        One JSON line per record.
+    ends : list of tuple
+        :func:`row_end` of every record.
     """
     records = run_batch(base, items, profiles, observables)
     for record in records:
@@ -104,6 +135,16 @@ def row_end(record):
     :data:`windsolve.result.HYDROSTATIC_EFOLDS` density e-folds below the
     sonic point).  A status that is not text (a damaged journal) is given as
     its repr, so it can be counted (the table's writer refuses it).
+
+    Parameters
+    ----------
+    record : dict
+        A row's record (``row``, ``converged``, ``status``, ``base_density_efolds``).
+
+    Returns
+    -------
+    tuple
+        (row : int, converged : bool, status : str or None, hydrostatic : bool).
     """
     from ..result import HYDROSTATIC_EFOLDS
     status = record.get("status")
@@ -295,6 +336,22 @@ def run_batch(base, items, profiles=False, observables=None):
 
     A failure of any kind is recorded with its status and message; it never
     stops the sweep.
+
+    Parameters
+    ----------
+    base : dict
+        The base model file (nested dicts).
+    items : list of tuple
+        (row index, {dotted key: value as written in a model file}) per row.
+    profiles : bool
+        Store each row's profile (cgs lists) in its record.
+    observables : dict or None
+        LineSettings keywords, or None to measure no widths.
+
+    Returns
+    -------
+    list of dict
+        One record per row, in the order of ``items``.
     """
     from ..modelfile import model_from_dict
     from ..registry import spec_for

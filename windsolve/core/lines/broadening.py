@@ -27,6 +27,22 @@ def gaussian_weights(dw, sigma):
     sampled k steps away, is the second difference (psi(y+h) - 2 psi(y) +
     psi(y-h)) / h with y = k h, h = dw (psi as in :func:`_psi`).  The weights
     sum to one and stay exact for sigma much smaller than the step.
+
+    Parameters
+    ----------
+    dw : float
+        Grid step [cm s^-1] (any speed unit shared with sigma).
+    sigma : float
+        Standard deviation of the Gaussian, same unit, > 0.
+
+    Returns
+    -------
+    ndarray
+        2 half + 1 weights for offsets -half..half, half = ceil(7 sigma / dw) + 1.
+
+    References
+    ----------
+    docs/physics.md, eq. 30.
     """
     half = int(math.ceil(KERNEL_SIGMAS * sigma / dw)) + 1
     wts = np.empty(2 * half + 1)
@@ -47,6 +63,26 @@ def gaussian_broaden(f, dw, sigma, continuum):
 
     Outside the grid the profile is taken to equal ``continuum``.  sigma and
     dw in the same unit; sigma <= 0 returns a copy.
+
+    Parameters
+    ----------
+    f : ndarray
+        The profile on the grid [any flux unit].
+    dw : float
+        Grid step [speed].
+    sigma : float
+        Standard deviation of the Gaussian [speed], FWHM / (2 sqrt(2 ln 2)).
+    continuum : float
+        The profile's value outside the grid.
+
+    Returns
+    -------
+    ndarray
+        The broadened profile.
+
+    References
+    ----------
+    docs/physics.md, eq. 30.
     """
     n = f.shape[0]
     out = f.copy()

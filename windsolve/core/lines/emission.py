@@ -254,7 +254,19 @@ def _emission_prefix(rf, vf, lg, hi, full, Rc, occult, w):
 
 @njit(cache=True, error_model="numpy")
 def emission_flux_general(r, v, rho, n, Rc, occult, w):
-    """:func:`emission_flux` by the general loop (every w x every sub-interval)."""
+    """:func:`emission_flux` by the general loop (every w x every sub-interval).
+
+    Parameters
+    ----------
+    r, v, rho, n, Rc, occult, w
+        As :func:`emission_flux`: radius [cm], velocity [cm/s], density [g/cm3],
+        emissivity power, core radius [cm], occultation flag, velocities [cm/s].
+
+    Returns
+    -------
+    ndarray
+        F(w) [cgs, unnormalised] (docs/physics.md, eq. 27).
+    """
     rf, vf, lf, lv = _refine(r, v, rho, Rc if occult else r[0], NSUB)
     return _emission_flux_refined(rf, vf, lf, lv, n, Rc, occult, w, BY_LOOP)
 
@@ -262,7 +274,19 @@ def emission_flux_general(r, v, rho, n, Rc, occult, w):
 @njit(cache=True, error_model="numpy")
 def emission_flux_monotonic(r, v, rho, n, Rc, occult, w):
     """:func:`emission_flux` by suffix sums; only valid when v is non-decreasing
-    outside the start radius (no check: :func:`emission_flux` checks)."""
+    outside the start radius (no check: :func:`emission_flux` checks).
+
+    Parameters
+    ----------
+    r, v, rho, n, Rc, occult, w
+        As :func:`emission_flux`: radius [cm], velocity [cm/s], density [g/cm3],
+        emissivity power, core radius [cm], occultation flag, velocities [cm/s].
+
+    Returns
+    -------
+    ndarray
+        F(w) [cgs, unnormalised] (docs/physics.md, eq. 27).
+    """
     rf, vf, lf, lv = _refine(r, v, rho, Rc if occult else r[0], NSUB)
     return _emission_flux_refined(rf, vf, lf, lv, n, Rc, occult, w, BY_SUFFIX)
 

@@ -33,8 +33,25 @@ BROADENING_MARGIN = 2.0  # ... plus this many broadening FWHM (about 4.7 sigma)
 def refine(r, v, rho, r_start, nsub):
     """Sub-divided grid from ``max(r_start, r[0])`` to ``r[-1]``.
 
-    Returns ``(rf, vf, lnrho_f)``; ln v and ln rho are linear in r inside
-    each tabulated interval.  Empty arrays when ``r_start >= r[-1]``.
+    Parameters
+    ----------
+    r : ndarray
+        Radius [cm], increasing.
+    v : ndarray
+        Velocity [cm s^-1], > 0.
+    rho : ndarray
+        Density [g cm^-3], > 0.
+    r_start : float
+        Inner end of the refined grid [cm].
+    nsub : int
+        Sub-intervals per tabulated interval.
+
+    Returns
+    -------
+    rf, vf, lnrho_f : ndarray
+        Radius [cm], velocity [cm s^-1] and ln density [ln(g cm^-3)] at the
+        fine nodes; ln v and ln rho are linear in r inside each tabulated
+        interval.  Empty arrays when ``r_start >= r[-1]``.
     """
     rf, vf, lf, _ = _refine(r, v, rho, r_start, nsub)
     return rf, vf, lf
@@ -101,7 +118,17 @@ def _refine(r, v, rho, r_start, nsub):
 
 @njit(cache=True, error_model="numpy")
 def nondecreasing(a):
-    """True when a[i+1] >= a[i] everywhere."""
+    """True when a[i+1] >= a[i] everywhere.
+
+    Parameters
+    ----------
+    a : ndarray
+        A 1-D array.
+
+    Returns
+    -------
+    bool
+    """
     for i in range(a.shape[0] - 1):
         if a[i + 1] < a[i]:
             return False
@@ -110,7 +137,22 @@ def nondecreasing(a):
 
 @njit(cache=True, error_model="numpy")
 def velocity_grid(v_max, fwhm, n):
-    """n evenly spaced w [cm/s] over +-(1.2 v_max + 2 fwhm) (fwhm of the broadening)."""
+    """n evenly spaced w [cm/s] over +-(1.2 v_max + 2 fwhm) (fwhm of the broadening).
+
+    Parameters
+    ----------
+    v_max : float
+        Largest speed of the profile [cm s^-1].
+    fwhm : float
+        FWHM of the broadening Gaussian [cm s^-1].
+    n : int
+        Number of grid points.
+
+    Returns
+    -------
+    ndarray
+        Doppler velocities w [cm s^-1], increasing.
+    """
     half = GRID_MARGIN * v_max + BROADENING_MARGIN * fwhm
     return np.linspace(-half, half, n)
 
@@ -123,6 +165,26 @@ def monotonic_outside(r, v, Rc, rtol):
     interval holding Rc) is replaced by its running maximum; k = -1, or the
     index into the tail of the first point that falls by more than
     rtol * max(v) below the running maximum (then v(r) really falls outward).
+
+    Parameters
+    ----------
+    r : ndarray
+        Radius [cm], increasing.
+    v : ndarray
+        Velocity [cm s^-1].
+    Rc : float
+        Core radius [cm].
+    rtol : float
+        Relative size of a fall counted as noise [dimensionless].
+
+    Returns
+    -------
+    v_clean : ndarray
+        v [cm s^-1], the tail replaced by its running maximum.
+    i0 : int
+        First tabulated point of the tail.
+    k : int
+        -1, or the tail index of the first real fall.
     """
     n = r.shape[0]
     i0 = max(search_right(r, Rc, 0, n) - 1, 0)

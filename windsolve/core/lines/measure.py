@@ -19,6 +19,20 @@ def outermost_crossings(w, f, level):
 
     Each is nan when f never reaches ``level``, or when f is still at or
     above it at that end of the grid (the crossing is not on the grid).
+
+    Parameters
+    ----------
+    w : ndarray
+        Velocity grid [cm s^-1], increasing.
+    f : ndarray
+        Profile on the grid [normalised flux].
+    level : float
+        The flux level [same unit as f].
+
+    Returns
+    -------
+    w_lo, w_hi : float
+        The outermost crossings [cm s^-1].
     """
     n = w.shape[0]
     lo = -1
@@ -105,6 +119,36 @@ def emission_line(r, v, rho, n, Rc, occult, w, sigma, hwzi_fraction):
     and the occultation edge non-decreasing outward (the normal case), the
     widths are those of the exact profile instead (:func:`_exact_crossing`)
     and f is normalised to its peak F(0), which the grid may miss.
+
+    Parameters
+    ----------
+    r, v, rho : ndarray
+        Radius [cm] (increasing), velocity [cm s^-1] (> 0), density [g cm^-3].
+    n : float
+        Emissivity power, j = rho^n.
+    Rc : float
+        Core radius [cm].
+    occult : bool
+        Hide the gas behind and inside the core.
+    w : ndarray
+        Velocity grid [cm s^-1].
+    sigma : float
+        Broadening standard deviation [cm s^-1]; <= 0 for none.
+    hwzi_fraction : float
+        Fraction of the peak at which the HWZI is measured.
+
+    Returns
+    -------
+    f : ndarray
+        Profile normalised to peak 1.
+    fwhm, hwzi : float
+        [cm s^-1], NaN where not measurable.
+    ok : bool
+        The line has flux.
+
+    References
+    ----------
+    docs/physics.md, section 7 (eq. 27, "Observables").
     """
     rf, vf, lf, lv = _refine(r, v, rho, Rc if occult else r[0], NSUB)
     return _emission_line_refined(rf, vf, lf, lv, n, Rc, occult, w, sigma, hwzi_fraction)
@@ -152,6 +196,38 @@ def line_widths(r, v, rho, Rc, n, occult, fwhm, sigma, hwzi_fraction, edge_depth
     widths when ``occult`` and Rc >= r[-1], or no flux); the P Cygni edge of
     :func:`sobolev.pcygni_edge` with K from :func:`sobolev.sobolev_strength`, nan when
     Rc >= r[-1] or v(r) falls outward outside Rc (:func:`grid.monotonic_outside`).
+
+    Parameters
+    ----------
+    r, v, rho : ndarray
+        Radius [cm] (increasing), velocity [cm s^-1] (> 0), density [g cm^-3] (> 0).
+    Rc : float
+        Core radius [cm].
+    n : float
+        Emissivity power.
+    occult : bool
+        Occultation by the core.
+    fwhm, sigma : float
+        FWHM and standard deviation of the broadening Gaussian [cm s^-1].
+    hwzi_fraction : float
+        Fraction of the peak for the HWZI.
+    edge_depth : float
+        Absorption depth 1 - F/F_c that marks the blue edge.
+    k0 : float
+        Line strength [dimensionless].
+    n_velocity : int
+        Points of the velocity grid.
+    rtol : float
+        Relative size of an outward fall of v counted as noise.
+
+    Returns
+    -------
+    tuple of float
+        (fwhm, hwzi, edge_velocity) [cm s^-1].
+
+    References
+    ----------
+    docs/physics.md, section 7 (eqs. 27-30, "Observables").
     """
     w = velocity_grid(v.max(), fwhm, n_velocity)
     outside = Rc < r[r.shape[0] - 1]

@@ -46,6 +46,30 @@ def sobolev_tau(K, rho, r, v, dvdr, mu):
     ``K`` [cm^3 g^-1 s^-1] holds the line's cross-section and population
     (Castor 1970, MNRAS 149, 111; from memory).  A zero velocity gradient
     along the ray gives tau = inf.
+
+    Parameters
+    ----------
+    K : float
+        Line strength [cm^3 g^-1 s^-1].
+    rho : float
+        Density [g cm^-3].
+    r : float
+        Radius [cm].
+    v : float
+        Velocity [cm s^-1].
+    dvdr : float
+        dv/dr [s^-1].
+    mu : float
+        Cosine of the angle between the ray and the radius.
+
+    Returns
+    -------
+    float
+        tau [dimensionless]; inf where the projected gradient is <= 0.
+
+    References
+    ----------
+    docs/physics.md, eq. 28.
     """
     Q = mu * mu * dvdr + (1.0 - mu * mu) * v / r
     if Q <= 0.0:
@@ -68,6 +92,30 @@ def escape_probabilities(K, rho, r, v, dvdr, Rc):
     lit by a uniform core of intensity I_c the Sobolev source function is
     S = (beta_c / beta) I_c; in the optically thin limit beta -> 1 and
     beta_c -> W = (1 - mu_*) / 2, the dilution factor.
+
+    Parameters
+    ----------
+    K : float
+        Line strength [cm^3 g^-1 s^-1].
+    rho : float
+        Density [g cm^-3].
+    r : float
+        Radius [cm].
+    v : float
+        Velocity [cm s^-1].
+    dvdr : float
+        dv/dr [s^-1].
+    Rc : float
+        Core radius [cm].
+
+    Returns
+    -------
+    beta, beta_c : float
+        [dimensionless].
+
+    References
+    ----------
+    docs/physics.md, eqs. 28 and 29.
     """
     q = 1.0 - (Rc / r) ** 2
     mu_s = math.sqrt(q) if q > 0.0 else 0.0
@@ -83,7 +131,20 @@ def escape_probabilities(K, rho, r, v, dvdr, Rc):
 
 @njit(cache=True, error_model="numpy")
 def velocity_gradient(r, v):
-    """dv/dr on a non-uniform grid: 3-point centred inside, 3-point one-sided at the ends."""
+    """dv/dr on a non-uniform grid: 3-point centred inside, 3-point one-sided at the ends.
+
+    Parameters
+    ----------
+    r : ndarray
+        Radius [cm], increasing, at least 2 points (2 points: one difference).
+    v : ndarray
+        Velocity [cm s^-1].
+
+    Returns
+    -------
+    ndarray
+        dv/dr [s^-1] at every point.
+    """
     n = r.shape[0]
     d = np.empty(n)
     if n == 2:
@@ -111,6 +172,28 @@ def sobolev_strength(r, v, rho, Rc, k0):
 
     The line strength of :func:`sobolev_tau` for the dimensionless k0 of
     :mod:`windsolve.lines` (radially tau = k0 / (x^2 w dw/dx) in a steady wind).
+
+    Parameters
+    ----------
+    r : ndarray
+        Radius [cm].
+    v : ndarray
+        Velocity [cm s^-1].
+    rho : ndarray
+        Density [g cm^-3].
+    Rc : float
+        Core radius [cm].
+    k0 : float
+        Dimensionless line strength.
+
+    Returns
+    -------
+    float
+        K [cm^3 g^-1 s^-1].
+
+    References
+    ----------
+    docs/physics.md, eq. 28.
     """
     v_max = v.max()
     rho_ref = np.median(r * r * rho * v) / (Rc * Rc * v_max)

@@ -14,7 +14,28 @@ def _span(values):
 
 
 def check_diffusion(model, source):
-    """Derived numbers of a Model B file, and whether Gamma can exceed 1: ``(rows, notes)``."""
+    """Derived numbers of a Model B file, and whether Gamma can exceed 1: ``(rows, notes)``.
+
+    Parameters
+    ----------
+    model : DiffusionWind
+        The model read from the file.
+    source : str
+        The file's name, shown in the first row.
+
+    Returns
+    -------
+    rows : list of tuple
+        (label, text) pairs that ``windsolve check`` prints.
+    notes : list of str
+        One-line notes.
+
+    Raises
+    ------
+    WindsolveError
+        The opacity is nowhere finite between the model's photosphere and base
+        temperatures (densities 1e-16 to 1e-2 g cm^-3).
+    """
     import astropy.units as u
     import numpy as np
 

@@ -78,20 +78,74 @@ SIDE_TURN = 11  # shooting inward: N turned from + to - before the sonic point
 @njit(cache=True, error_model="numpy", inline="always")
 def specific_energy(r, v, T, rho, P):
     """(Edot - L_r) / Mdot: kinetic energy, gas enthalpy, radiation enthalpy and
-    potential per gram at (r, v, T, rho) [erg g-1] (the energy integral)."""
+    potential per gram at (r, v, T, rho) [erg g-1] (the energy integral).
+
+    Parameters
+    ----------
+    r, v, T, rho : float
+        Radius [cm], velocity [cm s^-1], temperature [K], density [g cm^-3].
+    P : ndarray
+        Model B parameter vector.
+
+    Returns
+    -------
+    float
+        [erg g^-1].
+
+    References
+    ----------
+    docs/physics.md, eq. 20.
+    """
     return (0.5 * v * v + 2.5 * P[I_KG] * T
             + (4.0 / 3.0) * A_RAD * T**4 / rho - P[I_GM] / r)
 
 
 @njit(cache=True, error_model="numpy", inline="always")
 def luminosity(r, v, T, rho, P):
-    """L_r from the energy integral [erg s-1]."""
+    """L_r from the energy integral [erg s-1].
+
+    Parameters
+    ----------
+    r, v, T, rho : float
+        Radius [cm], velocity [cm s^-1], temperature [K], density [g cm^-3].
+    P : ndarray
+        Model B parameter vector (Mdot and Edot set).
+
+    Returns
+    -------
+    float
+        Comoving radiative luminosity [erg s^-1].
+
+    References
+    ----------
+    docs/physics.md, eq. 20.
+    """
     return P[I_EDOT] - P[I_MDOT] * specific_energy(r, v, T, rho, P)
 
 
 @njit(cache=True, error_model="numpy")
 def state(r, v, T, P, O):
-    """(rho, L_r, kappa, dT/dr, N) at (r, v, T)."""
+    """(rho, L_r, kappa, dT/dr, N) at (r, v, T).
+
+    Parameters
+    ----------
+    r, v, T : float
+        Radius [cm], velocity [cm s^-1], temperature [K].
+    P : ndarray
+        Model B parameter vector (Mdot and Edot set).
+    O : ndarray
+        Opacity vector.
+
+    Returns
+    -------
+    tuple of float
+        rho [g cm^-3], L_r [erg s^-1], kappa_eff [cm^2 g^-1], dT/dr [K cm^-1],
+        N [cm s^-2].
+
+    References
+    ----------
+    docs/physics.md, eqs. 13 and 19-21.
+    """
     rho = P[I_MDOT] / (FOUR_PI * r * r * v)
     L = luminosity(r, v, T, rho, P)
     k = effective_opacity(O, rho, T, r)
@@ -103,7 +157,23 @@ def state(r, v, T, P, O):
 
 @njit(cache=True, error_model="numpy")
 def rhs(x, y, P, O, dydx):
-    """d(ln v, ln T)/d ln r."""
+    """d(ln v, ln T)/d ln r.
+
+    Parameters
+    ----------
+    x : float
+        ln r [ln cm].
+    y : ndarray (2,)
+        (ln v, ln T) [ln(cm s^-1), ln K].
+    P, O : ndarray
+        Parameter and opacity vectors.
+    dydx : ndarray (2,)
+        Output, written in place [dimensionless].
+
+    References
+    ----------
+    docs/physics.md, eqs. 19 and 21.
+    """
     r = math.exp(x)
     v = math.exp(y[0])
     T = math.exp(y[1])
@@ -114,13 +184,48 @@ def rhs(x, y, P, O, dydx):
 
 @njit(cache=True, error_model="numpy")
 def terminal_velocity_squared(r, v, L, P):
-    """v_inf^2 of the ballistic thin flow above r (docs/physics.md, eq. 23)."""
+    """v_inf^2 of the ballistic thin flow above r (docs/physics.md, eq. 23).
+
+    Parameters
+    ----------
+    r : float
+        Radius [cm] (the photosphere).
+    v : float
+        Velocity there [cm s^-1].
+    L : float
+        Luminosity there [erg s^-1].
+    P : ndarray
+        Model B parameter vector.
+
+    Returns
+    -------
+    float
+        v_inf^2 [cm^2 s^-2]; <= 0 when the gas falls back.
+    """
     gamma_thin = P[I_KES] * L / (FOUR_PI * C_LIGHT * P[I_GM])
     return v * v - 2.0 * P[I_GM] * (1.0 - gamma_thin) / r
 
 
 @njit(cache=True, error_model="numpy")
 def monitor_inward(x, y, P, O):
+    """Stop test of the inward legs from the critical point.
+
+    Parameters
+    ----------
+    x : float
+        ln r [ln cm].
+    y : ndarray (2,)
+        (ln v, ln T).
+    P, O : ndarray
+        Parameter and opacity vectors; the accepted point is kept in P's
+        I_PREV_* slots.
+
+    Returns
+    -------
+    int
+        0 to go on, else OFF_TABLE, STALLED (L_r <= 0), SINGULAR (v near c_T
+        with N > 0) or BASE (T reached P[I_T_IN]).
+    """
     r = math.exp(x)
     v = math.exp(y[0])
     T = math.exp(y[1])
@@ -142,7 +247,28 @@ def monitor_inward(x, y, P, O):
 
 @njit(cache=True, error_model="numpy")
 def monitor_shoot(x, y, P, O):
-    """Inward from the photosphere: which side of the critical solution?"""
+    """Inward from the photosphere: which side of the critical solution?
+
+    Parameters
+    ----------
+    x : float
+        ln r [ln cm].
+    y : ndarray (2,)
+        (ln v, ln T).
+    P, O : ndarray
+        Parameter and opacity vectors; the sign of N and the accepted point
+        are kept in P's I_PREV_* slots.
+
+    Returns
+    -------
+    int
+        0 to go on, else OFF_TABLE, STALLED, SIDE_SONIC (runs into the sound
+        speed with N > 0), SIDE_TURN (bends away, N < 0) or BASE.
+
+    References
+    ----------
+    docs/physics.md, section 8.
+    """
     r = math.exp(x)
     v = math.exp(y[0])
     T = math.exp(y[1])
@@ -173,6 +299,22 @@ def monitor_shoot(x, y, P, O):
 
 @njit(cache=True, error_model="numpy")
 def monitor_none(x, y, P, O):
+    """A stop test that never stops.
+
+    Parameters
+    ----------
+    x : float
+        ln r.
+    y : ndarray (2,)
+        (ln v, ln T).
+    P, O : ndarray
+        Parameter and opacity vectors (unused).
+
+    Returns
+    -------
+    int
+        0.
+    """
     return 0
 
 
@@ -181,7 +323,22 @@ TABLE_EDGE = 1e-6  # dex: a failed step this close to a table edge left the tabl
 
 @njit(cache=True, error_model="numpy")
 def left_table(x, y, P, O):
-    """Did a leg that gave up at (x, y) run into the edge of an opacity table?"""
+    """Did a leg that gave up at (x, y) run into the edge of an opacity table?
+
+    Parameters
+    ----------
+    x : float
+        ln r [ln cm].
+    y : ndarray (2,)
+        (ln v, ln T).
+    P, O : ndarray
+        Parameter and opacity vectors.
+
+    Returns
+    -------
+    bool
+        The point lies within TABLE_EDGE dex of a table edge.
+    """
     r = math.exp(x)
     v = math.exp(y[0])
     rho = P[I_MDOT] / (FOUR_PI * r * r * v)
@@ -199,6 +356,33 @@ def critical_state(mdot, rc, Tc, P, O):
 
     Returns ``(ok, vc, rho_c, L_c)``; ok is False when N = 0 needs L_c <= 0
     (r_c beyond GM / (2 c_T^2)) or the opacity is undefined there.
+
+    Parameters
+    ----------
+    mdot : float
+        Mass-loss rate [g s^-1].
+    rc : float
+        Critical radius [cm].
+    Tc : float
+        Critical temperature [K].
+    P : ndarray
+        Model B parameter vector; Mdot and Edot are set in place.
+    O : ndarray
+        Opacity vector.
+
+    Returns
+    -------
+    ok : bool
+    vc : float
+        c_T(T_c) [cm s^-1].
+    rho_c : float
+        [g cm^-3].
+    L_c : float
+        [erg s^-1].
+
+    References
+    ----------
+    docs/physics.md, eqs. 20 and 22.
     """
     KG = P[I_KG]
     vc = math.sqrt(KG * Tc)
@@ -215,6 +399,20 @@ def critical_state(mdot, rc, Tc, P, O):
 
 @njit(cache=True, error_model="numpy")
 def n_of(r, v, T, P, O):
+    """The numerator N of eq. 21 (docs/physics.md) at (r, v, T).
+
+    Parameters
+    ----------
+    r, v, T : float
+        Radius [cm], velocity [cm s^-1], temperature [K].
+    P, O : ndarray
+        Parameter and opacity vectors (Mdot and Edot set).
+
+    Returns
+    -------
+    float
+        N [cm s^-2].
+    """
     return state(r, v, T, P, O)[4]
 
 
@@ -225,6 +423,28 @@ def critical_slopes(rc, vc, Tc, P, O):
     L'Hopital with D = v - c_T^2/v: dD/dr = 2p - k1, k1 = (k/mu m_u) T'/v,
     so 2p^2 - (N_v + k1) p - (N_r + N_T T') = 0 (docs/physics.md, eq. 25), with the
     partials of N at fixed Mdot and Edot by central differences.
+
+    Parameters
+    ----------
+    rc, vc, Tc : float
+        Critical radius [cm], velocity [cm s^-1], temperature [K].
+    P, O : ndarray
+        Parameter and opacity vectors (Mdot and Edot set).
+
+    Returns
+    -------
+    kind : int
+        Topology (:func:`windsolve.core.critical.classify`).
+    p_plus, p_minus : float
+        Slopes dv/dr [s^-1].
+    dTdr : float
+        T' [K cm^-1].
+    k1 : float
+        [s^-1].
+
+    References
+    ----------
+    docs/physics.md, eqs. 25 and 26.
     """
     hr = 1e-5 * rc
     hv = 1e-5 * vc
@@ -240,7 +460,20 @@ def critical_slopes(rc, vc, Tc, P, O):
 
 @njit(cache=True, error_model="numpy")
 def sonic_balance_lnT(lnT, P, O):
-    """N at v = c_T(T) and r = P[I_PREV_X] (Mdot, Edot fixed), as a function of ln T."""
+    """N at v = c_T(T) and r = P[I_PREV_X] (Mdot, Edot fixed), as a function of ln T.
+
+    Parameters
+    ----------
+    lnT : float
+        ln T [ln K].
+    P, O : ndarray
+        Parameter vector (the radius [cm] in slot I_PREV_X) and opacity vector.
+
+    Returns
+    -------
+    float
+        N [cm s^-2].
+    """
     T = math.exp(lnT)
     return n_of(P[I_PREV_X], math.sqrt(P[I_KG] * T), T, P, O)
 
@@ -255,6 +488,20 @@ def critical_temperature_at(r, T_guess, P, O):
     Projects a point where an inward shot came close to the sonic point onto
     the critical curve of the same (Mdot, Edot); NaN if no root is bracketed
     within a factor 1.5 of T_guess.
+
+    Parameters
+    ----------
+    r : float
+        Radius [cm].
+    T_guess : float
+        Starting temperature [K].
+    P, O : ndarray
+        Parameter vector (Mdot, Edot set; copied) and opacity vector.
+
+    Returns
+    -------
+    float
+        T_c [K], or NaN.
     """
     Q = P.copy()
     Q[I_PREV_X] = r
@@ -285,7 +532,29 @@ def critical_temperature_at(r, T_guess, P, O):
 def inward_leg(rc, vc, Tc, p, dTdr, delta, P, O, rtol, max_step, out_x, out_y):
     """From just inside the critical point down to R_in (or T_in).
 
-    Returns (status, r, v, T, L, n_stored) at the inner end.
+    Parameters
+    ----------
+    rc, vc, Tc : float
+        Critical radius [cm], velocity [cm s^-1], temperature [K].
+    p : float
+        Wind-branch slope dv/dr [s^-1].
+    dTdr : float
+        T' there [K cm^-1].
+    delta : float
+        Start this fraction of r_c inside the point (docs/physics.md, section 8).
+    P, O : ndarray
+        Parameter and opacity vectors (Mdot and Edot set).
+    rtol : float
+        Relative tolerance.
+    max_step : float
+        Largest step in ln r.
+    out_x, out_y : ndarray
+        Storage for ln r and (ln v, ln T) (empty: none).
+
+    Returns
+    -------
+    tuple
+        (status, r [cm], v [cm s^-1], T [K], L [erg s^-1], n_stored) at the inner end.
     """
     y0 = np.empty(2)
     x0 = math.log(rc * (1.0 - delta))
@@ -347,6 +616,28 @@ def short_outward(rc, vc, Tc, p, dTdr, delta, r_target, P, O, rtol):
     Only a short way out, so the outward growth of errors in an optically
     thick envelope does not matter; used to tie a critical point to an
     inward shot that stopped near it.
+
+    Parameters
+    ----------
+    rc, vc, Tc : float
+        Critical radius [cm], velocity [cm s^-1], temperature [K].
+    p : float
+        Wind-branch slope dv/dr [s^-1].
+    dTdr : float
+        T' [K cm^-1].
+    delta : float
+        Start this fraction of r_c outside the point.
+    r_target : float
+        Radius to reach [cm].
+    P, O : ndarray
+        Parameter and opacity vectors (Mdot and Edot set).
+    rtol : float
+        Relative tolerance.
+
+    Returns
+    -------
+    ln_v, ln_T : float
+        At r_target; ln_v is NaN when the leg does not get there.
     """
     y0 = np.empty(2)
     x0 = math.log(rc * (1.0 + delta))
@@ -365,6 +656,26 @@ def outward_leg(rc, vc, Tc, p, dTdr, delta, x_target, P, O, rtol, max_step, out_
 
     As :func:`short_outward` (same start, same tolerance) but storing the
     accepted points (at most max_step apart in ln r); returns (ok, n_stored).
+
+    Parameters
+    ----------
+    rc, vc, Tc, p, dTdr, delta
+        As :func:`short_outward`.
+    x_target : float
+        ln r to reach [ln cm].
+    P, O : ndarray
+        Parameter and opacity vectors.
+    rtol : float
+        Relative tolerance.
+    max_step : float
+        Largest step in ln r.
+    out_x, out_y : ndarray
+        Storage for ln r and (ln v, ln T).
+
+    Returns
+    -------
+    ok : bool
+    n_stored : int
     """
     y0 = np.empty(2)
     x0 = math.log(rc * (1.0 + delta))
@@ -382,6 +693,28 @@ def photospheric_state(mdot, R, L, T, P):
     tau = kappa_es Mdot / (2 pi R (v + v_inf)) = 2/3 with v_inf^2 = v^2 - W,
     W = 2 GM (1 - Gamma_thin) / R, gives v = (S^2 + W) / (2 S) with
     S = 3 kappa_es Mdot / (4 pi R); NaN when v_inf would not be positive.
+
+    Parameters
+    ----------
+    mdot : float
+        Mass-loss rate [g s^-1].
+    R : float
+        Photosphere radius [cm].
+    L : float
+        Photospheric luminosity [erg s^-1].
+    T : float
+        Effective temperature [K].
+    P : ndarray
+        Model B parameter vector; Mdot and Edot are set in place.
+
+    Returns
+    -------
+    float
+        v_ph [cm s^-1], or NaN.
+
+    References
+    ----------
+    docs/physics.md, eqs. 20, 23 and 24.
     """
     gamma_thin = P[I_KES] * L / (FOUR_PI * C_LIGHT * P[I_GM])
     W = 2.0 * P[I_GM] * (1.0 - gamma_thin) / R
@@ -397,7 +730,18 @@ def photospheric_state(mdot, R, L, T, P):
 
 @njit(cache=True, error_model="numpy")
 def shoot_from_photosphere(ln_mdot, R, L, T, P, O, rtol):
-    """As :func:`shoot_stored` without storing the path."""
+    """As :func:`shoot_stored` without storing the path.
+
+    Parameters
+    ----------
+    ln_mdot, R, L, T, P, O, rtol
+        As :func:`shoot_stored`.
+
+    Returns
+    -------
+    tuple
+        (code, r [cm], v [cm s^-1], T [K]) at the stop.
+    """
     return shoot_stored(ln_mdot, R, L, T, P, O, rtol, np.inf, np.empty(0),
                         np.empty((0, 2)))[:4]
 
@@ -408,6 +752,34 @@ def shoot_stored(ln_mdot, R, L, T, P, O, rtol, max_step, out_x, out_y):
 
     Returns (code, r, v, T, n_stored) at the stop: SIDE_SONIC or SIDE_TURN
     say on which side of the critical solution Mdot lies; others are failures.
+
+    Parameters
+    ----------
+    ln_mdot : float
+        ln Mdot [ln(g s^-1)].
+    R : float
+        Photosphere radius [cm].
+    L : float
+        Photospheric luminosity [erg s^-1].
+    T : float
+        Effective temperature [K].
+    P, O : ndarray
+        Parameter and opacity vectors (Mdot and Edot are set in P).
+    rtol : float
+        Relative tolerance.
+    max_step : float
+        Largest step in ln r.
+    out_x, out_y : ndarray
+        Storage for ln r and (ln v, ln T).
+
+    Returns
+    -------
+    tuple
+        (code, r [cm], v [cm s^-1], T [K], n_stored).
+
+    References
+    ----------
+    docs/physics.md, section 8.
     """
     return shoot_dense(ln_mdot, R, L, T, P, O, rtol, max_step, 0.0, out_x, out_y)
 
@@ -418,6 +790,18 @@ def shoot_dense(ln_mdot, R, L, T, P, O, rtol, max_step, dx_out, out_x, out_y):
 
     Two shots with the same dx_out then share those abscissae exactly, so
     they can be compared point by point without interpolating.
+
+    Parameters
+    ----------
+    ln_mdot, R, L, T, P, O, rtol, max_step, out_x, out_y
+        As :func:`shoot_stored`.
+    dx_out : float
+        Spacing of the dense output in ln r (0: accepted steps only).
+
+    Returns
+    -------
+    tuple
+        (code, r [cm], v [cm s^-1], T [K], n_stored).
     """
     v = photospheric_state(math.exp(ln_mdot), R, L, T, P)
     if not math.isfinite(v):
@@ -451,19 +835,61 @@ def photosphere_radius(L, T):
     ``T ** 4.0`` (a call of pow, as Python's float power makes) rather than
     numba's repeated multiplication for ``T ** 4``: the Python callers' numbers
     stay bit for bit.
+
+    Parameters
+    ----------
+    L : float
+        Photospheric luminosity [erg s^-1].
+    T : float
+        Effective temperature [K].
+
+    Returns
+    -------
+    float
+        R_ph [cm].
     """
     return math.sqrt(L / (4.0 * math.pi * SIGMA_SB * T ** 4.0))
 
 
 @njit(cache=True, error_model="numpy")
 def effective_temperature(L, R):
-    """T_eff = [L / (4 pi sigma R^2)]^(1/4) [K]."""
+    """T_eff = [L / (4 pi sigma R^2)]^(1/4) [K].
+
+    Parameters
+    ----------
+    L : float
+        Luminosity [erg s^-1].
+    R : float
+        Radius [cm].
+
+    Returns
+    -------
+    float
+        T_eff [K].
+    """
     return (L / (FOUR_PI * SIGMA_SB * R * R)) ** 0.25
 
 
 @njit(cache=True, error_model="numpy")
 def profile_quantities(r, v, T, P, O):
-    """rho, L_r, kappa, Gamma = kappa L_r / (4 pi G M c) along a profile."""
+    """rho, L_r, kappa, Gamma = kappa L_r / (4 pi G M c) along a profile.
+
+    Parameters
+    ----------
+    r, v, T : ndarray
+        Radius [cm], velocity [cm s^-1], temperature [K].
+    P, O : ndarray
+        Parameter and opacity vectors (Mdot and Edot set).
+
+    Returns
+    -------
+    tuple of ndarray
+        rho [g cm^-3], L_r [erg s^-1], kappa_eff [cm^2 g^-1], Gamma [dimensionless].
+
+    References
+    ----------
+    docs/physics.md, eqs. 12 and 20.
+    """
     n = r.shape[0]
     rho = np.empty(n)
     L = np.empty(n)

@@ -183,12 +183,14 @@ class DiffusionWind(WindModel):
         return "photosphere" if self.photosphere_luminosity is not None else "base"
 
     @cached_property
-    def mu(self):
+    def mu(self) -> float:
+        """Mean molecular weight [m_u] of the fully ionised gas (docs/physics.md, eq. 2)."""
         return basics.mean_molecular_weight(self.X, self.Z)
 
     @cached_property
-    def photosphere_radius(self):
-        """R_ph from the observed L_ph and T_eff (photosphere anchor) [Quantity]."""
+    def photosphere_radius(self) -> "u.Quantity | None":
+        """R_ph from the observed L_ph and T_eff, L_ph = 4 pi R_ph^2 sigma T_eff^4
+        (docs/physics.md, section 5) [Quantity, Rsun]; None for the base anchor."""
         if self.photosphere_luminosity is None:
             return None
         L = self.cgs("photosphere_luminosity")
@@ -196,8 +198,8 @@ class DiffusionWind(WindModel):
         return (diff_kernels.photosphere_radius(L, T) * u.cm).to(u.Rsun)
 
     @cached_property
-    def kernel_arrays(self):
-        """(P, O): the plain-float parameter vectors of the Model B kernels."""
+    def kernel_arrays(self) -> tuple:
+        """(P, O): the plain-float parameter vectors of the Model B kernels (cgs)."""
         P = np.zeros(diff_kernels.N_PARAMS)
         P[diff_kernels.I_GM] = G * self.cgs("mass")
         P[diff_kernels.I_KG] = K_B / (self.mu * M_U)

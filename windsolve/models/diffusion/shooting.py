@@ -85,7 +85,30 @@ photosphere_radius = D.photosphere_radius
 
 
 def critical(P, O, ln_mdot, ln_rc, ln_Tc):
-    """The regular solution through (Mdot, r_c, T_c), or None if there is none."""
+    """The regular solution through (Mdot, r_c, T_c), or None if there is none.
+
+    Parameters
+    ----------
+    P : ndarray
+        Model B parameter vector (copied; the copy gets Mdot and Edot).
+    O : ndarray
+        Opacity vector.
+    ln_mdot : float
+        ln of the mass-loss rate [ln(g s^-1)].
+    ln_rc : float
+        ln of the critical radius [ln cm].
+    ln_Tc : float
+        ln of the critical temperature [ln K].
+
+    Returns
+    -------
+    Critical or None
+        None when the point has no valid state or is not a saddle.
+
+    References
+    ----------
+    docs/physics.md, eqs. 22, 25 and 26.
+    """
     Q = P.copy()
     mdot, rc, Tc = math.exp(ln_mdot), math.exp(ln_rc), math.exp(ln_Tc)
     ok, vc, rho, Lc = D.critical_state(mdot, rc, Tc, Q, O)
@@ -98,6 +121,27 @@ def critical(P, O, ln_mdot, ln_rc, ln_Tc):
 
 
 def inward(c, O, rtol, out_x=NO_X, out_y=NO_Y, max_step=np.inf):
+    """Integrate the subsonic branch of ``c`` inward to the inner end (kernel
+    :func:`~windsolve.models.diffusion.kernels.inward_leg`).
+
+    Parameters
+    ----------
+    c : Critical
+        The critical point (its P holds Mdot and Edot).
+    O : ndarray
+        Opacity vector.
+    rtol : float
+        Relative tolerance of the integration.
+    out_x, out_y : ndarray
+        Storage for ln r and (ln v, ln T) of the accepted points (empty: none).
+    max_step : float
+        Largest step in ln r.
+
+    Returns
+    -------
+    tuple
+        (status, r [cm], v [cm s^-1], T [K], L [erg s^-1], n_stored) at the inner end.
+    """
     return D.inward_leg(c.rc, c.vc, c.Tc, c.slope, c.dTdr, DELTA, c.P, O, rtol, max_step,
                         out_x, out_y)
 
@@ -257,6 +301,40 @@ def solve_photosphere_anchor(P, O, L_ph, T_eff, rtol, out_x=NO_X, out_y=NO_Y,
     P[I_R_IN].  Inward shots stop at that inner end, so a sonic point below
     it shows as some other failure; with ``diagnose`` such a failure is
     retried without the inner end, to say so instead.
+
+    Parameters
+    ----------
+    P : ndarray
+        Model B parameter vector.
+    O : ndarray
+        Opacity vector.
+    L_ph : float
+        Photospheric luminosity [erg s^-1].
+    T_eff : float
+        Effective temperature [K].
+    rtol : float
+        Relative tolerance.
+    out_x, out_y : ndarray
+        Storage for the outer path, ln r and (ln v, ln T) (empty: none).
+    max_step : float
+        Largest step in ln r.
+    diagnose : bool
+        Retry a failure without the inner end, to tell a sonic point below it.
+
+    Returns
+    -------
+    solution : PhotosphereSolution
+    n_stored : int
+
+    Raises
+    ------
+    ModelBFailure
+        No regular solution (BelowBase: its sonic point lies below the inner end).
+
+    References
+    ----------
+    docs/physics.md, section 5 ("Boundary conditions", photosphere anchor) and
+    section 8.
     """
     try:
         return _solve_photosphere_anchor(P, O, L_ph, T_eff, rtol, out_x, out_y, max_step)
@@ -363,7 +441,31 @@ def _agreement_limit(P, O, R_ph, L_ph, T_eff, x_sonic, x_other, rtol, max_step):
 
 
 def base_values(P, O, L_ph, T_eff, rtol):
-    """(solution, L, T, rho) at the inner end for the photosphere (L_ph, T_eff)."""
+    """(solution, L, T, rho) at the inner end for the photosphere (L_ph, T_eff).
+
+    Parameters
+    ----------
+    P : ndarray
+        Model B parameter vector.
+    O : ndarray
+        Opacity vector.
+    L_ph : float
+        Photospheric luminosity [erg s^-1].
+    T_eff : float
+        Effective temperature [K].
+    rtol : float
+        Relative tolerance.
+
+    Returns
+    -------
+    tuple
+        (PhotosphereSolution, L [erg s^-1], T [K], rho [g cm^-3]) at the inner end.
+
+    Raises
+    ------
+    ModelBFailure
+        No solution, or its subsonic part does not reach the inner end.
+    """
     # The same step limits as the stored profile, so that the base values a
     # result reports are the ones matched here.
     sol, n = solve_photosphere_anchor(P, O, L_ph, T_eff, rtol, max_step=PROFILE_STEP)
@@ -383,6 +485,35 @@ def solve_base_anchor(P, O, L0, base_kind, base_value, rtol):
     T_eff, which defeats a plain two-dimensional Newton step): the inner one
     finds T_eff that gives the base value for a photospheric luminosity, the
     outer one (secant in ln L_ph) makes L(R0) = L0.
+
+    Parameters
+    ----------
+    P : ndarray
+        Model B parameter vector (R0 in P[I_R_IN]).
+    O : ndarray
+        Opacity vector.
+    L0 : float
+        Base luminosity [erg s^-1].
+    base_kind : str
+        ``"temperature"`` or ``"density"``.
+    base_value : float
+        T0 [K] or rho0 [g cm^-3].
+    rtol : float
+        Relative tolerance.
+
+    Returns
+    -------
+    L_ph, T_eff : float
+        [erg s^-1], [K].
+
+    Raises
+    ------
+    ModelBFailure
+        No wind reaches R0 with these base values, or L0 is matched only roughly.
+
+    References
+    ----------
+    docs/physics.md, section 5 ("Boundary conditions", base anchor).
     """
     def base_miss(L_ph, T_eff):
         sol, Lb, Tb, rhob = base_values(P, O, L_ph, T_eff, rtol)

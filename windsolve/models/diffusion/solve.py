@@ -26,6 +26,18 @@ def solve_diffusion(model, profile=True):
 
     ``profile`` is accepted for symmetry; the profile is always computed
     (the base values come from it).
+
+    Parameters
+    ----------
+    model : DiffusionWind
+        The model (photosphere or base anchor, docs/physics.md, section 5).
+    profile : bool
+        Ignored (see above).
+
+    Returns
+    -------
+    WindResult
+        Converged or not; ``status`` and ``message`` say what happened.
     """
     from scipy.integrate import cumulative_trapezoid
 

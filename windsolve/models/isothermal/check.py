@@ -4,7 +4,22 @@ import math
 
 
 def check_isothermal(model, source):
-    """Derived numbers of a Model A file: ``(rows, notes)`` for ``windsolve check``."""
+    """Derived numbers of a Model A file: ``(rows, notes)`` for ``windsolve check``.
+
+    Parameters
+    ----------
+    model : IsothermalWind
+        The model read from the file.
+    source : str
+        The file's name, shown in the first row.
+
+    Returns
+    -------
+    rows : list of tuple
+        (label, text) pairs that ``windsolve check`` prints.
+    notes : list of str
+        One-line notes.
+    """
     import astropy.units as u
 
     from ...core import basics

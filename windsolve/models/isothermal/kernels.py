@@ -103,13 +103,41 @@ BASE_EMERGE = 1e-3  # (r_c - R0)/R0 just inside the window below which the saddl
 
 @njit(cache=True, error_model="numpy")
 def set_mass_loss_rate(P, ln_mdot):
-    """Copy of P with the trial Mdot and the quantities that follow from it."""
+    """Copy of P with the trial Mdot and the quantities that follow from it.
+
+    Parameters
+    ----------
+    P : ndarray
+        Model A parameter vector.
+    ln_mdot : float
+        ln of the trial mass-loss rate [ln(g s^-1)].
+
+    Returns
+    -------
+    ndarray
+        The copy, with Mdot, v0 and the density stop set.
+    """
     return fill_mass_loss_rate(P.copy(), P, ln_mdot)
 
 
 @njit(cache=True, error_model="numpy")
 def fill_mass_loss_rate(Q, P, ln_mdot):
-    """:func:`set_mass_loss_rate` into the work vector Q (a copy of P); returns Q."""
+    """:func:`set_mass_loss_rate` into the work vector Q (a copy of P); returns Q.
+
+    Parameters
+    ----------
+    Q : ndarray
+        Work vector, written in place.
+    P : ndarray
+        Model A parameter vector.
+    ln_mdot : float
+        ln Mdot [ln(g s^-1)].
+
+    Returns
+    -------
+    ndarray
+        Q.
+    """
     mdot = math.exp(ln_mdot)
     Q[I_MDOT] = mdot
     Q[I_V0] = mdot / (FOUR_PI * P[I_R0] ** 2 * P[I_RHO0])
@@ -120,7 +148,26 @@ def fill_mass_loss_rate(Q, P, ln_mdot):
 
 @njit(cache=True, error_model="numpy")
 def luminosity(r, v, P):
-    """Radiative luminosity L(r, v) [erg s-1] (constant without tiring)."""
+    """Radiative luminosity L(r, v) [erg s-1] (constant without tiring).
+
+    Parameters
+    ----------
+    r : float
+        Radius [cm].
+    v : float
+        Velocity [cm s^-1].
+    P : ndarray
+        Parameter vector (Mdot set).
+
+    Returns
+    -------
+    float
+        L [erg s^-1].
+
+    References
+    ----------
+    docs/physics.md, eq. 15.
+    """
     if P[I_TIRING] > 0.0:
         GM = P[I_GM]
         return P[I_L0] - P[I_MDOT] * (0.5 * (v * v - P[I_V0] ** 2)
@@ -130,7 +177,26 @@ def luminosity(r, v, P):
 
 @njit(cache=True, error_model="numpy")
 def density(r, v, P):
-    """rho = Mdot / (4 pi r^2 v) [g cm-3]."""
+    """rho = Mdot / (4 pi r^2 v) [g cm-3].
+
+    Parameters
+    ----------
+    r : float
+        Radius [cm].
+    v : float
+        Velocity [cm s^-1].
+    P : ndarray
+        Parameter vector (Mdot set).
+
+    Returns
+    -------
+    float
+        [g cm^-3].
+
+    References
+    ----------
+    docs/physics.md, eq. 13.
+    """
     return P[I_MDOT] / (FOUR_PI * r * r * v)
 
 
@@ -142,6 +208,24 @@ def force_balance_inv(r, inv_r, v, inv_v, P, O):
     Runge-Kutta step run one after another, so what counts is latency; with
     the reciprocals computed independently (as exp(-x), exp(-y)) the chain
     of dependent divisions shrinks to none.
+
+    Parameters
+    ----------
+    r, inv_r : float
+        Radius [cm] and 1/r [cm^-1].
+    v, inv_v : float
+        Velocity [cm s^-1] and 1/v [s cm^-1].
+    P, O : ndarray
+        Parameter (Mdot set) and opacity vectors.
+
+    Returns
+    -------
+    float
+        N [cm s^-2].
+
+    References
+    ----------
+    docs/physics.md, eq. 14.
     """
     inv_r2 = inv_r * inv_r
     if O[SLOT_LAW] == LAW_ELECTRON_SCATTERING and O[SLOT_H0] <= 0.0:
@@ -155,19 +239,70 @@ def force_balance_inv(r, inv_r, v, inv_v, P, O):
 
 @njit(cache=True, error_model="numpy")
 def force_balance(r, v, P, O):
-    """N(r, v) [cm s-2]: pressure gradient + radiative force - gravity."""
+    """N(r, v) [cm s-2]: pressure gradient + radiative force - gravity.
+
+    Parameters
+    ----------
+    r : float
+        Radius [cm].
+    v : float
+        Velocity [cm s^-1].
+    P, O : ndarray
+        Parameter (Mdot set) and opacity vectors.
+
+    Returns
+    -------
+    float
+        N [cm s^-2].
+
+    References
+    ----------
+    docs/physics.md, eq. 14.
+    """
     return force_balance_inv(r, 1.0 / r, v, 1.0 / v, P, O)
 
 
 @njit(cache=True, error_model="numpy")
 def sonic_force_balance(x, P, O):
-    """N(e^x, a): its roots in x = ln r are the critical points."""
+    """N(e^x, a): its roots in x = ln r are the critical points.
+
+    Parameters
+    ----------
+    x : float
+        ln r [ln cm].
+    P, O : ndarray
+        Parameter (Mdot set) and opacity vectors.
+
+    Returns
+    -------
+    float
+        N [cm s^-2].
+
+    References
+    ----------
+    docs/physics.md, eq. 16.
+    """
     return force_balance(math.exp(x), math.sqrt(P[I_A2]), P, O)
 
 
 @njit(cache=True, error_model="numpy", inline="always")
 def rhs(x, y, P, O):
-    """d ln v / d ln r = r N / (v^2 - a^2), y = ln v."""
+    """d ln v / d ln r = r N / (v^2 - a^2), y = ln v.
+
+    Parameters
+    ----------
+    x : float
+        ln r [ln cm].
+    y : float
+        ln v [ln(cm s^-1)].
+    P, O : ndarray
+        Parameter (Mdot set) and opacity vectors.
+
+    Returns
+    -------
+    float
+        [dimensionless].
+    """
     r = math.exp(x)
     v = math.exp(y)
     n = force_balance_inv(r, math.exp(-x), v, math.exp(-y), P, O)
@@ -181,6 +316,20 @@ def rhs_radius(x, y, P, O):
     Below the sonic point the flow spans a short range of r (often a few
     per cent of R0), so r serves as well as ln r as the variable and saves
     two exponentials per evaluation.
+
+    Parameters
+    ----------
+    x : float
+        r [cm].
+    y : float
+        ln v [ln(cm s^-1)].
+    P, O : ndarray
+        Parameter (Mdot set) and opacity vectors.
+
+    Returns
+    -------
+    float
+        [cm^-1].
     """
     v = math.exp(y)
     n = force_balance_inv(x, 1.0 / x, v, math.exp(-y), P, O)
@@ -189,7 +338,22 @@ def rhs_radius(x, y, P, O):
 
 @njit(cache=True, error_model="numpy")
 def monitor_outward(x, y, P, O):
-    """Stop the supersonic leg when tiring exhausts L or v falls back to a."""
+    """Stop the supersonic leg when tiring exhausts L or v falls back to a.
+
+    Parameters
+    ----------
+    x : float
+        ln r [ln cm].
+    y : float
+        ln v.
+    P, O : ndarray
+        Parameter and opacity vectors.
+
+    Returns
+    -------
+    int
+        0, STOP_STALL or STOP_SINGULAR.
+    """
     r = math.exp(x)
     v = math.exp(y)
     if P[I_TIRING] > 0.0 and luminosity(r, v, P) <= 0.0:
@@ -201,7 +365,22 @@ def monitor_outward(x, y, P, O):
 
 @njit(cache=True, error_model="numpy")
 def monitor_inward(x, y, P, O):
-    """Stop the subsonic leg (x = r) when it turns back to v = a or is far too dense."""
+    """Stop the subsonic leg (x = r) when it turns back to v = a or is far too dense.
+
+    Parameters
+    ----------
+    x : float
+        r [cm].
+    y : float
+        ln v.
+    P, O : ndarray
+        Parameter and opacity vectors.
+
+    Returns
+    -------
+    int
+        0, STOP_DENSE or STOP_SINGULAR.
+    """
     r = x
     v = math.exp(y)
     if density(r, v, P) > P[I_RHO_STOP]:
@@ -218,6 +397,18 @@ def base_sonic_balance(ln_mdot, P, O):
     Where it is positive the gas at the base is unbound at the sonic
     density, so no critical point lies just beyond R0; its root in ln Mdot is
     the smallest (or largest) Mdot whose saddle can sit on the base.
+
+    Parameters
+    ----------
+    ln_mdot : float
+        ln Mdot [ln(g s^-1)].
+    P, O : ndarray
+        Parameter and opacity vectors.
+
+    Returns
+    -------
+    float
+        N [cm s^-2].
     """
     Q = set_mass_loss_rate(P, ln_mdot)
     return force_balance(Q[I_R0], math.sqrt(Q[I_A2]), Q, O)
@@ -230,6 +421,19 @@ def left_table(x, y, P, O):
     An adaptive step never accepts an off-table point (its stages give NaN
     and the step shrinks), so the sign is a last accepted point hugging an
     edge.
+
+    Parameters
+    ----------
+    x : float
+        ln r [ln cm].
+    y : float
+        ln v.
+    P, O : ndarray
+        Parameter and opacity vectors.
+
+    Returns
+    -------
+    bool
     """
     r = math.exp(x)
     return table_margin(O, density(r, math.exp(y), P), P[I_T]) < TABLE_EDGE
@@ -243,7 +447,22 @@ refine_base = make_illinois(base_sonic_balance)
 
 @njit(cache=True, error_model="numpy")
 def critical_point_partials(r, P, O):
-    """(dN/dr, dN/dv) at (r, a), fixed Mdot, by central differences."""
+    """(dN/dr, dN/dv) at (r, a), fixed Mdot, by central differences.
+
+    Parameters
+    ----------
+    r : float
+        Radius [cm].
+    P, O : ndarray
+        Parameter (Mdot set) and opacity vectors.
+
+    Returns
+    -------
+    n_r : float
+        [s^-2].
+    n_v : float
+        [s^-1].
+    """
     a = math.sqrt(P[I_A2])
     hr = 1e-5 * r
     hv = 1e-5 * a
@@ -254,7 +473,25 @@ def critical_point_partials(r, P, O):
 
 @njit(cache=True, error_model="numpy")
 def classify_point(r, P, O):
-    """(kind, p_plus, p_minus) of the critical point at r (Model A quadratic)."""
+    """(kind, p_plus, p_minus) of the critical point at r (Model A quadratic).
+
+    Parameters
+    ----------
+    r : float
+        Radius of the critical point [cm].
+    P, O : ndarray
+        Parameter (Mdot set) and opacity vectors.
+
+    Returns
+    -------
+    kind : int
+    p_plus, p_minus : float
+        Slopes dv/dr [s^-1].
+
+    References
+    ----------
+    docs/physics.md, eqs. 25 and 26.
+    """
     n_r, n_v = critical_point_partials(r, P, O)
     # 2 p^2 - N_v p - N_r = 0  (d(v - a^2/v)/dr = 2 p at v = a)
     return classify(n_v, n_r, 0.0)
@@ -262,7 +499,28 @@ def classify_point(r, P, O):
 
 @njit(cache=True, error_model="numpy")
 def critical_points(P, O, out_r, out_kind, out_pp, out_pm):
-    """All roots of N(r, a) on [R0, r_out], classified; returns their count."""
+    """All roots of N(r, a) on [R0, r_out], classified; returns their count.
+
+    Parameters
+    ----------
+    P, O : ndarray
+        Parameter (Mdot set) and opacity vectors.
+    out_r : ndarray
+        Radii of the critical points [cm], written in place (its length caps the count).
+    out_kind : ndarray
+        Their topology codes.
+    out_pp, out_pm : ndarray
+        Their slopes dv/dr [s^-1].
+
+    Returns
+    -------
+    int
+        Number of points written.
+
+    References
+    ----------
+    docs/physics.md, eqs. 16, 25 and 26.
+    """
     x_lo = math.log(P[I_R0])
     x_hi = math.log(P[I_ROUT])
     dx = (x_hi - x_lo) / (N_GRID - 1)
@@ -287,7 +545,26 @@ def critical_points(P, O, out_r, out_kind, out_pp, out_pm):
 
 @njit(cache=True, error_model="numpy")
 def innermost_saddle(P, O):
-    """First saddle of N(r, a) outward from R0: (code, r_c, slope dv/dr)."""
+    """First saddle of N(r, a) outward from R0: (code, r_c, slope dv/dr).
+
+    Parameters
+    ----------
+    P, O : ndarray
+        Parameter (Mdot set) and opacity vectors.
+
+    Returns
+    -------
+    code : int
+        OK, NO_SADDLE, NO_CRITICAL_POINT_BOUND, NO_CRITICAL_POINT_UNBOUND or LEFT_TABLE.
+    r_c : float
+        [cm] (where the table was left, for LEFT_TABLE; NaN for none).
+    slope : float
+        Accelerating slope dv/dr [s^-1].
+
+    References
+    ----------
+    docs/physics.md, section 4 ("Critical point").
+    """
     x_lo = math.log(P[I_R0])
     x_hi = math.log(P[I_ROUT])
     dx = (x_hi - x_lo) / (N_GRID - 1)
@@ -328,6 +605,15 @@ def survey(P, O, x_lo, x_hi, codes):
 
     Cheap (no integration); used to explain a failed search, e.g. that some
     mass-loss rates do have critical points, but only nodes or foci.
+
+    Parameters
+    ----------
+    P, O : ndarray
+        Parameter and opacity vectors.
+    x_lo, x_hi : float
+        Range of ln Mdot [ln(g s^-1)].
+    codes : ndarray of int
+        Output, written in place (at least 2 entries).
     """
     n = codes.shape[0]
     for i in range(n):
@@ -342,6 +628,22 @@ def dense_estimate(x, y, Q, O, ln_rho0):
     ln rho(x) - ln rho0 + |d ln rho / d ln r| (x - ln R0): an estimate (about
     a lower bound, since rho climbs ever faster inward in a near-hydrostatic
     layer), always above DENSE_MARGIN, used only to steer the root-find.
+
+    Parameters
+    ----------
+    x : float
+        ln r of the stop [ln cm].
+    y : float
+        ln v there.
+    Q, O : ndarray
+        Parameter (Mdot set) and opacity vectors.
+    ln_rho0 : float
+        ln of the base density [ln(g cm^-3)].
+
+    Returns
+    -------
+    float
+        Estimated g [dimensionless].
     """
     r = math.exp(x)
     v = math.exp(y)
@@ -355,14 +657,51 @@ def dense_estimate(x, y, Q, O, ln_rho0):
 
 @njit(cache=True, error_model="numpy")
 def shoot(ln_mdot, P, O, rtol, delta):
-    """One trial: (code, ln rho(R0) - ln rho0, r_c, slope) for this Mdot."""
+    """One trial: (code, ln rho(R0) - ln rho0, r_c, slope) for this Mdot.
+
+    Parameters
+    ----------
+    ln_mdot : float
+        ln Mdot [ln(g s^-1)].
+    P, O : ndarray
+        Parameter and opacity vectors.
+    rtol : float
+        Relative tolerance.
+    delta : float
+        Start this fraction of r_c off the critical point (docs/physics.md, section 8).
+
+    Returns
+    -------
+    code : int
+    g : float
+        ln rho(R0) - ln rho0 [dimensionless], NaN on failure.
+    r_c : float
+        [cm].
+    slope : float
+        [s^-1].
+    """
     return shoot_work(ln_mdot, P, O, rtol, delta, P.copy(), np.empty(0))
 
 
 @njit(cache=True, error_model="numpy")
 def shoot_work(ln_mdot, P, O, rtol, delta, Q, none):
     """:func:`shoot` with the work vector Q (a copy of P, overwritten) and an
-    empty array ``none`` given: a search allocates them once, not per shot."""
+    empty array ``none`` given: a search allocates them once, not per shot.
+
+    Parameters
+    ----------
+    ln_mdot, P, O, rtol, delta
+        As :func:`shoot`.
+    Q : ndarray
+        Work vector, overwritten.
+    none : ndarray
+        An empty array (no output stored).
+
+    Returns
+    -------
+    tuple
+        As :func:`shoot`.
+    """
     fill_mass_loss_rate(Q, P, ln_mdot)
     code, rc, slope = innermost_saddle(Q, O)
     if code != OK:
@@ -399,7 +738,22 @@ def shoot_work(ln_mdot, P, O, rtol, delta, Q, none):
 
 @njit(cache=True, error_model="numpy")
 def base_eddington_factor(P, O):
-    """Gamma_eff = kappa_eff(rho0, T, R0) L0 / (4 pi G M c) at the base."""
+    """Gamma_eff = kappa_eff(rho0, T, R0) L0 / (4 pi G M c) at the base.
+
+    Parameters
+    ----------
+    P, O : ndarray
+        Parameter and opacity vectors.
+
+    Returns
+    -------
+    float
+        [dimensionless].
+
+    References
+    ----------
+    docs/physics.md, eq. 12.
+    """
     k0 = effective_opacity(O, P[I_RHO0], P[I_T], P[I_R0])
     return k0 * P[I_L0] / (FOUR_PI * C_LIGHT * P[I_GM])
 
@@ -411,6 +765,22 @@ def first_guess(P, O):
     v/a ~ (r_c/r)^2 exp(3/2 - 2 r_c/r) far below the sonic point (Lamers &
     Cassinelli 1999, ch. 3, from memory), with GM reduced by (1 - Gamma_0).
     Only a starting point: the bracket search does not depend on it.
+
+    Parameters
+    ----------
+    P, O : ndarray
+        Parameter and opacity vectors.
+
+    Returns
+    -------
+    guess : float
+        ln Mdot [ln(g s^-1)].
+    ln_mdot_max : float
+        ln(4 pi R0^2 rho0 a), the largest rate searched.
+
+    References
+    ----------
+    docs/physics.md, eq. 17 (r_c with reduced gravity).
     """
     a2 = P[I_A2]
     R0 = P[I_R0]
@@ -434,6 +804,24 @@ def find_admissible(P, O, rtol, delta, guess, x_min, x_max, shots):
     much buries the critical point below R0), so bisect between two trials
     that failed for different reasons; fall back on a widening search
     around the guess.
+
+    Parameters
+    ----------
+    P, O : ndarray
+        Parameter and opacity vectors.
+    rtol, delta : float
+        As :func:`shoot`.
+    guess : float
+        Starting ln Mdot.
+    x_min, x_max : float
+        Range of ln Mdot.
+    shots : int
+        Trials so far.
+
+    Returns
+    -------
+    tuple
+        (found, ln Mdot, g, r_c [cm], slope [s^-1], shots, reason).
     """
     xtol_b = 1e-9
     Q = P.copy()
@@ -511,6 +899,34 @@ def converge(P, O, rtol, delta, x, g, rc, slope, step0, x_min, x_max, shots, rea
     that lands within the tolerance ends the search; one that fails (no
     saddle, no reach) means the admissible boundary lies in between:
     bisect onto it.
+
+    Parameters
+    ----------
+    P, O : ndarray
+        Parameter and opacity vectors.
+    rtol, delta : float
+        As :func:`shoot`.
+    x, g : float
+        The admissible start: ln Mdot and its g.
+    rc, slope : float
+        Its critical point [cm] and slope [s^-1].
+    step0 : float
+        First step in ln Mdot from a boundary start.
+    x_min, x_max : float
+        Range of ln Mdot.
+    shots : int
+        Trials so far (0: the start was computed without a shot).
+    reason : int
+        First failure met so far.
+
+    Returns
+    -------
+    tuple
+        (code, ln_mdot, r_c, slope, shots, reason, seen_ok).
+
+    References
+    ----------
+    docs/physics.md, section 8; Brent (1973), ch. 4 (:func:`windsolve.core.roots.make_brent`).
     """
     xtol_b = 1e-9
     Q = P.copy()
@@ -605,6 +1021,24 @@ def solve(P, O, rtol, delta):
     NO_BRACKET_DENSE / NO_BRACKET_THIN, ln_mdot and r_c are those of the last
     admissible trial.  An answer is never one whose sonic point sits on the
     base (SONIC_ON_BASE) or a sign change of g by a jump (NO_ROOT_JUMP).
+
+    Parameters
+    ----------
+    P, O : ndarray
+        Parameter and opacity vectors.
+    rtol : float
+        Relative tolerance.
+    delta : float
+        Start offset from the critical point, in units of r_c.
+
+    Returns
+    -------
+    tuple
+        (code, ln_mdot, r_c [cm], slope [s^-1], n_shots, reason).
+
+    References
+    ----------
+    docs/physics.md, section 4 ("Boundary conditions") and section 8.
     """
     guess, ln_mdot_max = first_guess(P, O)
     x_min = ln_mdot_max - LN_RANGE
@@ -659,6 +1093,20 @@ def checked(code, x, rc, slope, shots, reason, P, delta):
     A mass-loss rate whose sonic point lies within ``delta`` of the base has
     no subsonic part: the base density is then the sonic density and the
     "solution" is not a wind launched from a subsonic base (SONIC_ON_BASE).
+
+    Parameters
+    ----------
+    code, x, rc, slope, shots, reason
+        What the search found (as :func:`solve` returns them).
+    P : ndarray
+        Parameter vector.
+    delta : float
+        Start offset, in units of r_c.
+
+    Returns
+    -------
+    tuple
+        As :func:`solve`.
     """
     if code == OK and not rc * (1.0 - delta) > P[I_R0]:
         return SONIC_ON_BASE, x, rc, slope, shots, reason
@@ -672,6 +1120,26 @@ def outward_leg(Q, O, rc, slope, rtol, delta, dx_out, xo, yo):
     status is OK, STALLED, OUTWARD_SINGULAR, LEFT_TABLE or INTEGRATION_FAILED;
     (x, y) is the last accepted point.  With ``dx_out`` > 0 the points stored
     in (xo, yo) are dx_out apart in ln r (dense output), else every step.
+
+    Parameters
+    ----------
+    Q, O : ndarray
+        Parameter (Mdot set) and opacity vectors.
+    rc : float
+        Critical radius [cm].
+    slope : float
+        Accelerating slope [s^-1].
+    rtol, delta : float
+        Relative tolerance; start offset in units of r_c.
+    dx_out : float
+        Output spacing in ln r (0: every step).
+    xo, yo : ndarray
+        Storage for ln r and ln v.
+
+    Returns
+    -------
+    tuple
+        (status, x, y, n_stored).
     """
     y0 = math.log(math.sqrt(Q[I_A2]) + slope * delta * rc)
     st, x, y, no, nfev = integrate_outward(
@@ -700,6 +1168,24 @@ def profile(ln_mdot, P, O, rtol, delta, max_step, capacity):
     ``max_step`` in ln r outward and every min(max_step R0, (r_c - R0) /
     SUBSONIC_POINTS) in r inward, so that a thin subsonic layer is resolved
     too; at most ``capacity`` points a leg.
+
+    Parameters
+    ----------
+    ln_mdot : float
+        Converged ln Mdot.
+    P, O : ndarray
+        Parameter and opacity vectors.
+    rtol, delta : float
+        Relative tolerance; start offset in units of r_c.
+    max_step : float
+        Output spacing in ln r (outward).
+    capacity : int
+        Most points stored per leg.
+
+    Returns
+    -------
+    tuple
+        (status_in, status_out, r [cm], v [cm s^-1]).
     """
     Q = set_mass_loss_rate(P, ln_mdot)
     code, rc, slope = innermost_saddle(Q, O)
@@ -710,7 +1196,22 @@ def profile(ln_mdot, P, O, rtol, delta, max_step, capacity):
 
 @njit(cache=True, error_model="numpy")
 def inward_part(Q, O, rc, slope, rtol, delta, max_step, capacity):
-    """:func:`profile` below r_c: ``(status_in, r, v)`` from R0 up to, not including, r_c."""
+    """:func:`profile` below r_c: ``(status_in, r, v)`` from R0 up to, not including, r_c.
+
+    Parameters
+    ----------
+    Q, O : ndarray
+        Parameter (Mdot set) and opacity vectors.
+    rc, slope : float
+        Critical radius [cm] and slope [s^-1].
+    rtol, delta, max_step, capacity
+        As :func:`profile`.
+
+    Returns
+    -------
+    tuple
+        (status_in, r [cm], v [cm s^-1]).
+    """
     a = math.sqrt(Q[I_A2])
     R0 = Q[I_R0]
     if not rc * (1.0 - delta) > R0:
@@ -744,7 +1245,22 @@ def inward_part(Q, O, rc, slope, rtol, delta, max_step, capacity):
 
 @njit(cache=True, error_model="numpy")
 def outward_part(Q, O, rc, slope, rtol, delta, max_step, capacity):
-    """:func:`profile` from r_c (v = a, the first point) out: ``(status_out, r, v)``."""
+    """:func:`profile` from r_c (v = a, the first point) out: ``(status_out, r, v)``.
+
+    Parameters
+    ----------
+    Q, O : ndarray
+        Parameter (Mdot set) and opacity vectors.
+    rc, slope : float
+        Critical radius [cm] and slope [s^-1].
+    rtol, delta, max_step, capacity
+        As :func:`profile`.
+
+    Returns
+    -------
+    tuple
+        (status_out, r [cm], v [cm s^-1]).
+    """
     n_out = min(capacity, int(math.log(Q[I_ROUT] / rc) / max_step) + PROFILE_STEPS)
     xo = np.empty(n_out)
     yo = np.empty(n_out)
@@ -769,6 +1285,16 @@ def end_state(ln_mdot, P, O, rtol, delta):
 
     What a sweep needs when it does not keep profiles: the velocity at the
     outer radius and whether the flow got there.
+
+    Parameters
+    ----------
+    ln_mdot, P, O, rtol, delta
+        As :func:`shoot`.
+
+    Returns
+    -------
+    tuple
+        (status_out, r_end [cm], v_end [cm s^-1]).
     """
     Q = set_mass_loss_rate(P, ln_mdot)
     code, rc, slope = innermost_saddle(Q, O)
@@ -779,7 +1305,26 @@ def end_state(ln_mdot, P, O, rtol, delta):
 
 @njit(cache=True, error_model="numpy")
 def profile_quantities(ln_mdot, r, v, P, O):
-    """rho, L, kappa_eff and Gamma_eff along a profile (cgs arrays)."""
+    """rho, L, kappa_eff and Gamma_eff along a profile (cgs arrays).
+
+    Parameters
+    ----------
+    ln_mdot : float
+        ln Mdot [ln(g s^-1)].
+    r, v : ndarray
+        Radius [cm] and velocity [cm s^-1].
+    P, O : ndarray
+        Parameter and opacity vectors.
+
+    Returns
+    -------
+    tuple of ndarray
+        rho [g cm^-3], L [erg s^-1], kappa_eff [cm^2 g^-1], Gamma_eff [dimensionless].
+
+    References
+    ----------
+    docs/physics.md, eqs. 12, 13 and 15.
+    """
     Q = set_mass_loss_rate(P, ln_mdot)
     n = r.shape[0]
     rho = np.empty(n)

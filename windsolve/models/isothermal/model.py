@@ -141,27 +141,27 @@ class IsothermalWind(WindModel):
 
     # -- derived values (cgs floats) ----------------------------------------
     @cached_property
-    def mu(self):
-        """Mean molecular weight of the fully ionized composition."""
+    def mu(self) -> float:
+        """Mean molecular weight [m_u] of the fully ionised gas (docs/physics.md, eq. 2)."""
         return basics.mean_molecular_weight(self.X, self.Z)
 
     @cached_property
-    def a(self):
-        """Isothermal sound speed [cm/s] (float)."""
+    def a(self) -> float:
+        """Isothermal sound speed [cm/s] (float): given, or eq. 3 of docs/physics.md."""
         if self.sound_speed is not None:
             return self.cgs("sound_speed")
         return basics.isothermal_sound_speed(self.cgs("temperature"), self.mu)
 
     @cached_property
-    def T(self):
+    def T(self) -> float:
         """Gas temperature [K] (float) used by temperature-dependent opacities."""
         if self.temperature is not None:
             return self.cgs("temperature")
         return basics.gas_temperature(self.cgs("sound_speed"), self.mu)
 
     @cached_property
-    def kernel_arrays(self):
-        """(P, O): the plain-float parameter vectors of the Model A kernels."""
+    def kernel_arrays(self) -> tuple:
+        """(P, O): the plain-float parameter vectors of the Model A kernels (cgs)."""
         P = np.zeros(iso_kernels.N_PARAMS)
         P[iso_kernels.I_GM] = G * self.cgs("mass")
         P[iso_kernels.I_A2] = self.a ** 2

@@ -249,6 +249,24 @@ def solve_isothermal_cgs(model, profile=True, critical=True, widths=None, explai
     ``explain=False`` (sweep rows) skips the failure diagnostics that tell a
     single solve why no rate works and what to change: they re-solve the model
     or scan its admissible rates, about 50 times the cost of a converged row.
+
+    Parameters
+    ----------
+    model : IsothermalWind
+        The model.
+    profile : bool
+        Store the profile.
+    critical : bool
+        Report the critical points.
+    widths : LineSettingsCGS or None
+        Measure the line widths (only without ``profile``).
+    explain : bool
+        Run the failure diagnostics.
+
+    Returns
+    -------
+    SolutionCGS
+        As described above (cgs floats and arrays).
     """
     t0 = time.perf_counter()
     P, O = model.kernel_arrays
@@ -357,5 +375,18 @@ def solve_isothermal_cgs(model, profile=True, critical=True, widths=None, explai
 
 def solve_isothermal(model, profile=True):
     """Solve Model A (:class:`~windsolve.models.IsothermalWind`): :func:`solve_isothermal_cgs`
-    with units (:meth:`~windsolve.result.WindResult.from_cgs`)."""
+    with units (:meth:`~windsolve.result.WindResult.from_cgs`).
+
+    Parameters
+    ----------
+    model : IsothermalWind
+        The model (docs/physics.md, section 4).
+    profile : bool
+        Store the profile (False: summary only).
+
+    Returns
+    -------
+    WindResult
+        Converged or not; ``status`` and ``message`` say what happened.
+    """
     return WindResult.from_cgs(model, solve_isothermal_cgs(model, profile))

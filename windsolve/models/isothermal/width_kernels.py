@@ -34,6 +34,22 @@ def outer_state_and_widths(ln_mdot, P, O, rtol, delta, max_step, capacity, n, oc
     line arguments are those of :func:`windsolve.core.lines.line_widths`;
     the core radius is the optical core of the profile, else R0, and
     noise in v(r) is judged with MONOTONIC_RTOL, as there.
+
+    Parameters
+    ----------
+    ln_mdot : float
+        Converged ln Mdot [ln(g s^-1)].
+    P, O : ndarray
+        Model A parameter and opacity vectors.
+    rtol, delta, max_step, capacity
+        As :func:`windsolve.models.isothermal.kernels.profile`.
+    n, occult, fwhm, sigma, hwzi_fraction, edge_depth, k0, n_velocity
+        As :func:`windsolve.core.lines.line_widths` (speeds in cm s^-1).
+
+    Returns
+    -------
+    tuple
+        (status_in, status_out, r_end [cm], v_end [cm s^-1], fwhm, hwzi, edge [cm s^-1]).
     """
     nan = math.nan
     Q = K.set_mass_loss_rate(P, ln_mdot)
