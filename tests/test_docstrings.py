@@ -20,8 +20,8 @@ import pytest
 ROOT = Path(__file__).resolve().parents[1]
 PACKAGE = ROOT / "windsolve"
 
-# Covered by a later change (these files are being moved): not checked yet.
-EXEMPT = ("_io.py", "io/", "cli.py")
+# Nothing is exempt (the tuple stays for a file that must be, with its reason).
+EXEMPT = ()
 
 # The user-facing modules, whose public functions carry type hints (paths relative to
 # windsolve/; a trailing "/" is every module of that package).  The sweep package is
@@ -29,7 +29,8 @@ EXEMPT = ("_io.py", "io/", "cli.py")
 USER_FACING = ("__init__.py", "result.py", "solve.py", "modelfile.py", "registry.py",
                "family.py", "observe.py", "lines/", "tables.py", "opacity.py",
                "physics.py", "plotting.py", "models/isothermal/model.py",
-               "models/diffusion/model.py", "models/base.py")
+               "models/diffusion/model.py", "models/base.py", "io/", "files.py",
+               "cli.py", "status.py")
 
 KERNEL_DECORATORS = {"njit", "jit", "vectorize", "guvectorize", "cfunc", "generated_jit"}
 

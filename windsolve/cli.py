@@ -31,7 +31,33 @@ def _load(path):
     return load_model(path), str(path)
 
 
-def cmd_run(args):
+def cmd_run(args: argparse.Namespace) -> int:
+    """``windsolve run [MODEL] [-o OUT.h5] [-q]``: solve one model.
+
+    The model file (the built-in demo when none is given) is loaded and the
+    output path checked before the solve.  Unless ``-q``, prints ``model:
+    SOURCE`` and the result's summary, then ``wrote OUT.h5`` after writing the
+    result with ``-o``.  A solution that stops before the outer radius is
+    written all the same, and its status and message go to stderr (even with
+    ``-q``).
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+        The parsed command line (see :func:`build_parser`).
+
+    Returns
+    -------
+    int
+        EXIT_OK (0) for a converged solution, EXIT_PARTIAL (3) for one that
+        stops before the outer radius.
+
+    Raises
+    ------
+    WindsolveError
+        A bad model file or output path, or no solution at all ("no
+        solution: ..."; nothing is written).
+    """
     from .solve import solve
     model, source = _load(args.model)
     if args.output is not None:
@@ -61,7 +87,28 @@ def _check_output(path, default_ext):
     check_output_path(path, example=f"wind{default_ext}")
 
 
-def cmd_check(args):
+def cmd_check(args: argparse.Namespace) -> int:
+    """``windsolve check [MODEL]``: validate a model without solving it.
+
+    Prints the derived numbers of the model's kind (its registered spec's
+    ``check``), one ``KEY  VALUE`` line each, aligned, then any ``note:`` lines.
+    Writes nothing.
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+        The parsed command line (see :func:`build_parser`).
+
+    Returns
+    -------
+    int
+        EXIT_OK (0).
+
+    Raises
+    ------
+    ModelError
+        The model file is missing, not valid TOML or not a valid model.
+    """
     from .registry import spec_for
 
     model, source = _load(args.model)
@@ -85,7 +132,34 @@ def _scan_value(text, scan, option):
         return float(to_quantity(text.strip(), unit, option).to_value(unit))
 
 
-def cmd_family(args):
+def cmd_family(args: argparse.Namespace) -> int:
+    """``windsolve family MODEL --scan Q --from A --to B``: solve a family of models.
+
+    Scans one quantity of a photosphere-anchored diffusion model (``--num``
+    log-spaced members; ``--from``/``--to`` a number in the scan's unit or a
+    value with a unit), every member a full solve.  The range and the output
+    paths are checked before the solve.  Unless ``-q``: a progress bar on
+    stderr (only on a terminal), then the family's header, its table and where
+    and why it ends.  Writes the table (and the members' profiles with
+    ``--profiles``) to ``-o`` and a plot to ``--plot``, each followed by a
+    ``wrote`` line unless ``-q``.
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+        The parsed command line (see :func:`build_parser`).
+
+    Returns
+    -------
+    int
+        EXIT_OK (0).
+
+    Raises
+    ------
+    WindsolveError
+        A bad model, scan range, count or output path, or no member of the
+        family has a solution (nothing is written).
+    """
     from .family import SCANS, check_family, plot_family, solve_family
     model, source = _load(args.model)
     start = _scan_value(args.start, args.scan, "--from")
@@ -128,7 +202,37 @@ def cmd_family(args):
     return EXIT_OK
 
 
-def cmd_sweep(args):
+def cmd_sweep(args: argparse.Namespace) -> int:
+    """``windsolve sweep SWEEP.toml -o OUT.h5``: run every model of a parameter sweep.
+
+    Runs locally (``--workers`` processes, default all cores) or on a
+    dask.distributed cluster (``--scheduler``), journaling finished models so
+    that ``--resume`` finishes an interrupted sweep, and writes the sweep's
+    table to ``-o``.  Unless ``-q``: one line describing the sweep and where
+    it runs, then the count of each status, a note on models with a
+    hydrostatic base, and ``wrote OUT.h5``.  When interrupted, says on stderr
+    how many models are kept and the command that resumes.
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+        The parsed command line (see :func:`build_parser`).
+
+    Returns
+    -------
+    int
+        EXIT_OK (0), or 130 when the sweep was interrupted (the finished
+        models kept for ``--resume``).
+
+    Raises
+    ------
+    WindsolveError
+        A bad sweep file or ``--workers`` below 1, an unusable output path, a
+        journal of an interrupted run without ``--resume``, an output locked
+        by another running sweep, a journal or lock file that cannot be
+        written (OutputError), or a sweep in which no model finished for
+        ``--stall-timeout`` seconds.
+    """
     from .sweep import load_sweep, run_sweep
     sweep = load_sweep(args.sweep)
     if args.profiles:
@@ -226,7 +330,33 @@ def _add_line_options(p):
                    help="Sobolev line strength of the P Cygni line (default 100)")
 
 
-def cmd_lines(args):
+def cmd_lines(args: argparse.Namespace) -> int:
+    """``windsolve lines FILE [-o OUT] [--pcygni]``: a synthetic line profile and its widths.
+
+    Computes an optically thin emission line (a Sobolev P Cygni line with
+    ``--pcygni``) from the result file's profile with the line options, and
+    prints its FWHM, HWZI and blue-edge velocity [km/s], the model's terminal
+    velocity and, when an emission line is narrower than the sound speed, a
+    note saying so.  ``-o`` writes the profile as CSV (``.csv``) or plots it
+    (``.png``/``.pdf``/``.svg``), then prints ``wrote OUT``.
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+        The parsed command line (see :func:`build_parser`).
+
+    Returns
+    -------
+    int
+        EXIT_OK (0).
+
+    Raises
+    ------
+    WindsolveError
+        An ``-o`` suffix other than those, an unusable output path, a bad
+        line option (ModelError naming the option), a damaged result file
+        (OutputError), or a result without a profile.
+    """
     import astropy.units as u
     import numpy as np
 
@@ -275,7 +405,34 @@ def cmd_lines(args):
     return EXIT_OK
 
 
-def cmd_compare(args):
+def cmd_compare(args: argparse.Namespace) -> int:
+    """``windsolve compare FILE OBSERVED.csv``: predicted against observed widths.
+
+    For a result file: prints each observed quantity with its uncertainty, the
+    model's value [km/s] and the residual [sigma], and chi^2; ``-o`` writes
+    that table as CSV and ``--plot`` plots the residuals.  For a sweep file:
+    prints how many models were compared, the five with the lowest chi^2 and
+    their axis values; ``-o`` writes chi^2 per model as CSV and ``--plot``
+    plots the chi^2 map.  Each file written is followed by a ``wrote`` line.
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+        The parsed command line (see :func:`build_parser`).
+
+    Returns
+    -------
+    int
+        EXIT_OK (0).
+
+    Raises
+    ------
+    WindsolveError
+        A bad observed-widths file or ``--object``, an unusable output path,
+        a file that is no result or sweep file, a result that did not converge
+        or has no terminal velocity to compare with an observed one, a bad
+        line option, or a sweep without a converged model.
+    """
     import numpy as np
 
     from .observe import compare_result, read_observed, sweep_chi2, write_chi2_csv
@@ -340,7 +497,32 @@ def cmd_compare(args):
     return EXIT_OK
 
 
-def cmd_match(args):
+def cmd_match(args: argparse.Namespace) -> int:
+    """``windsolve match MODEL --key K --from A --to B --observed CSV``: fit one key.
+
+    Varies the model key ``--key`` between ``--from`` and ``--to`` until the
+    model reproduces the first ``--quantity`` measurement of the observed-widths
+    file (see :func:`windsolve.observe.match_parameter`), and prints
+    ``SOURCE: KEY = VALUE reproduces QUANTITY = OBSERVED ± SIGMA km/s (model
+    PREDICTED)``.  Writes nothing.
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+        The parsed command line (see :func:`build_parser`).
+
+    Returns
+    -------
+    int
+        EXIT_OK (0).
+
+    Raises
+    ------
+    WindsolveError
+        A bad model or observed-widths file, no measurement of ``--quantity``
+        in it, a bad line option, or no value in the range that reproduces
+        the measurement (ModelError).
+    """
     from .observe import match_parameter, read_observed
     model, source = _load(args.model)
     observations = [o for o in read_observed(args.observed, args.object)
@@ -355,7 +537,34 @@ def cmd_match(args):
     return EXIT_OK
 
 
-def cmd_inspect(args):
+def cmd_inspect(args: argparse.Namespace) -> int:
+    """``windsolve inspect FILE [--model] [--csv [OUT]]``: print what a windsolve file holds.
+
+    The file is first checked by the reader of its kind (result, family or
+    sweep; :func:`windsolve.files.read_any_file`).  Prints the root attributes,
+    the summary values with their units, each profile dataset's length, range
+    and unit, each table column's range and unit (and where a family ends), the
+    critical points [cm], and with ``--model`` the stored (resolved) model file.
+    With ``--csv`` prints none of that, but exports the /table of a sweep or
+    family file as CSV to standard output, or to OUT followed by ``wrote OUT``.
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+        The parsed command line (see :func:`build_parser`).
+
+    Returns
+    -------
+    int
+        EXIT_OK (0).
+
+    Raises
+    ------
+    OutputError
+        The file is missing, no windsolve file or damaged (one line naming
+        what is wrong), the CSV output cannot be written, or ``--csv`` was
+        given for a file without a /table.
+    """
     import numpy as np
 
     from .files import read_any_file
@@ -427,7 +636,30 @@ def _export_csv(path, target):
     return EXIT_OK
 
 
-def cmd_plot(args):
+def cmd_plot(args: argparse.Namespace) -> int:
+    """``windsolve plot FILE [-o OUT]``: plot a result, family or sweep file.
+
+    A result file's profiles, a family's quantities against the photosphere
+    radius, or a sweep's table, as the file's kind says; written to ``-o`` (PNG,
+    PDF or SVG by its suffix; default FILE with ``.png``), then prints
+    ``wrote OUT``.
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+        The parsed command line (see :func:`build_parser`).
+
+    Returns
+    -------
+    int
+        EXIT_OK (0).
+
+    Raises
+    ------
+    WindsolveError
+        The file is missing, no windsolve file or damaged, or the image cannot
+        be written (OutputError).
+    """
     from .io import hdf5_kind
     from .plotting import plot_profile
     from .result import WindResult
@@ -504,7 +736,34 @@ def _grid_option(values, option):
     return grid(start, stop, num, option)
 
 
-def cmd_tabulate(args):
+def cmd_tabulate(args: argparse.Namespace) -> int:
+    """``windsolve tabulate MODEL -o TABLE``: tabulate a model's opacity law.
+
+    Evaluates the model's analytic opacity law (with its X and Z) on the grid
+    of ``--log-t`` (log10 T [K]) and ``--log-r`` (log10 R, R = rho / (T / 1e6
+    K)^3 with rho in g/cm^3) nodes and writes it as an opacity table: HDF5 for
+    ``.h5``/``.hdf5``, else the text matrix, its description naming the command
+    that made it.  Unless ``-q``, prints ``wrote TABLE: LAW law, N log10 T x M
+    log10 R``.
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+        The parsed command line (see :func:`build_parser`).
+
+    Returns
+    -------
+    int
+        EXIT_OK (0).
+
+    Raises
+    ------
+    WindsolveError
+        A bad model or output path, a grid whose START and STOP are not
+        numbers or NUM not a whole number, a ``--log-t`` STOP that is no log10
+        temperature, a grid :func:`windsolve.tables.grid` refuses (START not
+        below STOP, too few nodes), or more nodes than a table may have.
+    """
     from .tables import HDF5_SUFFIXES, MAX_TABLE_NODES, TEXT_LAYOUT, tabulate, write_table
     model, source = _load(args.model)
     _check_output(args.output, ".txt")
@@ -556,7 +815,16 @@ class _Parser(argparse.ArgumentParser):
                                   f"{command + ' ' if command else ''}--help)\n")
 
 
-def build_parser():
+def build_parser() -> argparse.ArgumentParser:
+    """The command-line parser of ``windsolve`` and all its commands.
+
+    Returns
+    -------
+    argparse.ArgumentParser
+        Errors end with one line on stderr and exit status 2; each command's
+        parsed arguments carry the ``cmd_*`` function that runs it as ``func``,
+        and the parser's ``commands`` attribute lists the command names.
+    """
     from ._version import __version__
     from .family import MAX_MEMBERS
     from .observe import QUANTITIES
@@ -718,7 +986,24 @@ def build_parser():
     return parser
 
 
-def main(argv=None):
+def main(argv: "list[str] | None" = None) -> int:
+    """Run the ``windsolve`` command line.
+
+    Parameters
+    ----------
+    argv : list of str, optional
+        The arguments after the program name; ``sys.argv[1:]`` when None.
+
+    Returns
+    -------
+    int
+        The exit status: 0 on success (also after ``--help``, ``--version``,
+        or when a reader of the output stopped early, a broken pipe); 2 for
+        a bad command line, no command, or any WindsolveError of the command
+        (printed as one ``windsolve: error: ...`` line on stderr); 3 for a
+        ``run`` whose solution stops before the outer radius; 130 when
+        interrupted (Ctrl-C).
+    """
     parser = build_parser()
     parser.argv = list(sys.argv[1:] if argv is None else argv)
     try:

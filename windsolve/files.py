@@ -1,12 +1,17 @@
 """Any windsolve file: which kind it is, checked by the reader of its kind."""
 
+from typing import TYPE_CHECKING
+
 from .io import hdf5_kind
 from .result import read_result
+
+if TYPE_CHECKING:
+    from pathlib import Path
 
 __all__ = ["read_any_file"]
 
 
-def read_any_file(path):
+def read_any_file(path: "str | Path") -> str:
     """Check any windsolve HDF5 file (result, family or sweep) with its reader.
 
     Parameters

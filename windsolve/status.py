@@ -7,6 +7,11 @@ source for the status words its solvers write.  A new model's solver uses
 these words; its one-line ``message`` says the rest.  Imports nothing.
 """
 
+from typing import TYPE_CHECKING
+
+if TYPE_CHECKING:
+    from collections.abc import Iterable
+
 __all__ = ["STATUSES", "check_statuses"]
 
 STATUSES = {
@@ -29,7 +34,7 @@ STATUSES = {
 }
 
 
-def check_statuses(statuses, what="status"):
+def check_statuses(statuses: "Iterable[str | None]", what: str = "status") -> None:
     """Refuse any status outside :data:`STATUSES`.
 
     Parameters

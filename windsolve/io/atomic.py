@@ -5,8 +5,14 @@ import io
 import os
 import re
 from pathlib import Path
+from typing import TYPE_CHECKING, Any
 
 from ..errors import ModelError, OutputError
+
+if TYPE_CHECKING:
+    from collections.abc import Callable
+
+    from matplotlib.figure import Figure
 
 # Every output file (HDF5, CSV, text, PNG/SVG/PDF) is written by atomic_write:
 # the bytes go to a hidden temporary sibling ``.NAME.tmp-PID`` which is renamed
@@ -25,11 +31,27 @@ _HINTS = {getattr(errno, name, None): hint for name, hint in (
 )}
 
 
-def output_error(path, error):
-    """A one-line OutputError naming ``path`` for an OSError met while writing it.
+def output_error(path: str | Path, error: BaseException) -> OutputError:
+    """A one-line OutputError naming ``path`` for an error met while writing it.
 
     h5py and matplotlib wrap errno in long, multi-line texts; the errno is
-    recovered from them where it is not set on the error itself.
+    recovered from them (``errno = N`` or ``[Errno N]``) where it is not set
+    on the error itself.
+
+    Parameters
+    ----------
+    path : str or Path
+        The output file the write was for; named first in the message.
+    error : BaseException
+        The error met, usually an OSError.
+
+    Returns
+    -------
+    OutputError
+        Not raised: "PATH: cannot write (REASON); HINT", where REASON is the
+        errno's text and number (or the error's own text, on one line, when no
+        errno is found) and HINT a fix for that errno (e.g. free some space
+        for ENOSPC), else "choose another output path".
     """
     code = getattr(error, "errno", None)
     text = str(error)
@@ -46,10 +68,26 @@ def output_error(path, error):
     return OutputError(f"{path}: cannot write ({reason}); {hint}")
 
 
-def check_output_path(path, example=None):
-    """OutputError (one line) if ``path`` is a directory or its directory is missing.
+def check_output_path(path: str | Path, example: str | None = None) -> Path:
+    """Check that ``path`` can be the name of an output file, before any work is done.
 
-    ``example``: a file name the message suggests for a directory (e.g. "wind.h5").
+    Parameters
+    ----------
+    path : str or Path
+        The output file to be written.
+    example : str, optional
+        A file name the message suggests when ``path`` is a directory
+        (e.g. ``"wind.h5"``).
+
+    Returns
+    -------
+    Path
+        ``path`` as a Path.
+
+    Raises
+    ------
+    OutputError
+        One line: ``path`` is a directory, or its parent directory does not exist.
     """
     path = Path(path)
     if path.is_dir():
@@ -75,18 +113,40 @@ def _pid_alive(pid):
     return True
 
 
-def temporary_name(path):
-    """The hidden temporary sibling ``.NAME.tmp-PID`` a write of ``path`` uses."""
+def temporary_name(path: str | Path) -> Path:
+    """The hidden temporary sibling a write of ``path`` by this process uses.
+
+    Parameters
+    ----------
+    path : str or Path
+        The output file.
+
+    Returns
+    -------
+    Path
+        ``.NAME.tmp-PID`` in the directory of ``path``, PID being this process's id.
+    """
     path = Path(path)
     return path.with_name(f".{path.name}.tmp-{os.getpid()}")
 
 
-def remove_stale_temporaries(path):
+def remove_stale_temporaries(path: str | Path) -> list[Path]:
     """Delete ``.NAME.tmp-PID`` siblings of ``path`` left by a killed writer.
 
     Only temporaries whose process is no longer alive (on this machine) are
-    removed; a running writer's temporary file is left alone.  Returns the
-    removed paths.
+    removed; a running writer's temporary file, and this process's own, are
+    left alone.  Errors (an unreadable directory, a file not ours to delete)
+    are ignored.
+
+    Parameters
+    ----------
+    path : str or Path
+        The output file whose temporaries are looked for.
+
+    Returns
+    -------
+    list of Path
+        The temporaries removed (empty if none, or if the directory cannot be listed).
     """
     path = Path(path)
     prefix = f".{path.name}.tmp-"
@@ -107,14 +167,34 @@ def remove_stale_temporaries(path):
     return removed
 
 
-def atomic_write(path, write):
-    """Call ``write(tmp)`` on a temporary name beside ``path``, then rename.
+def atomic_write(path: str | Path, write: "Callable[[Path], object]") -> Path:
+    """Call ``write(tmp)`` on a temporary name beside ``path``, then rename it to ``path``.
 
     An interrupted or failed write (an error, a full disk, Ctrl-C, a kill
     before the rename) never leaves a half-written file at ``path``; the
     temporary file is removed, and temporaries of killed writers are cleaned
-    up by the next write.  Any OSError becomes a one-line OutputError naming
-    ``path``.
+    up by the next write (:func:`remove_stale_temporaries`).
+
+    Parameters
+    ----------
+    path : str or Path
+        The output file.
+    write : callable
+        Called once with the temporary Path (see :func:`temporary_name`);
+        writes the complete file there.  Its return value is ignored.
+
+    Returns
+    -------
+    Path
+        ``path``, now holding what ``write`` wrote.
+
+    Raises
+    ------
+    OutputError
+        ``path`` is a directory or its directory is missing (checked first,
+        see :func:`check_output_path`), or ``write`` or the rename raised an
+        OSError (one line, see :func:`output_error`).  Other errors of
+        ``write`` propagate unchanged, the temporary file removed.
     """
     path = check_output_path(path)
     remove_stale_temporaries(path)
@@ -132,8 +212,26 @@ def atomic_write(path, write):
     return path
 
 
-def write_bytes(path, data):
-    """Write ``data`` to ``path`` atomically (flushed to the disk before the rename)."""
+def write_bytes(path: str | Path, data: bytes | memoryview) -> Path:
+    """Write ``data`` to ``path`` atomically, flushed to the disk before the rename.
+
+    Parameters
+    ----------
+    path : str or Path
+        The output file.
+    data : bytes or memoryview
+        The whole content of the file.
+
+    Returns
+    -------
+    Path
+        ``path``.
+
+    Raises
+    ------
+    OutputError
+        ``path`` cannot be written (see :func:`atomic_write`).
+    """
     def write(tmp):
         with open(tmp, "wb") as f:
             f.write(data)
@@ -142,14 +240,56 @@ def write_bytes(path, data):
     return atomic_write(path, write)
 
 
-def write_text(path, text):
-    """Write ``text`` (UTF-8) to ``path`` atomically."""
+def write_text(path: str | Path, text: str) -> Path:
+    """Write ``text``, encoded as UTF-8, to ``path`` atomically.
+
+    Parameters
+    ----------
+    path : str or Path
+        The output file.
+    text : str
+        The whole content of the file.
+
+    Returns
+    -------
+    Path
+        ``path``.
+
+    Raises
+    ------
+    OutputError
+        ``path`` cannot be written (see :func:`atomic_write`).
+    """
     return write_bytes(path, text.encode("utf-8"))
 
 
-def write_figure(fig, path, **savefig):
-    """Render a matplotlib figure in memory (format by the suffix of ``path``)
-    and write it to ``path`` atomically."""
+def write_figure(fig: "Figure", path: str | Path, **savefig: Any) -> Path:
+    """Render a matplotlib figure in memory and write it to ``path`` atomically.
+
+    Parameters
+    ----------
+    fig : matplotlib.figure.Figure
+        The figure to render.
+    path : str or Path
+        The image file; its suffix (``.png``, ``.pdf``, ``.svg`` ...) chooses
+        the format.
+    **savefig
+        Further keyword arguments of :meth:`matplotlib.figure.Figure.savefig`
+        (e.g. ``dpi``).
+
+    Returns
+    -------
+    Path
+        ``path``.
+
+    Raises
+    ------
+    OutputError
+        ``path`` is a directory or its directory is missing (checked before
+        the figure is rendered), or the file cannot be written.  An error of
+        matplotlib while rendering (e.g. a format it does not know) propagates
+        unchanged, and nothing is written.
+    """
     path = check_output_path(path)
     fmt = path.suffix[1:].lower() or None
     buffer = io.BytesIO()
@@ -157,11 +297,35 @@ def write_figure(fig, path, **savefig):
     return write_bytes(path, buffer.getbuffer())
 
 
-def read_input_text(path, what, missing_hint, encoding_hint, encoding="utf-8"):
+def read_input_text(path: str | Path, what: str, missing_hint: str, encoding_hint: str,
+                    encoding: str = "utf-8") -> str:
     """The text of a user's input file, or a one-line ModelError.
 
-    ``what`` names the kind of file ("a model file"), ``missing_hint`` ends
-    the no-such-file message and ``encoding_hint`` the not-UTF-8 one.
+    Parameters
+    ----------
+    path : str or Path
+        The input file (a model file, a sweep file ...).
+    what : str
+        The kind of file, for the message when ``path`` is a directory
+        (e.g. ``"a model file"``).
+    missing_hint : str
+        The end of the message when there is no such file (what to do instead).
+    encoding_hint : str
+        The end of the message when the file cannot be decoded.
+    encoding : str, optional
+        The text encoding (default UTF-8).
+
+    Returns
+    -------
+    str
+        The file's whole text.
+
+    Raises
+    ------
+    ModelError
+        One line naming ``path``: no such file, a directory, not decodable
+        text (naming the first bad byte and its position), or any other OSError
+        of the read (its reason).
     """
     path = Path(path)
     try:

@@ -2,12 +2,37 @@
 
 import io
 import sys
+from typing import TYPE_CHECKING
 
 from .atomic import check_output_path, write_text
 
+if TYPE_CHECKING:
+    from collections.abc import Iterable, Iterator
+    from pathlib import Path
+    from typing import TextIO
 
-def write_csv(path, rows):
-    """Write ``rows`` (lists of cells) as CSV to ``path`` atomically."""
+
+def write_csv(path: "str | Path", rows: "Iterable[Iterable[object]]") -> "Path":
+    """Write ``rows`` as CSV to ``path`` atomically.
+
+    Parameters
+    ----------
+    path : str or Path
+        The CSV file to write.
+    rows : iterable of iterables
+        One iterable of cells a row, header rows included (cells as
+        :func:`csv.writer` writes them: numbers by ``str``, None empty).
+
+    Returns
+    -------
+    Path
+        ``path``.
+
+    Raises
+    ------
+    OutputError
+        ``path`` cannot be written (see :func:`~windsolve.io.atomic.atomic_write`).
+    """
     import csv
     buffer = io.StringIO(newline="")
     w = csv.writer(buffer)
@@ -16,7 +41,7 @@ def write_csv(path, rows):
     return write_text(path, buffer.getvalue())
 
 
-def table_rows(path):
+def table_rows(path: "str | Path") -> "tuple[list[str], Iterator[list]]":
     """The header and the rows of the /table of a sweep or family file, as CSV cells.
 
     Parameters
@@ -67,7 +92,8 @@ def table_rows(path):
     return header, rows
 
 
-def export_table_csv(path, target, stream=None):
+def export_table_csv(path: "str | Path", target: "str | Path",
+                     stream: "TextIO | None" = None) -> "Path | None":
     """Write the /table of a sweep or family file as CSV (units in the header).
 
     Parameters

@@ -4,6 +4,7 @@ units and values when it is read."""
 import datetime
 import io
 from pathlib import Path
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -12,14 +13,41 @@ from ..core.constants import C_LIGHT, SIGMA_SB
 from ..errors import OutputError
 from .atomic import write_bytes
 
+if TYPE_CHECKING:
+    from collections.abc import Callable, Iterable
 
-def write_hdf5(path, fill):
-    """Build an HDF5 file in memory with ``fill(f)`` (an open h5py.File), then
-    write its bytes to ``path`` atomically.
+    import h5py
+    from astropy.units import UnitBase
+    from numpy.typing import ArrayLike
+
+
+def write_hdf5(path: str | Path, fill: "Callable[[h5py.File], object]") -> Path:
+    """Build an HDF5 file in memory with ``fill(f)``, then write its bytes to ``path``
+    atomically.
 
     The HDF5 library never writes to the disk itself: on a full disk it can
     crash the interpreter (a segmentation fault when a write fails) instead of
     raising.
+
+    Parameters
+    ----------
+    path : str or Path
+        The HDF5 file to write.
+    fill : callable
+        Called once with an h5py.File open for writing on an in-memory buffer;
+        creates the file's groups, datasets and attributes.  Its return value
+        is ignored.
+
+    Returns
+    -------
+    Path
+        ``path``.
+
+    Raises
+    ------
+    OutputError
+        ``path`` cannot be written (see :func:`~windsolve.io.atomic.atomic_write`).
+        An error raised by ``fill`` propagates unchanged, and nothing is written.
     """
     import h5py
     buffer = io.BytesIO()
@@ -28,8 +56,26 @@ def write_hdf5(path, fill):
     return write_bytes(path, buffer.getbuffer())
 
 
-def open_hdf5(path):
-    """An open h5py.File for reading, or a one-line OutputError."""
+def open_hdf5(path: str | Path) -> "h5py.File":
+    """Open an HDF5 file for reading, or raise a one-line OutputError.
+
+    Parameters
+    ----------
+    path : str or Path
+        The file to open.
+
+    Returns
+    -------
+    h5py.File
+        Open read-only; the caller closes it (it is a context manager).
+
+    Raises
+    ------
+    OutputError
+        One line naming ``path`` and a fix: no such file, a directory,
+        permission denied, a truncated file, a file locked by a writer, or
+        not an HDF5 file (or a damaged one).
+    """
     import h5py
 
     path = Path(path)
@@ -63,8 +109,31 @@ KINDS = {"result": "a result file (windsolve run -o)",
          "sweep": "a sweep file (windsolve sweep -o)"}
 
 
-def file_kind(f, path):
-    """"result", "family" or "sweep" for an open windsolve file; OutputError otherwise."""
+def file_kind(f: "h5py.File", path: str | Path) -> str:
+    """The kind of an open windsolve file, told by its attributes and groups.
+
+    A ``sweep_toml`` attribute, or an ``axes`` attribute with a /table, makes a
+    sweep file; a ``family_scan`` attribute a family file; a /summary or a
+    /profile a result file.
+
+    Parameters
+    ----------
+    f : h5py.File
+        The open file.
+    path : str or Path
+        Names the file in the message.
+
+    Returns
+    -------
+    str
+        ``"result"``, ``"family"`` or ``"sweep"`` (the keys of :data:`KINDS`).
+
+    Raises
+    ------
+    OutputError
+        The file is none of the three (the message lists up to three of its
+        top-level names, or says it is empty).
+    """
     if "sweep_toml" in f.attrs or ("axes" in f.attrs and "table" in f):
         return "sweep"
     if "family_scan" in f.attrs:
@@ -76,14 +145,50 @@ def file_kind(f, path):
                       f"file has /summary and /profile, a family or sweep file /table)")
 
 
-def hdf5_kind(path):
-    """The kind of the windsolve file at ``path`` (see :func:`file_kind`)."""
+def hdf5_kind(path: str | Path) -> str:
+    """The kind of the windsolve file at ``path`` (see :func:`file_kind`).
+
+    Parameters
+    ----------
+    path : str or Path
+        An HDF5 file; opened for reading and closed again.
+
+    Returns
+    -------
+    str
+        ``"result"``, ``"family"`` or ``"sweep"``.
+
+    Raises
+    ------
+    OutputError
+        The file cannot be opened (see :func:`open_hdf5`) or is no windsolve
+        file (see :func:`file_kind`).
+    """
     with open_hdf5(path) as f:
         return file_kind(f, path)
 
 
-def require_kind(f, path, kind, command_hint=""):
-    """OutputError unless ``f`` is a windsolve file of ``kind``."""
+def require_kind(f: "h5py.File", path: str | Path, kind: str,
+                 command_hint: str = "") -> None:
+    """Check that the open file ``f`` is a windsolve file of ``kind``.
+
+    Parameters
+    ----------
+    f : h5py.File
+        The open file.
+    path : str or Path
+        Names the file in the message.
+    kind : str
+        The kind required: ``"result"``, ``"family"`` or ``"sweep"``.
+    command_hint : str, optional
+        Appended to the message (e.g. which command reads the kind found).
+
+    Raises
+    ------
+    OutputError
+        ``f`` is a file of another kind ("PATH is a sweep file ..., not a
+        result file ..."), or no windsolve file (see :func:`file_kind`).
+    """
     found = file_kind(f, path)
     if found != kind:
         raise OutputError(f"{path} is {KINDS[found]}, not {KINDS[kind]}{command_hint}")
@@ -101,8 +206,29 @@ def _member(g, name, path, where, what):
                           f"link); the file is damaged") from None
 
 
-def group(f, name, path):
-    """The HDF5 group ``name`` of ``f``; OutputError if absent or a dataset."""
+def group(f: "h5py.Group", name: str, path: str | Path) -> "h5py.Group":
+    """The HDF5 group ``name`` of ``f``, checked to be a group.
+
+    Parameters
+    ----------
+    f : h5py.Group
+        The open file (or a group of it).
+    name : str
+        The group's name in ``f``.
+    path : str or Path
+        Names the file in the message.
+
+    Returns
+    -------
+    h5py.Group
+        ``f[name]``.
+
+    Raises
+    ------
+    OutputError
+        ``name`` is absent, a link to nothing (a broken soft or external
+        link), or a dataset.
+    """
     import h5py
     g = _member(f, name, path, f"/{name}", "group")
     if not isinstance(g, h5py.Group):
@@ -110,11 +236,36 @@ def group(f, name, path):
     return g
 
 
-def column(g, name, path, length=None, text=False):
-    """A 1-D dataset ``name`` of group ``g`` as an array (numbers, or str when ``text``).
+def column(g: "h5py.Group", name: str, path: str | Path, length: int | None = None,
+           text: bool = False) -> np.ndarray:
+    """A 1-D dataset ``name`` of group ``g`` read as an array, checked on the way.
 
-    OutputError naming the file and dataset if it is missing, a group, not
-    one-dimensional, of the wrong type, or not ``length`` long.
+    Parameters
+    ----------
+    g : h5py.Group
+        The group holding the dataset.
+    name : str
+        The dataset's name in ``g``.
+    path : str or Path
+        Names the file in the message.
+    length : int, optional
+        The number of values the dataset must have (that of the other
+        columns); not checked when None.
+    text : bool, optional
+        Read text (str) instead of numbers.
+
+    Returns
+    -------
+    numpy.ndarray
+        float64 values (integers and booleans converted) in the units the file
+        stores them in, or str values when ``text``.
+
+    Raises
+    ------
+    OutputError
+        Naming the file and the dataset: it is missing, a broken link, a
+        group, not one-dimensional, of the wrong type (text where numbers are
+        wanted or the reverse), or not ``length`` long.
     """
     import h5py
     where = f"{g.name.rstrip('/')}/{name}"
@@ -139,9 +290,34 @@ def column(g, name, path, length=None, text=False):
     return data
 
 
-def parse_unit(text, path, where, expected=None):
-    """An astropy unit from a ``units`` attribute; OutputError if it is not a unit of the
-    dimension of ``expected``."""
+def parse_unit(text: object, path: str | Path, where: str,
+               expected: "UnitBase | str | None" = None) -> "UnitBase":
+    """The astropy unit a ``units`` attribute names, checked against ``expected``.
+
+    Parameters
+    ----------
+    text : str, bytes or numpy scalar
+        The attribute's value; an empty (or blank) text is dimensionless.
+    path : str or Path
+        Names the file in the message.
+    where : str
+        Names the dataset or attribute in the message (e.g. ``"/profile/radius"``).
+    expected : astropy.units.UnitBase or str, optional
+        A unit of the physical type required (e.g. cm / s for a speed); any
+        unit when None.
+
+    Returns
+    -------
+    astropy.units.UnitBase
+        The unit, read strictly (an unknown unit name is an error).
+
+    Raises
+    ------
+    OutputError
+        The value is not text, not a unit astropy reads, or not of the
+        physical type of ``expected`` (the message names that type and gives
+        ``expected`` as an example).
+    """
     import astropy.units as u
     text = plain(text)
     if isinstance(text, bytes):
@@ -161,8 +337,34 @@ def parse_unit(text, path, where, expected=None):
     return unit
 
 
-def dataset_unit(g, name, path, expected=None):
-    """The unit of dataset ``g[name]`` (its ``units`` attribute; ``expected`` without one)."""
+def dataset_unit(g: "h5py.Group", name: str, path: str | Path,
+                 expected: "UnitBase | None" = None) -> "UnitBase":
+    """The unit of the dataset ``g[name]``, from its ``units`` attribute.
+
+    Parameters
+    ----------
+    g : h5py.Group
+        The group holding the dataset (which must exist; see :func:`column`).
+    name : str
+        The dataset's name in ``g``.
+    path : str or Path
+        Names the file in the message.
+    expected : astropy.units.UnitBase, optional
+        The unit of the physical type required; also the unit assumed when
+        the dataset has no ``units`` attribute.
+
+    Returns
+    -------
+    astropy.units.UnitBase
+        The unit the attribute names; without an attribute, ``expected``, or
+        dimensionless when ``expected`` is None.
+
+    Raises
+    ------
+    OutputError
+        The attribute is not a unit of the physical type of ``expected``
+        (see :func:`parse_unit`).
+    """
     d = g[name]
     where = f"{g.name.rstrip('/')}/{name}"
     if "units" not in d.attrs:
@@ -173,11 +375,41 @@ def dataset_unit(g, name, path, expected=None):
     return parse_unit(d.attrs["units"], path, where, expected)
 
 
-def check_values(values, path, where, unit, positive=False, allow_nan=False, cgs=None,
-                 nonnegative=False):
-    """OutputError unless ``values`` (in ``unit``) are finite (or NaN where allowed), > 0
-    when ``positive``, slower than light when they are speeds, and still finite in the
-    unit ``cgs`` (the unit the code computes in) when one is given."""
+def check_values(values: "ArrayLike", path: str | Path, where: str, unit: "UnitBase",
+                 positive: bool = False, allow_nan: bool = False,
+                 cgs: "UnitBase | None" = None, nonnegative: bool = False) -> None:
+    """Check the numbers read from a dataset or attribute before they are used.
+
+    Parameters
+    ----------
+    values : array_like
+        The numbers, in ``unit`` (one attribute's value, or a dataset's).
+    path : str or Path
+        Names the file in the message.
+    where : str
+        Names the dataset or attribute in the message.
+    unit : astropy.units.UnitBase
+        The unit of ``values`` (from the file's ``units`` attribute).  When it
+        is a speed unit, every value must be slower than light.
+    positive : bool, optional
+        Every finite value must be > 0.
+    allow_nan : bool, optional
+        NaN is allowed (e.g. a quantity not defined for a failed model);
+        infinities never are.
+    cgs : astropy.units.UnitBase, optional
+        The unit the code computes in; the values converted to it must still
+        be finite.
+    nonnegative : bool, optional
+        Every finite value must be >= 0.
+
+    Raises
+    ------
+    OutputError
+        Naming the first bad value (and its index): it overflows float64 when
+        converted to ``cgs``; it is NaN (unless ``allow_nan``) or infinite; it
+        is <= 0 when ``positive`` or < 0 when ``nonnegative``; or a speed
+        reaches the speed of light (a wrong units attribute, most likely).
+    """
     import astropy.units as u
     values = np.asarray(values, dtype=np.float64)  # a 0-d array for one attribute
     if cgs is not None and unit != cgs:
@@ -216,16 +448,56 @@ def check_values(values, path, where, unit, positive=False, allow_nan=False, cgs
                               f"of light; is its units attribute ({unit.to_string()}) right?")
 
 
-def plain(value):
-    """A numpy scalar (or one-element array, as some programs write attributes) as the
-    Python value it holds."""
+def plain(value: Any) -> Any:
+    """The Python value a numpy scalar (or one-element array) holds.
+
+    Some programs write attributes as one-element arrays; h5py reads scalars
+    as numpy scalars.
+
+    Parameters
+    ----------
+    value : object
+        An attribute's value as h5py reads it.
+
+    Returns
+    -------
+    object
+        The Python scalar (int, float, str, bytes ...) for a numpy scalar or a
+        one-element array; ``value`` itself otherwise.
+    """
     if isinstance(value, np.ndarray) and value.size == 1:
         value = value.reshape(()).item()
     return value.item() if isinstance(value, np.generic) else value
 
 
-def text_attr(attrs, key, path, where, default=None):
-    """A text attribute (str), or ``default`` when absent; OutputError if not text."""
+def text_attr(attrs: "h5py.AttributeManager", key: str, path: str | Path, where: str,
+              default: str | None = None) -> str:
+    """A text attribute, checked to be text.
+
+    Parameters
+    ----------
+    attrs : h5py.AttributeManager
+        The attributes of a file, group or dataset (``.attrs``).
+    key : str
+        The attribute's name.
+    path : str or Path
+        Names the file in the message.
+    where : str
+        Names the object the attributes belong to in the message.
+    default : str, optional
+        Returned when the attribute is absent; when None, an absent attribute
+        is an error.
+
+    Returns
+    -------
+    str
+        The attribute's text (bytes decoded, undecodable bytes replaced).
+
+    Raises
+    ------
+    OutputError
+        The attribute is absent and there is no ``default``, or it is not text.
+    """
     if key not in attrs:
         if default is None:
             raise OutputError(f"{path}: {where} has no {key} attribute")
@@ -239,38 +511,116 @@ def text_attr(attrs, key, path, where, default=None):
     return value
 
 
-def stamp(f, model_kind):
-    """Root attributes every windsolve file carries: version, creation time, model."""
+def stamp(f: "h5py.File", model_kind: str) -> None:
+    """Write the root attributes every windsolve file carries.
+
+    Parameters
+    ----------
+    f : h5py.File
+        The file being written.
+    model_kind : str
+        The wind model's kind (e.g. ``"isothermal"``), stored as ``model``.
+
+    Notes
+    -----
+    Sets ``windsolve_version``, ``created`` (the UTC time, ISO 8601 to the
+    second) and ``model``.
+    """
     f.attrs["windsolve_version"] = __version__
     f.attrs["created"] = datetime.datetime.now(datetime.UTC).isoformat(timespec="seconds")
     f.attrs["model"] = model_kind
 
 
-def dataset(group, name, data, units):
-    """Create a dataset with its ``units`` attribute (docs/physics.md, section 9)."""
+def dataset(group: "h5py.Group", name: str, data: "ArrayLike", units: str) -> "h5py.Dataset":
+    """Create a dataset with its ``units`` attribute (docs/physics.md, section 9).
+
+    Parameters
+    ----------
+    group : h5py.Group
+        Where to create it.
+    name : str
+        The dataset's name.
+    data : array_like
+        Its values, in ``units``.
+    units : str
+        An astropy unit name (``"cm / s"``), or ``"none"`` for text.
+
+    Returns
+    -------
+    h5py.Dataset
+        The new dataset.
+    """
     d = group.create_dataset(name, data=data)
     d.attrs["units"] = units
     return d
 
 
-def strings(group, name, values):
-    """A dataset of text (status, message ...), units "none"."""
+def strings(group: "h5py.Group", name: str, values: "Iterable[str]") -> "h5py.Dataset":
+    """Create a dataset of text (status, message ...), units ``"none"``.
+
+    Parameters
+    ----------
+    group : h5py.Group
+        Where to create it.
+    name : str
+        The dataset's name.
+    values : iterable of str
+        One text a row, stored as variable-length UTF-8 strings.
+
+    Returns
+    -------
+    h5py.Dataset
+        The new dataset.
+    """
     import h5py
     return dataset(group, name, np.array(list(values), dtype=h5py.string_dtype()), "none")
 
 
-def read_strings(data):
-    """Decode an h5py text dataset's values to str."""
+def read_strings(data: "Iterable[bytes | str]") -> np.ndarray:
+    """Decode the values of an h5py text dataset to str.
+
+    Parameters
+    ----------
+    data : iterable of bytes or str
+        The values as h5py reads them (bytes for variable-length strings).
+
+    Returns
+    -------
+    numpy.ndarray
+        The values as str (bytes decoded as UTF-8, anything else by ``str``).
+    """
     return np.array([x.decode() if isinstance(x, bytes) else str(x) for x in data])
 
 
-def check_photosphere(path, where, L, R, T, rows=None):
-    """OutputError unless L = 4 pi R^2 sigma T^4 (cgs arrays; NaN entries and rows outside
-    the boolean ``rows`` are skipped).
+def check_photosphere(path: str | Path, where: str, L: "ArrayLike", R: "ArrayLike",
+                      T: "ArrayLike", rows: "ArrayLike | None" = None) -> None:
+    """Check that L = 4 pi R^2 sigma T^4 holds, to :data:`CONSISTENCY_RTOL`.
 
     windsolve derives T_eff from L_ph and R_ph, so its files agree to roundoff; a
     mismatch means a units attribute of one of the three that does not describe its
     numbers (e.g. a radius in cm labelled Rsun), which the dimension check cannot see.
+
+    Parameters
+    ----------
+    path : str or Path
+        Names the file in the message.
+    where : str
+        Names the group the three come from in the message.
+    L : array_like
+        Photosphere luminosity [erg/s].
+    R : array_like
+        Photosphere radius [cm].
+    T : array_like
+        Photosphere (effective) temperature [K].
+    rows : array_like of bool, optional
+        Which entries to check (e.g. the converged rows of a table); all when None.
+        Entries where any of the three is not finite are never checked.
+
+    Raises
+    ------
+    OutputError
+        At the first entry checked where L / (4 pi R^2 sigma T^4) differs from 1
+        by more than :data:`CONSISTENCY_RTOL`, giving the ratio and the index.
     """
     L, R, T = (np.atleast_1d(np.asarray(x, dtype=np.float64)) for x in (L, R, T))
     with np.errstate(over="ignore", invalid="ignore", divide="ignore"):

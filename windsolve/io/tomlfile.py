@@ -3,11 +3,15 @@ stored with every result (strings, numbers, booleans and one level of tables).""
 
 import math
 import tomllib
+from typing import TYPE_CHECKING
 
 from ..errors import ModelError
 
+if TYPE_CHECKING:
+    from pathlib import Path
 
-def parse_toml(text, path):
+
+def parse_toml(text: str, path: "str | Path") -> dict:
     """The data of TOML ``text`` read from ``path``, or a one-line ModelError.
 
     Parameters
