@@ -70,3 +70,29 @@ def test_without_the_lock_specialisations_are_lost(tmp_path):
     """The same race without the lock loses or swaps some (numba 0.68; timing-dependent,
     so not part of the suite)."""
     assert race(tmp_path, lock=False) > 0
+
+
+def test_a_stopped_lock_holder_does_not_hang_the_others(tmp_path, monkeypatch):
+    """A process that holds the lock and is stopped (Ctrl-Z) costs the others the cache
+    (a miss, no save), never a hang: after WAIT_S they go on without it."""
+    import fcntl
+
+    from numba.core.caching import IndexDataCacheFile
+
+    import windsolve.core._cachelock as lock
+    assert lock.installed()
+    cache = IndexDataCacheFile(str(tmp_path), "kernel-1.py311", ("stamp", 1))
+    cache.save(("spec", 0), ("code", 0))
+    monkeypatch.setattr(lock, "WAIT_S", 0.2)
+    holder = os.open(cache._index_path + ".lock", os.O_RDWR)
+    try:
+        # another open file description: flock sees a second holder, as another process would be
+        fcntl.flock(holder, fcntl.LOCK_EX)
+        t0 = time.monotonic()
+        assert cache.load(("spec", 0)) is None  # a miss, not a wait
+        cache.save(("spec", 1), ("code", 1))  # skipped
+        assert time.monotonic() - t0 < 20.0  # bounded by WAIT_S, not a hang (not a speed goal)
+    finally:
+        os.close(holder)
+    assert cache.load(("spec", 0)) == ("code", 0)
+    assert cache.load(("spec", 1)) is None

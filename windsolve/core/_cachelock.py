@@ -17,7 +17,9 @@ two-worker sweep on a fresh checkout).
 :func:`install` wraps ``save`` and ``load`` in an advisory lock on the index
 (``NAME.nbi.lock``, ``fcntl.flock``: exclusive to save, shared to load), so a
 save's read-pick-write of the index is atomic among processes, and a load
-never sees a new index with an old data file.  The cost is one flock per
+never sees a new index with an old data file.  A process that cannot have the
+lock within :data:`WAIT_S` (its holder stopped) neither loads nor saves: it
+compiles in memory and goes on.  The cost is one flock per
 cached function loaded or saved (microseconds, against milliseconds to
 unpickle the code).  Where ``fcntl`` is missing (Windows) nothing is wrapped.
 """
@@ -25,6 +27,7 @@ unpickle the code).  Where ``fcntl`` is missing (Windows) nothing is wrapped.
 import contextlib
 import functools
 import os
+import time
 
 try:
     import fcntl
@@ -34,16 +37,34 @@ except ImportError:  # pragma: no cover - Windows
 _MARK = "_windsolve_cachelock"
 
 
+# How long a process waits for the lock before it goes on without the cache: a holder
+# that is stopped (Ctrl-Z, SIGSTOP) must not hang every other windsolve process.
+WAIT_S = 30.0
+_POLL_S = 0.005
+
+
 @contextlib.contextmanager
 def _locked(index_path, mode):
+    """Yield True holding the lock on ``index_path``; False if it could not be had within
+    WAIT_S; None if the lock file cannot be made (a read-only cache directory, which no
+    process saves to: reading it unlocked is safe)."""
     try:
         fd = os.open(index_path + ".lock", os.O_RDWR | os.O_CREAT, 0o666)
-    except OSError:  # a read-only cache directory: numba will not save there either
-        yield
+    except OSError:
+        yield None
         return
     try:
-        fcntl.flock(fd, mode)
-        yield
+        deadline = time.monotonic() + WAIT_S
+        while True:
+            try:
+                fcntl.flock(fd, mode | fcntl.LOCK_NB)
+                break
+            except BlockingIOError:
+                if time.monotonic() > deadline:
+                    yield False
+                    return
+                time.sleep(_POLL_S)
+        yield True
     finally:
         os.close(fd)  # closing releases the lock
 
@@ -51,7 +72,9 @@ def _locked(index_path, mode):
 def _wrap(method, mode):
     @functools.wraps(method)
     def wrapper(self, *args, **kwargs):
-        with _locked(self._index_path, mode):
+        with _locked(self._index_path, mode) as held:
+            if held is False:  # no lock in time: no save (the code runs uncached), a miss
+                return None
             return method(self, *args, **kwargs)
 
     setattr(wrapper, _MARK, True)
