@@ -354,56 +354,22 @@ def make_integrator(rhs, monitor):
         for j in range(n):
             K[N_STAGES, j] = f_new[j]
 
-    # The work space is (K, F, y_new, f_new, y_stage, f_stage).
     @njit(cache=True, error_model="numpy")
     def begin(x, y0, P, O):
-        """(y, f, work): a copy of the state, its derivative and the work space."""
+        """(y, f, y_new, f_new, K, F, y_stage, f_stage): a copy of the state,
+        its derivative, and the buffers of the steps."""
         n = y0.shape[0]
         y = y0.copy()
         f = np.empty(n)
         rhs(x, y, P, O, f)
-        work = (np.empty((N_STAGES_EXTENDED, n)), np.empty((INTERPOLATOR_POWER, n)),
-                np.empty(n), np.empty(n), np.empty(n), np.empty(n))
-        return y, f, work
+        return (y, f, np.empty(n), np.empty(n), np.empty((N_STAGES_EXTENDED, n)),
+                np.empty((INTERPOLATOR_POWER, n)), np.empty(n), np.empty(n))
 
-    @njit(cache=True, error_model="numpy")
-    def step(x, y, f, h, P, O, work):
-        """One trial step: (y_new, f_new), the stages kept in ``work``."""
-        K, F, y_new, f_new, y_stage, f_stage = work
-        dop853_step(x, y, f, h, P, O, K, y_new, f_new, y_stage, f_stage)
-        return y_new, f_new
-
-    @njit(cache=True, error_model="numpy")
-    def norm(work, h, y, y_new, rtol, atol):
-        """The trial step's error norm (:func:`error_norm`)."""
-        return error_norm(work[0], h, y, y_new, rtol, atol)
-
-    @njit(cache=True, error_model="numpy")
-    def dense(x, y, y_new, f_new, h, P, O, work):
-        """The accepted step's interpolant into ``work``."""
-        K, F, _, _, y_stage, f_stage = work
-        dense_coefficients(x, y, y_new, f_new, h, P, O, K, F, y_stage, f_stage)
-
-    @njit(cache=True, error_model="numpy")
-    def store_dense(work, y, t, out_y, row):
-        """out_y[row] = the interpolated state at t = (x - x_old) / h."""
-        interpolate(work[1], y, t, out_y, row)
-
-    @njit(cache=True, error_model="numpy")
-    def store(out_y, row, y):
-        """out_y[row] = y."""
-        for j in range(y.shape[0]):
-            out_y[row, j] = y[j]
-
-    @njit(cache=True, error_model="numpy")
-    def accept(y, f, y_new, f_new):
-        """Copy the accepted step into the state: (y, f)."""
-        for j in range(y.shape[0]):
-            y[j] = y_new[j]
-            f[j] = f_new[j]
-        return y, f
-
-    return _make_driver(monitor, begin, step, norm, dense, store_dense, store, accept)
+    # The driver calls the steps themselves, not wrappers around them: a
+    # compiled wrapper that passes arrays on counts their references on every
+    # call, which cost Model B's legs 6-12 % (benchmarks/bench_diffusion.py).
+    return _make_driver(monitor, True, begin, dop853_step, error_norm, dense_coefficients,
+                        interpolate)
 
 
 def make_scalar_integrator(rhs, monitor):
@@ -431,17 +397,18 @@ def make_scalar_integrator(rhs, monitor):
         ``integrate``, as :func:`make_integrator` gives it.
     """
 
-    # The work space is (K, F): the stages and the interpolant's coefficients.
     @njit(cache=True, error_model="numpy")
     def begin(x, y0, P, O):
-        """(y, f, work): the state, its derivative and the work space (K, F)."""
-        work = (np.empty(N_STAGES_EXTENDED), np.empty(INTERPOLATOR_POWER))
-        return y0, rhs(x, y0, P, O), work
+        """(y, f, y_new, f_new, K, F, y_stage, f_stage): the state, its
+        derivative and the buffers of the steps (y_new, f_new are returned by
+        ``step`` and y_stage, f_stage unused for a float state)."""
+        f = rhs(x, y0, P, O)
+        return (y0, f, y0, f, np.empty(N_STAGES_EXTENDED), np.empty(INTERPOLATOR_POWER),
+                0.0, 0.0)
 
     @njit(cache=True, error_model="numpy")
-    def step(x, y, f, h, P, O, work):
+    def step(x, y, f, h, P, O, K, y_new, f_new, y_stage, f_stage):
         """One DOP853 step from (x, y) with derivative f: (y_new, f_new); fills K."""
-        K = work[0]
         K[0] = f
         for s in range(1, N_STAGES):
             acc = 0.0
@@ -457,14 +424,8 @@ def make_scalar_integrator(rhs, monitor):
         return y_new, f_new
 
     @njit(cache=True, error_model="numpy")
-    def norm(work, h, y, y_new, rtol, atol):
-        """The trial step's error norm (:func:`error_norm_scalar`)."""
-        return error_norm_scalar(work[0], h, y, y_new, rtol, atol)
-
-    @njit(cache=True, error_model="numpy")
-    def dense(x, y, y_new, f_new, h, P, O, work):
+    def dense(x, y, y_new, f_new, h, P, O, K, F, y_stage, f_stage):
         """The step's interpolant into F (as ``dense_coefficients``, one component)."""
-        K, F = work
         for e in range(N_STAGES_EXTENDED - N_STAGES - 1):
             s = N_STAGES + 1 + e
             acc = 0.0
@@ -482,33 +443,30 @@ def make_scalar_integrator(rhs, monitor):
             F[3 + i] = h * acc
 
     @njit(cache=True, error_model="numpy")
-    def store_dense(work, y, t, out_y, row):
+    def store_dense(F, y, t, out_y, row):
         """out_y[row] = the interpolated state at t = (x - x_old) / h."""
-        out_y[row] = interpolate_scalar(work[1], y, t)
+        out_y[row] = interpolate_scalar(F, y, t)
 
-    @njit(cache=True, error_model="numpy")
-    def store(out_y, row, y):
-        """out_y[row] = y."""
-        out_y[row] = y
-
-    @njit(cache=True, error_model="numpy")
-    def accept(y, f, y_new, f_new):
-        """The accepted step becomes the state: (y_new, f_new)."""
-        return y_new, f_new
-
-    return _make_driver(monitor, begin, step, norm, dense, store_dense, store, accept)
+    return _make_driver(monitor, False, begin, step, error_norm_scalar, dense, store_dense)
 
 
-def _make_driver(monitor, begin, step, norm, dense, store_dense, store, accept):
+def _make_driver(monitor, in_place, begin, step, norm, dense, store_dense):
     """The one DOP853 driver: the loop, step-size control and output, compiled
     with the state's operations (array or float) chosen by the caller.
 
-    ``begin(x0, y0, P, O) -> (y, f, work)`` makes the state, its derivative
-    and the work space; ``step`` one trial step -> ``(y_new, f_new)``;
-    ``norm`` its error norm; ``dense`` the step's interpolant into the work
-    space; ``store_dense`` / ``store`` write an interpolated / accepted state
-    into ``out_y[row]``; ``accept(y, f, y_new, f_new) -> (y, f)`` moves the
-    accepted step into the state.
+    ``begin(x0, y0, P, O) -> (y, f, y_new, f_new, K, F, y_stage, f_stage)``
+    makes the state, its derivative and the steps' buffers;
+    ``step(x, y, f, h, P, O, K, y_new, f_new, y_stage, f_stage)`` makes one
+    trial step; ``norm(K, h, y, y_new, rtol, atol)`` is its error norm;
+    ``dense(x, y, y_new, f_new, h, P, O, K, F, y_stage, f_stage)`` puts the
+    step's interpolant into F; ``store_dense(F, y, t, out_y, row)`` writes
+    the interpolated state into ``out_y[row]``.
+
+    ``in_place`` (a compile-time constant) says how a state moves: True, an
+    array state -- ``step`` writes into ``y_new`` and ``f_new`` and the
+    accepted step is copied into ``y`` and ``f``; False, a float state --
+    ``step`` returns ``(y_new, f_new)`` and they become ``y`` and ``f``.  No
+    array reference is rebound inside the loop, so numba counts none there.
     """
 
     @njit(cache=True, error_model="numpy")
@@ -552,13 +510,13 @@ def _make_driver(monitor, begin, step, norm, dense, store_dense, store, accept):
         """
         direction = 1.0 if x_end >= x0 else -1.0
         x = x0
-        y, f, work = begin(x, y0, P, O)
+        y, f, y_new, f_new, K, F, y_stage, f_stage = begin(x, y0, P, O)
         nfev = 1
         capacity = out_x.shape[0]
         n_out = 0
         if capacity > 0:
             out_x[0] = x
-            store(out_y, 0, y)
+            out_y[0] = y
             n_out = 1
         with_dense = dx_out > 0.0
         k_next = 1  # index of the next dense output point x0 + k dx_out
@@ -576,27 +534,36 @@ def _make_driver(monitor, begin, step, norm, dense, store_dense, store, accept):
                     return STEP_TOO_SMALL, x, y, n_out, nfev
                 x_new, h = trial_point(x, h_abs, direction, x_end)
                 h_abs = abs(h)
-                y_new, f_new = step(x, y, f, h, P, O, work)
+                if in_place:
+                    step(x, y, f, h, P, O, K, y_new, f_new, y_stage, f_stage)
+                else:
+                    y_new, f_new = step(x, y, f, h, P, O, K, y_new, f_new, y_stage, f_stage)
                 nfev += N_STAGES
-                en = norm(work, h, y, y_new, rtol, atol)
+                en = norm(K, h, y, y_new, rtol, atol)
                 h_abs, accepted, rejected = next_step(en, h_abs, rejected)
             if with_dense and n_out < capacity:
                 x_k = x0 + direction * k_next * dx_out
                 if direction * (x_new - x_k) > 0.0:
-                    dense(x, y, y_new, f_new, h, P, O, work)
+                    dense(x, y, y_new, f_new, h, P, O, K, F, y_stage, f_stage)
                     nfev += N_STAGES_EXTENDED - N_STAGES - 1
                 while direction * (x_new - x_k) > 0.0 and n_out < capacity:
-                    store_dense(work, y, (x_k - x) / h, out_y, n_out)
+                    store_dense(F, y, (x_k - x) / h, out_y, n_out)
                     out_x[n_out] = x_k
                     n_out += 1
                     k_next += 1
                     x_k = x0 + direction * k_next * dx_out
             x = x_new
-            y, f = accept(y, f, y_new, f_new)
+            if in_place:
+                for j in range(y.shape[0]):
+                    y[j] = y_new[j]
+                    f[j] = f_new[j]
+            else:
+                y = y_new
+                f = f_new
             code = monitor(x, y, P, O)
             if n_out < capacity:
                 out_x[n_out] = x
-                store(out_y, n_out, y)
+                out_y[n_out] = y
                 n_out += 1
             if code != 0:
                 return code, x, y, n_out, nfev
