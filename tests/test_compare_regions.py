@@ -61,7 +61,6 @@ def test_an_undefined_prediction_excludes_the_measurement_not_the_model():
 
 
 def test_rows_missing_a_used_measurement_are_counted_not_ranked():
-    n = 5
     table = {"converged": np.array([True, True, True, True, False]),
              "terminal_velocity": np.array([4e7, 5e7, 6e7, 7e7, np.nan]),
              "fwhm": np.array([4e7, np.nan, 6e7, 7e7, np.nan])}
