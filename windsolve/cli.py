@@ -437,7 +437,8 @@ def cmd_compare(args: argparse.Namespace) -> int:
 
     FILE is any windsolve result, family or sweep file (anything else is
     refused by name).  Every comparison first prints the line settings it
-    used.  For a result file: prints each observed quantity with its
+    used.  For a result file (one object: ``--object`` when the CSV holds
+    several): prints each observed quantity with its
     uncertainty, the model's value [km/s] and the residual [sigma], and chi^2
     over the measurements the model predicts; a measurement it cannot predict
     is listed as excluded, with its reason.  For a sweep or family file, per
@@ -471,8 +472,7 @@ def cmd_compare(args: argparse.Namespace) -> int:
         Nothing is written.
     """
     from .files import read_any_file
-    from .observe import read_observed_objects
-    objects = read_observed_objects(args.observed, args.object)
+    from .observe import read_observed, read_observed_objects
     for target in (args.output, args.plot):
         if target is not None:
             _check_output(target, ".csv")
@@ -480,9 +480,10 @@ def cmd_compare(args: argparse.Namespace) -> int:
             Path(args.output).resolve() == Path(args.plot).resolve():
         raise WindsolveError(f"-o and --plot are both {args.output}: give two files")
     kind = read_any_file(args.file)  # one line if it is no windsolve file
-    if kind == "result":
-        return _compare_result(args, objects)
-    return _compare_grid(args, objects)
+    if kind == "result":  # one model, one object (--object when the file holds several)
+        observations = read_observed(args.observed, args.object)
+        return _compare_result(args, {observations[0].object: observations})
+    return _compare_grid(args, read_observed_objects(args.observed, args.object))
 
 
 def _compare_result(args, objects):
@@ -493,11 +494,13 @@ def _compare_result(args, objects):
     result = WindResult.from_hdf5(args.file)
     if not result.converged:
         raise WindsolveError(f"{args.file}: the model did not converge ({result.message})")
+    v_inf = result.summary.get("terminal_velocity")
+    if (any(o.quantity == "terminal_velocity" for obs in objects.values() for o in obs)
+            and (v_inf is None or not np.isfinite(v_inf.value))):
+        raise WindsolveError(f"{args.file}: /summary has no terminal_velocity to compare "
+                             f"with the observed one")
     settings = _line_settings(args)
     given = _line_kwargs(args)
-    if len(objects) > 1 and (args.output is not None or args.plot is not None):
-        raise WindsolveError(f"{args.observed} holds several objects ({', '.join(objects)}); "
-                             f"choose one with --object to write -o or --plot")
     out = []
     for name, observations in objects.items():
         rows, _ = compare_result(result, observations, settings)
