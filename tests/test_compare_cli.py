@@ -60,7 +60,7 @@ def test_sweep_compare_prints_settings_counts_and_ranges(sweep_h5, tmp_path, cap
     assert "line settings (stored in the sweep file)" in out and "turbulence 10 km/s" in out
     assert out.count("chi2_min") == 2  # one answer per object
     assert "A: 10 rows: 10 converged, 0 not converged; 10 compared on 2 of 2" in out
-    assert "2 free parameters" in out and "star.luminosity 1σ:" in out
+    assert "2 free parameters" in out and "star.luminosity: 1σ" in out
     assert "Delta chi2 = 2.30, 6.18, 11.8" in out
 
 
@@ -215,7 +215,7 @@ def test_a_family_is_compared_like_a_sweep(family_h5, tmp_path, capsys):
     out_csv = tmp_path / "fam.csv"
     assert cli.main(["compare", str(family_h5), str(obs), "-o", str(out_csv)]) == 0
     out = capsys.readouterr().out
-    assert "(family)" in out and "at row 1;" in out and "photosphere_temperature 1σ" in out
+    assert "(family)" in out and "at row 1;" in out and "photosphere_temperature: 1σ" in out
     assert out_csv.read_text().splitlines()[0].startswith("row,photosphere_temperature [K]")
     obs_w = csv_file(tmp_path, "A,fwhm,-,500,50,km/s\n", name="w.csv")
     one_line_exit_2(["compare", str(family_h5), str(obs_w)], capsys, tmp_path,

@@ -401,7 +401,8 @@ def cmd_lines(args: argparse.Namespace) -> int:
             return "not defined"
         return f"{v:.1f} km/s" if abs(v) >= 10 else f"{v:.3g} km/s"
 
-    print(f"{args.file}: {'P Cygni' if args.pcygni else 'optically thin emission'} line, "
+    where = args.file if args.row is None else f"{args.file} row {args.row}"
+    print(f"{where}: {'P Cygni' if args.pcygni else 'optically thin emission'} line, "
           f"emissivity ~ rho^{settings.emissivity_power}, "
           f"{'with' if settings.occultation else 'without'} occultation")
     print(f"  FWHM  {kms(line.fwhm)}")
@@ -607,13 +608,14 @@ def _compare_grid(args, objects):
                              for k in names)
             print(f"      row {i}: chi2 = {chi2[i]:.3f}  ({text})")
         print("    confidence ranges, one parameter of interest (Delta chi2 = 1, 4, 9):")
-        for iv in confidence_intervals(c, values, units, n_params=1):
-            print(f"      {iv.text()}")
+        for line in _range_lines(confidence_intervals(c, values, units, n_params=1), names):
+            print(f"      {line}")
         if p >= 2:
             print("    joint region of two parameters (Delta chi2 = 2.30, 6.18, 11.8), "
                   "its extent:")
-            for iv in confidence_intervals(c, values, units, n_params=2):
-                print(f"      {iv.text()}")
+            for line in _range_lines(confidence_intervals(c, values, units, n_params=2),
+                                     names):
+                print(f"      {line}")
     c = next(iter(comparisons.values()))
     if args.output is not None:
         write_comparison_csv(args.output, c, [(k, units[k], values[k]) for k in names],
@@ -624,6 +626,30 @@ def _compare_grid(args, objects):
         plot_chi2(grid.table, grid.views, c.chi2, args.plot)
         print(f"wrote {args.plot}")
     return EXIT_OK
+
+
+def _range_lines(intervals, names):
+    """One line per axis: its 1, 2 and 3 sigma ranges, then what they reach."""
+    out = []
+    for key in names:
+        ivs = [iv for iv in intervals if iv.key == key]
+        if not ivs:
+            continue
+        unit = f" {ivs[0].unit}" if ivs[0].unit else ""
+        parts = ", ".join(f"{iv.sigma:g}σ {iv.low:.4g} to {iv.high:.4g}" for iv in ivs)
+        reach = {}
+        for iv in ivs:
+            edge = [w for w, e in (("lowest", iv.at_low_edge), ("highest", iv.at_high_edge))
+                    if e]
+            if edge:
+                reach.setdefault(" and ".join(edge), []).append(f"{iv.sigma:g}σ")
+        notes = [f"{', '.join(sig)} reach{'es' if len(sig) == 1 else ''} the {edge} value "
+                 f"swept: a limit there, widen the sweep" for edge, sig in reach.items()]
+        if ivs[0].points == 1:
+            notes.insert(0, "1σ narrower than the grid spacing")
+        note = f"  ({'; '.join(notes)})" if notes else ""
+        out.append(f"{key}: {parts}{unit}{note}")
+    return out
 
 
 def cmd_match(args: argparse.Namespace) -> int:
