@@ -1054,7 +1054,7 @@ def stored_settings(grid: Grid, given: dict) -> "LineSettings | None":
             differ = ", ".join(f"{k} = {grid.settings.get(k, 'default')} stored, "
                                f"{given[k]} given" for k in given
                                if LineSettings(**dict(grid.settings, **{k: given[k]})).cgs
-                               != stored.cgs or k == "emissivity_power")
+                               != stored.cgs)
             raise ModelError(f"{grid.path}: its widths were measured with other line settings "
                              f"({differ}); compare without these options, or run the sweep "
                              f"again with them in [observables]")
@@ -1105,8 +1105,21 @@ def row_model(grid: Grid, row: int) -> "WindModel":
     changes = {}
     for v in grid.views:
         x = float(grid.table[v.key][row])
-        changes[v.key] = f"{x!r} {v.cgs_unit}" if v.cgs_unit else x
+        changes[v.key] = _exact_text(x, v) if v.cgs_unit else x
     return apply_changes(model, changes)
+
+
+def _exact_text(x, view):
+    """``x`` [cgs] as model-file text in the sweep file's unit when that reads back to
+    the same float, else in the table's cgs unit (exact)."""
+    if view.unit and view.unit != view.cgs_unit:
+        shown = f"{x * view.factor!r} {view.unit}"
+        try:
+            if float(u.Quantity(shown).to_value(u.Unit(view.cgs_unit))) == x:
+                return shown
+        except (ValueError, TypeError, u.UnitsError):
+            pass
+    return f"{x!r} {view.cgs_unit}"
 
 
 def _sweep_base(grid):
