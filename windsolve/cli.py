@@ -289,6 +289,11 @@ def _line_settings(args):
 
 def _make_line_settings(args):
     from .lines import LineSettings
+    return LineSettings(**_line_option_kwargs(args))
+
+
+def _line_option_kwargs(args):
+    """The line options given on the command line, as LineSettings keywords."""
     kwargs = {}
     if getattr(args, "emissivity_power", None) is not None:
         kwargs["emissivity_power"] = args.emissivity_power
@@ -308,7 +313,7 @@ def _make_line_settings(args):
         kwargs["edge_depth"] = args.edge_depth
     if getattr(args, "line_strength", None) is not None:
         kwargs["line_strength"] = args.line_strength
-    return LineSettings(**kwargs)
+    return kwargs
 
 
 def _add_line_options(p):
@@ -369,7 +374,23 @@ def cmd_lines(args: argparse.Namespace) -> int:
             raise WindsolveError(f"-o {args.output}: give a .csv file for the profile or a "
                                  f".png/.pdf/.svg file for a plot")
         _check_output(args.output, ".csv")
-    result = WindResult.from_hdf5(args.file)
+    from .files import read_any_file
+    kind = read_any_file(args.file)  # refuses anything but a windsolve file, by name
+    if kind == "result":
+        if args.row is not None:
+            raise WindsolveError(f"--row {args.row}: {args.file} is a result file (one "
+                                 f"model); --row picks a row of a sweep or family file")
+        result = WindResult.from_hdf5(args.file)
+    else:
+        from .observe import read_grid, row_model
+        from .solve import solve
+        if args.row is None:
+            raise WindsolveError(f"{args.file} is a {kind} file: give --row N for the row "
+                                 f"whose line to compute (its model is solved again)")
+        result = solve(row_model(read_grid(args.file), args.row))
+        if not result.converged:
+            raise WindsolveError(f"{args.file} row {args.row}: the model did not converge "
+                                 f"({result.message})")
     if not result.profile:
         raise WindsolveError(f"{args.file}: the result has no profile ({result.message})")
     line = (pcygni_profile if args.pcygni else emission_profile)(result, settings)
@@ -380,7 +401,8 @@ def cmd_lines(args: argparse.Namespace) -> int:
             return "not defined"
         return f"{v:.1f} km/s" if abs(v) >= 10 else f"{v:.3g} km/s"
 
-    print(f"{args.file}: {'P Cygni' if args.pcygni else 'optically thin emission'} line, "
+    where = args.file if args.row is None else f"{args.file} row {args.row}"
+    print(f"{where}: {'P Cygni' if args.pcygni else 'optically thin emission'} line, "
           f"emissivity ~ rho^{settings.emissivity_power}, "
           f"{'with' if settings.occultation else 'without'} occultation")
     print(f"  FWHM  {kms(line.fwhm)}")
@@ -405,15 +427,30 @@ def cmd_lines(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+def _line_kwargs(args):
+    """The line options given (checked first: one-line errors naming the option)."""
+    _line_settings(args)
+    return _line_option_kwargs(args)
+
+
 def cmd_compare(args: argparse.Namespace) -> int:
     """``windsolve compare FILE OBSERVED.csv``: predicted against observed widths.
 
-    For a result file: prints each observed quantity with its uncertainty, the
-    model's value [km/s] and the residual [sigma], and chi^2; ``-o`` writes
-    that table as CSV and ``--plot`` plots the residuals.  For a sweep file:
-    prints how many models were compared, the five with the lowest chi^2 and
-    their axis values; ``-o`` writes chi^2 per model as CSV and ``--plot``
-    plots the chi^2 map.  Each file written is followed by a ``wrote`` line.
+    FILE is any windsolve result, family or sweep file (anything else is
+    refused by name).  Every comparison first prints the line settings it
+    used.  For a result file (one object: ``--object`` when the CSV holds
+    several): prints each observed quantity with its
+    uncertainty, the model's value [km/s] and the residual [sigma], and chi^2
+    over the measurements the model predicts; a measurement it cannot predict
+    is listed as excluded, with its reason.  For a sweep or family file, per
+    object of the observations file: rows, measurements used and exclusions
+    (each with its reason) counted separately, the five rows with the lowest
+    chi^2, chi^2_min with the number of free parameters (the axes), and the
+    Delta chi^2 ranges of each axis at 1, 2 and 3 sigma, for one parameter of
+    interest and (two or more axes) jointly for two.  ``-o`` writes the
+    comparison as CSV (a sweep or family: row, axes in the sweep file's units,
+    Mdot, v_inf, each prediction and residual, chi^2); ``--plot`` plots the
+    residuals or the chi^2 map.  Each file written is followed by a ``wrote`` line.
 
     Parameters
     ----------
@@ -429,72 +466,190 @@ def cmd_compare(args: argparse.Namespace) -> int:
     ------
     WindsolveError
         A bad observed-widths file or ``--object``, an unusable output path,
-        a file that is no result or sweep file, a result that did not converge
-        or has no terminal velocity to compare with an observed one, a bad
-        line option, or a sweep without a converged model.
+        a file that is no windsolve file, a result that did not converge,
+        a quantity the file cannot predict, line options that differ from a
+        sweep's stored settings (or given for a file without widths), no
+        measurement a model predicts, or a sweep without a compared row.
+        Nothing is written.
     """
-    import numpy as np
-
-    from .observe import compare_result, read_observed, sweep_chi2, write_chi2_csv
-    observations = read_observed(args.observed, args.object)
+    from .files import read_any_file
+    from .observe import read_observed, read_observed_objects
     for target in (args.output, args.plot):
         if target is not None:
             _check_output(target, ".csv")
-    from .io import hdf5_kind
-    is_sweep = hdf5_kind(args.file) == "sweep"  # one line if it is no windsolve file
-    if not is_sweep:
-        from .result import WindResult
-        result = WindResult.from_hdf5(args.file)
-        if not result.converged:
-            raise WindsolveError(f"{args.file}: the model did not converge ({result.message})")
-        v_inf = result.summary.get("terminal_velocity")
-        if (any(o.quantity == "terminal_velocity" for o in observations)
-                and (v_inf is None or not np.isfinite(v_inf.value))):
-            raise WindsolveError(f"{args.file}: /summary has no terminal_velocity to compare "
-                                 f"with the observed one")
-        rows, chi2 = compare_result(result, observations, _line_settings(args))
-        print(f"{args.file} against {args.observed} ({observations[0].object})")
-        print(f"  {'quantity':<28s} {'observed [km/s]':>16s} {'model [km/s]':>13s} "
+    if args.output is not None and args.plot is not None and \
+            Path(args.output).resolve() == Path(args.plot).resolve():
+        raise WindsolveError(f"-o and --plot are both {args.output}: give two files")
+    kind = read_any_file(args.file)  # one line if it is no windsolve file
+    if kind == "result":  # one model, one object (--object when the file holds several)
+        observations = read_observed(args.observed, args.object)
+        return _compare_result(args, {observations[0].object: observations})
+    return _compare_grid(args, read_observed_objects(args.observed, args.object))
+
+
+def _compare_result(args, objects):
+    import numpy as np
+
+    from .observe import UNDEFINED, compare_result, settings_text
+    from .result import WindResult
+    result = WindResult.from_hdf5(args.file)
+    if not result.converged:
+        raise WindsolveError(f"{args.file}: the model did not converge ({result.message})")
+    v_inf = result.summary.get("terminal_velocity")
+    if (any(o.quantity == "terminal_velocity" for obs in objects.values() for o in obs)
+            and (v_inf is None or not np.isfinite(v_inf.value))):
+        raise WindsolveError(f"{args.file}: /summary has no terminal_velocity to compare "
+                             f"with the observed one")
+    settings = _line_settings(args)
+    given = _line_kwargs(args)
+    out = []
+    for name, observations in objects.items():
+        rows, _ = compare_result(result, observations, settings)
+        used = [r for r in rows if np.isfinite(r[1])]
+        if not used:
+            why = "; ".join(f"{o.label()}: {UNDEFINED[o.quantity]}" for o, _, _ in rows)
+            raise WindsolveError(f"{args.file}: the model predicts none of the measurements "
+                                 f"of {name} ({why})")
+        out.append((name, rows, used))
+    needs_lines = any(o.quantity != "terminal_velocity" for obs in objects.values() for o in obs)
+    print(f"{args.file} against {args.observed}")
+    print("  " + (settings_text(settings, "command line" if given else "defaults")
+                  if needs_lines else "line settings: none used (terminal_velocity only)"))
+    for name, rows, used in out:
+        chi2 = float(sum(z ** 2 for _, _, z in used))
+        print(f"  {name}:")
+        print(f"    {'quantity':<28s} {'observed [km/s]':>16s} {'model [km/s]':>13s} "
               f"{'residual [sigma]':>17s}")
         for o, p, z in rows:
-            print(f"  {o.label():<28s} {o.value / 1e5:9.1f} ± {o.uncertainty / 1e5:<5.1f} "
-                  f"{p / 1e5:13.1f} {z:17.2f}")
-        print(f"  chi2 = {chi2:.3f} for {len(rows)} measurements")
-        if args.output is not None:
-            from .io import write_csv
-            write_csv(args.output, [["quantity", "line", "observed_km_s", "uncertainty_km_s",
-                                     "model_km_s", "residual_sigma"]]
-                      + [[o.quantity, o.line, o.value / 1e5, o.uncertainty / 1e5, p / 1e5, z]
-                         for o, p, z in rows])
-            print(f"wrote {args.output}")
-        if args.plot is not None:
-            from .plotting import plot_residuals
-            plot_residuals(rows, chi2, args.plot)
-            print(f"wrote {args.plot}")
-        return EXIT_OK
-    from .sweep import axis_views, read_sweep_table
-    table, attrs = read_sweep_table(args.file)
-    views = axis_views(args.file)
-    chi2 = sweep_chi2(table, observations)
-    ok = np.isfinite(chi2)
-    print(f"{args.file}: {ok.sum()} models compared with {len(observations)} measurements of "
-          f"{observations[0].object}; {int((~ok).sum())} failed models excluded")
-    if not ok.any():
-        raise WindsolveError("no converged model to compare")
-    best = np.argsort(np.where(ok, chi2, np.inf))[:min(5, int(ok.sum()))]
-    print("  best models:")
-    for i in best:
-        values = ", ".join(f"{v.key} = {table[v.key][i] * v.factor:.5g}"
-                           + (f" {v.unit}" if v.unit else "") for v in views)
-        print(f"    row {i}: chi2 = {chi2[i]:.3f}  ({values})")
+            if np.isfinite(p):
+                print(f"    {o.label():<28s} {o.value / 1e5:9.1f} ± {o.uncertainty / 1e5:<5.1f} "
+                      f"{p / 1e5:13.1f} {z:17.2f}")
+            else:
+                print(f"    {o.label():<28s} {o.value / 1e5:9.1f} ± {o.uncertainty / 1e5:<5.1f} "
+                      f"{'excluded':>13s}   ({UNDEFINED[o.quantity]})")
+        print(f"    chi2 = {chi2:.3f} for {len(used)} of {len(rows)} measurements"
+              + (f" ({len(rows) - len(used)} excluded: not predicted by this model)"
+                 if len(used) < len(rows) else ""))
+    name, rows, used = out[0]
+    chi2 = float(sum(z ** 2 for _, _, z in used))
     if args.output is not None:
-        write_chi2_csv(args.output, views, table, chi2)
+        from .io import write_csv
+        write_csv(args.output, [["quantity", "line", "observed_km_s", "uncertainty_km_s",
+                                 "model_km_s", "residual_sigma", "used"]]
+                  + [[o.quantity, o.line, o.value / 1e5, o.uncertainty / 1e5,
+                      p / 1e5 if np.isfinite(p) else "", z if np.isfinite(z) else "",
+                      int(bool(np.isfinite(p)))]
+                     for o, p, z in rows])
+        print(f"wrote {args.output}")
+    if args.plot is not None:
+        from .plotting import plot_residuals
+        plot_residuals(used, chi2, args.plot)
+        print(f"wrote {args.plot}")
+    return EXIT_OK
+
+
+def _compare_grid(args, objects):
+    import numpy as np
+
+    from .observe import (
+        compare_table,
+        confidence_intervals,
+        read_grid,
+        settings_text,
+        stored_settings,
+        write_comparison_csv,
+    )
+    grid = read_grid(args.file)
+    if args.plot is not None and grid.kind != "sweep":
+        raise WindsolveError(f"--plot {args.plot}: draws a sweep's chi^2 map; a family has one "
+                             f"axis: write its chi^2 with -o CSV instead")
+    given = _line_kwargs(args)
+    settings = stored_settings(grid, given)  # refuses options that would be ignored
+    if len(objects) > 1 and (args.output is not None or args.plot is not None):
+        raise WindsolveError(f"{args.observed} holds several objects ({', '.join(objects)}); "
+                             f"choose one with --object to write -o or --plot")
+    comparisons = {}
+    for name, observations in objects.items():
+        try:
+            comparisons[name] = compare_table(grid.table, observations)
+        except WindsolveError as error:
+            raise WindsolveError(f"{args.file}: {error}; {grid.cannot_predict()}") from None
+        c = comparisons[name]
+        if not c.compared.any():
+            why = "; ".join(c.reason_lines()) or "no converged row"
+            raise WindsolveError(f"{args.file}: no row can be compared with {name} ({why})")
+    axes = grid.axes
+    names = [k for k, _, _, _ in axes]
+    units = {k: unit for k, unit, _, _ in axes}
+    values = {k: x for k, _, x, _ in axes}
+    needs_lines = any(o.quantity != "terminal_velocity" for obs in objects.values() for o in obs)
+    print(f"{args.file} ({grid.kind}) against {args.observed}")
+    if settings is not None:
+        print("  " + settings_text(settings, f"stored in the {grid.kind} file"))
+    else:
+        print("  line settings: none (" + ("no widths stored" if needs_lines
+                                           else "terminal_velocity only") + ")")
+    p = len(axes)
+    for name, c in comparisons.items():
+        print(f"  {name}: {c.counts()}")
+        for line in c.reason_lines():
+            print(f"    {line}")
+        ok = c.compared
+        chi2 = c.chi2
+        best = np.argsort(np.where(ok, chi2, np.inf))[:min(5, int(ok.sum()))]
+        nu = c.n_used - p
+        print(f"    chi2_min = {chi2[best[0]]:.3f} at row {best[0]}; {c.n_used} measurements, "
+              f"{p} free parameter{'s' if p != 1 else ''} (the axes: {', '.join(names)}), "
+              + (f"{nu} degrees of freedom" if nu > 0 else
+                 "no degrees of freedom left (a fit as exact as the grid allows is expected)"))
+        print("    best rows:")
+        for i in best:
+            text = ", ".join(f"{k} = {values[k][i]:.5g}" + (f" {units[k]}" if units[k] else "")
+                             for k in names)
+            print(f"      row {i}: chi2 = {chi2[i]:.3f}  ({text})")
+        print("    confidence ranges, one parameter of interest (Delta chi2 = 1, 4, 9):")
+        for line in _range_lines(confidence_intervals(c, values, units, n_params=1), names):
+            print(f"      {line}")
+        if p >= 2:
+            print("    joint region of two parameters (Delta chi2 = 2.30, 6.18, 11.8), "
+                  "its extent:")
+            for line in _range_lines(confidence_intervals(c, values, units, n_params=2),
+                                     names):
+                print(f"      {line}")
+    c = next(iter(comparisons.values()))
+    if args.output is not None:
+        write_comparison_csv(args.output, c, [(k, units[k], values[k]) for k in names],
+                             grid.table)
         print(f"wrote {args.output}")
     if args.plot is not None:
         from .plotting import plot_chi2
-        plot_chi2(table, views, chi2, args.plot)
+        plot_chi2(grid.table, grid.views, c.chi2, args.plot)
         print(f"wrote {args.plot}")
     return EXIT_OK
+
+
+def _range_lines(intervals, names):
+    """One line per axis: its 1, 2 and 3 sigma ranges, then what they reach."""
+    out = []
+    for key in names:
+        ivs = [iv for iv in intervals if iv.key == key]
+        if not ivs:
+            continue
+        unit = f" {ivs[0].unit}" if ivs[0].unit else ""
+        parts = ", ".join(f"{iv.sigma:g}σ {iv.low:.4g} to {iv.high:.4g}" for iv in ivs)
+        reach = {}
+        for iv in ivs:
+            edge = [w for w, e in (("lowest", iv.at_low_edge), ("highest", iv.at_high_edge))
+                    if e]
+            if edge:
+                reach.setdefault(" and ".join(edge), []).append(f"{iv.sigma:g}σ")
+        notes = [f"{', '.join(sig)} reach{'es' if len(sig) == 1 else ''} the {edge} value "
+                 f"swept: a limit there, widen the sweep" for edge, sig in reach.items()]
+        if ivs[0].points == 1:
+            notes.insert(0, "1σ narrower than the grid spacing")
+        note = f"  ({'; '.join(notes)})" if notes else ""
+        out.append(f"{key}: {parts}{unit}{note}")
+    return out
 
 
 def cmd_match(args: argparse.Namespace) -> int:
@@ -523,17 +678,84 @@ def cmd_match(args: argparse.Namespace) -> int:
         in it, a bad line option, or no value in the range that reproduces
         the measurement (ModelError).
     """
-    from .observe import match_parameter, read_observed
+    from .observe import match_interval, read_observed
     model, source = _load(args.model)
     observations = [o for o in read_observed(args.observed, args.object)
                     if o.quantity == args.quantity]
     if not observations:
         raise WindsolveError(f"{args.observed}: no {args.quantity} measurement to match")
     o = observations[0]
-    value, predicted, scan = match_parameter(model, args.key, args.start, args.stop, o,
-                                             _line_settings(args))
+    settings = _line_settings(args)
+    m = match_interval(model, args.key, args.start, args.stop, o, settings)
+    value, predicted = m["value"], m["predicted"]
+    if o.quantity != "terminal_velocity":
+        from .observe import settings_text
+        print(settings_text(settings, "command line" if _line_option_kwargs(args)
+                            else "defaults"))
     print(f"{source}: {args.key} = {value:.6g} reproduces {o.label()} = "
           f"{o.value / 1e5:.1f} ± {o.uncertainty / 1e5:.1f} km/s (model {predicted / 1e5:.2f})")
+    low, high = m["low"], m["high"]
+    lo_text = f"{low:.6g}" if low is not None else f"beyond {min(m['start'], m['stop']):.6g}"
+    hi_text = f"{high:.6g}" if high is not None else f"beyond {max(m['start'], m['stop']):.6g}"
+    note = ""
+    if low is None or high is None:
+        note = (f" (the range's models give {m['span'][0] / 1e5:.4g} to "
+                f"{m['span'][1] / 1e5:.4g} km/s: observed ± sigma is not reached on the "
+                f"open side; widen --from/--to)")
+    print(f"  observed ± 1 sigma maps to {args.key} = {lo_text} to {hi_text}{note}")
+    return EXIT_OK
+
+
+def cmd_extract(args: argparse.Namespace) -> int:
+    """``windsolve extract FILE (--row N | --best OBSERVED.csv) -o MODEL.toml``: one row's model.
+
+    Writes one row of a sweep or family file -- row ``--row``, or the row of
+    lowest chi^2 against ``--best``'s observations (``--object`` when it
+    holds several) -- as a complete model file, which ``windsolve run``
+    solves to the row's numbers (to rounding).  Prints ``row N (status)``,
+    then ``wrote MODEL.toml``.
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+        The parsed command line (see :func:`build_parser`).
+
+    Returns
+    -------
+    int
+        EXIT_OK (0).
+
+    Raises
+    ------
+    WindsolveError
+        A file that is no sweep or family file, no such row, neither or both
+        of ``--row`` and ``--best``, a bad observations file, a file without
+        its base model, or an unusable output path; nothing is written.
+    """
+    from .io import dumps, write_text
+    from .observe import compare_table, read_grid, read_observed, row_model
+    if (args.row is None) == (args.best is None):
+        raise WindsolveError("give exactly one of --row N and --best OBSERVED.csv")
+    if Path(args.output).suffix.lower() != ".toml":
+        raise WindsolveError(f"-o {args.output}: a model file is written as .toml")
+    _check_output(args.output, ".toml")
+    grid = read_grid(args.file)
+    if args.best is not None:
+        c = compare_table(grid.table, read_observed(args.best, args.object))
+        if not c.compared.any():
+            raise WindsolveError(f"{args.file}: no row can be compared with {args.best}")
+        row = c.best()
+        note = f"lowest chi2 = {c.chi2[row]:.3f}"
+    else:
+        row = args.row
+        note = ""
+    model = row_model(grid, row)
+    status = str(grid.table["status"][row])
+    header = (f"# row {row} of {args.file} ({grid.kind}; status {status}"
+              + (f"; {note}" if note else "") + "), written by windsolve extract\n")
+    write_text(args.output, header + dumps(model.to_dict()))
+    print(f"row {row} ({status}{'; ' + note if note else ''})")
+    print(f"wrote {args.output}")
     return EXIT_OK
 
 
@@ -872,7 +1094,9 @@ def build_parser() -> argparse.ArgumentParser:
                                    "--pcygni, a Sobolev P Cygni resonance line) from a solved "
                                    "profile in any HDF5 file laid out like windsolve's, and "
                                    "print its FWHM, HWZI and blue-edge velocity.")
-    p.add_argument("file", help="HDF5 result file")
+    p.add_argument("file", help="a result file, or a sweep or family file with --row")
+    p.add_argument("--row", type=int, metavar="N",
+                   help="of a sweep or family file: the row whose model to solve and use")
     p.add_argument("-o", "--output", metavar="profile.csv|profile.png",
                    help="write the profile as CSV (velocity in km/s, normalised flux) or plot it")
     p.add_argument("--pcygni", action="store_true",
@@ -884,7 +1108,7 @@ def build_parser() -> argparse.ArgumentParser:
                        description="Predicted against observed widths (observed-widths CSV): "
                                    "for one model, residuals in sigma and chi^2; for a sweep "
                                    "file, chi^2 per model, the best models and a chi^2 map.")
-    p.add_argument("file", help="a result file or a sweep file (HDF5)")
+    p.add_argument("file", help="a result, family or sweep file (HDF5)")
     p.add_argument("observed", help="observed-widths CSV (object,quantity,line,value,"
                                     "uncertainty,unit)")
     p.add_argument("--object", help="which object of the CSV (when it holds several)")
@@ -911,6 +1135,20 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--object", help="which object of the CSV (when it holds several)")
     _add_line_options(p)
     p.set_defaults(func=cmd_match)
+
+    p = sub.add_parser("extract", help="write one row of a sweep or family as a model file",
+                       description="Write one row of a sweep or family file (--row N, or the "
+                                   "row of lowest chi^2 against --best's observations) as a "
+                                   "complete model file that `windsolve run` solves to the "
+                                   "row's numbers.")
+    p.add_argument("file", help="a sweep or family file (HDF5)")
+    p.add_argument("--row", type=int, metavar="N", help="the row (0-based, as compare prints)")
+    p.add_argument("--best", metavar="OBSERVED.csv",
+                   help="the row of lowest chi^2 against this observed-widths CSV")
+    p.add_argument("--object", help="which object of the CSV (when it holds several)")
+    p.add_argument("-o", "--output", required=True, metavar="model.toml",
+                   help="the model file to write")
+    p.set_defaults(func=cmd_extract)
 
     p = sub.add_parser("sweep", help="run a parameter sweep (locally or on a dask cluster)",
                        description="Run every model of a sweep file (grid, random or Latin "

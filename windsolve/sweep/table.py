@@ -180,12 +180,17 @@ def write_sweep_rows(sweep, chunks, out):
     index = {key: j for j, key in enumerate(keys)}
     efolds = index["base_density_efolds"]
 
+    from ..io import dumps
+    from ..modelfile import model_from_dict
+    base_toml = dumps(model_from_dict(sweep.base, source=str(sweep.path)).to_dict())
+
     def fill(f):
         stamp(f, sweep.kind)
         f.attrs["sweep_toml"] = sweep.text
         f.attrs["sweep_file"] = str(sweep.path)
         f.attrs["design"] = sweep.design
         f.attrs["axes"] = json.dumps([a.key for a in sweep.axes])
+        f.attrs["base_model_toml"] = base_toml  # what `windsolve extract` rebuilds rows from
         g = f.create_group("table")
         for a in sweep.axes:
             d = dataset(g, a.key, a.numbers, a.unit or "1")
