@@ -191,6 +191,10 @@ class ModelSpec:
     photosphere_family : callable or None
         ``photosphere_family(model) -> bool``: can :func:`windsolve.family.solve_family`
         scan this model at a fixed photosphere luminosity?  None: never.
+    warm_start : bool
+        ``solve`` also takes ``start_from``, a converged result of a nearby
+        model to start its search from (sweep workers and families pass the
+        previous model's).
     """
 
     kind: str
@@ -205,6 +209,7 @@ class ModelSpec:
     core_radius: object = default_core_radius
     extend_profile: object = None
     photosphere_family: object = None
+    warm_start: bool = False
 
 
 def register(spec: ModelSpec, replace: bool = False) -> ModelSpec:

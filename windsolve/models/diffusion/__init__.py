@@ -27,4 +27,5 @@ ENTRY = register(ModelSpec(
     core_radius=photosphere_core_radius,
     extend_profile=lazy("windsolve.lines", "thin_extension"),
     photosphere_family=lambda model: model.anchor == "photosphere",
+    warm_start=True,
 ))

@@ -28,6 +28,7 @@ import numpy as np
 
 from ...core.constants import C_LIGHT, R_SUN
 from ...core.critical import SADDLE
+from ...core.opacity import LAW_TABLE, SLOT_LAW
 from . import kernels as D
 
 DELTA = 1e-6  # start this fraction of r_c off the critical point
@@ -37,6 +38,8 @@ TIE_DISTANCE = 1e-3  # tie the critical point to the shot at least this far (ln 
 TIE_AGREEMENT = 10.0  # ... and where the two bracketing shots agree to this many rtol
 AGREEMENT_DX = 0.005  # spacing in ln r of the points where the bracketing shots are compared
 PROFILE_STEP = 0.02  # largest step in ln r of stored profiles (as windsolve.solve.MAX_STEP)
+NEAR_STEP = 1e-4  # a bracket around a guessed ln Mdot: first this far either side ...
+NEAR_TRIES = 6  # ... then 4, 16, ... 1024 times as far, before the scan from the smallest Mdot
 NO_X = np.empty(0)
 NO_Y = np.empty((0, 2))
 
@@ -160,9 +163,32 @@ class PhotosphereSolution:
     outer_y: np.ndarray = None  # (ln v, ln T) there
 
 
-def _bracket(P, O, R_ph, L_ph, T_eff, rtol):
+def _bracket_near(Q, O, R_ph, L_ph, T_eff, rtol, guess):
+    """ln Mdot bracket (lo, hi, code at lo) around ``guess``, or None after a few shots."""
+    sides = (D.SIDE_SONIC, D.SIDE_TURN)
+    _count_shot()
+    code0 = D.shoot_from_photosphere(guess, R_ph, L_ph, T_eff, Q, O, rtol)[0]
+    if code0 not in sides:
+        return None
+    step = NEAR_STEP
+    for _ in range(NEAR_TRIES):
+        for sign in (1.0, -1.0):
+            x = guess + sign * step
+            _count_shot()
+            code = D.shoot_from_photosphere(x, R_ph, L_ph, T_eff, Q, O, rtol)[0]
+            if code in sides and code != code0:
+                return (guess, x, code0) if sign > 0 else (x, guess, code)
+        step *= 4.0
+    return None
+
+
+def _bracket(P, O, R_ph, L_ph, T_eff, rtol, guess=None):
     """ln Mdot bracket (lo, hi, code at lo) between the two ways of missing."""
     Q = P.copy()
+    if guess is not None and math.isfinite(guess):
+        near = _bracket_near(Q, O, R_ph, L_ph, T_eff, rtol, guess)
+        if near is not None:
+            return near
     gamma_thin = Q[D.I_KES] * L_ph / (4.0 * math.pi * C_LIGHT * Q[D.I_GM])
     W = 2.0 * Q[D.I_GM] * (1.0 - gamma_thin) / R_ph
     mdot_min = 4.0 * math.pi * R_ph * math.sqrt(W) / (3.0 * Q[D.I_KES]) if W > 0 else 1e-30
@@ -293,7 +319,7 @@ def _check_above_base(c, T_in, R_in):
 
 
 def solve_photosphere_anchor(P, O, L_ph, T_eff, rtol, out_x=NO_X, out_y=NO_Y,
-                             max_step=np.inf, diagnose=False):
+                             max_step=np.inf, diagnose=False, guess=None, xtol=1e-14):
     """The regular solution with photosphere (L_ph, T_eff); stores the outer path.
 
     Returns (PhotosphereSolution, n_stored).  Raises ModelBFailure, or its
@@ -317,9 +343,16 @@ def solve_photosphere_anchor(P, O, L_ph, T_eff, rtol, out_x=NO_X, out_y=NO_Y,
     out_x, out_y : ndarray
         Storage for the outer path, ln r and (ln v, ln T) (empty: none).
     max_step : float
-        Largest step in ln r.
+        Largest spacing in ln r of the stored outer path (from the dense
+        output: the steps themselves are not limited).
     diagnose : bool
         Retry a failure without the inner end, to tell a sonic point below it.
+    guess : float, optional
+        ln Mdot [ln(g s^-1)] of a nearby solution: the bracket is sought
+        around it first (a few shots) instead of scanning up from the
+        smallest Mdot the photosphere allows.
+    xtol : float
+        The bracket in ln Mdot is bisected down to xtol (1 + |ln Mdot|).
 
     Returns
     -------
@@ -337,7 +370,8 @@ def solve_photosphere_anchor(P, O, L_ph, T_eff, rtol, out_x=NO_X, out_y=NO_Y,
     section 8.
     """
     try:
-        return _solve_photosphere_anchor(P, O, L_ph, T_eff, rtol, out_x, out_y, max_step)
+        return _solve_photosphere_anchor(P, O, L_ph, T_eff, rtol, out_x, out_y, max_step,
+                                         guess, xtol)
     except BelowBase:
         raise
     except ModelBFailure as failure:
@@ -354,19 +388,46 @@ def solve_photosphere_anchor(P, O, L_ph, T_eff, rtol, out_x=NO_X, out_y=NO_Y,
         raise
 
 
-def _solve_photosphere_anchor(P, O, L_ph, T_eff, rtol, out_x, out_y, max_step):
+def limited_steps(O):
+    """Whether photosphere shots through the opacity O keep their step limit.
+
+    A tabulated opacity's interpolant has jumps in its third derivative at
+    the table's grid lines, which the error control does not see: on the
+    bump wind with configs/invented_bump_table.txt, shots without a step
+    limit moved Mdot by 9e-8 from its rtol = 1e-11 value, against 3e-10 with
+    the stored profile's limit (0.02 in ln r).  Analytic laws are smooth,
+    and their shots run without one (half the right-hand-side evaluations).
+
+    Parameters
+    ----------
+    O : ndarray
+        Opacity vector.
+
+    Returns
+    -------
+    bool
+        True for the table law.
+    """
+    return O[SLOT_LAW] == LAW_TABLE
+
+
+def _solve_photosphere_anchor(P, O, L_ph, T_eff, rtol, out_x, out_y, max_step, guess=None,
+                              xtol=1e-14):
     R_ph = photosphere_radius(L_ph, T_eff)
     if P[D.I_R_IN] > 0.0 and R_ph <= P[D.I_R_IN]:
         raise ModelBFailure(D.INVALID, "the photosphere lies inside the base radius")
-    lo, hi, code_lo = _bracket(P, O, R_ph, L_ph, T_eff, rtol)
+    lo, hi, code_lo = _bracket(P, O, R_ph, L_ph, T_eff, rtol, guess)
     Q = P.copy()
     # Bisect with the step limit of the stored shot below: a different step
     # sequence is a (slightly) different integration, and at a bracket of
-    # 1e-14 that can flip the side the stored shot falls on.
-    while hi - lo > 1e-14 * (1.0 + abs(lo)):
+    # 1e-14 that can flip the side the stored shot falls on.  Analytic
+    # opacities need no step limit (the stored shot's points every max_step
+    # come from its dense output); a table's does (see limited_steps).
+    limit = max_step if limited_steps(O) else np.inf
+    while hi - lo > xtol * (1.0 + abs(lo)):
         m = 0.5 * (lo + hi)
         _count_shot()
-        code = D.shoot_stored(m, R_ph, L_ph, T_eff, Q, O, rtol, max_step, NO_X, NO_Y)[0]
+        code = D.shoot_stored(m, R_ph, L_ph, T_eff, Q, O, rtol, limit, NO_X, NO_Y)[0]
         if code == code_lo:
             lo = m
         elif code in (D.SIDE_SONIC, D.SIDE_TURN):
@@ -381,14 +442,15 @@ def _solve_photosphere_anchor(P, O, L_ph, T_eff, rtol, out_x, out_y, max_step):
         out_x = np.empty(SHOT_CAPACITY)
         out_y = np.empty((SHOT_CAPACITY, 2))
     _count_shot()
-    code, r, v, T, n = D.shoot_stored(x_sonic, R_ph, L_ph, T_eff, Q, O, rtol, max_step,
-                                      out_x, out_y)
+    code, r, v, T, n = D.shoot_dense(x_sonic, R_ph, L_ph, T_eff, Q, O, rtol, limit,
+                                     0.0 if math.isfinite(limit) or not math.isfinite(max_step)
+                                     else max_step, out_x, out_y)
     if code != D.SIDE_SONIC or n < 2:
         raise ModelBFailure(D.FAILED, "the converged inward solution did not reach the "
                                       "sonic point; try another numerics.rtol")
     v_ph = D.photospheric_state(math.exp(x_sonic), R_ph, L_ph, T_eff, Q)
     guess = _project_critical(Q, O, x_sonic, (r, v, T))
-    x_agree = _agreement_limit(P, O, R_ph, L_ph, T_eff, x_sonic, x_other, rtol, max_step)
+    x_agree = _agreement_limit(P, O, R_ph, L_ph, T_eff, x_sonic, x_other, rtol, limit)
     x_floor = max(math.log(max(r, guess[0])) + TIE_DISTANCE, x_agree)
     k = max(int(np.count_nonzero(out_x[:n] >= x_floor)) - 1, 0)
     tie = (math.exp(out_x[k]), math.exp(out_y[k, 0]), math.exp(out_y[k, 1]))
@@ -440,7 +502,7 @@ def _agreement_limit(P, O, R_ph, L_ph, T_eff, x_sonic, x_other, rtol, max_step):
     return common[max(first - 1, 0)]
 
 
-def base_values(P, O, L_ph, T_eff, rtol):
+def base_values(P, O, L_ph, T_eff, rtol, guess=None, xtol=1e-14):
     """(solution, L, T, rho) at the inner end for the photosphere (L_ph, T_eff).
 
     Parameters
@@ -455,6 +517,8 @@ def base_values(P, O, L_ph, T_eff, rtol):
         Effective temperature [K].
     rtol : float
         Relative tolerance.
+    guess, xtol : float, optional
+        As for :func:`solve_photosphere_anchor`.
 
     Returns
     -------
@@ -468,7 +532,8 @@ def base_values(P, O, L_ph, T_eff, rtol):
     """
     # The same step limits as the stored profile, so that the base values a
     # result reports are the ones matched here.
-    sol, n = solve_photosphere_anchor(P, O, L_ph, T_eff, rtol, max_step=PROFILE_STEP)
+    sol, n = solve_photosphere_anchor(P, O, L_ph, T_eff, rtol, max_step=PROFILE_STEP,
+                                      guess=guess, xtol=xtol)
     st, rb, vb, Tb, Lb, n = inward(sol.crit, O, rtol, max_step=PROFILE_STEP)
     if st != D.OK or Lb <= 0.0:
         raise ModelBFailure(st if st != D.OK else D.STALLED,
@@ -476,10 +541,289 @@ def base_values(P, O, L_ph, T_eff, rtol):
     return sol, Lb, Tb, sol.crit.mdot / (4.0 * math.pi * rb * rb * vb)
 
 
-def solve_base_anchor(P, O, L0, base_kind, base_value, rtol):
+def solve_base_anchor(P, O, L0, base_kind, base_value, rtol, start=None):
+    """(L_ph, T_eff, ln Mdot) of the solution whose inner end (R0 = P[I_R_IN]) has L0 and T0 (or rho0).
+
+    A two-dimensional quasi-Newton (Broyden) iteration on x = (ln L_ph,
+    ln T_eff) for the log residuals F = (ln L(R0) - ln L0, ln b(R0) - ln b0),
+    b the base temperature or density, each evaluation a photosphere-anchored
+    solve and the inward leg to R0: the Jacobian from forward differences at
+    the start, then Broyden's rank-one updates (Broyden 1965, Math. Comp. 19,
+    577; Dennis & Schnabel 1983, Numerical Methods for Unconstrained
+    Optimization and Nonlinear Equations, ch. 8; from memory), each step
+    shortened by backtracking until |F| falls (or the trial has a solution
+    at all).  Each photosphere solve starts its Mdot bracket at the previous
+    one's Mdot, and bisects it only as finely as the current residual needs
+    (to 1e-3 |F|, 1e-14 at the end).  Without ``start`` the first T_eff comes
+    from a scan at L_ph = L0 (:func:`_scan_bracket`).  Should the iteration
+    not converge, the nested root-finds of :func:`solve_base_anchor_nested`
+    take over.
+
+    Parameters
+    ----------
+    P : ndarray
+        Model B parameter vector (R0 in P[I_R_IN]).
+    O : ndarray
+        Opacity vector.
+    L0 : float
+        Base luminosity [erg s^-1].
+    base_kind : str
+        ``"temperature"`` or ``"density"``.
+    base_value : float
+        T0 [K] or rho0 [g cm^-3].
+    rtol : float
+        Relative tolerance.
+    start : tuple, optional
+        (L_ph [erg s^-1], T_eff [K], ln Mdot [ln(g s^-1)]) of a nearby
+        solution (the previous model of a sweep or family): no scan.
+
+    Returns
+    -------
+    L_ph, T_eff, ln_mdot : float
+        [erg s^-1], [K], [ln(g s^-1)].
+
+    Raises
+    ------
+    ModelBFailure
+        No wind reaches R0 with these base values, or L0 is matched only roughly.
+
+    References
+    ----------
+    docs/physics.md, section 5 ("Boundary conditions", base anchor).
+    """
+    target = np.array([math.log(L0), math.log(base_value)])
+    # ln Mdot of the last solve at x_last and a secant (Broyden) estimate of
+    # its gradient in x: each solve's bracket starts at the extrapolated ln Mdot
+    hist = {"x": None, "lnm": None if start is None else start[2], "grad": np.zeros(2)}
+
+    def residual(x, xtol):
+        guess = hist["lnm"]
+        if guess is not None and hist["x"] is not None:
+            guess = guess + float(hist["grad"] @ (x - hist["x"]))
+        sol, Lb, Tb, rhob = base_values(P, O, math.exp(x[0]), math.exp(x[1]), rtol, guess,
+                                        xtol)
+        lnm = math.log(sol.crit.mdot)
+        if hist["x"] is not None:
+            s = x - hist["x"]
+            if s @ s > 0.0:
+                g = hist["grad"]
+                hist["grad"] = g + (lnm - hist["lnm"] - g @ s) * s / (s @ s)
+        hist["x"], hist["lnm"] = x.copy(), lnm
+        b = Tb if base_kind == "temperature" else rhob
+        return np.array([math.log(Lb), math.log(b)]) - target
+
+    for warm in ((True, False) if start is not None else (False,)):
+        try:
+            if warm:
+                # L(R0) follows L_ph nearly one to one: shift the previous L_ph
+                u = math.log(start[0]) + math.log(L0) - math.log(start[3])
+                x = _first_guess(residual, u, math.log(start[1]))
+            else:
+                hist.update(x=None, lnm=None, grad=np.zeros(2))
+                x = _cold_start(residual, L0, P[D.I_R_IN])
+            x, F = _broyden(residual, x, base_ftol(rtol))
+        except ModelBFailure:
+            continue
+        if np.max(np.abs(F)) <= BASE_NOISE * base_ftol(rtol):
+            return math.exp(x[0]), math.exp(x[1]), hist["lnm"]
+    L_ph, T_eff = solve_base_anchor_nested(P, O, L0, base_kind, base_value, rtol)
+    return L_ph, T_eff, None
+
+
+BASE_FD_XTOL = 1e-12  # Mdot brackets of the forward-difference solves
+COLD_RADIUS = 30.0  # a cold base-anchor start: first T_eff where R_ph = this many R0
+COLD_FTOL = 0.02  # ... secant steps down to residuals this small
+COLD_XTOL = 1e-6  # ... with Mdot brackets this coarse
+BASE_FTOL = 0.1  # the base anchor's log residuals are converged at this many rtol ...
+BASE_FTOL_MIN = 1e-11  # ... or this, if larger
+BASE_XTOL_PER_F = 1e-6  # Mdot brackets bisected to this times the residual (at most 1e-8)
+BASE_NOISE = 30.0  # a step that no longer lowers |F| < this many ftol: converged (noise)
+BASE_FD_STEP = 1e-5  # forward-difference step in ln L_ph and ln T_eff
+BASE_MAX_STEP = (0.1, 0.2)  # largest step in ln L_ph, ln T_eff
+BASE_ITERATIONS = 40
+
+
+def base_ftol(rtol):
+    """Converged size of the base anchor's log residuals for the tolerance rtol.
+
+    The residuals come from integrations to rtol, and from Mdot brackets
+    bisected only as finely as the current residual needs.  On the bump
+    wind's base twin they are smooth down to about 1e-11 once the bracket is
+    bisected to 1e-14, but at other luminosities they scatter by up to about
+    3 rtol: the iteration aims at 0.1 rtol and, when a step no longer lowers
+    the residuals, accepts anything below BASE_NOISE times that (ln T0 has a
+    slope of about -16 in ln T_eff there: ln T_eff within about 2e-10 of the
+    root).
+    """
+    return max(BASE_FTOL * rtol, BASE_FTOL_MIN)
+
+
+def _cold_start(residual, L0, R0):
+    """A first (ln L_ph, ln T_eff) for the base anchor without a previous solution.
+
+    :func:`_first_guess` from L_ph = L0 and the T_eff that puts the
+    photosphere at COLD_RADIUS R0; should that fail, the coarse scan of
+    :func:`_scan_bracket` at L_ph = L0.
+    """
+    try:
+        return _first_guess(residual, math.log(L0),
+                            math.log(D.effective_temperature(L0, COLD_RADIUS * R0)))
+    except ModelBFailure:
+        pass
+
+    def scan_miss(L_ph, T_eff):
+        return residual(np.array([math.log(L_ph), math.log(T_eff)]), COLD_XTOL)[1], None
+
+    lo, hi, d_lo, d_hi = _scan_bracket(scan_miss, L0, R0)
+    return np.array([math.log(L0), lo - d_lo * (hi - lo) / (d_hi - d_lo)])
+
+
+def _first_guess(residual, u, t):
+    """(ln L_ph, ln T_eff) near the base anchor's root, from (u, t).
+
+    A one-dimensional search in ln T_eff on the base residual
+    (:func:`_search_temperature`); then ln L_ph moves by -f_L (L(R0) follows
+    L_ph nearly one to one; halved back while the new L_ph has no solution)
+    and the search is repeated from there, until both residuals are below
+    COLD_FTOL.  Raises ModelBFailure when it does not get there.
+    """
+    slope = None
+    F = None
+    for _ in range(4):
+        t, F, slope = _search_temperature(residual, u, t, slope, F)
+        if abs(F[0]) < COLD_FTOL:
+            return np.array([u, t])
+        du = -max(min(F[0], 0.2), -0.2)
+        for _ in range(4):
+            try:
+                F = residual(np.array([u + du, t]), COLD_XTOL)
+                break
+            except ModelBFailure:
+                du *= 0.5
+        else:
+            break
+        u += du
+    raise ModelBFailure(D.INVALID, "no first guess for the base anchor")
+
+
+def _search_temperature(residual, u, t, slope, F=None):
+    """ln T_eff at ln L_ph = u where the base residual is below COLD_FTOL: (t, F, slope).
+
+    ``F``, if given, is the residual at (u, t).  Secant steps (the first
+    slope by a finite difference unless given; steps
+    of at most 0.3, halved back towards the last trial with a solution when a
+    trial has none), then regula falsi (Illinois) once the residual changes
+    sign.  Raises ModelBFailure when it does not get there in 16 trials.
+    """
+    def f(t):
+        return residual(np.array([u, t]), COLD_XTOL)
+
+    if F is None:
+        F = f(t)
+    if slope is None:
+        h = 0.02
+        slope = (f(t + h)[1] - F[1]) / h
+    bracket = None  # ((t, f_b), (t, f_b)) on either side of the root
+    for _ in range(16):
+        if abs(F[1]) < COLD_FTOL:
+            return t, F, slope
+        if bracket is not None:
+            (ta, fa), (tb, fb) = bracket
+            t_new = tb - fb * (tb - ta) / (fb - fa)
+        else:
+            step = -F[1] / slope if slope != 0.0 else 0.3
+            t_new = t + max(min(step, 0.3), -0.3)
+        for _ in range(6):
+            try:
+                F_new = f(t_new)
+                break
+            except ModelBFailure:
+                t_new = 0.5 * (t_new + t)
+        else:
+            break
+        if bracket is None and (F_new[1] > 0) != (F[1] > 0):
+            bracket = ((t, F[1]), (t_new, F_new[1]))
+        elif bracket is not None:
+            (ta, fa), (tb, fb) = bracket
+            if (F_new[1] > 0) == (fb > 0):
+                bracket = ((ta, 0.5 * fa), (t_new, F_new[1]))  # Illinois
+            else:
+                bracket = ((tb, fb), (t_new, F_new[1]))
+        if t_new != t:
+            slope = (F_new[1] - F[1]) / (t_new - t)
+        t, F = t_new, F_new
+    raise ModelBFailure(D.INVALID, "no effective temperature found for the base value")
+
+
+def _jacobian(residual, x, F):
+    """dF/dx by forward differences (backward where the forward trial has no solution)."""
+    J = np.empty((2, 2))
+    for i in range(2):
+        e = np.zeros(2)
+        e[i] = BASE_FD_STEP
+        try:
+            J[:, i] = (residual(x + e, BASE_FD_XTOL) - F) / BASE_FD_STEP
+        except ModelBFailure:
+            J[:, i] = (F - residual(x - e, BASE_FD_XTOL)) / BASE_FD_STEP
+    return J
+
+
+def _broyden(residual, x, ftol):
+    """Broyden's method with backtracking on residual(x, xtol); returns (x, F).
+
+    Stops when max |F| < ftol, or when a step no longer lowers it.  Raises
+    ModelBFailure when no trial along a step has a solution.
+    """
+    F = residual(x, BASE_FD_XTOL)
+    J = _jacobian(residual, x, F)
+    fresh = True
+    for _ in range(BASE_ITERATIONS):
+        norm = np.max(np.abs(F))
+        if norm < ftol:
+            break
+        try:
+            dx = -np.linalg.solve(J, F)
+        except np.linalg.LinAlgError:
+            break
+        scale = max(abs(dx[0]) / BASE_MAX_STEP[0], abs(dx[1]) / BASE_MAX_STEP[1], 1.0)
+        dx /= scale
+        lam = 1.0
+        xtol = 1e-14 if norm < 1e-6 else min(1e-8, BASE_XTOL_PER_F * norm)
+        solved = False
+        for _ in range(12):
+            try:
+                F_new = residual(x + lam * dx, xtol)
+            except ModelBFailure:
+                lam *= 0.25
+                continue
+            solved = True
+            if np.max(np.abs(F_new)) < (1.0 - 1e-4 * lam) * norm:
+                break
+            lam *= 0.5
+            if lam < (0.2 if norm < BASE_NOISE * ftol else 1e-2):  # fewer tries in the noise
+                break
+        if not solved:
+            raise ModelBFailure(D.INVALID, "no trial along the quasi-Newton step has a "
+                                           "solution")
+        if lam < (0.2 if norm < BASE_NOISE * ftol else 1e-2):  # no descent along this step
+            if fresh or norm < BASE_NOISE * ftol:
+                return x, F  # as good as it gets (the residuals' noise)
+            J = _jacobian(residual, x, F)  # a stale Broyden Jacobian: start afresh
+            fresh = True
+            continue
+        fresh = False
+        s = lam * dx
+        J += np.outer(F_new - F - J @ s, s) / (s @ s)
+        x = x + s
+        F = F_new
+    return x, F
+
+
+def solve_base_anchor_nested(P, O, L0, base_kind, base_value, rtol):
     """(L_ph, T_eff) of the solution whose inner end (R0 = P[I_R_IN]) has L0 and T0 (or rho0).
 
-    Two nested one-dimensional root-finds, each trial a photosphere-anchored
+    The fallback of :func:`solve_base_anchor` (slow, about 200 photosphere
+    solves): two nested one-dimensional root-finds, each trial a photosphere-anchored
     solve (inward integrations are the numerically stable direction of an
     optically thick envelope; the base temperature is a steep function of
     T_eff, which defeats a plain two-dimensional Newton step): the inner one

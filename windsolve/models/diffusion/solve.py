@@ -21,7 +21,22 @@ def _diffusion_failure_result(model, summary, code, text, t0):
         counters={"shots": B.shots(), "seconds": time.perf_counter() - t0}))
 
 
-def solve_diffusion(model, profile=True):
+def _start(result):
+    """(L_ph [erg/s], T_eff [K], ln Mdot, L(R0) [erg/s]) of a converged Model B result, or None."""
+    if result is None or not getattr(result, "converged", False):
+        return None
+    try:
+        values = [result.summary[key].to_value(unit) for key, unit in (
+            ("photosphere_luminosity", "erg/s"), ("photosphere_temperature", "K"),
+            ("mass_loss_rate", "g/s"), ("base_luminosity", "erg/s"))]
+    except (KeyError, AttributeError, TypeError):
+        return None
+    if not all(math.isfinite(v) and v > 0 for v in values):
+        return None
+    return values[0], values[1], math.log(values[2]), values[3]
+
+
+def solve_diffusion(model, profile=True, start_from=None):
     """Solve Model B (:class:`~windsolve.models.DiffusionWind`).
 
     ``profile`` is accepted for symmetry; the profile is always computed
@@ -33,6 +48,9 @@ def solve_diffusion(model, profile=True):
         The model (photosphere or base anchor, docs/physics.md, section 5).
     profile : bool
         Ignored (see above).
+    start_from : WindResult, optional
+        A converged Model B result of a nearby model: the base anchor starts
+        from its photosphere and mass-loss rate (no initial search).
 
     Returns
     -------
@@ -72,12 +90,15 @@ def solve_diffusion(model, profile=True):
         if model.anchor == "photosphere":
             L_ph = model.cgs("photosphere_luminosity")
             T_ph = model.cgs("photosphere_temperature")
+            guess = None
         else:
             kind = "temperature" if model.base_temperature is not None else "density"
-            L_ph, T_ph = B.solve_base_anchor(P, O, model.cgs("luminosity"), kind,
-                                             model.cgs(f"base_{kind}"), rtol)
+            L_ph, T_ph, guess = B.solve_base_anchor(P, O, model.cgs("luminosity"), kind,
+                                                    model.cgs(f"base_{kind}"), rtol,
+                                                    _start(start_from))
         sol, no = B.solve_photosphere_anchor(P, O, L_ph, T_ph, rtol, xo, yo, MAX_STEP,
-                                             diagnose=model.anchor == "photosphere")
+                                             diagnose=model.anchor == "photosphere",
+                                             guess=guess)
     except B.ModelBFailure as failure:
         return _diffusion_failure_result(model, summary, failure.code, failure.text, t0)
     c = sol.crit
