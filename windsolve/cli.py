@@ -411,6 +411,14 @@ def cmd_lines(args: argparse.Namespace) -> int:
     v_inf = result.summary.get("terminal_velocity")
     if v_inf is not None:
         print(f"  model terminal velocity  {kms(v_inf)}")
+    if line.fastest is not None:
+        traced = "the edge and HWZI trace the fastest gas"
+        if line.slows_outward:
+            print(f"  fastest gas in the line  {kms(line.fastest)}   (v falls outward beyond "
+                  f"it: {traced}, not the terminal velocity)")
+        else:
+            print(f"  fastest gas in the line  {kms(line.fastest)}   (v rises outward: "
+                  f"{traced}, the outermost)")
     a = result.summary.get("sonic_velocity")
     if (not args.pcygni and a is not None and np.isfinite(line.fwhm.value)
             and line.fwhm < a and settings.broadening_fwhm.value == 0):
