@@ -1,6 +1,6 @@
 """Pictures of a result (matplotlib, imported only when plotting).
 
-What every figure here keeps to (docs/lines.md, "Plots"; README, "Plots"):
+What every figure here keeps to (the README's paragraph "Plots"):
 
 * one normalisation per kind of line, said on the y axis (emission: F / F_peak, continuum 0;
   P Cygni: F / F_c, continuum 1), and the line settings written beside the axes;
@@ -829,7 +829,8 @@ def chi2_figure(table: dict, views: list, chi2: np.ndarray,
         else:
             px, py, pz = gx, gy, chi2[ok]
         sc = ax.scatter(px, py, c=np.log10(1.0 + pz - lo), cmap="viridis_r", s=40,
-                        marker="s", label="compared" if p == 2 else "profile (best row)")
+                        marker="s", label="compared" if p == 2 else
+                        f"best over {', '.join(v.key for v in views[2:])}")
         cb = fig.colorbar(sc, ax=ax)
         cb.set_label(r"log$_{10}$(1 + Δχ²),  Δχ² = χ² − χ²$_{\rm min}$")
         if (~ok).any():
