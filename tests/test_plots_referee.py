@@ -100,8 +100,15 @@ def assert_legends_cover_no_data(fig):
 
 
 def labels(ax, which):
+    """The non-empty tick labels (major and minor) of ticks inside the axis limits."""
     axis = ax.xaxis if which == "x" else ax.yaxis
-    return [t.get_text() for t in axis.get_ticklabels(which="both") if t.get_text().strip()]
+    lo, hi = sorted(axis.get_view_interval())
+    out = []
+    for locs, formatter in ((axis.get_majorticklocs(), axis.get_major_formatter()),
+                            (axis.get_minorticklocs(), axis.get_minor_formatter())):
+        locs = [x for x in locs if lo * (1 - 1e-9) <= x <= hi * (1 + 1e-9)]
+        out += [text for text in formatter.format_ticks(locs) if text.strip()]
+    return out
 
 
 def all_text(fig):

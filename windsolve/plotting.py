@@ -174,13 +174,21 @@ def label_log_ticks(ax: "object", which: str) -> None:
         (ticker.MaxNLocator(nbins=5, steps=[1, 2, 2.5, 5, 10]), plain, ticker.NullLocator()),
         (ticker.MaxNLocator(nbins=9, steps=[1, 2, 2.5, 5, 10]), plain, ticker.NullLocator()),
     ]
-    def labelled(locator):
-        ticks = np.asarray(locator.tick_values(lo, hi))
-        return int(np.sum((ticks >= lo * (1 - 1e-9)) & (ticks <= hi * (1 + 1e-9)) & (ticks > 0)))
-
-    major, formatter, minor = next(
-        (c for c in candidates if MIN_TICK_LABELS <= labelled(c[0]) <= MAX_TICK_LABELS),
-        candidates[-1])
+    chosen = candidates[-1]
+    for candidate in candidates:  # the first that labels 3 to 12 ticks on this axis
+        axis.set_major_locator(candidate[0])
+        locs = np.asarray(axis.get_majorticklocs())
+        locs = locs[(locs >= lo * (1 - 1e-9)) & (locs <= hi * (1 + 1e-9)) & (locs > 0)]
+        if isinstance(candidate[0], ticker.LogLocator):
+            # on a short span LogLocator falls back to linear ticks of its own: keep it only
+            # when its ticks are the whole multiples of powers of ten it was asked for
+            mantissa = locs / 10.0 ** np.floor(np.log10(locs) + 1e-9)
+            if not np.allclose(mantissa, np.round(mantissa), rtol=0, atol=1e-6):
+                continue
+        if MIN_TICK_LABELS <= locs.size <= MAX_TICK_LABELS:
+            chosen = candidate
+            break
+    major, formatter, minor = chosen
     axis.set_major_locator(major)
     axis.set_major_formatter(formatter)
     axis.set_minor_locator(minor)
