@@ -60,7 +60,15 @@ def sweeps(tmp_path_factory):
                           'values = ["1e5 Lsun", "3.5e6 Lsun", "4e6 Lsun", "4.5e6 Lsun"]\n')
     two = run(tmp, "two", LUM4 + SOUND2)
     three = run(tmp, "three", LUM4 + SOUND2 + POROSITY2)
-    return {"one": one, "two": two, "three": three}
+    path = tmp / "random.toml"  # a random design: no value of an axis repeats
+    path.write_text(f'[sweep]\nbase = "{DEMO}"\ndesign = "random"\nsamples = 16\nseed = 5\n'
+                    '[[axis]]\nkey = "star.luminosity"\nstart = "3.5e6 Lsun"\n'
+                    'stop = "4.5e6 Lsun"\n[[axis]]\nkey = "gas.sound_speed"\n'
+                    'start = "19 km/s"\nstop = "21 km/s"\n[[axis]]\nkey = "porosity.length"\n'
+                    'start = "5 Rsun"\nstop = "20 Rsun"\n')
+    random = tmp / "random.h5"
+    run_sweep(load_sweep(path), random, workers=1, quiet=True)
+    return {"one": one, "two": two, "three": three, "random": random}
 
 
 def drawn(fig):
@@ -260,6 +268,14 @@ def test_three_axis_sweep_draws_one_row_of_panels_per_third_axis_value(sweeps, m
     titles = {ax.get_title() for ax in panels}
     assert titles == {"porosity.length = 5 Rsun", "porosity.length = 20 Rsun"}
     assert "every row of the sweep drawn" in fig._suptitle.get_text()
+    # 16 distinct porosity lengths, more than MAX_FACETS: four ranges of equal counts
+    fig = sweep_figure(sweeps["random"])
+    panels = [ax for ax in fig.axes if ax.get_label() != "<colorbar>"]
+    assert len(panels) == 2 * 4
+    assert [len(ax.collections[0].get_offsets()) for ax in panels[::2]] == [4, 4, 4, 4]
+    assert all("porosity.length" in ax.get_title() and " to " in ax.get_title()
+               and "(4 rows)" in ax.get_title() for ax in panels)
+    assert "every row of the sweep drawn" in fig._suptitle.get_text()
     monkeypatch.setattr(plotting, "MAX_FACETS", 1)
     fig = sweep_figure(sweeps["three"])
     assert len([ax for ax in fig.axes if ax.get_label() != "<colorbar>"]) == 2
@@ -329,6 +345,20 @@ def test_chi2_map_draws_the_delta_chi2_contours_of_two_parameters(sweeps, tmp_pa
     assert "2 free parameters (star.luminosity, gas.sound_speed)" in title
     assert "2 parameters of interest" in title and "2.3, 6.18, 11.8" in title
     assert_legends_cover_no_data(fig)
+    # a random design of three axes: the profile over porosity.length, triangulated contours
+    table, _ = read_sweep_table(sweeps["random"])
+    views = axis_views(sweeps["random"])
+    c = compare_table(table, observed(tmp_path, table, 2))
+    regions = chi2_map(c, *(table[v.key] * v.factor for v in views[:2]))
+    fig = chi2_figure(table, views, c.chi2, regions)
+    ax = fig.axes[0]
+    contours = [a for a in ax.get_children() if isinstance(a, ContourSet)]
+    assert len(contours) == 1
+    lo = np.nanmin(c.chi2)
+    assert np.allclose(contours[0].levels, [lo + sigma_level(2, s) for s in (1, 2, 3)],
+                       rtol=1e-9)
+    assert "3 free parameters" in ax.get_title()
+    assert "minimised over porosity.length" in ax.get_title()
     pyplot().close("all")
 
 

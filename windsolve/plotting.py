@@ -11,7 +11,8 @@ What every figure here keeps to (the README's paragraph "Plots"):
   span; no axis shows matplotlib's offset or "1e6" multiplier text: values too large or
   small for plain numbers are divided by a power of ten that the axis label states;
 * a sweep with three or more axes is drawn in facets (one row of panels per value of the
-  further axes), at most :data:`MAX_FACETS` of them, and the title says what is left out;
+  further axes, or per range of the third when its values are too many), and the title says
+  what each row holds and what, if anything, is left out;
 * a line profile that is not a consistent solution is refused (:func:`check_line`), and a
   wind profile that did not converge is drawn grey and marked "NOT A SOLUTION";
 * the chi^2 map carries the Delta chi^2 confidence contours and says how many free
@@ -39,6 +40,7 @@ __all__ = ["plot_profile", "plot_sweep", "plot_line", "plot_residuals", "plot_ch
            "MAX_FACETS", "MIN_TICK_LABELS"]
 
 MAX_FACETS = 12  # facets (rows of panels) a sweep figure draws for its third and further axes
+RANGE_FACETS = 4  # facets of ranges of the third axis when its values are too many
 MIN_TICK_LABELS = 3  # labelled ticks on every log axis, however short its span
 MAX_TICK_LABELS = 12
 FAILED_COLOR = "0.55"
@@ -317,16 +319,51 @@ _QUANTITIES = ((r"mass-loss rate  $\dot M$", r"M$_\odot$ yr$^{-1}$", True),
 
 
 def _facets(table, views):
-    """(combos, index, shown): the distinct values of the third and further axes.
+    """(titles, index, note): the facets of a sweep of three or more axes.
 
-    combos: (n, k) distinct value rows in first-seen order; index: per table row its combo;
-    shown: how many combos are drawn (at most MAX_FACETS)."""
+    One facet per distinct value (combination) of the third and further axes, in the
+    sweep's order, when there are at most MAX_FACETS.  More (a random or latin design,
+    whose values never repeat): up to RANGE_FACETS facets of equal-count ranges of the
+    third axis, when no two rows of a facet share a point of the first two axes (every
+    row stays visible); else the first MAX_FACETS values, and the note says how many
+    values and rows are left out.  ``index`` gives each table row its facet (-1: not drawn).
+    """
     extra = np.column_stack([table[v.key] * v.factor for v in views[2:]])
-    combos, first, index = np.unique(extra, axis=0, return_index=True, return_inverse=True)
+    keys = ", ".join(v.key for v in views[2:])
+    combos, first, inverse = np.unique(extra, axis=0, return_index=True, return_inverse=True)
     order = np.argsort(first)  # first-seen order: the sweep's own order
     rank = np.empty_like(order)
     rank[order] = np.arange(order.size)
-    return combos[order], rank[np.ravel(index)], min(len(combos), MAX_FACETS)
+    index = rank[np.ravel(inverse)]
+    combos = combos[order]
+    if len(combos) <= MAX_FACETS:
+        return ([_value_text(views[2:], c) for c in combos], index,
+                f"one row of panels per value of {keys}: every row of the sweep drawn")
+    third = extra[:, 0]
+    n_bins = min(RANGE_FACETS, MAX_FACETS)
+    edges = np.unique(np.quantile(third, np.linspace(0.0, 1.0, n_bins + 1)))
+    bins = np.clip(np.searchsorted(edges, third, side="right") - 1, 0, len(edges) - 2)
+    points = np.column_stack([table[v.key] for v in views[:2]])
+    if all(len(np.unique(points[bins == b], axis=0)) == int(np.sum(bins == b))
+           for b in range(len(edges) - 1)):
+        view = views[2]
+        titles = []
+        for b in range(len(edges) - 1):
+            vals = third[bins == b]
+            k = _exponent(vals)
+            unit = (f" 10$^{{{k}}}$" if k else "") + (f" {view.unit}" if view.unit else "")
+            titles.append(f"{view.key} {vals.min() / 10.0 ** k:.4g} to "
+                          f"{vals.max() / 10.0 ** k:.4g}{unit} ({vals.size} rows)")
+        rest = (f"; {', '.join(v.key for v in views[3:])} not separated within a panel"
+                if len(views) > 3 else "")
+        return (titles, bins,
+                f"one row of panels per range of {view.key} ({len(combos)} values, too many "
+                f"for a row each): every row of the sweep drawn{rest}")
+    left = int(np.sum(index >= MAX_FACETS))
+    index = np.where(index < MAX_FACETS, index, -1)
+    return ([_value_text(views[2:], c) for c in combos[:MAX_FACETS]], index,
+            f"showing {MAX_FACETS} of {len(combos)} values of {keys} (one row each); "
+            f"{len(combos) - MAX_FACETS} values ({left} rows) not drawn")
 
 
 def _value_text(views, values):
@@ -343,9 +380,12 @@ def sweep_figure(path: "str | Path") -> "Figure":
 
     One axis: Mdot and v_inf against it.  Two: colour maps over them.  Three
     or more: one row of colour maps per distinct value (combination) of the
-    further axes, one colour scale per quantity for all rows; at most
-    :data:`MAX_FACETS` rows, the title saying how many combinations and rows
-    are not drawn when there are more.  Failed models are grey crosses,
+    further axes, one colour scale per quantity for all rows.  More than
+    :data:`MAX_FACETS` values (a random or latin design): one row per range
+    of the third axis (:data:`RANGE_FACETS` ranges of equal counts) when no
+    two rows of a range share a point of the first two axes; else the first
+    :data:`MAX_FACETS` values, the title saying how many values and rows are
+    not drawn.  Failed models are grey crosses,
     counted in the title; each axis is in the unit the sweep file wrote it in
     (:func:`windsolve.sweep.axis_views`), divided by a power of ten that its
     label states when the numbers are long.
@@ -409,9 +449,10 @@ def sweep_figure(path: "str | Path") -> "Figure":
     (x, xlabel), (y, ylabel) = axis[0], axis[1]
     if len(views) == 2:
         index = np.zeros(len(ok), dtype=int)
-        combos, shown = np.zeros((1, 0)), 1
+        titles, note = [""], ""
     else:
-        combos, index, shown = _facets(table, views)
+        titles, index, note = _facets(table, views)
+    shown = len(titles)
     fig, axs = plt.subplots(shown, 2, figsize=(11, 1.2 + 3.3 * shown), squeeze=False,
                             sharex=True, sharey=True, constrained_layout=True)
     colours = []
@@ -437,21 +478,15 @@ def sweep_figure(path: "str | Path") -> "Figure":
                 ax.set_xscale("log")
             if views[1].log:
                 ax.set_yscale("log")
-            if len(views) > 2:
-                ax.set_title(_value_text(views[2:], combos[i]), fontsize=9)
+            if titles[i]:
+                ax.set_title(titles[i], fontsize=9)
             if i == shown - 1:
                 ax.set_xlabel(xlabel)
             if j == 0:
                 ax.set_ylabel(ylabel)
         fig.colorbar(sc, ax=axs[:, j]).set_label(zlabel)
-    if len(views) > 2:
-        keys = ", ".join(v.key for v in views[2:])
-        if shown < len(combos):
-            left = int(np.sum(index >= shown))
-            title += (f"\nshowing {shown} of {len(combos)} values of {keys} (one row each); "
-                      f"{len(combos) - shown} values ({left} rows) not drawn")
-        else:
-            title += f"\none row of panels per value of {keys}: every row of the sweep drawn"
+    if note:
+        title += "\n" + note
     _legend_outside(fig, axs.flat)
     _all_ticks(fig)
     fig.suptitle(title)
