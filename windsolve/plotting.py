@@ -206,6 +206,16 @@ def _all_ticks(fig):
             label_log_ticks(ax, which)
 
 
+def _plain_colorbar(cb):
+    """A colour bar labelled in plain numbers (no offset or multiplier text)."""
+    from matplotlib import ticker
+    formatter = ticker.ScalarFormatter(useOffset=False)
+    formatter.set_scientific(False)
+    cb.formatter = formatter
+    cb.update_ticks()
+    return cb
+
+
 def _legend_outside(fig, axes, ncols=3):
     """One legend for the figure, below every axes (it can cover no data)."""
     seen = {}
@@ -484,7 +494,7 @@ def sweep_figure(path: "str | Path") -> "Figure":
                 ax.set_xlabel(xlabel)
             if j == 0:
                 ax.set_ylabel(ylabel)
-        fig.colorbar(sc, ax=axs[:, j]).set_label(zlabel)
+        _plain_colorbar(fig.colorbar(sc, ax=axs[:, j])).set_label(zlabel)
     if note:
         title += "\n" + note
     _legend_outside(fig, axs.flat)
@@ -874,7 +884,7 @@ def chi2_figure(table: dict, views: list, chi2: np.ndarray,
         sc = ax.scatter(px, py, c=np.log10(1.0 + pz - lo), cmap="viridis_r", s=40,
                         marker="s", label="compared" if p == 2 else
                         f"best over {', '.join(v.key for v in views[2:])}")
-        cb = fig.colorbar(sc, ax=ax)
+        cb = _plain_colorbar(fig.colorbar(sc, ax=ax))
         cb.set_label(r"log$_{10}$(1 + Δχ²),  Δχ² = χ² − χ²$_{\rm min}$")
         if (~ok).any():
             ax.scatter(x[~ok], y[~ok], marker="x", color=FAILED_COLOR, s=30,
