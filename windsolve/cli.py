@@ -394,6 +394,10 @@ def cmd_lines(args: argparse.Namespace) -> int:
     if not result.profile:
         raise WindsolveError(f"{args.file}: the result has no profile ({result.message})")
     line = (pcygni_profile if args.pcygni else emission_profile)(result, settings)
+    plot = args.output is not None and Path(args.output).suffix.lower() != ".csv"
+    if plot:  # refuse a profile that is no solution before printing anything
+        from .plotting import check_line
+        check_line(line)
 
     def kms(q):
         v = q.to_value(u.km / u.s)
@@ -430,7 +434,8 @@ def cmd_lines(args: argparse.Namespace) -> int:
             line.to_csv(args.output)
         else:
             from .plotting import plot_line
-            plot_line(line, args.output, title=f"{getattr(result.model, 'name', '')}")
+            plot_line(line, args.output, title=f"{getattr(result.model, 'name', '')}",
+                      settings=settings)
         print(f"wrote {args.output}")
     return EXIT_OK
 
@@ -630,8 +635,16 @@ def _compare_grid(args, objects):
                              grid.table)
         print(f"wrote {args.output}")
     if args.plot is not None:
+        from .observe import chi2_map, delta_chi2_level
         from .plotting import plot_chi2
-        plot_chi2(grid.table, grid.views, c.chi2, args.plot)
+        if len(grid.views) == 1:
+            lo = float(np.nanmin(np.where(c.compared, c.chi2, np.nan)))
+            regions = {"n_params": 1, "chi2_min": lo,
+                       "levels": {s: lo + delta_chi2_level(1, s) for s in (1, 2, 3)}}
+        else:
+            regions = chi2_map(c, values[names[0]], values[names[1]])
+        plot_chi2(grid.table, grid.views, np.where(c.compared, c.chi2, np.nan), args.plot,
+                  regions)
         print(f"wrote {args.plot}")
     return EXIT_OK
 

@@ -460,7 +460,7 @@ def plot_family(result: FamilyResult, path: str | Path) -> str | Path:
     OutputError
         The figure cannot be written.
     """
-    from .plotting import pyplot, save
+    from .plotting import label_log_ticks, pyplot, save
 
     plt = pyplot()
 
@@ -491,6 +491,9 @@ def plot_family(result: FamilyResult, path: str | Path) -> str | Path:
         ax.grid(True, which="both", alpha=0.25)
     for ax in axes[-1]:
         ax.set_xlabel(r"photosphere radius  $R_{\rm ph}$  [R$_\odot$]")
+    for ax in axes.flat:  # labelled ticks on short log axes, no offset text
+        label_log_ticks(ax, "x")
+        label_log_ticks(ax, "y")
     if result.model is not None:
         L, name = result.model.photosphere_luminosity.to_value(u.Lsun), result.model.name
     else:
