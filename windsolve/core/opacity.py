@@ -342,8 +342,22 @@ def _cell_value(O, i, log_T, log_R):
     nT = int(O[SLOT_NT])
     nR = int(O[SLOT_NR])
     start_R = SLOT_GRID + nT
-    start_F = start_R + nR
     j = _find_cell(O, start_R, nR, log_R, O[SLOT_INV_HR])
+    if O[SLOT_HOLES] != 0.0 and j > 0:
+        # On the upper end of a ragged row's strip the cell found starts
+        # there (beyond the strip): take the one below it.
+        if O[start_R + j] >= O[_strip_start(O) + 2 * i + 1] - EDGE_TOL:
+            j -= 1
+    return _hermite(O, i, j, log_T, log_R)
+
+
+@njit(cache=True, error_model="numpy", inline="always")
+def _hermite(O, i, j, log_T, log_R):
+    """The bicubic Hermite value on cell (i, j) (Notes of table_log_opacity)."""
+    nT = int(O[SLOT_NT])
+    nR = int(O[SLOT_NR])
+    start_R = SLOT_GRID + nT
+    start_F = start_R + nR
     x0 = O[SLOT_GRID + i]
     hx = O[SLOT_GRID + i + 1] - x0
     y0 = O[start_R + j]
