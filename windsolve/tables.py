@@ -571,6 +571,10 @@ class OpalFile:
 
         on the two nodes around x and the nearer outer neighbour (two nodes:
         linear).  Node by node on the (log10 T, log10 R) grid.
+
+        References
+        ----------
+        docs/physics.md, section 10 (the scheme, its accuracy and tolerances).
         """
         where = self.where
         if mixture is not None and _mix_key(mixture) != _mix_key(self.mixture):
@@ -708,6 +712,10 @@ def read_opal(path: str | Path, where: str | None = None) -> OpalFile:
         One line naming the file and line: not the layout, truncated or ragged
         blocks, a value that is not a number (or NaN), a composition that does
         not add up to 1.
+
+    References
+    ----------
+    docs/physics.md, section 10; Iglesias & Rogers 1996, ApJ 464, 943.
     """
     path = Path(path)
     where = where or str(path)
