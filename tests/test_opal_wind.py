@@ -139,6 +139,27 @@ def test_off_table_low_trials_do_not_fail_the_model(tmp_path):
     assert _photosphere_log_R(0.7 * mdot, *args) < -8.0  # ... lower trials are not
 
 
+def test_leaving_the_table_names_the_point_and_the_edge(tmp_path):
+    # an invented helium star at T_eff = 2e5 K, Gamma_es = 0.53: every trial's shot runs
+    # below log R = -8 on its way in; status off_table, the message names (rho, T), the
+    # table coordinates and the edge
+    text = HELIUM.read_text()
+    text = text.replace('photosphere_luminosity = "6.5e5 Lsun"',
+                        'photosphere_luminosity = "5.2e5 Lsun"')
+    text = text.replace('photosphere_temperature = "1.2e5 K"',
+                        'photosphere_temperature = "2e5 K"')
+    model_file = tmp_path / "off.toml"
+    model_file.write_text(text)
+    result = windsolve.solve(windsolve.load_model(model_file))
+    assert not result.converged and result.status == "off_table"
+    m = re.search(r"rho = (\S+) g/cm3, T = (\S+) K \(log T = (\S+), log R = (\S+)\): "
+                  r"(below|at) the table's low-log R edge", result.message)
+    assert m, result.message
+    rho, T, log_T, log_R = (float(g) for g in m.groups()[:4])
+    assert log_R == pytest.approx(math.log10(rho) - 3 * math.log10(T / 1e6), abs=2e-3)
+    assert log_R < -8.0 + 1e-3  # GN93hz's lowest log R is -8.0
+
+
 def test_shipped_table_by_short_name_and_by_path(tmp_path):
     model = windsolve.load_model(HELIUM)
     assert Path(model.opacity.params["path"]) == PACKAGED

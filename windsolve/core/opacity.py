@@ -873,4 +873,11 @@ def describe_off_table(O, rho, T):
         return f"{where}: below the table's low-log R edge ({span})"
     if log_R > hi + EDGE_TOL:
         return f"{where}: beyond the table's high-log R edge ({span})"
-    return f"{where}: on the table's edge ({span})"
+    # Inside, just short of an edge (where a failing step stops): the nearest one.
+    edges = ((log_R - lo, "low-log R edge"), (hi - log_R, "high-log R edge"),
+             (log_T - O[SLOT_LOGT_MIN], "low-log T edge"),
+             (O[SLOT_LOGT_MAX] - log_T, "high-log T edge"))
+    if O[SLOT_HOLES] != 0.0:
+        edges += ((_strip_margin(O, log_T, log_R), "edge of a hole"),)
+    name = min(edges, key=lambda e: e[0])[1]  # the first of equals
+    return f"{where}: at the table's {name} ({span})"
