@@ -107,6 +107,23 @@ def test_mass_loss_rate_converged_under_tighter_tolerance(written):
             assert abs(fine.summary[key] / written[name].summary[key] - 1) < 1e-7
 
 
+@pytest.mark.slow
+def test_both_anchors_agree_on_the_real_table(written):
+    # the base-anchored twin of the helium star (R0, L0, T0 from its profile's inner end)
+    # finds the same wind: Mdot and R_ph to 1e-6 (measured 1.3e-9; about 1.5 s, the
+    # nested root-finds of today's base anchor)
+    from windsolve import DiffusionWind
+    s = written["helium"].summary
+    m = written["helium"].model
+    base = DiffusionWind(name="base twin", mass=m.mass, X=m.X, Z=m.Z, opacity=m.opacity,
+                         radius=s["base_radius"], luminosity=s["base_luminosity"],
+                         base_temperature=s["base_temperature"])
+    result = windsolve.solve(base)
+    assert result.converged, result.message
+    for key in ("mass_loss_rate", "photosphere_radius", "terminal_velocity"):
+        assert abs(result.summary[key] / s[key] - 1) < 1e-6
+
+
 def _photosphere_log_R(mdot, R, L, T, M, X, Z):
     """log10 R at the photosphere of a trial Mdot (docs/physics.md, eqs. 23, 24, written out):
     tau = kappa_es Mdot / (2 pi R (v + v_inf)) = 2/3 with v_inf^2 = v^2 - W."""
