@@ -72,7 +72,7 @@ def log_kappa_at(O, log_T, log_R):
 
 
 def test_shipped_file_is_the_published_one():
-    # md5 and size as ../shared/data/opacity/README.md gives them for the OPAL file
+    # md5 and size of the published file, as windsolve/data/opacity/README.md records them
     data = PACKAGED.read_bytes()
     assert len(data) == 1_227_876
     assert hashlib.md5(data).hexdigest() == "2460d83d1998c7e61c862b68bb7da4a2"
