@@ -112,12 +112,22 @@ def cmd_check(args: argparse.Namespace) -> int:
     from .registry import spec_for
 
     model, source = _load(args.model)
+    if getattr(args, "plot", None):
+        _check_output(args.plot, ".png")
+        if spec_for(model).opacity_path is None:
+            raise WindsolveError(f"check --plot: a {model.kind} model has no temperature path "
+                             f"to draw (kappa and Gamma along T are drawn for diffusion "
+                             f"models)")
     rows, notes = spec_for(model).check(model, source)
     width = max(len(k) for k, _ in rows)
     for key, value in rows:
         print(f"  {key:<{width}}  {value}")
     for note in notes:
         print(f"  note: {note}")
+    if getattr(args, "plot", None):
+        from .opacity_plot import plot_opacity_path
+        plot_opacity_path(model, args.plot)
+        print(f"  plot: {args.plot}")
     return EXIT_OK
 
 
@@ -1090,6 +1100,9 @@ def build_parser() -> argparse.ArgumentParser:
                                    "Eddington luminosity, Gamma at the base, the escape "
                                    "speed and the expected sonic radius, without solving.")
     p.add_argument("model", nargs="?", help="model file (TOML); default: the built-in demo")
+    p.add_argument("--plot", metavar="OUT.png",
+                   help="draw kappa and Gamma along the temperatures the wind crosses "
+                        "(diffusion models)")
     p.set_defaults(func=cmd_check)
 
     p = sub.add_parser("inspect", help="print what a result file holds",

@@ -191,6 +191,11 @@ class ModelSpec:
     photosphere_family : callable or None
         ``photosphere_family(model) -> bool``: can :func:`windsolve.family.solve_family`
         scan this model at a fixed photosphere luminosity?  None: never.
+    opacity_path : callable or None
+        ``opacity_path(model) -> dict``: kappa and Gamma on the temperatures
+        the wind crosses (what ``windsolve check --plot`` draws; see
+        :func:`windsolve.models.diffusion.check.opacity_along`); None: the
+        model has no such path (an isothermal wind).
     """
 
     kind: str
@@ -205,6 +210,7 @@ class ModelSpec:
     core_radius: object = default_core_radius
     extend_profile: object = None
     photosphere_family: object = None
+    opacity_path: object = None
 
 
 def register(spec: ModelSpec, replace: bool = False) -> ModelSpec:

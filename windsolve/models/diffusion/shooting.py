@@ -28,6 +28,7 @@ import numpy as np
 
 from ...core.constants import C_LIGHT, R_SUN
 from ...core.critical import SADDLE
+from ...core.opacity import describe_off_table
 from . import kernels as D
 
 DELTA = 1e-6  # start this fraction of r_c off the critical point
@@ -160,8 +161,20 @@ class PhotosphereSolution:
     outer_y: np.ndarray = None  # (ln v, ln T) there
 
 
+def _other_side(code):
+    return D.SIDE_TURN if code == D.SIDE_SONIC else D.SIDE_SONIC
+
+
 def _bracket(P, O, R_ph, L_ph, T_eff, rtol):
-    """ln Mdot bracket (lo, hi, code at lo) between the two ways of missing."""
+    """ln Mdot bracket (lo, hi, code at lo, code at hi) between two ways of missing.
+
+    A trial that leaves the opacity table below every trial with a side
+    (on a real table a low Mdot puts the photosphere itself at log R < -8)
+    is a miss on the low side: when no two sides are found, the last such
+    trial and the first trial with a side above it bracket Mdot, with
+    ``OFF_TABLE`` as the low code (:func:`_solve_photosphere_anchor`
+    bisects on, and an on-table trial below takes its side from there).
+    """
     Q = P.copy()
     gamma_thin = Q[D.I_KES] * L_ph / (4.0 * math.pi * C_LIGHT * Q[D.I_GM])
     W = 2.0 * Q[D.I_GM] * (1.0 - gamma_thin) / R_ph
@@ -171,6 +184,8 @@ def _bracket(P, O, R_ph, L_ph, T_eff, rtol):
     sides = (D.SIDE_SONIC, D.SIDE_TURN)
     _count_shot()
     code_prev = D.shoot_from_photosphere(x, R_ph, L_ph, T_eff, Q, O, rtol)[0]
+    off_low = x if code_prev == D.OFF_TABLE else None  # highest off-table trial below ...
+    first_side = None  # ... the first trial with a side: (ln Mdot, code)
     step = 0.25
     xs = x
     for _ in range(MAX_SHOTS):
@@ -180,16 +195,25 @@ def _bracket(P, O, R_ph, L_ph, T_eff, rtol):
         if code not in sides:
             failures[code] = (r, Q[D.I_MDOT] / (4.0 * math.pi * r * r * v), T)
         if code in sides and code_prev in sides and code != code_prev:
-            return xs - step, xs, code_prev
+            return xs - step, xs, code_prev, code
+        if first_side is None:
+            if code in sides and code_prev in sides:
+                first_side = (xs - step, code_prev)
+            elif code in sides:
+                first_side = (xs, code)
+            elif code == D.OFF_TABLE:
+                off_low = xs
         code_prev = code
         if xs - x > 60.0:
             break
         step = min(step * 1.5, 2.0)
+    if off_low is not None and first_side is not None and first_side[0] > off_low:
+        return off_low, first_side[0], D.OFF_TABLE, first_side[1]
     if D.OFF_TABLE in failures:
         r, rho, T = failures[D.OFF_TABLE]
         raise ModelBFailure(D.OFF_TABLE, f"below the photosphere the solution leaves the "
-                                         f"opacity table (e.g. at rho = {rho:.3g} g/cm3, "
-                                         f"T = {T:.3g} K, r = {r / R_SUN:.4g} Rsun); extend "
+                                         f"opacity table (e.g. at r = {r / R_SUN:.4g} Rsun, "
+                                         f"{describe_off_table(O, rho, T)}); extend "
                                          f"the table or set [opacity] clamp = true")
     raise ModelBFailure(D.INVALID, "no mass-loss rate gives a solution that passes smoothly "
                                    "through a sonic point below this photosphere (Gamma never "
@@ -358,22 +382,35 @@ def _solve_photosphere_anchor(P, O, L_ph, T_eff, rtol, out_x, out_y, max_step):
     R_ph = photosphere_radius(L_ph, T_eff)
     if P[D.I_R_IN] > 0.0 and R_ph <= P[D.I_R_IN]:
         raise ModelBFailure(D.INVALID, "the photosphere lies inside the base radius")
-    lo, hi, code_lo = _bracket(P, O, R_ph, L_ph, T_eff, rtol)
+    lo, hi, code_lo, code_hi = _bracket(P, O, R_ph, L_ph, T_eff, rtol)
     Q = P.copy()
     # Bisect with the step limit of the stored shot below: a different step
     # sequence is a (slightly) different integration, and at a bracket of
-    # 1e-14 that can flip the side the stored shot falls on.
+    # 1e-14 that can flip the side the stored shot falls on.  A trial off the
+    # table (below the solution: the photosphere at log R under the table)
+    # counts as the low side; the first on-table trial there that misses on
+    # the other side than hi's becomes the low code.
     while hi - lo > 1e-14 * (1.0 + abs(lo)):
         m = 0.5 * (lo + hi)
         _count_shot()
         code = D.shoot_stored(m, R_ph, L_ph, T_eff, Q, O, rtol, max_step, NO_X, NO_Y)[0]
-        if code == code_lo:
-            lo = m
-        elif code in (D.SIDE_SONIC, D.SIDE_TURN):
+        if code == code_hi:
             hi = m
+        elif code == _other_side(code_hi):
+            lo = m
+            code_lo = code
+        elif code == D.OFF_TABLE and code_lo == D.OFF_TABLE:
+            lo = m
         else:
             raise ModelBFailure(code, "the inward integration from the photosphere failed "
                                       "while bracketing the mass-loss rate")
+    if code_lo == D.OFF_TABLE:
+        code, r, v, T = D.shoot_from_photosphere(lo, R_ph, L_ph, T_eff, Q, O, rtol)
+        rho = Q[D.I_MDOT] / (4.0 * math.pi * r * r * v)
+        raise ModelBFailure(D.OFF_TABLE, f"no solution on the opacity table for this "
+                                         f"photosphere: the mass-loss rate converges onto "
+                                         f"the table's edge, below it every trial leaves the "
+                                         f"table ({describe_off_table(O, rho, T)})")
     # The sonic-side shot hugs the separatrix down to the sound speed; the
     # other bracketing shot tells how far in it still follows the separatrix.
     x_sonic, x_other = (lo, hi) if code_lo == D.SIDE_SONIC else (hi, lo)
