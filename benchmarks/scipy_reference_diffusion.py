@@ -34,9 +34,14 @@ output) and is classified by the sign of N there, where the kernel uses the
 first accepted point past v^2 - c_T^2 = SONIC_GAP c_T^2 (after a step that
 jumps across v = c_T that point lies beyond it: ~1e-9 in ln Mdot, rarely);
 the "N turned" event is also checked on the first step; ``brentq`` finds T_c
-at fixed r; only electron scattering and the bump law, without porosity.
+at fixed r; only electron scattering, the bump law and an unclamped table
+(the same bicubic Hermite cells on the node data of ``O``, evaluated in plain
+Python, NaN off the table's cells), without porosity.  A trial whose
+photosphere lies off the table is neither side (as in windsolve's scan); the
+reference does not bracket between off-table trials and one side.
 """
 
+import bisect
 import copy
 import math
 
@@ -63,15 +68,67 @@ class _Wind:
         self.GM, self.KG, self.KES, self.R_in, self.T_in = (
             float(P[i]) for i in (D.I_GM, D.I_KG, D.I_KES, D.I_R_IN, D.I_T_IN))
         self.law = int(O[op.SLOT_LAW])
-        if self.law not in (op.LAW_ELECTRON_SCATTERING, op.LAW_BUMP) or O[op.SLOT_H0] > 0.0:
-            raise ValueError("reference: electron scattering or bump law, no porosity")
+        if (self.law not in (op.LAW_ELECTRON_SCATTERING, op.LAW_BUMP, op.LAW_TABLE)
+                or O[op.SLOT_H0] > 0.0):
+            raise ValueError("reference: electron scattering, bump or table law, no porosity")
         self.kes, self.A, self.rho_ref, self.s, self.log_tb, self.width = map(float, O[1:7])
         self.mdot = self.edot = math.nan
+        if self.law == op.LAW_TABLE:
+            self._table(O)
+
+    def _table(self, O):
+        """The table block of O as Python lists (layout: windsolve.core.opacity)."""
+        if O[op.SLOT_CLAMP] != 0.0:
+            raise ValueError("reference: an unclamped table")
+        nT, nR = int(O[op.SLOT_NT]), int(O[op.SLOT_NR])
+        g = op.SLOT_GRID
+        self.tT = [float(x) for x in O[g:g + nT]]
+        self.tR = [float(x) for x in O[g + nT:g + nT + nR]]
+        f = g + nT + nR
+        nodes = O[f:f + 4 * nT * nR].reshape(nT, nR, 4)
+        self.nodes = [[[float(v) for v in nodes[i, j]] for j in range(nR)] for i in range(nT)]
+        strips = O[f + 4 * nT * nR:f + 4 * nT * nR + 2 * (nT - 1)].reshape(nT - 1, 2)
+        self.strips = ([(float(a), float(b)) for a, b in strips] if O[op.SLOT_HOLES] != 0.0
+                       else [(self.tR[0], self.tR[-1])] * (nT - 1))
+
+    def table_opacity(self, rho, T):
+        """Bicubic Hermite on the node values and derivatives of O; NaN off the table
+        (outside the grid or the valid strip of log R of the log T cell)."""
+        x = math.log10(T)
+        y = math.log10(rho) - 3.0 * x + 18.0
+        tT, tR, tol = self.tT, self.tR, op.EDGE_TOL
+        if not (tT[0] - tol <= x <= tT[-1] + tol):
+            return math.nan
+        i = min(max(bisect.bisect_right(tT, x) - 1, 0), len(tT) - 2)
+        lo, hi = self.strips[i]
+        if not (lo - tol <= y <= hi + tol):
+            return math.nan
+        j = min(max(bisect.bisect_right(tR, y) - 1, 0), len(tR) - 2)
+        if j > 0 and tR[j] >= hi - tol:
+            j -= 1
+        hx, hy = tT[i + 1] - tT[i], tR[j + 1] - tR[j]
+        t, s = (x - tT[i]) / hx, (y - tR[j]) / hy
+
+        def basis(u, h):
+            return ((2 * u**3 - 3 * u**2 + 1, h * (u**3 - 2 * u**2 + u)),
+                    (3 * u**2 - 2 * u**3, h * (u**3 - u**2)))
+
+        bt, bs = basis(t, hx), basis(s, hy)
+        total = 0.0
+        for a in (0, 1):
+            for b in (0, 1):
+                v, vx, vy, vxy = self.nodes[i + a][j + b]
+                (Ht, Kt), (Hs, Ks) = bt[a], bs[b]
+                total += v * Ht * Hs + vx * Kt * Hs + vy * Ht * Ks + vxy * Kt * Ks
+        return 10.0 ** total
 
     def opacity(self, rho, T):
-        """kappa_es [1 + A (rho/rho_ref)^s exp(-(log10 T - log10 T_b)^2 / (2 w^2))]."""
+        """kappa_es [1 + A (rho/rho_ref)^s exp(-(log10 T - log10 T_b)^2 / (2 w^2))],
+        or the table's."""
         if self.law == op.LAW_ELECTRON_SCATTERING:
             return self.kes
+        if self.law == op.LAW_TABLE:
+            return self.table_opacity(rho, T)
         d = (math.log10(T) - self.log_tb) / self.width
         return self.kes * (1.0 + self.A * (rho / self.rho_ref) ** self.s * math.exp(-0.5 * d * d))
 
@@ -188,6 +245,8 @@ def shoot(w, ln_mdot, R, L, T, rtol):
     v = w.set_photosphere(math.exp(ln_mdot), R, L, T)
     if not math.isfinite(v):
         return D.FALLBACK, None
+    if not math.isfinite(w.opacity(math.exp(ln_mdot) / (FOUR_PI * R * R * v), T)):
+        return D.OFF_TABLE, None  # the photosphere itself lies off the table
     KG, GM, gap = w.KG, w.GM, D.SONIC_GAP
 
     def sonic(x, y):  # v^2 - c_T^2 falls below SONIC_GAP c_T^2

@@ -62,15 +62,19 @@ def test_base_density_anchor_gives_the_same_wind(twin):
             == pytest.approx(1.0, rel=1e-8), key
 
 
+@pytest.mark.parametrize("rtol", [1e-8, 1e-10])
 @pytest.mark.parametrize("factor", [0.97, 1.03])
-def test_a_warm_start_gives_the_cold_answer_in_fewer_shots(twin, factor):
-    model = base_twin(luminosity=L0 * factor)
+def test_a_warm_start_gives_the_cold_answer_in_fewer_shots(factor, rtol):
+    # The residuals come from integrations to rtol, so two starts agree to
+    # about rtol (measured: up to 8e-9 at rtol = 1e-8, 2e-11 at 1e-10).
+    start = windsolve.solve(base_twin(rtol=rtol))
+    model = base_twin(luminosity=L0 * factor, rtol=rtol)
     cold = windsolve.solve(model)
-    warm = windsolve.solve(model, start_from=twin)
+    warm = windsolve.solve(model, start_from=start)
     assert cold.converged and warm.converged, (cold.message, warm.message)
     for key in ("mass_loss_rate", "photosphere_temperature", "photosphere_luminosity"):
         assert (warm.summary[key] / cold.summary[key]).decompose().value \
-            == pytest.approx(1.0, rel=1e-8), key
+            == pytest.approx(1.0, rel=2 * rtol), key
     assert warm.counters["shots"] < cold.counters["shots"]
 
 

@@ -283,8 +283,8 @@ def test_widths_cgs_equals_line_widths_and_the_profiles(demo_result, kwargs):
 
 
 def test_widths_cgs_of_model_b_with_its_thin_flow(bump_result):
-    # The caller appends the thin flow (here: as line_widths does); the edge
-    # is nan because that flow decelerates, as line_widths says.
+    # The caller appends the thin flow (here: as line_widths does); that flow
+    # decelerates, and its edge comes from every resonance point of each ray.
     result = bump_result
     r, v, rho, Rc = demo_arrays(result)
     fwhm, hwzi, edge = lines.widths_cgs(r, v, rho, lines.LineSettings(), Rc)
@@ -293,7 +293,9 @@ def test_widths_cgs_of_model_b_with_its_thin_flow(bump_result):
     assert np.isfinite(fwhm) and widths["fwhm"].to_value(u.cm / u.s) == pytest.approx(fwhm,
                                                                                      rel=1e-15)
     assert widths["hwzi"].to_value(u.cm / u.s) == pytest.approx(hwzi, rel=1e-15)
-    assert np.isnan(edge) and np.isnan(widths["edge_velocity"].value)
+    assert np.isfinite(edge)
+    assert widths["edge_velocity"].to_value(u.cm / u.s) == pytest.approx(edge, rel=1e-15)
+    assert lines.pcygni_profile(result).edge_velocity.to_value(u.cm / u.s) == edge
     # no gas outside the core: all nan
     assert all(np.isnan(x) for x in lines.widths_cgs(r, v, rho, lines.LineSettings(),
                                                      2 * r[-1]))

@@ -355,10 +355,15 @@ def test_model_b_lines_come_from_the_thin_flow_above_the_photosphere(bump_result
     hwzi = widths["hwzi"].to_value(KM_S)
     assert v_inf * 0.9 < hwzi <= v_ph * 1.01
     assert np.isfinite(widths["fwhm"].value)
-    # The thin flow decelerates (Gamma_thin < 1): no Sobolev P Cygni profile.
-    with pytest.raises(ModelError, match="falls outward"):
-        lines.pcygni_profile(result)
-    assert np.isnan(widths["edge_velocity"].value)
+    # The thin flow decelerates (Gamma_thin < 1), so the fastest gas is at the
+    # photosphere: the P Cygni edge traces v_ph (the fastest gas in front of the
+    # disk), not v_inf (common practice; docs/physics.md, section 7).
+    p = lines.pcygni_profile(result)
+    assert p.slows_outward
+    assert p.fastest.to_value(KM_S) == pytest.approx(v_ph, rel=1e-3)
+    edge = widths["edge_velocity"].to_value(KM_S)
+    assert edge == p.edge_velocity.to_value(KM_S)
+    assert -1.001 * v_ph <= edge < -v_inf
 
 
 def test_result_read_back_from_hdf5_gives_same_widths(demo_result, tmp_path):
@@ -456,13 +461,18 @@ def test_bad_arguments_give_model_errors(demo_result):
         lines.line_widths(failed)
 
 
-def test_velocity_falling_outward_is_refused_for_pcygni_only():
-    # (e) the Sobolev profile here assumes one resonance point per ray; the
-    # optically thin line has no such limit.
+def test_velocity_falling_outward_gives_both_lines_and_an_edge_at_the_fastest_gas():
+    # (e) a wind that slows outward (the beta law reversed: fastest at the
+    # core) has several resonance points per ray; both entry points give the
+    # same finite edge, near -v_max (the fastest gas, in front of the disk),
+    # not -v_inf (common practice; tests/test_lines_any_flow.py checks the
+    # profile itself against a ray-by-ray formal solution).
     profile = beta_law_profile()
     profile["velocity"] = profile["velocity"][::-1].copy()
-    with pytest.raises(ModelError, match="falls outward") as error:
-        lines.pcygni_profile(profile)
-    assert "\n" not in str(error.value)
+    p = lines.pcygni_profile(profile)
     widths = lines.line_widths(profile)
-    assert np.isfinite(widths["fwhm"].value) and np.isnan(widths["edge_velocity"].value)
+    v_max = profile["velocity"].to_value(KM_S).max()
+    assert p.slows_outward and p.fastest.to_value(KM_S) == pytest.approx(v_max, rel=1e-12)
+    assert widths["edge_velocity"].to_value(KM_S) == p.edge_velocity.to_value(KM_S)
+    assert -v_max <= p.edge_velocity.to_value(KM_S) < -0.9 * v_max
+    assert np.isfinite(widths["fwhm"].value)

@@ -246,7 +246,7 @@ def test_kernel_vector_layout_and_user_layer_agree(tmp_path):
     op = Opacity("table", path=str(path))
     O = op.kernel_vector(X, Z)
     nT, nR = table.shape
-    assert O.shape == (K.N_SLOTS + 4 + nT + nR + 4 * nT * nR,)
+    assert O.shape == (K.N_SLOTS + 4 + nT + nR + 4 * nT * nR + 2 * (nT - 1),)
     assert O[K.SLOT_LAW] == K.LAW_TABLE
     assert (O[K.SLOT_LOGT_MIN], O[K.SLOT_LOGT_MAX]) == (3.8, 6.5)
     assert (O[K.SLOT_LOGR_MIN], O[K.SLOT_LOGR_MAX], O[K.SLOT_CLAMP]) == (-8.0, -2.0, 0.0)
@@ -264,8 +264,8 @@ def test_kernel_vector_layout_and_user_layer_agree(tmp_path):
 def test_registry_entry():
     law = OPACITY_LAWS["table"]
     assert law.code == K.LAW_TABLE
-    assert [p.name for p in law.parameters] == ["path", "clamp"]
-    assert [p.default for p in law.parameters] == [None, False]
+    assert [p.name for p in law.parameters] == ["path", "clamp", "format", "mixture"]
+    assert [p.default for p in law.parameters] == [None, False, "auto", ""]
 
 
 @pytest.mark.parametrize("kwargs, fragment", [
@@ -338,7 +338,7 @@ def test_resolved_model_file_round_trips_path_and_clamp(tmp_path):
     loaded = windsolve.load_model(text)
     resolved = loaded.opacity.to_toml()
     assert resolved == {"law": "table", "path": str(tmp_path / "tabs" / "k.txt"),
-                        "clamp": True}
+                        "clamp": True, "format": "auto", "mixture": ""}
     again = windsolve.model_from_dict(tomllib.loads(dumps(loaded.to_dict())))
     assert again.opacity == loaded.opacity
     np.testing.assert_array_equal(again.kernel_arrays[1], loaded.kernel_arrays[1])
@@ -426,7 +426,7 @@ def test_missing_and_binary_files(tmp_path):
         tables.read_table(tmp_path)
     junk = tmp_path / "junk.bin"
     junk.write_bytes(bytes(range(256)) * 4)
-    with pytest.raises(ModelError, match=r"not an opacity table \(neither text nor HDF5\)"):
+    with pytest.raises(ModelError, match=r"not an opacity table in a known layout \(known "):
         tables.read_table(junk)
 
 

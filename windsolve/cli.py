@@ -112,12 +112,22 @@ def cmd_check(args: argparse.Namespace) -> int:
     from .registry import spec_for
 
     model, source = _load(args.model)
+    if getattr(args, "plot", None):
+        _check_output(args.plot, ".png")
+        if spec_for(model).opacity_path is None:
+            raise WindsolveError(f"check --plot: a {model.kind} model has no temperature path "
+                             f"to draw (kappa and Gamma along T are drawn for diffusion "
+                             f"models)")
     rows, notes = spec_for(model).check(model, source)
     width = max(len(k) for k, _ in rows)
     for key, value in rows:
         print(f"  {key:<{width}}  {value}")
     for note in notes:
         print(f"  note: {note}")
+    if getattr(args, "plot", None):
+        from .opacity_plot import plot_opacity_path
+        plot_opacity_path(model, args.plot)
+        print(f"  plot: {args.plot}")
     return EXIT_OK
 
 
@@ -394,6 +404,10 @@ def cmd_lines(args: argparse.Namespace) -> int:
     if not result.profile:
         raise WindsolveError(f"{args.file}: the result has no profile ({result.message})")
     line = (pcygni_profile if args.pcygni else emission_profile)(result, settings)
+    plot = args.output is not None and Path(args.output).suffix.lower() != ".csv"
+    if plot:  # refuse a profile that is no solution before printing anything
+        from .plotting import check_line
+        check_line(line)
 
     def kms(q):
         v = q.to_value(u.km / u.s)
@@ -411,6 +425,14 @@ def cmd_lines(args: argparse.Namespace) -> int:
     v_inf = result.summary.get("terminal_velocity")
     if v_inf is not None:
         print(f"  model terminal velocity  {kms(v_inf)}")
+    if line.fastest is not None:
+        traced = "the edge and HWZI trace the fastest gas"
+        if line.slows_outward:
+            print(f"  fastest gas in the line  {kms(line.fastest)}   (v falls outward beyond "
+                  f"it: {traced}, not the terminal velocity)")
+        else:
+            print(f"  fastest gas in the line  {kms(line.fastest)}   (v rises outward: "
+                  f"{traced}, the outermost)")
     a = result.summary.get("sonic_velocity")
     if (not args.pcygni and a is not None and np.isfinite(line.fwhm.value)
             and line.fwhm < a and settings.broadening_fwhm.value == 0):
@@ -422,7 +444,8 @@ def cmd_lines(args: argparse.Namespace) -> int:
             line.to_csv(args.output)
         else:
             from .plotting import plot_line
-            plot_line(line, args.output, title=f"{getattr(result.model, 'name', '')}")
+            plot_line(line, args.output, title=f"{getattr(result.model, 'name', '')}",
+                      settings=settings)
         print(f"wrote {args.output}")
     return EXIT_OK
 
@@ -622,8 +645,16 @@ def _compare_grid(args, objects):
                              grid.table)
         print(f"wrote {args.output}")
     if args.plot is not None:
+        from .observe import chi2_map, delta_chi2_level
         from .plotting import plot_chi2
-        plot_chi2(grid.table, grid.views, c.chi2, args.plot)
+        if len(grid.views) == 1:
+            lo = float(np.nanmin(np.where(c.compared, c.chi2, np.nan)))
+            regions = {"n_params": 1, "chi2_min": lo,
+                       "levels": {s: lo + delta_chi2_level(1, s) for s in (1, 2, 3)}}
+        else:
+            regions = chi2_map(c, values[names[0]], values[names[1]])
+        plot_chi2(grid.table, grid.views, np.where(c.compared, c.chi2, np.nan), args.plot,
+                  regions)
         print(f"wrote {args.plot}")
     return EXIT_OK
 
@@ -1069,6 +1100,9 @@ def build_parser() -> argparse.ArgumentParser:
                                    "Eddington luminosity, Gamma at the base, the escape "
                                    "speed and the expected sonic radius, without solving.")
     p.add_argument("model", nargs="?", help="model file (TOML); default: the built-in demo")
+    p.add_argument("--plot", metavar="OUT.png",
+                   help="draw kappa and Gamma along the temperatures the wind crosses "
+                        "(diffusion models)")
     p.set_defaults(func=cmd_check)
 
     p = sub.add_parser("inspect", help="print what a result file holds",
@@ -1182,8 +1216,10 @@ def build_parser() -> argparse.ArgumentParser:
                                    "and why, and writes HDF5 and a plot on request.")
     p.add_argument("model", help="model file (model = \"diffusion\", photosphere anchor)")
     p.add_argument("--scan", required=True,
-                   choices=["photosphere_temperature", "photosphere_radius", "mass_loss_rate"],
-                   help="quantity to scan (units: K, Rsun, Msun/yr)")
+                   choices=["photosphere_temperature", "photosphere_radius", "mass_loss_rate",
+                            "base_luminosity", "base_radius"],
+                   help="quantity to scan (units: K, Rsun, Msun/yr; a base-anchored model: "
+                        "base_luminosity in Lsun or base_radius in Rsun)")
     p.add_argument("--from", dest="start", required=True, metavar="START",
                    help="first value of the scan: a number in the scan's unit, or a value "
                         "with a unit (\"2e4 K\")")

@@ -28,12 +28,14 @@ class LawParameter:
     """One parameter of an opacity law as written in the model file.
 
     ``unit`` is an astropy unit (dimensionless for plain numbers), or one of
-    the types ``bool`` (true/false) and ``Path`` (a file path, stored as an
-    absolute path string so that resolved model files work from anywhere).
+    the types ``bool`` (true/false), ``str`` (a word) and ``Path`` (a file
+    path, stored as an absolute path string so that resolved model files work
+    from anywhere; a bare name of a shipped table, e.g. ``"GN93hz"``, names
+    that table).
     """
 
     name: str
-    unit: object  # astropy unit; dimensionless for plain numbers; bool; Path
+    unit: object  # astropy unit; dimensionless for plain numbers; bool; str; Path
     default: object  # value used when omitted; None means required
     doc: str
     positive: bool = False
@@ -41,7 +43,7 @@ class LawParameter:
     @property
     def is_quantity(self) -> bool:
         """True unless the parameter is a flag (``bool``) or a file path (``Path``)."""
-        return self.unit not in (bool, Path)
+        return self.unit not in (bool, Path, str)
 
     def read(self, value, where: str):
         """Check a value from the model file and return it in its stored form.
@@ -72,7 +74,18 @@ class LawParameter:
             if not isinstance(value, (str, Path)) or not str(value).strip():
                 raise ModelError(f"{where} = {plain(value)}: write the file's path as a quoted "
                                  f"string, e.g. \"tables/kappa.txt\"")
+            shipped = tables.packaged_table(str(value))
+            if shipped is not None:
+                return str(shipped)
             return str(Path(value).expanduser().absolute())
+        if self.unit is str:
+            if not isinstance(value, str):
+                raise ModelError(f"{where} = {plain(value)}: write a quoted string")
+            if self.name == "format" and value not in tables.FORMATS:
+                raise ModelError(f"{where} = \"{value}\" is not known"
+                                 f"{nearest(value, tables.FORMATS)}; choose one of: "
+                                 f"{', '.join(tables.FORMATS)}")
+            return value
         q = to_quantity(value, self.unit, where, convert=False)
         if not np.isfinite(q.value):
             raise ModelError(f"{where} = {plain(value)}: must be finite")
@@ -110,16 +123,21 @@ def _table_where(p):
     return f"[opacity] path = \"{p['path']}\""
 
 
-def _pack_table(p, X, Z):
-    # Table edges and the clamp flag; the file is read once per version
+def _load(p, X, Z):
+    # The file is read once per version and composition
     # (windsolve.tables.load_table caches it).
-    table, params, extra = tables.load_table(p["path"], _table_where(p))
-    return params[:4] + (1.0 if p["clamp"] else 0.0,)
+    return tables.load_table(p["path"], _table_where(p), p["format"], X, Z,
+                             p["mixture"] or None)
+
+
+def _pack_table(p, X, Z):
+    # Table edges, the clamp flag and the holes flag.
+    table, params, extra = _load(p, X, Z)
+    return params[:4] + (1.0 if p["clamp"] else 0.0,) + params[5:]
 
 
 def _table_block(p, X, Z):
-    table, params, extra = tables.load_table(p["path"], _table_where(p))
-    return extra
+    return _load(p, X, Z)[2]
 
 
 OPACITY_LAWS = {law.name: law for law in (
@@ -164,6 +182,11 @@ OPACITY_LAWS = {law.name: law for law in (
                          "a relative path is taken from the model file's folder"),
             LawParameter("clamp", bool, False,
                          "outside the table use the nearest edge value instead of stopping"),
+            LawParameter("format", str, "auto",
+                         "the file's layout: auto (from its content), text, hdf5 or opal"),
+            LawParameter("mixture", str, "",
+                         "OPAL files: the metal mixture the model needs (checked against "
+                         "the file's, e.g. \"G&N'93 Solar\"); empty: the file's"),
         ),
         _pack_table, _table_block),
 )}

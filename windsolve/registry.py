@@ -191,10 +191,19 @@ class ModelSpec:
     photosphere_family : callable or None
         ``photosphere_family(model) -> bool``: can :func:`windsolve.family.solve_family`
         scan this model at a fixed photosphere luminosity?  None: never.
+    base_family : callable or None
+        ``base_family(model) -> bool``: can :func:`windsolve.family.solve_family`
+        scan this model's base radius or luminosity at a fixed base
+        temperature or density?  None: never.
     warm_start : bool
         ``solve`` also takes ``start_from``, a converged result of a nearby
         model to start its search from (sweep workers and families pass the
         previous model's).
+    opacity_path : callable or None
+        ``opacity_path(model) -> dict``: kappa and Gamma on the temperatures
+        the wind crosses (what ``windsolve check --plot`` draws; see
+        :func:`windsolve.models.diffusion.check.opacity_along`); None: the
+        model has no such path (an isothermal wind).
     """
 
     kind: str
@@ -209,7 +218,9 @@ class ModelSpec:
     core_radius: object = default_core_radius
     extend_profile: object = None
     photosphere_family: object = None
+    base_family: object = None
     warm_start: bool = False
+    opacity_path: object = None
 
 
 def register(spec: ModelSpec, replace: bool = False) -> ModelSpec:

@@ -25,6 +25,8 @@ slot                        meaning
 2, 3                        log10 T of the first and last grid node
 4, 5                        log10 R of the first and last grid node
 6                           1.0: clamp to the table edge; 0.0: NaN outside
+7                           1.0: the table has holes (ragged edges), 0.0: it
+                            is rectangular (the strip block below is unused)
 11                          nT, number of log10 T nodes (>= 4)
 12                          nR, number of log10 R nodes (>= 4)
 13, 14                      1 / spacing of the log10 T, log10 R nodes when
@@ -34,7 +36,18 @@ slot                        meaning
 15+nT .. 15+nT+nR-1         log10 R nodes, strictly increasing
 15+nT+nR + 4 (i nR + j) +k  node (i, j): k = 0 log10 kappa, 1 its derivative
                             in log10 T, 2 in log10 R, 3 the cross derivative
+S + 2 i, S + 2 i + 1        with S = 15+nT+nR+4 nT nR: the log10 R range
+                            [lo_i, hi_i] of the valid cells of the cell row
+                            i (log10 T between nodes i and i+1); a cell is
+                            valid when none of its four nodes is a hole
 ==========================  =================================================
+
+Tables with holes (published tables are not rectangular: values outside the
+range of the computation are missing) keep NaN at the missing nodes.  The
+valid cells of each row of cells form one run in log10 R (the user layer
+checks or cuts to that), so "on the table" means: log10 T on the grid and
+log10 R inside the strip of its cell row.  The interpolation therefore never
+reads a cell that touches a missing node.
 
 Here R = rho / T6**3 with T6 = T / 1e6 K (cgs), the variable of published
 Rosseland-mean tables; kappa is in cm2 g-1.  Between the nodes the kernel
@@ -71,6 +84,7 @@ SLOT_LOGT_MAX = 3
 SLOT_LOGR_MIN = 4
 SLOT_LOGR_MAX = 5
 SLOT_CLAMP = 6
+SLOT_HOLES = 7
 SLOT_NT = 11
 SLOT_NR = 12
 SLOT_INV_HT = 13
@@ -318,12 +332,32 @@ def table_log_opacity_value(O, log_T, log_R):
     float
         log10 kappa [log10 cm^2 g^-1].
     """
+    i = _find_cell(O, SLOT_GRID, int(O[SLOT_NT]), log_T, O[SLOT_INV_HT])
+    return _cell_value(O, i, log_T, log_R)
+
+
+@njit(cache=True, error_model="numpy", inline="always")
+def _cell_value(O, i, log_T, log_R):
+    """log10 kappa at a point of the cell row i (the log10 R cell found here)."""
+    nT = int(O[SLOT_NT])
+    nR = int(O[SLOT_NR])
+    start_R = SLOT_GRID + nT
+    j = _find_cell(O, start_R, nR, log_R, O[SLOT_INV_HR])
+    if O[SLOT_HOLES] != 0.0 and j > 0:
+        # On the upper end of a ragged row's strip the cell found starts
+        # there (beyond the strip): take the one below it.
+        if O[start_R + j] >= O[_strip_start(O) + 2 * i + 1] - EDGE_TOL:
+            j -= 1
+    return _hermite(O, i, j, log_T, log_R)
+
+
+@njit(cache=True, error_model="numpy", inline="always")
+def _hermite(O, i, j, log_T, log_R):
+    """The bicubic Hermite value on cell (i, j) (Notes of table_log_opacity)."""
     nT = int(O[SLOT_NT])
     nR = int(O[SLOT_NR])
     start_R = SLOT_GRID + nT
     start_F = start_R + nR
-    i = _find_cell(O, SLOT_GRID, nT, log_T, O[SLOT_INV_HT])
-    j = _find_cell(O, start_R, nR, log_R, O[SLOT_INV_HR])
     x0 = O[SLOT_GRID + i]
     hx = O[SLOT_GRID + i + 1] - x0
     y0 = O[start_R + j]
@@ -351,6 +385,14 @@ def table_log_opacity_value(O, log_T, log_R):
             + H1s * (H0t * O[k01] + K0t * O[k01 + 1] + H1t * O[k11] + K1t * O[k11 + 1])
             + K1s * (H0t * O[k01 + 2] + K0t * O[k01 + 3] + H1t * O[k11 + 2]
                      + K1t * O[k11 + 3]))
+
+
+@njit(cache=True, error_model="numpy", inline="always")
+def _strip_start(O):
+    """Index of the first strip bound (lo_0) in O (module docstring)."""
+    nT = int(O[SLOT_NT])
+    nR = int(O[SLOT_NR])
+    return SLOT_GRID + nT + nR + NODE_STRIDE * nT * nR
 
 
 @njit(cache=True, error_model="numpy", inline="always")
@@ -401,7 +443,16 @@ def table_opacity(O, rho, T):
             log_R = O[SLOT_LOGR_MIN]
         elif log_R > O[SLOT_LOGR_MAX]:
             log_R = O[SLOT_LOGR_MAX]
-    return math.exp(LN10 * table_log_opacity_value(O, log_T, log_R))
+    i = _find_cell(O, SLOT_GRID, int(O[SLOT_NT]), log_T, O[SLOT_INV_HT])
+    if O[SLOT_HOLES] != 0.0:
+        # A ragged table: log10 R must lie in the strip of valid cells of
+        # this cell row; clamping moves it onto the strip's nearer end.
+        k = _strip_start(O) + 2 * i
+        if log_R < O[k] - EDGE_TOL or log_R > O[k + 1] + EDGE_TOL:
+            if O[SLOT_CLAMP] == 0.0:
+                return np.nan
+            log_R = O[k] if log_R < O[k] else O[k + 1]
+    return math.exp(LN10 * _cell_value(O, i, log_T, log_R))
 
 
 @njit(cache=True, error_model="numpy", inline="always")
@@ -429,7 +480,13 @@ def off_table(O, rho, T):
     if O[SLOT_LAW] != LAW_TABLE or O[SLOT_CLAMP] != 0.0:
         return False
     log_T, log_R = table_coordinates(rho, T)
-    return _outside(O, log_T, log_R)
+    if _outside(O, log_T, log_R):
+        return True
+    if O[SLOT_HOLES] == 0.0:
+        return False
+    k = _strip_start(O) + 2 * _find_cell(O, SLOT_GRID, int(O[SLOT_NT]), log_T,
+                                         O[SLOT_INV_HT])
+    return log_R < O[k] - EDGE_TOL or log_R > O[k + 1] + EDGE_TOL
 
 
 @njit(cache=True, error_model="numpy", inline="always")
@@ -497,8 +554,33 @@ def table_margin(O, rho, T):
     if O[SLOT_LAW] != LAW_TABLE or O[SLOT_CLAMP] != 0.0:
         return np.inf
     log_T, log_R = table_coordinates(rho, T)
-    return min(log_T - O[SLOT_LOGT_MIN], O[SLOT_LOGT_MAX] - log_T,
-               log_R - O[SLOT_LOGR_MIN], O[SLOT_LOGR_MAX] - log_R)
+    m = min(log_T - O[SLOT_LOGT_MIN], O[SLOT_LOGT_MAX] - log_T,
+            log_R - O[SLOT_LOGR_MIN], O[SLOT_LOGR_MAX] - log_R)
+    if O[SLOT_HOLES] == 0.0 or not m >= -EDGE_TOL:
+        return m
+    return min(m, _strip_margin(O, log_T, log_R))
+
+
+@njit(cache=True, error_model="numpy")
+def _strip_margin(O, log_T, log_R):
+    """Distance [dex] to the edge of the valid cells of a ragged table.
+
+    In log10 R to the ends of the point's own strip, in log10 T to the
+    neighbouring cell row when that row's strip does not hold log10 R (the
+    edge of a hole lies there).  Negative in a hole.
+    """
+    nT = int(O[SLOT_NT])
+    i = _find_cell(O, SLOT_GRID, nT, log_T, O[SLOT_INV_HT])
+    S = _strip_start(O)
+    k = S + 2 * i
+    m = min(log_R - O[k], O[k + 1] - log_R)
+    if i + 1 < nT - 1:
+        if log_R < O[k + 2] or log_R > O[k + 3]:
+            m = min(m, O[SLOT_GRID + i + 1] - log_T)
+    if i > 0:
+        if log_R < O[k - 2] or log_R > O[k - 1]:
+            m = min(m, log_T - O[SLOT_GRID + i])
+    return m
 
 
 @njit(cache=True, error_model="numpy")
@@ -676,9 +758,9 @@ def pack_table(log_T, log_R, nodes, clamp=False):
     Returns
     -------
     params : tuple of float
-        Slots 2-6 (grid edges, clamp flag).
+        Slots 2-7 (grid edges, clamp flag, holes flag).
     extra : ndarray
-        The table block (slot 11 on).
+        The table block (slot 11 on), with the cell strips at its end.
 
     Raises
     ------
@@ -691,10 +773,54 @@ def pack_table(log_T, log_R, nodes, clamp=False):
     nT, nR = log_T.size, log_R.size
     if nodes.shape != (nT, nR, NODE_STRIDE):
         raise ValueError(f"node data of shape {nodes.shape}, expected {(nT, nR, NODE_STRIDE)}")
-    params = (log_T[0], log_T[-1], log_R[0], log_R[-1], 1.0 if clamp else 0.0)
+    strips = cell_strips(log_R, nodes[:, :, 0])
+    holes = bool(np.isnan(nodes[:, :, 0]).any())
+    params = (log_T[0], log_T[-1], log_R[0], log_R[-1], 1.0 if clamp else 0.0,
+              1.0 if holes else 0.0)
     extra = np.concatenate(([nT, nR, _inverse_step(log_T), _inverse_step(log_R)],
-                            log_T, log_R, nodes.ravel()))
+                            log_T, log_R, nodes.ravel(), strips.ravel()))
     return params, extra
+
+
+def cell_strips(log_R, log_kappa):
+    """The log10 R range [lo_i, hi_i] of the valid cells of each cell row, (nT - 1, 2).
+
+    A cell is valid when its four nodes are finite.  Where a row's valid
+    cells form several runs, the longest is kept (the others count as
+    outside); a row without one gets (inf, -inf): nothing is inside.
+
+    Parameters
+    ----------
+    log_R : array_like (nR,)
+        log10 R nodes [log10 g cm^-3].
+    log_kappa : array_like (nT, nR)
+        Node values, NaN at holes.
+
+    Returns
+    -------
+    ndarray (nT - 1, 2)
+        lo_i, hi_i [log10 g cm^-3].
+    """
+    log_R = np.asarray(log_R, dtype=float)
+    f = np.isfinite(np.asarray(log_kappa, dtype=float))
+    valid = f[:-1, :-1] & f[:-1, 1:] & f[1:, :-1] & f[1:, 1:]
+    out = np.empty((valid.shape[0], 2))
+    for i, row in enumerate(valid):
+        best, run, start, best_start = 0, 0, 0, 0
+        for j, ok in enumerate(row):
+            if ok:
+                if run == 0:
+                    start = j
+                run += 1
+                if run > best:
+                    best, best_start = run, start
+            else:
+                run = 0
+        if best:
+            out[i] = log_R[best_start], log_R[best_start + best]
+        else:
+            out[i] = np.inf, -np.inf
+    return out
 
 
 def _inverse_step(grid):
@@ -703,3 +829,55 @@ def _inverse_step(grid):
     if np.ptp(steps) <= UNIFORM_TOL * steps.mean():
         return (grid.size - 1) / (grid[-1] - grid[0])
     return 0.0
+
+
+def describe_off_table(O, rho, T):
+    """Where (rho, T) lies off a table, in words (plain Python, for messages).
+
+    Parameters
+    ----------
+    O : ndarray
+        Opacity vector of the tabulated law.
+    rho : float
+        Density [g cm^-3].
+    T : float
+        Temperature [K].
+
+    Returns
+    -------
+    str
+        E.g. ``"rho = 1e-12 g/cm3, T = 1e+05 K (log T = 5, log R = -8.2): below the
+        table's log R edge -8 at this log T"``.
+    """
+    log_T = math.log10(T)
+    log_R = math.log10(rho) - 3.0 * log_T + 18.0
+    where = (f"rho = {rho:.3g} g/cm3, T = {T:.3g} K (log T = {log_T:.3f}, "
+             f"log R = {log_R:.3f})")
+    if O[SLOT_LAW] != LAW_TABLE:
+        return where
+    if log_T < O[SLOT_LOGT_MIN] - EDGE_TOL:
+        return f"{where}: below the table's lowest log T = {O[SLOT_LOGT_MIN]:g}"
+    if log_T > O[SLOT_LOGT_MAX] + EDGE_TOL:
+        return f"{where}: above the table's highest log T = {O[SLOT_LOGT_MAX]:g}"
+    lo, hi = O[SLOT_LOGR_MIN], O[SLOT_LOGR_MAX]
+    if O[SLOT_HOLES] != 0.0:
+        nT = int(O[SLOT_NT])
+        grid = O[SLOT_GRID:SLOT_GRID + nT]
+        i = min(max(int(np.searchsorted(grid, log_T, side="right")) - 1, 0), nT - 2)
+        k = _strip_start(O) + 2 * i
+        lo, hi = O[k], O[k + 1]
+        span = f"at log T = {grid[i]:g} .. {grid[i + 1]:g} the table holds log R = {lo:g} .. {hi:g}"
+    else:
+        span = f"the table holds log R = {lo:g} .. {hi:g}"
+    if log_R < lo - EDGE_TOL:
+        return f"{where}: below the table's low-log R edge ({span})"
+    if log_R > hi + EDGE_TOL:
+        return f"{where}: beyond the table's high-log R edge ({span})"
+    # Inside, just short of an edge (where a failing step stops): the nearest one.
+    edges = ((log_R - lo, "low-log R edge"), (hi - log_R, "high-log R edge"),
+             (log_T - O[SLOT_LOGT_MIN], "low-log T edge"),
+             (O[SLOT_LOGT_MAX] - log_T, "high-log T edge"))
+    if O[SLOT_HOLES] != 0.0:
+        edges += ((_strip_margin(O, log_T, log_R), "edge of a hole"),)
+    name = min(edges, key=lambda e: e[0])[1]  # the first of equals
+    return f"{where}: at the table's {name} ({span})"

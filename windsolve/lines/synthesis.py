@@ -42,10 +42,6 @@ class _NoGasOutsideCore(ModelError):
     """No tabulated point lies outside the core radius (line_widths gives NaN)."""
 
 
-class _NotMonotonic(ModelError):
-    """v(r) falls outward outside the core (line_widths gives a NaN blue edge)."""
-
-
 def _nan_speed():
     return np.nan * KM_S
 
@@ -66,6 +62,15 @@ class LineProfile:
         [km/s] as defined in docs/lines.md; NaN where not defined
         (fwhm and hwzi for P Cygni, edge_velocity for emission) or not
         measurable.
+    fastest : Quantity or None
+        [km/s] the largest v of the gas that makes the line (outside the core
+        radius); the blue edge and the HWZI trace this speed.
+    slows_outward : bool
+        True when v(r) falls outward somewhere outside the core radius (by
+        more than MONOTONIC_RTOL v_max): the fastest gas is not the outermost,
+        and the edge traces ``fastest``, not the terminal velocity; the P
+        Cygni profile then sums every resonance point of each ray
+        (docs/physics.md, section 7).
     """
 
     velocity: object
@@ -74,6 +79,8 @@ class LineProfile:
     fwhm: object
     hwzi: object
     edge_velocity: object
+    fastest: object = None
+    slows_outward: bool = False
 
     def to_csv(self, path: "str | Path") -> "Path":
         """Write ``velocity_km_s,flux`` (one header line, then one row per point).
@@ -223,9 +230,10 @@ def emission_profile(result_or_profile: WindResult | Mapping,
                                               c.hwzi_fraction)
     if not ok:
         raise _no_gas(what, Rc, r)
+    fastest, slows = _fastest(r, v, Rc if settings.occultation else r[0])
     return LineProfile(velocity=(w / CM_PER_KM) << KM_S, flux=f, kind="emission",
                        fwhm=(fwhm / CM_PER_KM) * KM_S, hwzi=(hwzi / CM_PER_KM) * KM_S,
-                       edge_velocity=_nan_speed())
+                       edge_velocity=_nan_speed(), fastest=fastest, slows_outward=slows)
 
 
 def pcygni_profile(result_or_profile: WindResult | Mapping,
@@ -236,8 +244,7 @@ def pcygni_profile(result_or_profile: WindResult | Mapping,
     Parameters
     ----------
     result_or_profile : WindResult or dict
-        As for :func:`emission_profile`; v(r) must not fall outward outside
-        the core radius.
+        As for :func:`emission_profile`; v(r) may rise and fall outward.
     settings : LineSettings
         ``line_strength`` (k_0), occultation, broadening, grid, ``edge_depth``.
     core_radius : Quantity or str, optional
@@ -253,7 +260,7 @@ def pcygni_profile(result_or_profile: WindResult | Mapping,
     Raises
     ------
     ModelError
-        Unusable input, no tabulated gas outside R_c, or v(r) falling outward.
+        Unusable input, or no tabulated gas outside R_c.
 
     Notes
     -----
@@ -264,7 +271,12 @@ def pcygni_profile(result_or_profile: WindResult | Mapping,
 
     over the resonance surface mu = -w / v(r) outside the core, with
     tau(r, mu) as in docs/lines.md (kernel
-    :func:`windsolve.core.lines.sobolev.pcygni_flux`).
+    :func:`windsolve.core.lines.sobolev.pcygni_flux`).  Where v(r) falls
+    outward the surface folds and a ray meets it more than once; then every
+    resonance point is summed in order along the ray, each dimming the light
+    behind it (kernel :func:`windsolve.core.lines.sobolev.pcygni_flux_any`;
+    Rybicki & Hummer 1978 without their non-local coupling), and the blue
+    edge lies near -v_max (``LineProfile.fastest``), not -v_inf.
 
     References
     ----------
@@ -274,6 +286,8 @@ def pcygni_profile(result_or_profile: WindResult | Mapping,
     Press) (the Sobolev approximation, from memory).
     Castor, J. I. 1970, MNRAS 149, 111 (escape probabilities, from memory).
     Castor, J. I. & Lamers, H. J. G. L. M. 1979, ApJS 39, 481 (from memory).
+    Rybicki, G. B. & Hummer, D. G. 1978, ApJ 219, 654 (several resonance
+    points per ray, from memory).
     Lamers & Cassinelli 1999, Introduction to Stellar Winds, ch. 2 and ch. 8
     (from memory).
     """
@@ -283,30 +297,29 @@ def pcygni_profile(result_or_profile: WindResult | Mapping,
     Rc = _core_radius(result_or_profile, core_radius, r, what)
     if Rc >= r[-1]:
         raise _no_gas(what, Rc, r)
-    v = _monotonic_outside(r, v, Rc, what)
+    clean, _, fall = kernels.monotonic_outside(r, v, Rc, MONOTONIC_RTOL)
+    slows = fall >= 0
+    if not slows:
+        v = clean  # outward noise below MONOTONIC_RTOL v_max removed: one point per ray
     c = settings.cgs
     w = _velocity_grid(v, c)
     K = kernels.sobolev_strength(r, v, rho, Rc, c.line_strength)
-    F = kernels.pcygni_flux(r, v, rho, K, Rc, c.occultation, w)
+    flux = kernels.pcygni_flux_any if slows else kernels.pcygni_flux
+    F = flux(r, v, rho, K, Rc, c.occultation, w)
     F = kernels.gaussian_broaden(F, w[1] - w[0], c.broadening_sigma, 1.0)
     edge = kernels.pcygni_edge(r, v, rho, K, Rc, c.occultation, w, c.broadening_sigma,
                                c.edge_depth)
+    fastest, _ = _fastest(r, v, Rc)
     return LineProfile(velocity=(w / CM_PER_KM) << KM_S, flux=F, kind="pcygni",
                        fwhm=_nan_speed(), hwzi=_nan_speed(),
-                       edge_velocity=(edge / CM_PER_KM) * KM_S)
+                       edge_velocity=(edge / CM_PER_KM) * KM_S, fastest=fastest,
+                       slows_outward=slows)
 
 
-def _monotonic_outside(r, v, Rc, what):
-    """v with outward noise below MONOTONIC_RTOL v_max removed; ModelError for a real fall."""
-    clean, i0, k = kernels.monotonic_outside(r, v, Rc, MONOTONIC_RTOL)
-    if k >= 0:
-        rsun = u.Rsun.to(u.cm)
-        raise _NotMonotonic(
-            f"{what}: v(r) falls outward outside the core radius (to {v[i0 + k] / 1e5:.4g} "
-            f"km/s at r = {r[i0 + k] / rsun:.4g} Rsun after {clean[i0 + k - 1] / 1e5:.4g} "
-            f"km/s further in); the Sobolev profile here needs v rising outward outside the "
-            f"core radius (one resonance point per ray)")
-    return clean
+def _fastest(r, v, r_start):
+    """(largest v outside r_start [km/s Quantity], whether v falls outward there)."""
+    _, i0, fall = kernels.monotonic_outside(r, v, r_start, MONOTONIC_RTOL)
+    return (v[i0:].max() / CM_PER_KM) * KM_S, bool(fall >= 0)
 
 
 def line_widths(result: WindResult | Mapping, settings: LineSettings = DEFAULT_SETTINGS,
@@ -329,8 +342,10 @@ def line_widths(result: WindResult | Mapping, settings: LineSettings = DEFAULT_S
         of the P Cygni profile, and ``terminal_velocity`` from the result's
         summary (or the dict's ``terminal_velocity`` entry).  NaN where not
         measurable -- also when no tabulated gas lies outside the core radius
-        (a Model B profile with the default core radius, the photosphere) and,
-        for ``edge_velocity``, when v(r) falls outward outside the core.
+        (a Model B profile with the default core radius, the photosphere).
+        Where v(r) falls outward outside the core (Model B's thin flow when
+        Gamma_es < 1) the edge and the HWZI trace the fastest gas, v_max,
+        not the terminal velocity.
 
     Raises
     ------

@@ -23,6 +23,7 @@ from ..core.constants import C_LIGHT, M_SUN, R_SUN, YEAR, G
 from ..errors import ModelError
 from ..opacity import Opacity, nearest
 from ..result import PROFILE_UNITS
+from ..tables import packaged_table
 
 __all__ = ["WindModel", "Param", "param", "format_value", "REQUIRED"]
 
@@ -313,7 +314,10 @@ class WindModel:
                 if top == "opacity":
                     table = dict(value)
                     # A table file is found relative to the model file.
-                    if isinstance(table.get("path"), str) and source != "model":
+                    # A bare name of a shipped table (e.g. "GN93hz") names that
+                    # table; write "./GN93hz" for a file of that name.
+                    if (isinstance(table.get("path"), str) and source != "model"
+                            and packaged_table(table["path"]) is None):
                         path = Path(table["path"]).expanduser()
                         if not path.is_absolute():
                             path = Path(source).resolve().parent / path

@@ -50,6 +50,7 @@ from .sobolev import (
     escape_probabilities,
     pcygni_edge,
     pcygni_flux,
+    pcygni_flux_any,
     sobolev_strength,
     sobolev_tau,
     velocity_gradient,
@@ -61,5 +62,6 @@ __all__ = [
     "emission_flux", "emission_flux_general", "emission_flux_monotonic", "emission_line",
     "escape_probabilities", "gaussian_broaden", "gaussian_weights", "line_widths",
     "monotonic_outside", "nondecreasing", "outermost_crossings", "pcygni_edge", "pcygni_flux",
+    "pcygni_flux_any",
     "refine", "sobolev_strength", "sobolev_tau", "velocity_gradient", "velocity_grid",
 ]

@@ -195,7 +195,8 @@ def line_widths(r, v, rho, Rc, n, occult, fwhm, sigma, hwzi_fraction, edge_depth
     :func:`grid.velocity_grid`; the emission line of :func:`emission_line` (nan
     widths when ``occult`` and Rc >= r[-1], or no flux); the P Cygni edge of
     :func:`sobolev.pcygni_edge` with K from :func:`sobolev.sobolev_strength`, nan when
-    Rc >= r[-1] or v(r) falls outward outside Rc (:func:`grid.monotonic_outside`).
+    Rc >= r[-1]; where v(r) falls outward outside Rc (:func:`grid.monotonic_outside`)
+    the edge sums every resonance point (:func:`sobolev.pcygni_flux_any`).
 
     Parameters
     ----------
@@ -246,7 +247,10 @@ def line_widths(r, v, rho, Rc, n, occult, fwhm, sigma, hwzi_fraction, edge_depth
     edge = np.nan
     if outside:
         vc, i0, bad = monotonic_outside(r, v, Rc, rtol)
-        if bad < 0:
+        if bad >= 0:  # v really falls outward: every resonance point (pcygni_flux_any)
+            K = sobolev_strength(r, v, rho, Rc, k0)
+            edge = _pcygni_edge_refined(rf, vf, lf, r, v, K, Rc, occult, w, sigma, edge_depth)
+        else:
             K = sobolev_strength(r, vc, rho, Rc, k0)
             same = True  # v was already non-decreasing: the shared grid is the same
             for i in range(i0, r.shape[0]):

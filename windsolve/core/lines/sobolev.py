@@ -44,8 +44,9 @@ def sobolev_tau(K, rho, r, v, dvdr, mu):
     """Sobolev optical depth tau = K rho / (mu^2 dv/dr + (1 - mu^2) v / r).
 
     ``K`` [cm^3 g^-1 s^-1] holds the line's cross-section and population
-    (Castor 1970, MNRAS 149, 111; from memory).  A zero velocity gradient
-    along the ray gives tau = inf.
+    (Castor 1970, MNRAS 149, 111; from memory).  The gradient along the ray
+    enters by its magnitude (a decelerating flow, dv/dr < 0, scatters as
+    well as an accelerating one); a zero gradient gives tau = inf.
 
     Parameters
     ----------
@@ -65,14 +66,14 @@ def sobolev_tau(K, rho, r, v, dvdr, mu):
     Returns
     -------
     float
-        tau [dimensionless]; inf where the projected gradient is <= 0.
+        tau [dimensionless]; inf where the projected gradient is 0.
 
     References
     ----------
     docs/physics.md, eq. 28.
     """
-    Q = mu * mu * dvdr + (1.0 - mu * mu) * v / r
-    if Q <= 0.0:
+    Q = abs(mu * mu * dvdr + (1.0 - mu * mu) * v / r)
+    if Q == 0.0:
         return np.inf
     return K * rho / Q
 
@@ -260,12 +261,13 @@ def pcygni_flux(r, v, rho, K, Rc, occult, w):
 
 
 @njit(cache=True, error_model="numpy")
-def _pcygni_nodes(r, dv_tab, rf, vf, lf, K, Rc, df, rhof, s, lo, hi):
+def _pcygni_nodes(r, dv_tab, rf, vf, lf, K, Rc, df, rhof, s, lo, hi, clip=True):
     """Fill the gradient, density and source function S/I_c at fine nodes lo..hi-1.
 
-    The gradient is linear in r between tabulated points; S / I_c =
-    beta_c / beta (:func:`escape_probabilities`), the dilution factor where
-    beta = 0.
+    The gradient is linear in r between tabulated points (clipped at 0 when
+    ``clip``: the one-resonance-point path, where v is non-decreasing and a
+    negative difference is noise); S / I_c = beta_c / beta
+    (:func:`escape_probabilities`), the dilution factor where beta = 0.
     """
     n = r.shape[0]
     # tabulated interval of node lo: the first j with r[j+1] >= rf[lo], at most n - 2
@@ -275,7 +277,9 @@ def _pcygni_nodes(r, dv_tab, rf, vf, lf, K, Rc, df, rhof, s, lo, hi):
         while j < n - 2 and r[j + 1] < rf[i]:
             j += 1
         f = (rf[i] - r[j]) / (r[j + 1] - r[j])
-        df[i] = max(0.0, dv_tab[j] + f * (dv_tab[j + 1] - dv_tab[j]))
+        df[i] = dv_tab[j] + f * (dv_tab[j + 1] - dv_tab[j])
+        if clip and df[i] < 0.0:
+            df[i] = 0.0
         rhof[i] = math.exp(lf[i])
         beta, beta_c = escape_probabilities(K, rhof[i], rf[i], vf[i], df[i], Rc)
         if beta > 0.0:
@@ -355,6 +359,263 @@ def _pcygni_at(wk, i_first, rf, vf, lf, df, rhof, s, K, Rc, occult):
     return 1.0 + acc / Rc2
 
 
+# -- every resonance point: flows that decelerate, or accelerate and decelerate ------
+
+# rows of the float workspace of _pcygni_any_at (one column per surface vertex)
+_P, _Z, _G, _S = 0, 1, 2, 3
+
+
+@njit(cache=True, error_model="numpy")
+def any_flow_workspace(m):
+    """Scratch arrays for :func:`_pcygni_any_at` on a fine grid of m nodes.
+
+    Parameters
+    ----------
+    m : int
+        Nodes of the fine grid.
+
+    Returns
+    -------
+    fw : ndarray
+        float64, shape (4, 2 m + 2): p^2, z, 1 - exp(-tau), S/I_c per vertex.
+    iw : ndarray
+        int64, shape (2, 2 m + 2): first vertex and last vertex of each branch.
+    """
+    return np.empty((4, 2 * m + 2)), np.empty((2, 2 * m + 2), dtype=np.int64)
+
+
+@njit(cache=True, error_model="numpy")
+def _surface_vertex(fw, nv, aw, r, v, d, rho, s, K):
+    """Append the resonance-surface vertex at (r, v, dv/dr, rho, S) for |w| = aw."""
+    mu2 = (aw / v) ** 2 if aw < v else 1.0
+    Q = abs(mu2 * d + (1.0 - mu2) * v / r)
+    tau = K * rho / Q if Q > 0.0 else np.inf
+    fw[_P, nv] = r * r * (1.0 - mu2)
+    fw[_Z, nv] = r * math.sqrt(mu2)
+    fw[_G, nv] = 1.0 if tau > TAU_SATURATED else -math.expm1(-tau)
+    fw[_S, nv] = s
+    return nv + 1
+
+
+@njit(cache=True, error_model="numpy")
+def _surface_crossing(fw, nv, aw, i, rf, vf, lf, df, s, K):
+    """Append the vertex between fine nodes i and i+1 where v = aw (p = 0 there)."""
+    va = vf[i]
+    vb = vf[i + 1]
+    t = (aw - va) / (vb - va)
+    rt = rf[i] + t * (rf[i + 1] - rf[i])
+    dt = df[i] + t * (df[i + 1] - df[i])
+    rhot = math.exp(lf[i] + t * (lf[i + 1] - lf[i]))
+    st = s[i] + t * (s[i + 1] - s[i])
+    return _surface_vertex(fw, nv, aw, rt, aw, dt, rhot, st, K)
+
+
+@njit(cache=True, error_model="numpy")
+def _surface_branches(aw, rf, vf, lf, df, rhof, s, K, fw, iw):
+    """The resonance surface mu = -w / v(r) at |w| = aw, cut into branches.
+
+    Vertices are the fine nodes with v > aw and the points between nodes where
+    v = aw, in order of r; a piece is a run of vertices with v > aw; a
+    branch is a run inside a piece along which p^2 is monotonic (consecutive
+    branches share their turning vertex).  On a branch each ray p meets the
+    surface once.  Returns the number of branches (first and last vertex in
+    ``iw[0]``, ``iw[1]``).
+    """
+    m = rf.shape[0]
+    nv = 0
+    nb = 0
+    start = 0
+    for i in range(m):
+        on = vf[i] > aw
+        before = i > 0 and vf[i - 1] > aw
+        if on and not before:
+            start = nv
+            if i > 0:
+                nv = _surface_crossing(fw, nv, aw, i - 1, rf, vf, lf, df, s, K)
+        if on:
+            nv = _surface_vertex(fw, nv, aw, rf[i], vf[i], df[i], rhof[i], s[i], K)
+        elif before:
+            nv = _surface_crossing(fw, nv, aw, i - 1, rf, vf, lf, df, s, K)
+        if (before or on) and (not on or i == m - 1):  # the piece ends: split it
+            nb = _split_monotonic(fw, iw, nb, start, nv - 1)
+    return nb
+
+
+@njit(cache=True, error_model="numpy")
+def _split_monotonic(fw, iw, nb, a, b):
+    """Append the runs of vertices a..b along which p^2 is monotonic as branches."""
+    if b <= a:
+        return nb
+    first = a
+    sign = 0
+    for k in range(a, b):
+        dp = fw[_P, k + 1] - fw[_P, k]
+        step = 1 if dp > 0.0 else (-1 if dp < 0.0 else 0)
+        if step == 0:
+            continue
+        if sign == 0:
+            sign = step
+        elif step != sign:
+            iw[0, nb] = first
+            iw[1, nb] = k
+            nb += 1
+            first = k
+            sign = step
+    iw[0, nb] = first
+    iw[1, nb] = b
+    return nb + 1
+
+
+@njit(cache=True, error_model="numpy")
+def _pcygni_any_at(wk, rf, vf, lf, df, rhof, s, K, Rc, occult, fw, iw):
+    """F(w) / F_c at one velocity, every resonance point on every ray.
+
+    The surface at |w| is cut into branches (:func:`_surface_branches`); the
+    p^2 axis is cut at every vertex of every branch and at Rc^2, so inside
+    each cut the branches that cross the ray are fixed and each is linear in
+    p^2.  At both ends of a cut the intensity of the ray is summed over its
+    resonance points in order from the observer,
+
+    .. math::
+
+        \\frac{I}{I_c} = \\sum_k S_k g_k \\prod_{j < k} (1 - g_j)
+            + \\mathbb{1}_{\\rm core\\ in\\ front} \\prod_k (1 - g_k),
+        \\qquad g = 1 - e^{-\\tau},
+
+    and the cut is integrated by the trapezoid rule in p^2.  With one branch
+    (v non-decreasing) this is the sum of :func:`_pcygni_at`.
+    """
+    nb = _surface_branches(abs(wk), rf, vf, lf, df, rhof, s, K, fw, iw)
+    if nb == 0:
+        return 1.0
+    front = wk < 0.0
+    Rc2 = Rc * Rc
+    # the cuts: every vertex's p^2 and Rc^2, in increasing order
+    nv = iw[1, nb - 1] + 1
+    cuts = np.empty(nv + 1)
+    cuts[:nv] = fw[_P, :nv]
+    cuts[nv] = Rc2
+    cuts = np.sort(cuts)
+    # each branch as (lo, hi, step): vertices in order of increasing p^2, and a cursor
+    lo = np.empty(nb, dtype=np.int64)
+    hi = np.empty(nb, dtype=np.int64)
+    step = np.empty(nb, dtype=np.int64)
+    cur = np.empty(nb, dtype=np.int64)
+    for b in range(nb):
+        a = iw[0, b]
+        e = iw[1, b]
+        if fw[_P, e] >= fw[_P, a]:
+            lo[b], hi[b], step[b] = a, e, 1
+        else:
+            lo[b], hi[b], step[b] = e, a, -1
+        cur[b] = lo[b]
+    zs = np.empty(nb)
+    gs = np.empty(nb)
+    ss = np.empty(nb)
+    acc = 0.0
+    for c in range(nv):
+        pa = cuts[c]
+        pb = cuts[c + 1]
+        if not pb > pa:
+            continue
+        inside = 0.5 * (pa + pb) < Rc2
+        if inside and not front and occult:
+            continue  # every resonance point of these rays lies behind the core
+        ends = 0.0
+        for end in range(2):
+            pe = pa if end == 0 else pb
+            n = 0
+            for b in range(nb):
+                if not (fw[_P, lo[b]] <= pa and fw[_P, hi[b]] >= pb):
+                    continue
+                k = cur[b]
+                while k != hi[b] and fw[_P, k + step[b]] <= pa:
+                    k += step[b]
+                cur[b] = k
+                k2 = k + step[b] if k != hi[b] else k
+                dp = fw[_P, k2] - fw[_P, k]
+                lam = (pe - fw[_P, k]) / dp if dp > 0.0 else 0.0
+                z = fw[_Z, k] + lam * (fw[_Z, k2] - fw[_Z, k])
+                g = fw[_G, k] + lam * (fw[_G, k2] - fw[_G, k])
+                sv = fw[_S, k] + lam * (fw[_S, k2] - fw[_S, k])
+                # insert in order from the observer: largest z first in front
+                # (z > 0), smallest |z| first behind (z < 0)
+                j = n
+                while j > 0 and (zs[j - 1] < z if front else zs[j - 1] > z):
+                    zs[j] = zs[j - 1]
+                    gs[j] = gs[j - 1]
+                    ss[j] = ss[j - 1]
+                    j -= 1
+                zs[j] = z
+                gs[j] = g
+                ss[j] = sv
+                n += 1
+            through = 1.0
+            val = 0.0
+            for j in range(n):
+                val += ss[j] * gs[j] * through
+                through *= 1.0 - gs[j]
+            if inside and front:
+                val += through - 1.0
+            ends += val
+        acc += 0.5 * ends * (pb - pa)
+    return 1.0 + acc / Rc2
+
+
+@njit(cache=True, error_model="numpy")
+def pcygni_flux_any(r, v, rho, K, Rc, occult, w):
+    """Sobolev P Cygni profile F(w) / F_c in any velocity field (several resonance points per ray).
+
+    Parameters
+    ----------
+    r, v, rho : ndarray
+        Radius [cm] (increasing), velocity [cm/s] (> 0; may rise and fall
+        outward), density [g/cm3].
+    K : float
+        Line strength [cm^3 g^-1 s^-1] in tau = K rho / |Q| (:func:`sobolev_tau`).
+    Rc : float
+        Radius of the uniformly bright core [cm]; only gas at r >= Rc takes part.
+    occult : bool
+        Hide the scattered light from behind the core.
+    w : ndarray
+        Observed velocities [cm/s].
+
+    Returns
+    -------
+    ndarray
+        F(w) / F_c (continuum = 1).
+
+    Notes
+    -----
+    The Sobolev approximation at every resonance point of every ray, in the
+    form Rybicki & Hummer (1978, ApJ 219, 654; from memory) give for
+    non-monotonic flows, without their non-local coupling: each point's
+    source function is the local S = beta_c / beta
+    (:func:`escape_probabilities`, with |dv/dl| in tau), and the core light
+    that reaches it is not dimmed by the other resonance surfaces; along
+    the ray the points dim each other's light and the core's by
+    exp(-tau) each (:func:`_pcygni_any_at`).  Where v rises outward there
+    is one point per ray and the result is that of :func:`pcygni_flux`
+    to rounding.  Where v falls outward, dp^2/dr = 2 r^2 Q / v changes
+    sign with Q, and the surface folds: a ray meets it two or more times.
+    docs/physics.md, section 7.
+    """
+    rf, vf, lf = refine(r, v, rho, Rc, NSUB)
+    m = rf.shape[0]
+    out = np.ones(w.shape[0])
+    if m < 2:
+        return out
+    dv_tab = velocity_gradient(r, v)
+    df = np.empty(m)
+    rhof = np.empty(m)
+    s = np.empty(m)
+    _pcygni_nodes(r, dv_tab, rf, vf, lf, K, Rc, df, rhof, s, 0, m, False)
+    fw, iw = any_flow_workspace(m)
+    for k in range(w.shape[0]):
+        out[k] = _pcygni_any_at(w[k], rf, vf, lf, df, rhof, s, K, Rc, occult, fw, iw)
+    return out
+
+
 @njit(cache=True, error_model="numpy")
 def _first_on_surface(vf, aw):
     """The first sub-interval i with vf[i+1] > aw (vf non-decreasing); m - 1 if none."""
@@ -368,8 +629,11 @@ def pcygni_edge(r, v, rho, K, Rc, occult, w, sigma, depth):
     Parameters
     ----------
     r, v, rho, K, Rc, occult
-        As for :func:`pcygni_flux`; v must be non-decreasing outside ``Rc``
-        (as :func:`grid.monotonic_outside` makes it).
+        As for :func:`pcygni_flux`.  Where v is non-decreasing outside
+        ``Rc`` (as :func:`grid.monotonic_outside` makes it) the fast
+        one-resonance-point sums of :func:`pcygni_flux` are used, otherwise
+        every resonance point (:func:`pcygni_flux_any`); the edge then lies
+        near -v_max, the fastest gas in front of the core.
     w : ndarray
         The evenly spaced velocity grid [cm/s] of the profile.
     sigma : float
@@ -426,10 +690,12 @@ def _pcygni_edge_refined(rf, vf, lf, r, v, K, Rc, occult, w, sigma, depth):
     if mono:
         ready = m  # nodes ready..m-1 hold df, rhof, s
         vtop = vf[m - 1]
-    else:  # not the documented use: evaluate every node, sum from the start
-        _pcygni_nodes(r, dv_tab, rf, vf, lf, K, Rc, df, rhof, s, 0, m)
+        fw, iw = any_flow_workspace(0)
+    else:  # v falls somewhere outward: every node, every resonance point
+        _pcygni_nodes(r, dv_tab, rf, vf, lf, K, Rc, df, rhof, s, 0, m, False)
         ready = 0
         vtop = vf.max()
+        fw, iw = any_flow_workspace(m)
     if sigma <= 0.0:
         # scan from -v_max inward: first geometrically closer points in the
         # first grid cell inside -v_max, then the grid points
@@ -451,11 +717,11 @@ def _pcygni_edge_refined(rf, vf, lf, r, v, K, Rc, occult, w, sigma, depth):
                 if b >= 0.0:
                     break  # the red side is at or above the continuum (emission only)
             Fb, ready = _pcygni_lazy(b, rf, vf, lf, r, dv_tab, df, rhof, s, K, Rc, occult,
-                                     mono, ready)
+                                     mono, ready, fw, iw)
             fb = (1.0 - Fb) - depth
             if fb >= 0.0:
                 return _edge_root(a, fa, b, fb, depth, EDGE_XTOL * vtop, rf, vf, lf, r,
-                                  dv_tab, df, rhof, s, K, Rc, occult, mono, ready)
+                                  dv_tab, df, rhof, s, K, Rc, occult, mono, ready, fw, iw)
             a = b
             fa = fb
         return np.nan
@@ -473,7 +739,7 @@ def _pcygni_edge_refined(rf, vf, lf, r, v, K, Rc, occult, w, sigma, depth):
                 if not known[j]:
                     if -w[j] < vtop:
                         F[j], ready = _pcygni_lazy(w[j], rf, vf, lf, r, dv_tab, df, rhof, s,
-                                                   K, Rc, occult, mono, ready)
+                                                   K, Rc, occult, mono, ready, fw, iw)
                     known[j] = True
                 if F[j] != 1.0:
                     acc += wts[kk + half] * (F[j] - 1.0)
@@ -487,10 +753,13 @@ def _pcygni_edge_refined(rf, vf, lf, r, v, K, Rc, occult, w, sigma, depth):
 
 
 @njit(cache=True, error_model="numpy")
-def _pcygni_lazy(wk, rf, vf, lf, r, dv_tab, df, rhof, s, K, Rc, occult, mono, ready):
-    """F(w)/F_c at one w, preparing the nodes it needs; returns (F, new ready)."""
+def _pcygni_lazy(wk, rf, vf, lf, r, dv_tab, df, rhof, s, K, Rc, occult, mono, ready, fw, iw):
+    """F(w)/F_c at one w, preparing the nodes it needs; returns (F, new ready).
+
+    Not ``mono``: every node is ready, and every resonance point is summed
+    (:func:`_pcygni_any_at`, workspace ``fw``, ``iw``)."""
     if not mono:
-        return _pcygni_at(wk, 0, rf, vf, lf, df, rhof, s, K, Rc, occult), ready
+        return _pcygni_any_at(wk, rf, vf, lf, df, rhof, s, K, Rc, occult, fw, iw), ready
     i0 = _first_on_surface(vf, abs(wk))
     if i0 < ready:
         _pcygni_nodes(r, dv_tab, rf, vf, lf, K, Rc, df, rhof, s, i0, ready)
@@ -500,7 +769,7 @@ def _pcygni_lazy(wk, rf, vf, lf, r, dv_tab, df, rhof, s, K, Rc, occult, mono, re
 
 @njit(cache=True, error_model="numpy")
 def _edge_root(a, fa, b, fb, depth, xtol, rf, vf, lf, r, dv_tab, df, rhof, s, K, Rc,
-               occult, mono, ready):
+               occult, mono, ready, fw, iw):
     """Crossing of 1 - F(w)/F_c = depth in [a, b] (fa < 0 <= fb): Illinois regula
     falsi, with a bisection step whenever two steps have not halved the bracket."""
     if fb == 0.0:
@@ -521,7 +790,7 @@ def _edge_root(a, fa, b, fb, depth, xtol, rf, vf, lf, r, dv_tab, df, rhof, s, K,
         if not (a < c < b):
             c = 0.5 * (a + b)
         Fc, ready = _pcygni_lazy(c, rf, vf, lf, r, dv_tab, df, rhof, s, K, Rc, occult, mono,
-                                 ready)
+                                 ready, fw, iw)
         fc = (1.0 - Fc) - depth
         if fc >= 0.0:
             b = c

@@ -7,7 +7,7 @@ what ``windsolve check`` shows.
 """
 
 from ...registry import SUMMARY_UNITS, ModelSpec, lazy, photosphere_core_radius, register
-from .check import check_diffusion
+from .check import check_diffusion, opacity_along
 from .model import DiffusionWind
 from .solve import solve_diffusion
 
@@ -27,5 +27,7 @@ ENTRY = register(ModelSpec(
     core_radius=photosphere_core_radius,
     extend_profile=lazy("windsolve.lines", "thin_extension"),
     photosphere_family=lambda model: model.anchor == "photosphere",
+    base_family=lambda model: model.anchor == "base",
     warm_start=True,
+    opacity_path=opacity_along,
 ))

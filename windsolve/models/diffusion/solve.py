@@ -109,6 +109,14 @@ def solve_diffusion(model, profile=True, start_from=None):
     xi = np.empty(CAPACITY)
     yi = np.empty((CAPACITY, 2))
     st_in, r_b, v_b, T_b, L_b, ni = B.inward(c, O, rtol, xi, yi, MAX_STEP)
+    if st_in == D.OFF_TABLE:
+        from ...core.opacity import describe_off_table
+        rho_b = c.mdot / (4.0 * math.pi * r_b * r_b * v_b)
+        return _diffusion_failure_result(
+            model, summary, st_in,
+            f"the subsonic solution below the sonic point leaves the opacity table before "
+            f"the base (at r = {r_b / R_SUN:.4g} Rsun, {describe_off_table(O, rho_b, T_b)}); "
+            f"raise the base or set [opacity] clamp = true", t0)
     if st_in != D.OK:
         return _diffusion_failure_result(
             model, summary, st_in,

@@ -357,9 +357,10 @@ def solve_isothermal_cgs(model, profile=True, critical=True, widths=None, explai
                    f"stalls there and does not reach the outer radius")
     elif st_out == K.LEFT_TABLE:
         status = "off_table"
+        from ...core.opacity import describe_off_table
         message = (f"the outward solution leaves the opacity table at r = {r_end:.5g} R0 "
-                   f"(rho = {rho[-1]:.4g} g/cm3, T = {model.T:.4g} K); extend the table or "
-                   f"set [opacity] clamp = true")
+                   f"({describe_off_table(O, float(rho[-1]), float(model.T))}); extend the "
+                   f"table or set [opacity] clamp = true")
     elif st_out == K.OUTWARD_SINGULAR:
         status = "second_singular_point"
         message = (f"the supersonic solution falls back to the sound speed at "
