@@ -113,3 +113,38 @@ def test_base_anchored_sweep_rows_equal_lone_solves(tmp_path):
         alone = windsolve.solve(base_twin(luminosity=L * u.Lsun))
         assert table["mass_loss_rate"][i] == pytest.approx(
             alone.summary["mass_loss_rate"].to_value(GS), rel=1e-8)
+
+
+def test_base_families_scan_l0_and_r0_with_warm_starts(twin):
+    from windsolve.family import solve_family
+    family = solve_family(base_twin(), "base_luminosity", 2.0e5, 2.3e5, 4)
+    assert family.converged.all(), family.ends
+    for value, member in zip(family.values, family.members, strict=True):
+        # each member is the model at that L0, solved alone to the same answer
+        alone = windsolve.solve(base_twin(luminosity=value * u.Lsun))
+        assert member.summary["mass_loss_rate"].to_value(GS) == pytest.approx(
+            alone.summary["mass_loss_rate"].to_value(GS), rel=2e-8)
+        assert member.summary["base_luminosity"].to_value(u.Lsun) == pytest.approx(value,
+                                                                                  rel=1e-6)
+    by_radius = solve_family(base_twin(), "base_radius", 0.45, 0.6, 3)
+    assert by_radius.converged.all(), by_radius.ends
+    assert by_radius.column("base_radius") / 6.957e10 == pytest.approx(  # IAU 2015 Rsun
+        by_radius.values, rel=1e-9)
+
+
+def test_base_family_says_where_it_starts_and_refuses_the_other_scans(tmp_path):
+    from windsolve.errors import ModelError
+    from windsolve.family import FamilyResult, solve_family
+    family = solve_family(base_twin(), "base_luminosity", 1.6e5, 1.9e5, 3)
+    assert not family.converged[0] and family.converged[-1]
+    assert "the family starts between base_luminosity" in family.ends
+    path = family.to_hdf5(tmp_path / "base_family.h5")
+    again = FamilyResult.from_hdf5(path)
+    assert again.scan == "base_luminosity"
+    assert np.allclose(again.values, family.values, rtol=1e-12)
+    with pytest.raises(ModelError, match="photosphere luminosity fixed"):
+        solve_family(base_twin(), "photosphere_temperature", 3e4, 5e4, 2)
+    top = DiffusionWind(**STAR, photosphere_luminosity="2e5 Lsun",
+                        photosphere_temperature="5e4 K", base_temperature="1e6 K")
+    with pytest.raises(ModelError, match="base temperature"):
+        solve_family(top, "base_radius", 0.4, 0.5, 2)
