@@ -148,3 +148,46 @@ def test_base_family_says_where_it_starts_and_refuses_the_other_scans(tmp_path):
                         photosphere_temperature="5e4 K", base_temperature="1e6 K")
     with pytest.raises(ModelError, match="base temperature"):
         solve_family(top, "base_radius", 0.4, 0.5, 2)
+
+
+def _cli_error(argv, capsys):
+    from windsolve import cli
+    assert cli.main(argv) == 2
+    out, err = capsys.readouterr()
+    assert err.strip() and "\n" not in err.strip(), err
+    return err
+
+
+def test_no_solution_says_which_way_to_move_the_photosphere(tmp_path, capsys):
+    # bump_wind.toml at T_eff = 6e5 K has no solution; the hint names a T_eff
+    # range at this L_ph that has, and a model there does converge.
+    import re
+    from pathlib import Path
+    text = (Path(__file__).resolve().parents[1] / "configs" / "bump_wind.toml").read_text()
+    bad = tmp_path / "hot.toml"
+    bad.write_text(text.replace('photosphere_temperature = "5e4 K"',
+                                'photosphere_temperature = "6e5 K"'))
+    err = _cli_error(["run", str(bad), "-o", str(tmp_path / "hot.h5")], capsys)
+    assert "no solution" in err and "at this L_ph, T_eff from" in err, err
+    assert not (tmp_path / "hot.h5").exists()
+    hi = float(re.search(r"T_eff from \S+(?: or lower)? to (\S+)", err).group(1))
+    model = windsolve.load_model(bad).replace(photosphere_temperature=hi * u.K)
+    assert windsolve.solve(model).converged
+
+
+def test_no_solution_says_which_way_to_move_the_base(twin, tmp_path, capsys):
+    # T0 below the sonic temperature: the subsonic base is hotter than the
+    # sonic point (T rises inward, common practice), so T0 must go up.
+    import re
+    path = tmp_path / "cool_base.toml"
+    path.write_text(
+        'model = "diffusion"\nname = "twin (invented)"\n[star]\nmass = "10 Msun"\n'
+        f'radius = "{float(R0.value)!r} cm"\nluminosity = "{float(L0.value)!r} erg/s"\n'
+        '[composition]\nX = 0.7\nZ = 0.02\n[opacity]\nlaw = "bump"\namplitude = 3.0\n'
+        'peak_temperature = "1.8e5 K"\nwidth_dex = 0.15\ndensity_exponent = 0.0\n'
+        'reference_density = "1e-10 g/cm3"\n[boundary]\nbase_temperature = "2e5 K"\n')
+    err = _cli_error(["run", str(path)], capsys)
+    match = re.search(r"raise it above (\S+) K", err)
+    assert match, err
+    T_c = twin.summary["sonic_temperature"].to_value(u.K)  # 3.18e5 K
+    assert float(match.group(1)) >= 0.9 * T_c

@@ -31,6 +31,9 @@ def _load(path):
     return load_model(path), str(path)
 
 
+HINT_SECONDS = 3.0  # run: the longest a "which way to move" scan may take
+
+
 def cmd_run(args: argparse.Namespace) -> int:
     """``windsolve run [MODEL] [-o OUT.h5] [-q]``: solve one model.
 
@@ -68,6 +71,12 @@ def cmd_run(args: argparse.Namespace) -> int:
         message = result.message
         if not message.startswith(("no solution", "no transonic solution")):  # said once
             message = f"no solution: {message}"
+        from .registry import spec_for
+        hint = spec_for(model).hint
+        if hint is not None and result.status == "no_solution":
+            where = hint(model, HINT_SECONDS)  # which way to move (a quick scan)
+            if where:
+                message = f"{message}; {where}"
         raise WindsolveError(message)
     if not args.quiet:
         print(f"model: {source}")

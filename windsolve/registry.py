@@ -195,6 +195,10 @@ class ModelSpec:
         ``base_family(model) -> bool``: can :func:`windsolve.family.solve_family`
         scan this model's base radius or luminosity at a fixed base
         temperature or density?  None: never.
+    hint : callable or None
+        ``hint(model, budget) -> str``: for a model without a solution, which
+        way to move its inputs (a quick scan of at most ``budget`` seconds;
+        what ``windsolve run`` adds to its one-line error); None: no hint.
     warm_start : bool
         ``solve`` also takes ``start_from``, a converged result of a nearby
         model to start its search from (sweep workers and families pass the
@@ -220,6 +224,7 @@ class ModelSpec:
     photosphere_family: object = None
     base_family: object = None
     warm_start: bool = False
+    hint: object = None
     opacity_path: object = None
 
 

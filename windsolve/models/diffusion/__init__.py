@@ -9,7 +9,7 @@ what ``windsolve check`` shows.
 from ...registry import SUMMARY_UNITS, ModelSpec, lazy, photosphere_core_radius, register
 from .check import check_diffusion, opacity_along
 from .model import DiffusionWind
-from .solve import solve_diffusion
+from .solve import diffusion_hint, solve_diffusion
 
 __all__ = ["DiffusionWind", "solve_diffusion", "check_diffusion", "ENTRY"]
 
@@ -29,5 +29,6 @@ ENTRY = register(ModelSpec(
     photosphere_family=lambda model: model.anchor == "photosphere",
     base_family=lambda model: model.anchor == "base",
     warm_start=True,
+    hint=diffusion_hint,
     opacity_path=opacity_along,
 ))

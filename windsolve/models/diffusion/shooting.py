@@ -1019,3 +1019,140 @@ def _local_bracket(base_miss, L_ph, lt):
         if step > 1.0:
             break
     raise ModelBFailure(D.INVALID, "lost the base value while adjusting the luminosity")
+
+
+# -- which way to move: where solutions are, when the model has none --------------
+
+HINT_BUDGET = 3.0  # seconds a hint may take at most (it stops scanning after this)
+HINT_STEPS = 6  # T_eff and L_ph times 2^(+-k/2), k = 1..HINT_STEPS (up to a factor 8)
+
+
+def _g(x):
+    """A number in 3 digits, exponents without '+' and leading zeros (7.5e4, 3.1e-5)."""
+    text = f"{x:.3g}"
+    if "e" in text:
+        mantissa, exponent = text.split("e")
+        text = f"{mantissa}e{int(exponent)}"
+    return text
+
+
+def photosphere_hint(P, O, L_ph, T_eff, rtol, budget=HINT_BUDGET):
+    """Where photosphere-anchored solutions are near (L_ph, T_eff): a sentence, or "".
+
+    Tries T_eff and L_ph (the other held) times 2^(+-k/2), k = 6 .. 1 (the
+    widest first, so that a short budget still spans the range), alternating,
+    with coarse Mdot brackets, until ``budget`` seconds of CPU time are spent;
+    says which values had solutions.
+
+    Parameters
+    ----------
+    P, O : ndarray
+        Model B parameter and opacity vectors.
+    L_ph, T_eff : float
+        The photosphere without a solution [erg s^-1], [K].
+    rtol : float
+        Relative tolerance.
+    budget : float
+        CPU seconds at most [s] (a solve under way is finished).
+
+    Returns
+    -------
+    str
+        E.g. "at this L_ph, T_eff from 7.5e4 to 1.5e5 K has solutions (of 6 values
+        from 7.5e4 to 4.8e6 K tried)"; "" when nothing was found.
+    """
+    import time
+    t0 = time.process_time()  # CPU time: the same bound on a busy machine
+    tried = {"T_eff": [], "L_ph": []}
+    good = {"T_eff": [], "L_ph": []}
+    for k in range(HINT_STEPS, 0, -1):
+        for sign in (-1.0, 1.0):
+            for what in ("T_eff", "L_ph"):
+                if time.process_time() - t0 > budget:
+                    break
+                f = 2.0 ** (sign * k / 2.0)
+                L, T = (L_ph, T_eff * f) if what == "T_eff" else (L_ph * f, T_eff)
+                tried[what].append(f)
+                try:
+                    solve_photosphere_anchor(P, O, L, T, rtol, xtol=1e-6)
+                    good[what].append(f)
+                except ModelBFailure:
+                    continue
+    notes = []
+    for what, value, unit, scale, held in (("T_eff", T_eff, "K", 1.0, "L_ph"),
+                                           ("L_ph", L_ph, "Lsun", 1.0 / 3.828e33, "T_eff")):
+        if not good[what]:
+            continue
+        lo, hi = min(good[what]), max(good[what])
+        below = " or lower" if lo == min(tried[what]) else ""
+        above = " or higher" if hi == max(tried[what]) else ""
+        notes.append(f"at this {held}, {what} from {_g(lo * value * scale)}{below} to "
+                     f"{_g(hi * value * scale)}{above} {unit} has solutions (of "
+                     f"{len(tried[what])} values from {_g(min(tried[what]) * value * scale)} "
+                     f"to {_g(max(tried[what]) * value * scale)} {unit} tried)")
+    if not notes and (tried["T_eff"] or tried["L_ph"]):
+        return (f"no T_eff or L_ph within a factor {_g(2.0 ** (HINT_STEPS / 2.0))} of these "
+                f"({len(tried['T_eff']) + len(tried['L_ph'])} tried) has a solution")
+    return "; ".join(notes)
+
+
+def base_hint(P, O, L0, base_kind, base_value, rtol, budget=HINT_BUDGET):
+    """Which way to move R0, L0 or the base value of a base anchor without a solution.
+
+    At L_ph = L0, photosphere-anchored solutions over T_eff (the scan of
+    :func:`_scan_bracket`, coarse Mdot brackets) give the base values they
+    reach at R0: when the asked-for value lies outside that range, say so,
+    with the range and the direction to move R0 (the envelope's temperature
+    and density rise inward).
+
+    Parameters
+    ----------
+    P, O : ndarray
+        Model B parameter and opacity vectors (R0 in P[I_R_IN]).
+    L0 : float
+        Base luminosity [erg s^-1].
+    base_kind : str
+        ``"temperature"`` or ``"density"``.
+    base_value : float
+        T0 [K] or rho0 [g cm^-3].
+    rtol : float
+        Relative tolerance.
+    budget : float
+        CPU seconds at most [s] (a solve under way is finished).
+
+    Returns
+    -------
+    str
+        A sentence, or "" when nothing was found.
+    """
+    import time
+    t0 = time.process_time()  # CPU time: the same bound on a busy machine
+    R0 = P[D.I_R_IN]
+    reached = []
+    for lt in np.linspace(math.log(2e3), math.log(2e6), 31):
+        if time.process_time() - t0 > budget:
+            break
+        T_eff = math.exp(lt)
+        if photosphere_radius(L0, T_eff) <= 1.02 * R0:
+            break
+        try:
+            sol, Lb, Tb, rhob = base_values(P, O, L0, T_eff, rtol, xtol=1e-6)
+        except ModelBFailure:
+            continue
+        reached.append((T_eff, Tb if base_kind == "temperature" else rhob))
+    if not reached:
+        return ("no photosphere with L_ph = L0 and T_eff from 2e3 K up to where R_ph nears R0 "
+                "has a solution reaching R0: try another L0 or R0")
+    lo = min(b for _, b in reached)
+    hi = max(b for _, b in reached)
+    unit = "K" if base_kind == "temperature" else "g/cm3"
+    span = (f"with L_ph = L0 the solutions reach base {base_kind}s from {_g(lo)} to "
+            f"{_g(hi)} {unit} at R0 (T_eff {_g(reached[0][0])} to {_g(reached[-1][0])} K)")
+    if base_value > hi:
+        return (f"{span}: the given {_g(base_value)} {unit} is above them; lower it below "
+                f"{_g(hi)} {unit}, or move R0 inward (the {base_kind} rises inward)")
+    if base_value < lo:
+        return (f"{span}: the given {_g(base_value)} {unit} is below them; raise it above "
+                f"{_g(lo)} {unit}, or move R0 outward (the {base_kind} falls outward)")
+    return (f"{span}, which include the given {_g(base_value)} {unit}: the base luminosity "
+            f"is what no solution meets; try L0 a few per cent higher or lower")

@@ -36,6 +36,40 @@ def _start(result):
     return values[0], values[1], math.log(values[2]), values[3]
 
 
+def diffusion_hint(model, budget=3.0):
+    """Which way to move a Model B model that has no solution: a sentence, or "".
+
+    Photosphere anchor: the range of T_eff (or, failing that, L_ph) near the
+    model's that has solutions.  Base anchor: the base values the solutions
+    with L_ph near L0 reach at R0, and which way to move T0 (or rho0) or R0.
+    A quick scan of coarse solves, stopped after ``budget`` seconds.
+
+    Parameters
+    ----------
+    model : DiffusionWind
+        The model (one without a solution: nothing is checked).
+    budget : float
+        Seconds at most [s].
+
+    Returns
+    -------
+    str
+        The sentence ("" when the scan found nothing to say).
+
+    References
+    ----------
+    docs/physics.md, section 5 ("Boundary conditions").
+    """
+    from . import shooting as B
+    P, O = model.kernel_arrays
+    if model.anchor == "photosphere":
+        return B.photosphere_hint(P, O, model.cgs("photosphere_luminosity"),
+                                  model.cgs("photosphere_temperature"), model.rtol, budget)
+    kind = "temperature" if model.base_temperature is not None else "density"
+    return B.base_hint(P, O, model.cgs("luminosity"), kind, model.cgs(f"base_{kind}"),
+                       model.rtol, budget)
+
+
 def solve_diffusion(model, profile=True, start_from=None):
     """Solve Model B (:class:`~windsolve.models.DiffusionWind`).
 
