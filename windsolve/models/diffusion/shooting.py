@@ -707,6 +707,16 @@ def base_ftol(rtol):
     slope of about -16 in ln T_eff there: ln T_eff within about rtol of the
     root; tests/test_base_anchor.py shows answers from different starts
     agreeing to about rtol, 1e-8 at rtol = 1e-8 and 2e-11 at 1e-10).
+
+    Parameters
+    ----------
+    rtol : float
+        The model's relative tolerance.
+
+    Returns
+    -------
+    float
+        max |F| at which the iteration stops [dimensionless, ln units].
     """
     return max(BASE_FTOL * rtol, BASE_FTOL_MIN)
 
