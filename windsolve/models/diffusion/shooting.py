@@ -454,6 +454,26 @@ def _solve_photosphere_anchor(P, O, L_ph, T_eff, rtol, out_x, out_y, max_step, g
     # under the table) counts as the low side; the first on-table trial
     # there that misses on the other side than hi's becomes the low code.
     limit = max_step if limited_steps(O) else np.inf
+    lo, hi, code_lo = _bisect(Q, O, R_ph, L_ph, T_eff, rtol, limit, lo, hi, code_lo, code_hi,
+                              xtol)
+    try:
+        return _tie_critical(P, O, Q, R_ph, L_ph, T_eff, rtol, out_x, out_y, max_step, limit,
+                             lo, hi, code_lo)
+    except BelowBase:
+        raise
+    except ModelBFailure:
+        if xtol <= 1e-14:
+            raise
+    # A coarse bracket: its shots may leave a weakly repelling saddle's
+    # separatrix too early to tie the critical point; bisect on, to 1e-14.
+    lo, hi, code_lo = _bisect(Q, O, R_ph, L_ph, T_eff, rtol, limit, lo, hi, code_lo, code_hi,
+                              1e-14)
+    return _tie_critical(P, O, Q, R_ph, L_ph, T_eff, rtol, out_x, out_y, max_step, limit,
+                         lo, hi, code_lo)
+
+
+def _bisect(Q, O, R_ph, L_ph, T_eff, rtol, limit, lo, hi, code_lo, code_hi, xtol):
+    """Bisect the ln Mdot bracket to xtol (1 + |lo|); returns (lo, hi, code at lo)."""
     while hi - lo > xtol * (1.0 + abs(lo)):
         m = 0.5 * (lo + hi)
         _count_shot()
@@ -475,6 +495,12 @@ def _solve_photosphere_anchor(P, O, L_ph, T_eff, rtol, out_x, out_y, max_step, g
                                          f"photosphere: the mass-loss rate converges onto "
                                          f"the table's edge, below it every trial leaves the "
                                          f"table ({describe_off_table(O, rho, T)})")
+    return lo, hi, code_lo
+
+
+def _tie_critical(P, O, Q, R_ph, L_ph, T_eff, rtol, out_x, out_y, max_step, limit, lo, hi,
+                  code_lo):
+    """The critical point and outer path of the solution bracketed by [lo, hi] in ln Mdot."""
     # The sonic-side shot hugs the separatrix down to the sound speed; the
     # other bracketing shot tells how far in it still follows the separatrix.
     x_sonic, x_other = (lo, hi) if code_lo == D.SIDE_SONIC else (hi, lo)
