@@ -608,7 +608,7 @@ def base_values(P, O, L_ph, T_eff, rtol, guess=None, xtol=1e-14):
 
 
 def solve_base_anchor(P, O, L0, base_kind, base_value, rtol, start=None):
-    """(L_ph, T_eff, ln Mdot) of the solution whose base R0 = P[I_R_IN] has L0 and T0 (or rho0).
+    """(L_ph, T_eff, ln Mdot, solution) whose base R0 = P[I_R_IN] has L0 and T0 (or rho0).
 
     A two-dimensional quasi-Newton (Broyden) iteration on x = (ln L_ph,
     ln T_eff) for the log residuals F = (ln L(R0) - ln L0, ln b(R0) - ln b0),
@@ -647,6 +647,10 @@ def solve_base_anchor(P, O, L0, base_kind, base_value, rtol, start=None):
     -------
     L_ph, T_eff, ln_mdot : float
         [erg s^-1], [K], [ln(g s^-1)].
+    solution : PhotosphereSolution or None
+        The photosphere solve at (L_ph, T_eff) with its bracket bisected to
+        1e-14 and the stored profile's step limit, when the iteration made
+        one there (the caller need not solve it again); else None.
 
     Raises
     ------
@@ -660,7 +664,9 @@ def solve_base_anchor(P, O, L0, base_kind, base_value, rtol, start=None):
     target = np.array([math.log(L0), math.log(base_value)])
     # ln Mdot of the last solve at x_last and a secant (Broyden) estimate of
     # its gradient in x: each solve's bracket starts at the extrapolated ln Mdot
-    hist = {"x": None, "lnm": None if start is None else start[2], "grad": np.zeros(2)}
+    hist = {"x": None, "lnm": None if start is None else start[2], "grad": np.zeros(2),
+            "exact": {},  # x.tobytes() -> the PhotosphereSolution of a solve bisected to 1e-14
+            "evals": []}  # (x, F) of every evaluation
 
     def residual(x, xtol):
         guess = hist["lnm"]
@@ -675,8 +681,12 @@ def solve_base_anchor(P, O, L0, base_kind, base_value, rtol, start=None):
                 g = hist["grad"]
                 hist["grad"] = g + (lnm - hist["lnm"] - g @ s) * s / (s @ s)
         hist["x"], hist["lnm"] = x.copy(), lnm
+        if xtol <= 1e-14:
+            hist["exact"][x.tobytes()] = sol
         b = Tb if base_kind == "temperature" else rhob
-        return np.array([math.log(Lb), math.log(b)]) - target
+        F = np.array([math.log(Lb), math.log(b)]) - target
+        hist["evals"].append((x.copy(), F))
+        return F
 
     for warm in ((True, False) if start is not None else (False,)):
         try:
@@ -685,37 +695,39 @@ def solve_base_anchor(P, O, L0, base_kind, base_value, rtol, start=None):
                 u = math.log(start[0]) + math.log(L0) - math.log(start[3])
                 x = _first_guess(residual, u, math.log(start[1]))
             else:
-                hist.update(x=None, lnm=None, grad=np.zeros(2))
+                hist.update(x=None, lnm=None, grad=np.zeros(2), evals=[])
                 try:
                     x = _cold_start(residual, L0, P[D.I_R_IN])
                 except ModelBFailure as failure:
                     # the scan at L_ph = L0 found no crossing: the nested
                     # root-finds would begin with the same scan
                     raise _NoBase(failure.code, failure.text) from None
-            x, F = _broyden(residual, x, base_ftol(rtol))
+            x, F = _broyden(residual, x, base_ftol(rtol), _secant_jacobian(hist["evals"], x))
         except _NoBase as failure:
             raise ModelBFailure(failure.code, f"no wind reaches R0 with L0 and the given "
                                               f"base {base_kind}: {failure.text}") from None
         except ModelBFailure:
             continue
         if np.max(np.abs(F)) <= BASE_NOISE * base_ftol(rtol):
-            return math.exp(x[0]), math.exp(x[1]), hist["lnm"]
+            return (math.exp(x[0]), math.exp(x[1]), hist["lnm"],
+                    hist["exact"].get(x.tobytes()))
     L_ph, T_eff = solve_base_anchor_nested(P, O, L0, base_kind, base_value, rtol)
-    return L_ph, T_eff, None
+    return L_ph, T_eff, None, None
 
 
 class _NoBase(ModelBFailure):
     """The cold start's scan found no T_eff that reaches the base value."""
 
 
-BASE_FD_XTOL = 1e-12  # Mdot brackets of the forward-difference solves
+BASE_FD_XTOL = 1e-11  # Mdot brackets of the forward-difference solves
+SECANT_RADIUS = 0.05  # the first guess's evaluations this near (ln units) give the Jacobian
 COLD_RADIUS = 30.0  # a cold base-anchor start: first T_eff where R_ph = this many R0
 COLD_FTOL = 0.02  # ... secant steps down to residuals this small
 COLD_XTOL = 1e-6  # ... with Mdot brackets this coarse
-BASE_FTOL = 0.1  # the base anchor's log residuals are converged at this many rtol ...
+BASE_FTOL = 1.0  # the base anchor's log residuals are converged at this many rtol ...
 BASE_FTOL_MIN = 1e-11  # ... or this, if larger
 BASE_XTOL_PER_F = 1e-6  # Mdot brackets bisected to this times the residual (at most 1e-8)
-BASE_NOISE = 100.0  # a step that no longer lowers |F| < this many ftol: converged (noise)
+BASE_NOISE = 10.0  # a step that no longer lowers |F| < this many ftol: converged (noise)
 BASE_FD_STEP = 1e-5  # forward-difference step in ln L_ph and ln T_eff
 BASE_MAX_STEP = (0.1, 0.2)  # largest step in ln L_ph, ln T_eff
 BASE_ITERATIONS = 40
@@ -728,7 +740,7 @@ def base_ftol(rtol):
     bisected only as finely as the current residual needs.  On the bump
     wind's base twin they are smooth down to about 1e-11 once the bracket is
     bisected to 1e-14, but at other luminosities they scatter by up to about
-    3 rtol: the iteration aims at 0.1 rtol and, when a step no longer lowers
+    3 rtol: the iteration aims at rtol and, when a step no longer lowers
     the residuals, accepts anything below BASE_NOISE times that (ln T0 has a
     slope of about -16 in ln T_eff there: ln T_eff within about rtol of the
     root; tests/test_base_anchor.py shows answers from different starts
@@ -844,6 +856,31 @@ def _search_temperature(residual, u, t, slope, F=None):
     raise ModelBFailure(D.INVALID, "no effective temperature found for the base value")
 
 
+def _secant_jacobian(evals, x):
+    """dF/dx fitted to the evaluations near x the first guess made, or None.
+
+    Least squares on the differences to the evaluation at x of the last four
+    others within SECANT_RADIUS of it (in ln L_ph and ln T_eff; further out
+    the base residual is too curved): the first guess steps
+    in ln T_eff and in ln L_ph, so they span both directions.  None when
+    they do not (a singular-value ratio below 1e-2), and the Jacobian comes
+    from forward differences instead.
+    """
+    at = [F for xi, F in evals if np.array_equal(xi, x)]
+    if not at:
+        return None
+    near = [(xi - x, F - at[-1]) for xi, F in evals
+            if not np.array_equal(xi, x) and np.max(np.abs(xi - x)) < SECANT_RADIUS][-4:]
+    if len(near) < 2:
+        return None
+    dX = np.array([d for d, _ in near])
+    dF = np.array([f for _, f in near])
+    sv = np.linalg.svd(dX, compute_uv=False)
+    if sv[-1] < 1e-2 * sv[0]:
+        return None
+    return np.linalg.lstsq(dX, dF, rcond=None)[0].T
+
+
 def _jacobian(residual, x, F):
     """dF/dx by forward differences (backward where the forward trial has no solution)."""
     J = np.empty((2, 2))
@@ -857,15 +894,17 @@ def _jacobian(residual, x, F):
     return J
 
 
-def _broyden(residual, x, ftol):
+def _broyden(residual, x, ftol, J=None):
     """Broyden's method with backtracking on residual(x, xtol); returns (x, F).
 
+    Starts from the Jacobian ``J`` if given, else from forward differences.
     Stops when max |F| < ftol, or when a step no longer lowers it.  Raises
     ModelBFailure when no trial along a step has a solution.
     """
     F = residual(x, BASE_FD_XTOL)
-    J = _jacobian(residual, x, F)
-    fresh = True
+    fresh = J is None
+    if J is None:
+        J = _jacobian(residual, x, F)
     for _ in range(BASE_ITERATIONS):
         norm = np.max(np.abs(F))
         if norm < ftol:

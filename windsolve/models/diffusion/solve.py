@@ -124,15 +124,16 @@ def solve_diffusion(model, profile=True, start_from=None):
         if model.anchor == "photosphere":
             L_ph = model.cgs("photosphere_luminosity")
             T_ph = model.cgs("photosphere_temperature")
-            guess = None
+            guess = sol = None
         else:
             kind = "temperature" if model.base_temperature is not None else "density"
-            L_ph, T_ph, guess = B.solve_base_anchor(P, O, model.cgs("luminosity"), kind,
-                                                    model.cgs(f"base_{kind}"), rtol,
-                                                    _start(start_from))
-        sol, no = B.solve_photosphere_anchor(P, O, L_ph, T_ph, rtol, xo, yo, MAX_STEP,
-                                             diagnose=model.anchor == "photosphere",
-                                             guess=guess)
+            L_ph, T_ph, guess, sol = B.solve_base_anchor(P, O, model.cgs("luminosity"), kind,
+                                                         model.cgs(f"base_{kind}"), rtol,
+                                                         _start(start_from))
+        if sol is None or B.PROFILE_STEP != MAX_STEP:
+            sol, _ = B.solve_photosphere_anchor(P, O, L_ph, T_ph, rtol, xo, yo, MAX_STEP,
+                                                diagnose=model.anchor == "photosphere",
+                                                guess=guess)
     except B.ModelBFailure as failure:
         return _diffusion_failure_result(model, summary, failure.code, failure.text, t0)
     c = sol.crit
