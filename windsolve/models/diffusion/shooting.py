@@ -742,8 +742,8 @@ def base_ftol(rtol):
     bisected to 1e-14, but at other luminosities they scatter by up to about
     3 rtol: the iteration aims at rtol and, when a step no longer lowers
     the residuals, accepts anything below BASE_NOISE times that (ln T0 has a
-    slope of about -16 in ln T_eff there: ln T_eff within about rtol of the
-    root; tests/test_base_anchor.py shows answers from different starts
+    slope of about -16 in ln T_eff there: ln T_eff within about 0.6 rtol of
+    the root; tests/test_base_anchor.py shows answers from different starts
     agreeing to about rtol, 1e-8 at rtol = 1e-8 and 2e-11 at 1e-10).
 
     Parameters
