@@ -31,6 +31,9 @@ def _load(path):
     return load_model(path), str(path)
 
 
+HINT_SECONDS = 3.0  # run: the longest a "which way to move" scan may take
+
+
 def cmd_run(args: argparse.Namespace) -> int:
     """``windsolve run [MODEL] [-o OUT.h5] [-q]``: solve one model.
 
@@ -68,6 +71,12 @@ def cmd_run(args: argparse.Namespace) -> int:
         message = result.message
         if not message.startswith(("no solution", "no transonic solution")):  # said once
             message = f"no solution: {message}"
+        from .registry import spec_for
+        hint = spec_for(model).hint
+        if hint is not None and result.status == "no_solution":
+            where = hint(model, HINT_SECONDS)  # which way to move (a quick scan)
+            if where:
+                message = f"{message}; {where}"
         raise WindsolveError(message)
     if not args.quiet:
         print(f"model: {source}")
@@ -1216,8 +1225,10 @@ def build_parser() -> argparse.ArgumentParser:
                                    "and why, and writes HDF5 and a plot on request.")
     p.add_argument("model", help="model file (model = \"diffusion\", photosphere anchor)")
     p.add_argument("--scan", required=True,
-                   choices=["photosphere_temperature", "photosphere_radius", "mass_loss_rate"],
-                   help="quantity to scan (units: K, Rsun, Msun/yr)")
+                   choices=["photosphere_temperature", "photosphere_radius", "mass_loss_rate",
+                            "base_luminosity", "base_radius"],
+                   help="quantity to scan (units: K, Rsun, Msun/yr; a base-anchored model: "
+                        "base_luminosity in Lsun or base_radius in Rsun)")
     p.add_argument("--from", dest="start", required=True, metavar="START",
                    help="first value of the scan: a number in the scan's unit, or a value "
                         "with a unit (\"2e4 K\")")

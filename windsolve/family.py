@@ -1,12 +1,14 @@
-"""Families of optically thick winds: one photospheric luminosity, many solutions.
+"""Families of optically thick winds: one anchor held, one quantity scanned.
 
 A photosphere-anchored model fixes L_ph and T_eff.  Keeping L_ph and moving
 along one other quantity -- the effective temperature, the photospheric
 radius, or the mass-loss rate itself -- gives the sequence of photospherically
 consistent regular solutions that modellers fit observed stars against
-(README, "Families").  Each member is a full photosphere-anchored solve;
-members that fail keep their status and message, so the table shows where
-the family ends and why.
+(README, "Families").  A base-anchored model fixes R0, L0 and T0 (or rho0):
+its family keeps the base temperature (or density) and one of R0, L0, and
+scans the other, each member starting from the previous one's solution.
+Each member is a full solve; members that fail keep their status and
+message, so the table shows where the family ends and why.
 """
 
 import math
@@ -24,19 +26,27 @@ from .errors import ModelError
 if TYPE_CHECKING:
     from .models import DiffusionWind
 
-__all__ = ["SCANS", "FamilyResult", "solve_family", "check_family", "plot_family",
-           "MAX_MEMBERS"]
+__all__ = ["SCANS", "PHOTOSPHERE_SCANS", "BASE_SCANS", "FamilyResult", "solve_family",
+           "check_family", "plot_family", "MAX_MEMBERS"]
 
 # Most members a family may have: each is a full solve (~0.01-0.1 s), so this is
 # minutes to an hour of work, and the table and plot stay readable.
 MAX_MEMBERS = 10_000
 
-# Quantities a family can be scanned in, with the unit of --from/--to.
-SCANS = {
+# Quantities a family can be scanned in, with the unit of --from/--to:
+# photosphere-anchored models ...
+PHOTOSPHERE_SCANS = {
     "photosphere_temperature": u.K,
     "photosphere_radius": u.Rsun,
     "mass_loss_rate": u.Msun / u.yr,
 }
+# ... and base-anchored ones (the model key each scan sets)
+BASE_SCANS = {
+    "base_luminosity": u.Lsun,
+    "base_radius": u.Rsun,
+}
+BASE_SCAN_KEYS = {"base_luminosity": "luminosity", "base_radius": "radius"}
+SCANS = {**PHOTOSPHERE_SCANS, **BASE_SCANS}
 
 COLUMNS = {  # summary key -> unit stored (cgs)
     "mass_loss_rate": u.g / u.s,
@@ -66,12 +76,12 @@ class FamilyResult:
     Attributes
     ----------
     model : DiffusionWind or None
-        The photosphere-anchored model the family was built from (None when
-        read from a file without a complete stored model).
+        The model the family was built from (None when read from a file
+        without a complete stored model).
     scan : str
         The scanned quantity, a key of ``SCANS``.
     values : numpy.ndarray
-        The scanned values, in ``SCANS[scan]`` units (K, Rsun or Msun/yr).
+        The scanned values, in ``SCANS[scan]`` units (K, Rsun, Msun/yr or Lsun).
     members : list of WindResult
         One solve per value; failed members keep their status and message.
     ends : str
@@ -202,10 +212,12 @@ class FamilyResult:
                 raise OutputError(f"{path}: the family_scan attribute is \"{scan}\", not one of "
                                   f"{', '.join(SCANS)}")
             model = stored_model(f, path)
-            if model is not None and not _photosphere_family(model):
+            if model is not None and not (_photosphere_family(model) if scan in
+                                          PHOTOSPHERE_SCANS else _base_family(model)):
                 raise OutputError(f"{path}: the stored model (model_toml) is not a "
-                                  f"photosphere-anchored diffusion model, as every family's "
-                                  f"is; the file is damaged")
+                                  f"{'photosphere' if scan in PHOTOSPHERE_SCANS else 'base'}"
+                                  f"-anchored diffusion model, as a family along {scan} "
+                                  f"needs; the file is damaged")
             g = group(f, "table", path)
             n = column(g, scan, path).size
             if n == 0:
@@ -268,22 +280,29 @@ class FamilyResult:
 
 def solve_family(model: "DiffusionWind", scan: str, start: float, stop: float, num: int,
                  progress: Callable[[int, int], object] | None = None) -> FamilyResult:
-    """Solve the family of ``model`` (photosphere-anchored) along ``scan``.
+    """Solve the family of ``model`` along ``scan``.
 
-    The photospheric luminosity stays that of ``model``; each member is a
-    full photosphere-anchored solve at its own effective temperature.
+    Photosphere-anchored: the photospheric luminosity stays that of
+    ``model``; each member is a full photosphere-anchored solve at its own
+    effective temperature.  Base-anchored: the base temperature (or density)
+    and the other of R0, L0 stay; each member is a full base-anchored solve
+    started from the previous converged member (``solve(start_from=...)``).
 
     Parameters
     ----------
     model : DiffusionWind
         Anchored at the photosphere (``[boundary] photosphere_luminosity``
-        and ``photosphere_temperature``).
+        and ``photosphere_temperature``) for the scans of
+        ``PHOTOSPHERE_SCANS``, or at the base (``[star] radius`` and
+        ``luminosity`` with a base temperature or density) for those of
+        ``BASE_SCANS``.
     scan : str
         ``"photosphere_temperature"``, ``"photosphere_radius"`` or
-        ``"mass_loss_rate"`` (the keys of ``SCANS``).
+        ``"mass_loss_rate"``; ``"base_luminosity"`` or ``"base_radius"``
+        (the keys of ``SCANS``).
     start, stop : float
         First and last value, plain numbers in the unit of ``SCANS[scan]``
-        (K, Rsun or Msun/yr); members are spaced logarithmically.
+        (K, Rsun, Msun/yr or Lsun); members are spaced logarithmically.
     num : int
         Number of members, 2 to ``MAX_MEMBERS``.
     progress : callable, optional
@@ -308,6 +327,8 @@ def solve_family(model: "DiffusionWind", scan: str, start: float, stop: float, n
 
     check_family(model, scan, start, stop, num)
     values = np.geomspace(start, stop, int(num))
+    if scan in BASE_SCANS:
+        return _base_family_solve(model, scan, values, progress)
     L_ph = model.photosphere_luminosity
     sigma = SIGMA_SB
 
@@ -337,6 +358,36 @@ def solve_family(model: "DiffusionWind", scan: str, start: float, stop: float, n
     return result
 
 
+def _base_family_solve(model, scan, values, progress):
+    """The members of a base-anchored family, each started from the last converged one."""
+    from .solve import solve
+
+    key = BASE_SCAN_KEYS[scan]
+    members = []
+    previous = None
+    for i, value in enumerate(values):
+        try:
+            member = solve(model.replace(**{key: float(value) * BASE_SCANS[scan]}),
+                           start_from=previous)
+        except ModelError as error:  # e.g. the photosphere inside R0
+            member = _failed(model, str(error))
+        if member.converged:
+            previous = member
+        members.append(member)
+        if progress is not None:
+            progress(i + 1, len(values))
+    result = FamilyResult(model, scan, values, members)
+    result.ends = _ends(result)
+    return result
+
+
+def _base_family(model):
+    """Can this model be scanned at a fixed base temperature or density (its ModelSpec says)?"""
+    from .registry import MODEL_SPECS
+    spec = MODEL_SPECS.get(getattr(model, "kind", None))
+    return bool(spec is not None and spec.base_family is not None and spec.base_family(model))
+
+
 def _photosphere_family(model):
     """Can this model be scanned at a fixed photosphere luminosity (its ModelSpec says)?"""
     from .registry import MODEL_SPECS
@@ -357,16 +408,28 @@ def check_family(model: "DiffusionWind", scan: str, start: float, stop: float,
     Raises
     ------
     ModelError
-        ``model`` is not a photosphere-anchored diffusion model, ``scan`` is
-        unknown, ``start`` or ``stop`` is not finite and positive, or ``num``
-        is outside 2 to ``MAX_MEMBERS``.
+        ``scan`` is unknown or does not suit the model's anchor (photosphere
+        scans need a photosphere-anchored diffusion model, base scans a
+        base-anchored one), ``start`` or ``stop`` is not finite and
+        positive, or ``num`` is outside 2 to ``MAX_MEMBERS``.
     """
-    if not _photosphere_family(model):
-        raise ModelError("a family keeps the photosphere luminosity fixed: give a diffusion "
-                         "model anchored at the photosphere ([boundary] "
-                         "photosphere_luminosity and photosphere_temperature)")
     if scan not in SCANS:
         raise ModelError(f"--scan {scan}: choose one of {', '.join(SCANS)}")
+    if scan in PHOTOSPHERE_SCANS and not _photosphere_family(model):
+        base = _base_family(model)
+        raise ModelError(f"--scan {scan}: a family along it keeps the photosphere luminosity "
+                         f"fixed: give a diffusion model anchored at the photosphere "
+                         f"([boundary] photosphere_luminosity and photosphere_temperature)"
+                         + (f", or scan a base-anchored one along "
+                            f"{' or '.join(BASE_SCANS)}" if base else ""))
+    if scan in BASE_SCANS and not _base_family(model):
+        raise ModelError(f"--scan {scan}: a family along it keeps the base temperature (or "
+                         f"density) fixed: give a diffusion model anchored at the base "
+                         f"([star] radius and luminosity, [boundary] base_temperature or "
+                         f"base_density)"
+                         + (f", or scan a photosphere-anchored one along "
+                            f"{', '.join(PHOTOSPHERE_SCANS)}" if _photosphere_family(model)
+                            else ""))
     for option, value in (("--from", start), ("--to", stop)):
         if not (math.isfinite(value) and value > 0):
             raise ModelError(f"{option} {float(value)!r}: the members are log-spaced; give a "
@@ -441,7 +504,7 @@ def _ends(result):
 
 
 def plot_family(result: FamilyResult, path: str | Path) -> str | Path:
-    """Mdot, v_inf, T_eff and the base (temperature or radius) against R_ph.
+    """Mdot, v_inf, T_eff and the base (or, base-anchored, L_ph) against R_ph (or the scan).
 
     Parameters
     ----------
@@ -477,29 +540,40 @@ def plot_family(result: FamilyResult, path: str | Path) -> str | Path:
     tb = result.column("base_temperature")[ok]
     fixed_radius = (result.model.radius is not None if result.model is not None
                     else not np.allclose(tb, tb[0], rtol=1e-9) if tb.size else False)
-    if fixed_radius:  # fixed base radius: its temperature varies
+    base_scan = result.scan in BASE_SCANS
+    if base_scan:  # the base is held: what the photosphere's luminosity does
+        panels.append((result.column("photosphere_luminosity")[ok] / 3.828e33,  # IAU Lsun
+                       r"photosphere luminosity  $L_{\rm ph}$  [L$_\odot$]", "log"))
+    elif fixed_radius:  # fixed base radius: its temperature varies
         panels.append((result.column("base_temperature")[ok], "base temperature  [K]", "log"))
     else:  # fixed base temperature: where the envelope reaches it varies
         panels.append((result.column("base_radius")[ok] / R_SUN,
                        r"radius at the base temperature  [R$_\odot$]", "linear"))
     fig, axes = plt.subplots(2, 2, figsize=(10, 7), sharex=True, constrained_layout=True)
+    x = result.values[ok] if base_scan else rph  # a base family: against what it scans
     for ax, (y, label, scale) in zip(axes.flat, panels, strict=True):
-        ax.plot(rph, y, "o-", color="#1f4e79", ms=3, lw=1.2)
+        ax.plot(x, y, "o-", color="#1f4e79", ms=3, lw=1.2)
         ax.set_xscale("log")
         ax.set_yscale(scale)
         ax.set_ylabel(label)
         ax.grid(True, which="both", alpha=0.25)
     for ax in axes[-1]:
-        ax.set_xlabel(r"photosphere radius  $R_{\rm ph}$  [R$_\odot$]")
+        ax.set_xlabel({"base_luminosity": r"base luminosity  $L_0$  [L$_\odot$]",
+                       "base_radius": r"base radius  $R_0$  [R$_\odot$]"}.get(
+            result.scan, r"photosphere radius  $R_{\rm ph}$  [R$_\odot$]"))
     for ax in axes.flat:  # labelled ticks on short log axes, no offset text
         label_log_ticks(ax, "x")
         label_log_ticks(ax, "y")
-    if result.model is not None:
-        L, name = result.model.photosphere_luminosity.to_value(u.Lsun), result.model.name
-    else:
-        L = np.nanmedian(result.column("photosphere_luminosity")) / 3.828e33  # IAU 2015 Lsun
-        name = "family"
+    name = result.model.name if result.model is not None else "family"
     n_bad = int((~ok).sum())
-    fig.suptitle(f"{name} — family at L$_{{\\rm ph}}$ = {L:.3g} L$_\\odot$ "
-                 f"({ok.sum()} solutions{f', {n_bad} without' if n_bad else ''})")
+    counts = f"({ok.sum()} solutions{f', {n_bad} without' if n_bad else ''})"
+    if base_scan:
+        fig.suptitle(f"{name} — base-anchored family along {result.scan} "
+                     f"[{BASE_SCANS[result.scan].to_string()}] {counts}")
+    else:
+        if result.model is not None:
+            L = result.model.photosphere_luminosity.to_value(u.Lsun)
+        else:
+            L = np.nanmedian(result.column("photosphere_luminosity")) / 3.828e33  # IAU 2015 Lsun
+        fig.suptitle(f"{name} — family at L$_{{\\rm ph}}$ = {L:.3g} L$_\\odot$ {counts}")
     return save(plt, fig, path)

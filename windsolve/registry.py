@@ -191,6 +191,18 @@ class ModelSpec:
     photosphere_family : callable or None
         ``photosphere_family(model) -> bool``: can :func:`windsolve.family.solve_family`
         scan this model at a fixed photosphere luminosity?  None: never.
+    base_family : callable or None
+        ``base_family(model) -> bool``: can :func:`windsolve.family.solve_family`
+        scan this model's base radius or luminosity at a fixed base
+        temperature or density?  None: never.
+    hint : callable or None
+        ``hint(model, budget) -> str``: for a model without a solution, which
+        way to move its inputs (a quick scan of at most ``budget`` seconds;
+        what ``windsolve run`` adds to its one-line error); None: no hint.
+    warm_start : bool
+        ``solve`` also takes ``start_from``, a converged result of a nearby
+        model to start its search from (sweep workers and families pass the
+        previous model's).
     opacity_path : callable or None
         ``opacity_path(model) -> dict``: kappa and Gamma on the temperatures
         the wind crosses (what ``windsolve check --plot`` draws; see
@@ -210,6 +222,9 @@ class ModelSpec:
     core_radius: object = default_core_radius
     extend_profile: object = None
     photosphere_family: object = None
+    base_family: object = None
+    warm_start: bool = False
+    hint: object = None
     opacity_path: object = None
 
 

@@ -17,7 +17,8 @@ if TYPE_CHECKING:
 __all__ = ["solve"]
 
 
-def solve(model: "WindModel", profile: bool = True) -> WindResult:
+def solve(model: "WindModel", profile: bool = True,
+          start_from: "WindResult | None" = None) -> WindResult:
     """Solve a wind model; returns a :class:`~windsolve.result.WindResult`.
 
     Model A (:class:`~windsolve.models.IsothermalWind`) finds the mass-loss
@@ -36,6 +37,12 @@ def solve(model: "WindModel", profile: bool = True) -> WindResult:
         pass False, which skips the stored profile (Model A: the second
         inward integration and the dense output); the summary values agree
         to the integration tolerance.
+    start_from : WindResult, optional
+        A converged result of a nearby model (the previous one of a sweep or
+        a scan), for solvers that can start from it: a base-anchored Model B
+        solve then skips its first search for the photosphere (docs/physics.md,
+        section 8).  The answer is the same to the solution's tolerance
+        (about 1e-9 relative); ignored by the other solvers.
 
     Returns
     -------
@@ -56,4 +63,7 @@ def solve(model: "WindModel", profile: bool = True) -> WindResult:
     docs/physics.md, eqs. 13-16 (Model A, section 4), eqs. 19-24 (Model B,
     section 5), eqs. 25, 26 (critical points) and section 8 (numerical method).
     """
-    return spec_for(model).solve(model, profile)
+    spec = spec_for(model)
+    if start_from is not None and spec.warm_start:
+        return spec.solve(model, profile, start_from=start_from)
+    return spec.solve(model, profile)

@@ -360,6 +360,7 @@ def run_batch(base, items, profiles=False, observables=None):
 
     out = []
     base_key = json.dumps(base, sort_keys=True)
+    previous = None  # the batch's last converged result: where the next solve may start
     for row, changes in items:
         t0 = time.perf_counter()
         record = {"row": row}
@@ -382,7 +383,10 @@ def run_batch(base, items, profiles=False, observables=None):
                 record["seconds"] = time.perf_counter() - t0
                 out.append(record)
                 continue
-            result = solve(model, profile=profiles or observables is not None)
+            result = solve(model, profile=profiles or observables is not None,
+                           start_from=previous)
+            if result.converged:
+                previous = result
             record["converged"] = bool(result.converged)
             record["status"] = result.status
             record["message"] = result.message

@@ -9,7 +9,7 @@ what ``windsolve check`` shows.
 from ...registry import SUMMARY_UNITS, ModelSpec, lazy, photosphere_core_radius, register
 from .check import check_diffusion, opacity_along
 from .model import DiffusionWind
-from .solve import solve_diffusion
+from .solve import diffusion_hint, solve_diffusion
 
 __all__ = ["DiffusionWind", "solve_diffusion", "check_diffusion", "ENTRY"]
 
@@ -27,5 +27,8 @@ ENTRY = register(ModelSpec(
     core_radius=photosphere_core_radius,
     extend_profile=lazy("windsolve.lines", "thin_extension"),
     photosphere_family=lambda model: model.anchor == "photosphere",
+    base_family=lambda model: model.anchor == "base",
+    warm_start=True,
+    hint=diffusion_hint,
     opacity_path=opacity_along,
 ))

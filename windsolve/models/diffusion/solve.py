@@ -21,7 +21,56 @@ def _diffusion_failure_result(model, summary, code, text, t0):
         counters={"shots": B.shots(), "seconds": time.perf_counter() - t0}))
 
 
-def solve_diffusion(model, profile=True):
+def _start(result):
+    """(L_ph [erg/s], T_eff [K], ln Mdot, L(R0) [erg/s]) of a converged Model B result, or None."""
+    if result is None or not getattr(result, "converged", False):
+        return None
+    try:
+        values = [result.summary[key].to_value(unit) for key, unit in (
+            ("photosphere_luminosity", "erg/s"), ("photosphere_temperature", "K"),
+            ("mass_loss_rate", "g/s"), ("base_luminosity", "erg/s"))]
+    except (KeyError, AttributeError, TypeError):
+        return None
+    if not all(math.isfinite(v) and v > 0 for v in values):
+        return None
+    return values[0], values[1], math.log(values[2]), values[3]
+
+
+def diffusion_hint(model, budget=3.0):
+    """Which way to move a Model B model that has no solution: a sentence, or "".
+
+    Photosphere anchor: the range of T_eff (or, failing that, L_ph) near the
+    model's that has solutions.  Base anchor: the base values the solutions
+    with L_ph near L0 reach at R0, and which way to move T0 (or rho0) or R0.
+    A quick scan of coarse solves, stopped after ``budget`` seconds.
+
+    Parameters
+    ----------
+    model : DiffusionWind
+        The model (one without a solution: nothing is checked).
+    budget : float
+        Seconds at most [s].
+
+    Returns
+    -------
+    str
+        The sentence ("" when the scan found nothing to say).
+
+    References
+    ----------
+    docs/physics.md, section 5 ("Boundary conditions").
+    """
+    from . import shooting as B
+    P, O = model.kernel_arrays
+    if model.anchor == "photosphere":
+        return B.photosphere_hint(P, O, model.cgs("photosphere_luminosity"),
+                                  model.cgs("photosphere_temperature"), model.rtol, budget)
+    kind = "temperature" if model.base_temperature is not None else "density"
+    return B.base_hint(P, O, model.cgs("luminosity"), kind, model.cgs(f"base_{kind}"),
+                       model.rtol, budget)
+
+
+def solve_diffusion(model, profile=True, start_from=None):
     """Solve Model B (:class:`~windsolve.models.DiffusionWind`).
 
     ``profile`` is accepted for symmetry; the profile is always computed
@@ -33,6 +82,9 @@ def solve_diffusion(model, profile=True):
         The model (photosphere or base anchor, docs/physics.md, section 5).
     profile : bool
         Ignored (see above).
+    start_from : WindResult, optional
+        A converged Model B result of a nearby model: the base anchor starts
+        from its photosphere and mass-loss rate (no initial search).
 
     Returns
     -------
@@ -72,12 +124,16 @@ def solve_diffusion(model, profile=True):
         if model.anchor == "photosphere":
             L_ph = model.cgs("photosphere_luminosity")
             T_ph = model.cgs("photosphere_temperature")
+            guess = sol = None
         else:
             kind = "temperature" if model.base_temperature is not None else "density"
-            L_ph, T_ph = B.solve_base_anchor(P, O, model.cgs("luminosity"), kind,
-                                             model.cgs(f"base_{kind}"), rtol)
-        sol, no = B.solve_photosphere_anchor(P, O, L_ph, T_ph, rtol, xo, yo, MAX_STEP,
-                                             diagnose=model.anchor == "photosphere")
+            L_ph, T_ph, guess, sol = B.solve_base_anchor(P, O, model.cgs("luminosity"), kind,
+                                                         model.cgs(f"base_{kind}"), rtol,
+                                                         _start(start_from))
+        if sol is None or B.PROFILE_STEP != MAX_STEP:
+            sol, _ = B.solve_photosphere_anchor(P, O, L_ph, T_ph, rtol, xo, yo, MAX_STEP,
+                                                diagnose=model.anchor == "photosphere",
+                                                guess=guess)
     except B.ModelBFailure as failure:
         return _diffusion_failure_result(model, summary, failure.code, failure.text, t0)
     c = sol.crit
