@@ -43,8 +43,8 @@ def tour_commands():
 
 def test_the_tour_is_marked_and_uses_only_windsolve():
     commands = tour_commands()
-    # The blocks named in the README: the short tour (8), sweeps (5), lines (6).
-    assert len(commands) == 19, [" ".join(c) for c in commands]
+    # The blocks named in the README: the short tour (9), sweeps (5), lines (6).
+    assert len(commands) == 20, [" ".join(c) for c in commands]
     assert all(c[0] == "windsolve" for c in commands), [c for c in commands
                                                          if c[0] != "windsolve"]
 
