@@ -88,6 +88,14 @@ def test_bad_set_is_one_line_naming_it(tmp_path, capsys, assignment, says):
     assert not out.exists() and stdout == ""
 
 
+def test_check_takes_set_too(capsys):
+    code, out, _ = run(["check", "--set", "star.luminosity=1e6 Lsun"], capsys)
+    assert code == 0
+    assert "built-in demo with star.luminosity=1e6 Lsun" in out
+    code, _, err = run(["check", "--set", "star.luminosity=-1 Lsun"], capsys)
+    assert code == 2 and "--set star.luminosity=-1 Lsun" in one_error_line(err)
+
+
 # -- the wrong kind of file --------------------------------------------------------
 
 def test_run_names_a_sweep_file(capsys):

@@ -94,7 +94,7 @@ def _check_output(path, default_ext):
 
 
 def cmd_check(args: argparse.Namespace) -> int:
-    """``windsolve check [MODEL]``: validate a model without solving it.
+    """``windsolve check [MODEL] [--set KEY=VALUE ...]``: validate a model without solving it.
 
     Prints the derived numbers of the model's kind (its registered spec's
     ``check``), one ``KEY  VALUE`` line each, aligned, then any ``note:`` lines.
@@ -117,7 +117,7 @@ def cmd_check(args: argparse.Namespace) -> int:
     """
     from .registry import spec_for
 
-    model, source = _load(args.model)
+    model, source = _load(args.model, args.set or ())
     if getattr(args, "plot", None):
         _check_output(args.plot, ".png")
         if spec_for(model).opacity_path is None:
@@ -1126,6 +1126,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--plot", metavar="OUT.png",
                    help="draw kappa and Gamma along the temperatures the wind crosses "
                         "(diffusion models)")
+    p.add_argument("--set", action="append", metavar="SECTION.KEY=VALUE",
+                   help="change one key of the model file (repeatable), as for run")
     p.set_defaults(func=cmd_check)
 
     p = sub.add_parser("inspect", help="print what a result file holds",
