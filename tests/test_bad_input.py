@@ -331,6 +331,22 @@ case("no-solution-prints-one-line", "no solution",
 # --- kind: command line syntax ----------------------------------------------------------------
 K = "command line"
 case("unknown-command", K, lambda c: ["frobnicate"], "frobnicate")
+case("set-unknown-key", K, lambda c: ["run", c.model(DEMO), "--set", "star.lumi=3e6 Lsun"],
+     "--set star.lumi=3e6 Lsun", 'unknown key "lumi"', 'did you mean "luminosity"')
+case("set-value-without-unit", K, lambda c: ["run", c.model(DEMO), "--set",
+                                             "star.luminosity=3e6"],
+     "--set star.luminosity=3e6", "unit")
+case("set-without-equals", K, lambda c: ["run", c.model(DEMO), "--set", "numerics.rtol"],
+     "--set numerics.rtol", "section.key=value")
+case("set-two-dots", K, lambda c: ["run", c.model(DEMO), "--set", "star.mass.x=1"],
+     "--set star.mass.x=1", "one dot")
+case("run-given-a-sweep-file", K, lambda c: ["run", c.write(
+    "sweep.toml", '[sweep]\nbase = "model.toml"\n[[axis]]\nkey = "star.mass"\n'
+                  'values = ["50 Msun"]\n')], "sweep.toml", "this is a sweep file",
+     "windsolve sweep")
+case("sweep-given-a-model-file", K, lambda c: ["sweep", c.model(DEMO), "-o",
+                                               str(c.dir / "s.h5")],
+     "this is a model file", "windsolve run")
 case("command-near-miss", K, lambda c: ["rnu"], "rnu", 'did you mean "run"')
 case("no-command", K, lambda c: [], "command")
 case("unknown-option", K, lambda c: ["run", "--fast"], "--fast")

@@ -24,21 +24,27 @@ DESCRIPTION = ("Steady continuum-driven (radiation-pressure-driven) stellar wind
                "find the transonic solution, its mass-loss rate and profiles.")
 
 
-def _load(path):
-    from . import demo_model_path, load_model
-    if path is None:
-        return load_model(demo_model_path()), "built-in demo"
-    return load_model(path), str(path)
+def _load(path, assignments=()):
+    """(model, how to name it): the file (the built-in demo when None) with --set applied."""
+    from . import demo_model_path
+    from .modelfile import load_model_with
+    source = "built-in demo" if path is None else str(path)
+    model = load_model_with(demo_model_path() if path is None else path, list(assignments))
+    if assignments:
+        source += " with " + ", ".join(assignments)
+    return model, source
 
 
 HINT_SECONDS = 3.0  # run: the longest a "which way to move" scan may take
 
 
 def cmd_run(args: argparse.Namespace) -> int:
-    """``windsolve run [MODEL] [-o OUT.h5] [-q]``: solve one model.
+    """``windsolve run [MODEL] [--set KEY=VALUE ...] [-o OUT.h5] [-q]``: solve one model.
 
-    The model file (the built-in demo when none is given) is loaded and the
-    output path checked before the solve.  Unless ``-q``, prints ``model:
+    The model file (the built-in demo when none is given) is loaded, each
+    ``--set section.key=value`` applied in order (the value as a model file
+    writes it; :func:`windsolve.modelfile.load_model_with`), and the output
+    path checked before the solve.  Unless ``-q``, prints ``model:
     SOURCE`` and the result's summary, then ``wrote OUT.h5`` after writing the
     result with ``-o``.  A solution that stops before the outer radius is
     written all the same, and its status and message go to stderr (even with
@@ -62,7 +68,7 @@ def cmd_run(args: argparse.Namespace) -> int:
         solution: ..."; nothing is written).
     """
     from .solve import solve
-    model, source = _load(args.model)
+    model, source = _load(args.model, args.set or ())
     if args.output is not None:
         _check_output(args.output, ".h5")
     result = solve(model)
@@ -97,7 +103,7 @@ def _check_output(path, default_ext):
 
 
 def cmd_check(args: argparse.Namespace) -> int:
-    """``windsolve check [MODEL]``: validate a model without solving it.
+    """``windsolve check [MODEL] [--set KEY=VALUE ...]``: validate a model without solving it.
 
     Prints the derived numbers of the model's kind (its registered spec's
     ``check``), one ``KEY  VALUE`` line each, aligned, then any ``note:`` lines.
@@ -120,7 +126,7 @@ def cmd_check(args: argparse.Namespace) -> int:
     """
     from .registry import spec_for
 
-    model, source = _load(args.model)
+    model, source = _load(args.model, args.set or ())
     if getattr(args, "plot", None):
         _check_output(args.plot, ".png")
         if spec_for(model).opacity_path is None:
@@ -229,8 +235,11 @@ def cmd_sweep(args: argparse.Namespace) -> int:
     that ``--resume`` finishes an interrupted sweep, and writes the sweep's
     table to ``-o``.  Unless ``-q``: one line describing the sweep and where
     it runs, then the count of each status, a note on models with a
-    hydrostatic base, and ``wrote OUT.h5``.  When interrupted, says on stderr
-    how many models are kept and the command that resumes.
+    hydrostatic base, and ``wrote OUT.h5``.  When interrupted (Ctrl-C: the
+    local workers are ended at once, every finished model stays in the
+    journal), says on stderr how many models are kept and the command that
+    resumes.  ``--resume`` without a journal says so in one line on stderr
+    (also with ``-q``) and runs the whole sweep.
 
     Parameters
     ----------
@@ -259,6 +268,14 @@ def cmd_sweep(args: argparse.Namespace) -> int:
     if args.workers is not None and args.workers < 1:
         raise WindsolveError("--workers must be at least 1")
     _check_output(args.output, ".h5")
+    if args.resume:
+        from .sweep.runner import JOURNAL_SUFFIX
+        journal = Path(args.output + JOURNAL_SUFFIX)
+        if not journal.exists():
+            # Not an error: a script may always pass --resume. But never silently.
+            print(f"windsolve: nothing to resume (no journal {journal}: the last run "
+                  f"finished, or none started); running all {len(sweep)} models",
+                  file=sys.stderr)
     if not args.quiet:
         where = f"dask scheduler {args.scheduler}" if args.scheduler else \
             f"{args.workers or 'all'} local worker(s)"
@@ -433,7 +450,9 @@ def cmd_lines(args: argparse.Namespace) -> int:
     print(f"  blue edge  {kms(line.edge_velocity)}   (absorption depth {settings.edge_depth:g})")
     v_inf = result.summary.get("terminal_velocity")
     if v_inf is not None:
-        print(f"  model terminal velocity  {kms(v_inf)}")
+        from .registry import MODEL_SPECS
+        spec = MODEL_SPECS.get(getattr(result.model, "kind", None))
+        print(f"  model {spec.terminal_label if spec else 'terminal velocity'}  {kms(v_inf)}")
     if line.fastest is not None:
         traced = "the edge and HWZI trace the fastest gas"
         if line.slows_outward:
@@ -1101,6 +1120,10 @@ def build_parser() -> argparse.ArgumentParser:
                                    "radius (file written, status says where).")
     p.add_argument("model", nargs="?", help="model file (TOML); default: the built-in demo")
     p.add_argument("-o", "--output", metavar="OUT.h5", help="write the result to this HDF5 file")
+    p.add_argument("--set", action="append", metavar="SECTION.KEY=VALUE",
+                   help="change one key of the model file for this run, the value as a model "
+                        "file writes it (repeatable), e.g. --set star.luminosity=\"3e6 Lsun\" "
+                        "--set numerics.rtol=1e-9")
     p.add_argument("-q", "--quiet", action="store_true", help="print nothing on success")
     p.set_defaults(func=cmd_run)
 
@@ -1112,6 +1135,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--plot", metavar="OUT.png",
                    help="draw kappa and Gamma along the temperatures the wind crosses "
                         "(diffusion models)")
+    p.add_argument("--set", action="append", metavar="SECTION.KEY=VALUE",
+                   help="change one key of the model file (repeatable), as for run")
     p.set_defaults(func=cmd_check)
 
     p = sub.add_parser("inspect", help="print what a result file holds",

@@ -328,6 +328,17 @@ _QUANTITIES = ((r"mass-loss rate  $\dot M$", r"M$_\odot$ yr$^{-1}$", True),
                (r"terminal velocity  $v_\infty$", "km s$^{-1}$", False))
 
 
+def _sweep_quantities(kind):
+    """_QUANTITIES with the speed named as the model's summary names it (Model A: v at
+    the outer radius, not v_inf; ModelSpec.terminal_label)."""
+    from .registry import MODEL_SPECS
+    spec = MODEL_SPECS.get(kind)
+    label = spec.terminal_label if spec is not None else "terminal velocity"
+    if label == "terminal velocity":
+        return _QUANTITIES
+    return _QUANTITIES[0], (label, _QUANTITIES[1][1], False)
+
+
 def _facets(table, views):
     """(titles, index, note): the facets of a sweep of three or more axes.
 
@@ -421,6 +432,7 @@ def sweep_figure(path: "str | Path") -> "Figure":
     from .sweep import axis_views, read_sweep_table
 
     table, attrs = read_sweep_table(path)
+    quantities = _sweep_quantities(str(attrs.get("model", "")))
     views = axis_views(path)
     ok = table["converged"].astype(bool)
     mdot = table["mass_loss_rate"] * (u.g / u.s).to(u.Msun / u.yr)
@@ -433,7 +445,7 @@ def sweep_figure(path: "str | Path") -> "Figure":
     if len(views) == 1:
         fig, axs = plt.subplots(1, 2, figsize=(11, 4.6), constrained_layout=True)
         x, xlabel = axis[0]
-        for ax, (name, unit, logy), y in zip(axs, _QUANTITIES, (mdot, vinf), strict=True):
+        for ax, (name, unit, logy), y in zip(axs, quantities, (mdot, vinf), strict=True):
             order = np.argsort(x)
             good = order[ok[order]]
             if logy and ok.any() and np.all(y[ok] > 0):
@@ -466,7 +478,7 @@ def sweep_figure(path: "str | Path") -> "Figure":
     fig, axs = plt.subplots(shown, 2, figsize=(11, 1.2 + 3.3 * shown), squeeze=False,
                             sharex=True, sharey=True, constrained_layout=True)
     colours = []
-    for name, unit, logz in _QUANTITIES:
+    for name, unit, logz in quantities:
         z = mdot if logz else vinf
         if logz and ok.any() and np.all(z[ok] > 0):
             colours.append((np.log10(z), f"log$_{{10}}$ {name}  [{unit}]"))

@@ -282,7 +282,13 @@ class WindResult:
         show("base density", "base_density", u.g / u.cm**3)
         show("base luminosity", "base_luminosity", u.Lsun)
         show("outer radius", "outer_radius", u.Rsun)
-        show("base Eddington factor", "base_eddington_factor", u.dimensionless_unscaled)
+        porous = getattr(self.model, "porosity_length", None) is not None
+        show("base Gamma_eff (porous)" if porous else "base Gamma_eff", "base_eddington_factor",
+             u.dimensionless_unscaled)
+        gamma_es = self._base_gamma_es()
+        if gamma_es is not None:
+            lines.append(f"  {'base Gamma_es':<26s} {gamma_es:.4g}   (electron scattering "
+                         f"alone: L0 / L_Edd)")
         show("density e-folds base->r_c", "base_density_efolds", u.dimensionless_unscaled,
              ".4g")
         if self.hydrostatic:
@@ -292,6 +298,18 @@ class WindResult:
         if spec.converged_note and self.converged:
             lines.append(f"  {spec.converged_note}")
         return lines
+
+    def _base_gamma_es(self):
+        """L0 / L_Edd(kappa_es) of a model with a base Eddington factor (Model A), else None."""
+        from .physics import eddington_factor, electron_scattering_opacity
+        model = self.model
+        if "base_eddington_factor" not in self.summary:
+            return None
+        try:
+            kes = electron_scattering_opacity(model.X, model.Z)
+            return float(eddington_factor(model.luminosity, model.mass, kes))
+        except (AttributeError, TypeError, ValueError):
+            return None  # a file without a model, or a model without these values
 
     def __str__(self):
         return "\n".join(self.summary_lines())

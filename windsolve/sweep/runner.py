@@ -53,6 +53,7 @@ JOURNAL_SUFFIX = ".partial"
 FSYNC_INTERVAL = 1.0  # [s] the journal is flushed every batch, written to disk this often
 LOCK_SUFFIX = ".lock"  # OUT.h5.lock: held (fcntl.flock) while a sweep writes OUT.h5
 DEFAULT_STALL_TIMEOUT = 600.0  # [s] no batch finished for this long: the sweep stops
+ROW_TICK = 0.2  # [s] a local sweep journals and shows the rows that ended this often
 
 
 def _trim_journal(journal):
@@ -194,7 +195,8 @@ class SweepRun:
         frequent first.
     interrupted : bool
         True after Ctrl-C: the finished rows stay in the journal and the
-        table is not written.
+        table is not written.  Local workers send each row as it ends and
+        are ended at once on Ctrl-C, so only the rows being solved are lost.
     """
 
     path: Path
@@ -314,7 +316,8 @@ def run_sweep(sweep: Sweep, out: str | Path, workers: int | None = None,
         Address of a dask.distributed scheduler to run the rows on instead.
     resume : bool
         Finish an interrupted run from its journal (the journal must belong
-        to the same design).
+        to the same design); without a journal every row runs (the command
+        line says so first).
     quiet : bool
         No progress bar.
     stall_timeout : float or None [s]
@@ -374,7 +377,7 @@ def _run_locked(sweep, out, workers, scheduler, resume, quiet, stall_timeout):
     else:
         progress = _Progress(len(sweep))
     todo = progress.todo()
-    executor, close, describe = _executor(workers, scheduler)
+    executor, close, describe, rows_queue = _executor(workers, scheduler)
     batch = sweep.batch or _default_batch(sweep.kind, len(todo), workers, scheduler)
     batches = (todo[k:k + batch].tolist() for k in range(0, len(todo), batch))
     bar = None
@@ -387,6 +390,10 @@ def _run_locked(sweep, out, workers, scheduler, resume, quiet, stall_timeout):
     # Wake up at least once a second (and ten times within a short stall
     # timeout) to notice and report a sweep in which nothing finishes.
     tick = 1.0 if stall_timeout is None else min(1.0, max(0.05, stall_timeout / 10))
+    if rows_queue is not None:
+        tick = min(tick, ROW_TICK)  # rows arrive one by one: show them as they do
+    sizes = {}  # future -> rows in its batch (rows streamed through rows_queue)
+    streamed = {"expected": 0, "got": 0}
     report = 5.0 if stall_timeout is None else min(5.0, stall_timeout / 2)  # [s] of no progress
     try:
         with open(journal, "a", encoding="utf-8") as jf:
@@ -405,14 +412,22 @@ def _run_locked(sweep, out, workers, scheduler, resume, quiet, stall_timeout):
                         b = next(queue, None)
                         if b is None:
                             break
-                        pending.add(executor.submit(journal_batch, sweep.base,
-                                                    [(i, sweep.rows[i]) for i in b],
-                                                    sweep.profiles, sweep.observables, design))
+                        fut = executor.submit(journal_batch, sweep.base,
+                                              [(i, sweep.rows[i]) for i in b],
+                                              sweep.profiles, sweep.observables, design)
+                        sizes[fut] = len(b)
+                        pending.add(fut)
                     if not pending:
                         break
                     finished, pending = wait(pending, timeout=tick,
                                              return_when=FIRST_COMPLETED)
                     now = time.monotonic()
+                    if rows_queue is not None and _drain(rows_queue, jf, progress, bar,
+                                                         streamed):
+                        progressed, stalled_shown = now, 0
+                        if now - synced >= FSYNC_INTERVAL:
+                            os.fsync(jf.fileno())
+                            synced = now
                     if not finished:
                         idle = now - progressed
                         if stall_timeout is not None and idle >= stall_timeout:
@@ -447,6 +462,8 @@ def _run_locked(sweep, out, workers, scheduler, resume, quiet, stall_timeout):
                             raise WindsolveError(
                                 f"a task failed on the executor ({why}); the models finished "
                                 f"so far are kept in {journal}: rerun with --resume") from None
+                        if rows_queue is not None:
+                            streamed["expected"] += sizes.pop(fut)
                         jf.write(text)
                         for end in ends:
                             progress.add(*end)
@@ -459,9 +476,18 @@ def _run_locked(sweep, out, workers, scheduler, resume, quiet, stall_timeout):
                             bar.set_postfix(converged=progress.n_converged,
                                             failed=progress.done - progress.n_converged,
                                             refresh=False)
+                if rows_queue is not None:  # the last rows may trail their batches
+                    _drain_all(rows_queue, jf, progress, bar, streamed, stall_timeout)
                 aborted = False
             except KeyboardInterrupt:
-                interrupted, aborted = True, False
+                # Keep every row that has reached us, then end the workers at once:
+                # rows still being solved are lost (a resume runs them), nothing else.
+                interrupted, aborted = True, True
+                if rows_queue is not None:
+                    try:
+                        _drain(rows_queue, jf, progress, bar, streamed)
+                    except KeyboardInterrupt:
+                        pass
             finally:
                 jf.flush()
                 os.fsync(jf.fileno())
@@ -480,6 +506,40 @@ def _run_locked(sweep, out, workers, scheduler, resume, quiet, stall_timeout):
                     interrupted=interrupted)
 
 
+def _drain(rows_queue, jf, progress, bar, streamed):
+    """Journal and count every row waiting in ``rows_queue``; True if there was one."""
+    import queue
+    got = 0
+    while True:
+        try:
+            line, end = rows_queue.get_nowait()
+        except queue.Empty:
+            break
+        jf.write(line)
+        progress.add(*end)
+        got += 1
+    if got:
+        streamed["got"] += got
+        jf.flush()  # in the OS's hands: a killed sweep keeps it
+        if bar is not None:
+            bar.update(got)
+            bar.set_postfix(converged=progress.n_converged,
+                            failed=progress.done - progress.n_converged, refresh=False)
+    return bool(got)
+
+
+def _drain_all(rows_queue, jf, progress, bar, streamed, stall_timeout):
+    """Wait for the rows of every finished batch still on their way through ``rows_queue``."""
+    deadline = time.monotonic() + (stall_timeout or DEFAULT_STALL_TIMEOUT)
+    while streamed["got"] < streamed["expected"]:
+        if not _drain(rows_queue, jf, progress, bar, streamed):
+            if time.monotonic() > deadline:
+                raise WindsolveError(
+                    f"{streamed['expected'] - streamed['got']} finished rows never reached "
+                    f"the main process; rerun with --resume")
+            time.sleep(0.01)
+
+
 def _default_batch(kind, n_todo, workers, scheduler):
     """Models per task: the model's ModelSpec.sweep_batch, fewer when that would
     leave workers idle (fewer than TASKS_PER_WORKER tasks each)."""
@@ -490,7 +550,10 @@ def _default_batch(kind, n_todo, workers, scheduler):
 
 
 def _executor(workers, scheduler):
-    """(executor, close, describe): a local process pool or a dask cluster's executor.
+    """(executor, close, describe, rows): a local process pool or a dask cluster's executor.
+
+    ``rows``: for a local pool, the queue its workers send each finished row
+    to (:func:`journal_batch`); None for dask, whose rows return with their batch.
 
     ``close(pending, abort)`` cancels the futures still pending and shuts the
     executor down (``abort``: also end our local workers now, e.g. a stuck
@@ -546,16 +609,18 @@ def _executor(workers, scheduler):
                 for name, level in quiet_loggers.items():
                     logging.getLogger(name).setLevel(level)
 
-        return client.get_executor(), close, describe
+        return client.get_executor(), close, describe, None
     import multiprocessing
     from concurrent.futures import ProcessPoolExecutor
     n = workers or os.cpu_count() or 1
     # "spawn": workers start clean (no inherited threads or locks) and load
     # the compiled kernels from numba's on-disk cache.
     from ..registry import plugin_modules
-    pool = ProcessPoolExecutor(max_workers=n, mp_context=multiprocessing.get_context("spawn"),
+    context = multiprocessing.get_context("spawn")
+    rows = context.Queue()
+    pool = ProcessPoolExecutor(max_workers=n, mp_context=context,
                                initializer=_worker_init,
-                               initargs=(os.getpid(), plugin_modules()))
+                               initargs=(os.getpid(), plugin_modules(), rows))
 
     def close(pending=(), abort=False):
         if abort:  # a stuck worker would keep this process from exiting
@@ -570,6 +635,6 @@ def _executor(workers, scheduler):
             fut.cancel()
         pool.shutdown(wait=False, cancel_futures=True)
 
-    return pool, close, lambda: f"{n} local worker process{'es' * (n != 1)}"
+    return pool, close, lambda: f"{n} local worker process{'es' * (n != 1)}", rows
 
 

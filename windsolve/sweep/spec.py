@@ -289,6 +289,9 @@ def load_sweep(path: str | Path) -> Sweep:
     except (OSError, UnicodeDecodeError) as error:
         raise ModelError(f"{path}: cannot read ({error})") from None
     data = parse_toml(text, path)
+    if "sweep" not in data and isinstance(data.get("model"), str):
+        _fail(path, f"this is a model file (model = \"{data['model']}\"), not a sweep file: "
+                    f"use windsolve run {path} (a sweep file has [sweep] and [[axis]] tables)")
     tables = ("sweep", "model", "axis", "observables")
     for k in data:
         if k not in tables:

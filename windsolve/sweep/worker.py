@@ -120,7 +120,24 @@ def journal_batch(base, items, profiles=False, observables=None, design=None):
         One JSON line per record.
     ends : list of tuple
         :func:`row_end` of every record.
+
+    Notes
+    -----
+    In a local pool worker started with a row queue (:func:`_worker_init`)
+    every row is sent as ``(line, end)`` on that queue as soon as it is
+    solved, and ``("", [])`` is returned: the main process journals and counts
+    each row when it ends (the progress bar moves per model, and Ctrl-C keeps
+    every finished row of a batch still running).
     """
+    if _ROW_QUEUE:  # a local pool worker: each row goes to the main process as it ends
+        rows = _ROW_QUEUE[0]
+
+        def send(record):
+            record["design"] = design
+            rows.put((json.dumps(record) + "\n", row_end(record)))
+
+        run_batch(base, items, profiles, observables, on_row=send)
+        return "", []
     records = run_batch(base, items, profiles, observables)
     for record in records:
         record["design"] = design
@@ -328,7 +345,7 @@ class _FastRows:
         return _RowModel(base, changes, (P, O), vals.get("rtol", base.rtol), a, T, cgs)
 
 
-def run_batch(base, items, profiles=False, observables=None):
+def run_batch(base, items, profiles=False, observables=None, on_row=None):
     """Solve a batch of rows in a worker: base model file, [(row, changes)] -> records.
 
     With ``observables`` (LineSettings keywords) each converged model's line
@@ -347,11 +364,14 @@ def run_batch(base, items, profiles=False, observables=None):
         Store each row's profile (cgs lists) in its record.
     observables : dict or None
         LineSettings keywords, or None to measure no widths.
+    on_row : callable, optional
+        Called with each record as soon as its row is done; the records are
+        then not kept (an empty list is returned).
 
     Returns
     -------
     list of dict
-        One record per row, in the order of ``items``.
+        One record per row, in the order of ``items`` (none with ``on_row``).
     """
     from ..modelfile import model_from_dict
     from ..registry import spec_for
@@ -381,7 +401,7 @@ def run_batch(base, items, profiles=False, observables=None):
                 # No stored profiles: the model's unit-free solve, plain floats all the way.
                 solve_row(model, record, observables)
                 record["seconds"] = time.perf_counter() - t0
-                out.append(record)
+                _keep(out, on_row, record)
                 continue
             result = solve(model, profile=profiles or observables is not None,
                            start_from=previous)
@@ -414,15 +434,27 @@ def run_batch(base, items, profiles=False, observables=None):
         if observables is not None:
             for key in WIDTH_COLUMNS:
                 record.setdefault(key, math.nan)
-        out.append(record)
+        _keep(out, on_row, record)
     return out
 
 
-def _worker_init(parent=None, modules=()):
+def _keep(out, on_row, record):
+    if on_row is None:
+        out.append(record)
+    else:
+        on_row(record)
+
+
+_ROW_QUEUE = []  # [queue] in a local pool worker: finished rows go there one by one
+
+
+def _worker_init(parent=None, modules=(), rows=None):
     """Workers leave Ctrl-C to the main process, which stops the sweep cleanly,
     and end when that process dies (even by SIGKILL), not later.  ``modules``
     (:func:`windsolve.registry.plugin_modules`) are imported first: they
-    register the models defined outside windsolve.
+    register the models defined outside windsolve.  ``rows``: a
+    multiprocessing queue that :func:`journal_batch` sends each finished row
+    to (None: rows return with their batch).
 
     On Linux the kernel sends SIGKILL when the parent dies
     (``prctl(PR_SET_PDEATHSIG)``); everywhere a daemon thread also checks
@@ -431,6 +463,7 @@ def _worker_init(parent=None, modules=()):
     import importlib
     import signal
     signal.signal(signal.SIGINT, signal.SIG_IGN)
+    _ROW_QUEUE[:] = [] if rows is None else [rows]
     for module in modules:
         try:
             importlib.import_module(module)

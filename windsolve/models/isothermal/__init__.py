@@ -23,7 +23,7 @@ ENTRY = register(ModelSpec(
         "mass_loss_rate", "terminal_velocity", "sonic_radius", "sonic_velocity",
         "base_eddington_factor", "outer_radius", "base_density_efolds")},
     sweep_batch=200,
-    terminal_label="velocity at outer radius",
+    terminal_label="v at the outer radius",
     converged_note="(an isothermal flow keeps accelerating slowly: the 'terminal' "
                    "velocity is v at the outer radius)",
     core_radius=default_core_radius,
