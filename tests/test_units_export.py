@@ -94,3 +94,22 @@ def test_inspect_prints_readable_units(demo_h5, capsys):
     assert float(line.split()[1]) == pytest.approx(1e4, rel=1e-12)  # configs/demo.toml
     assert cli.main(["inspect", str(demo_h5), "--cgs"]) == 0
     assert "cm" in capsys.readouterr().out
+
+
+def test_family_table_and_csv_in_the_model_files_units(tmp_path, capsys):
+    from windsolve.family import COLUMNS, solve_family
+    model = windsolve.load_model(Path(__file__).resolve().parent.parent / "configs"
+                                 / "bump_wind.toml")
+    family = solve_family(model, "photosphere_temperature", 4e4, 6e4, 2)
+    path = family.to_hdf5(tmp_path / "family.h5")
+    table = windsolve.read_table(path)
+    # the model file wrote photosphere_luminosity = "2e5 Lsun" (configs/bump_wind.toml)
+    assert table["photosphere_luminosity"].unit == model.photosphere_luminosity.unit == u.Lsun
+    for key in ("mass_loss_rate", "photosphere_radius", "photosphere_luminosity"):
+        assert np.allclose(table[key].to_value(COLUMNS[key]), family.column(key), rtol=1e-13)
+    out = tmp_path / "family.csv"
+    assert cli.main(["inspect", str(path), "--csv", str(out)]) == 0
+    units, rows, names = _read_csv(out)
+    assert u.Unit(units["photosphere_radius"]) == u.Rsun
+    for j, name in enumerate(names):
+        assert not all(r[j] in ("", "nan") for r in rows), name

@@ -258,7 +258,7 @@ def cmd_sweep(args: argparse.Namespace) -> int:
     try:
         run = run_sweep(sweep, args.output, workers=args.workers,
                         scheduler=args.scheduler, resume=args.resume, quiet=args.quiet,
-                        stall_timeout=args.stall_timeout)
+                        stall_timeout=args.stall_timeout, in_process=False)
     except OSError as error:  # its journal or lock file (the table's write says so itself)
         from .io import output_error
         raise output_error(error.filename or args.output, error) from None

@@ -317,7 +317,8 @@ def _check_stall_timeout(stall_timeout):
 
 def run_sweep(sweep: Sweep, out: str | Path, workers: int | None = None,
               scheduler: str | None = None, resume: bool = False, quiet: bool = False,
-              stall_timeout: float | None = DEFAULT_STALL_TIMEOUT) -> SweepRun:
+              stall_timeout: float | None = DEFAULT_STALL_TIMEOUT,
+              in_process: bool | None = None) -> SweepRun:
     """Run every row not already done and write the table; returns a :class:`SweepRun`.
 
     Parameters
@@ -341,6 +342,14 @@ def run_sweep(sweep: Sweep, out: str | Path, workers: int | None = None,
         When no batch has finished for this long (a dask cluster that lost
         its workers, a stuck worker) the sweep stops; ``None`` or 0 waits
         for ever.
+    in_process : bool or None
+        Solve the rows in this process, one batch after another, with no
+        worker process (nothing re-imported, no pickling: any script or
+        notebook).  None (the default): in this process when ``workers`` is
+        1 and there is no ``scheduler``.  A row stuck in this process is not
+        stopped by ``stall_timeout`` (Ctrl-C stops it); ``windsolve sweep``
+        keeps a worker process for ``--workers 1``, so that its stall check
+        holds.
 
     Returns
     -------
@@ -377,7 +386,10 @@ def run_sweep(sweep: Sweep, out: str | Path, workers: int | None = None,
     stall_timeout = _check_stall_timeout(stall_timeout)
     release = _lock_output(out)
     try:
-        return _run_locked(sweep, out, workers, scheduler, resume, quiet, stall_timeout)
+        if in_process is None:
+            in_process = workers == 1 and scheduler is None
+        return _run_locked(sweep, out, workers, scheduler, resume, quiet, stall_timeout,
+                           in_process)
     finally:
         release()
 
@@ -386,7 +398,7 @@ def _one_line(text):
     return " ".join(str(text).split())
 
 
-def _run_locked(sweep, out, workers, scheduler, resume, quiet, stall_timeout):
+def _run_locked(sweep, out, workers, scheduler, resume, quiet, stall_timeout, in_process=False):
     journal = out.with_name(out.name + JOURNAL_SUFFIX)
     if journal.exists() and not resume:
         if _journal_is_empty(journal):  # a run that ended before any model finished
@@ -403,7 +415,7 @@ def _run_locked(sweep, out, workers, scheduler, resume, quiet, stall_timeout):
     # (A journal a failed run left with no finished model is kept for --resume, as any,
     # but does not block a new run: see above.)
     return _run_todo(sweep, out, workers, scheduler, quiet, stall_timeout, journal, design,
-                     progress)
+                     progress, in_process)
 
 
 def _journal_is_empty(journal):
@@ -424,9 +436,18 @@ def _in_bootstrap():
 
 
 def _run_todo(sweep, out, workers, scheduler, quiet, stall_timeout, journal, design,
-              progress):
+              progress, in_process=False):
     todo = progress.todo()
-    executor, close, describe = _executor(workers, scheduler)
+    if in_process:
+        executor = _InProcess()
+
+        def close(pending=(), abort=False):
+            pass
+
+        def describe():
+            return "this process"
+    else:
+        executor, close, describe = _executor(workers, scheduler)
     batch = sweep.batch or _default_batch(sweep.kind, len(todo), workers, scheduler)
     batches = (todo[k:k + batch].tolist() for k in range(0, len(todo), batch))
     bar = None
@@ -611,9 +632,6 @@ def _executor(workers, scheduler):
     import multiprocessing
     from concurrent.futures import ProcessPoolExecutor
     n = workers or os.cpu_count() or 1
-    if n == 1:  # in this process: no pool, nothing re-imported, works in any script
-        pool = _InProcess()
-        return pool, lambda pending=(), abort=False: None, lambda: "this process"
     # "spawn": workers start clean (no inherited threads or locks) and load
     # the compiled kernels from numba's on-disk cache.  They run only
     # windsolve's own functions, so they are started without the caller's main
