@@ -175,3 +175,38 @@ def test_the_readme_from_python_example_runs(tmp_path, monkeypatch):
     mdot = scope["result"].summary["mass_loss_rate"].to_value(u.Msun / u.yr)
     assert round(mdot, 6) == pytest.approx(8.3e-5, abs=1e-6)
     assert scope["profile"]["radius"].unit == u.Rsun
+
+
+def test_a_model_registered_in_a_guardless_script_gets_the_guard_error(tmp_path):
+    # A model class defined in the script itself needs the script in every worker, so
+    # there (only) the call must sit under the guard; the error says so, and what the
+    # failed run leaves does not block the next call (workers=1, in this process).
+    registry_test = Path(__file__).resolve().parent / "test_registry.py"
+    script = tmp_path / "plugin.py"
+    script.write_text(
+        "import sys\n"
+        f"exec(open({str(registry_test)!r}).read())  # defines and registers ParkerWind here\n"
+        "import windsolve\n"
+        "from windsolve.modelfile import dumps\n"
+        "from windsolve.sweep import load_sweep, run_sweep\n"
+        f"a = windsolve.load_model({str(registry_test.parent.parent / 'configs')!r}\n"
+        "                          + '/parker_reference.toml')\n"
+        "p = ParkerWind(name='Parker form (invented)', mass=a.mass, radius=a.radius,\n"
+        "               eddington_factor=0.1, sound_speed=a.sound_speed,\n"
+        "               base_density=a.base_density, outer_radius=a.outer_radius)\n"
+        "open('parker.toml', 'w').write(dumps(p.to_dict()))\n"
+        "open('sweep.toml', 'w').write('[sweep]\\nbase = \"parker.toml\"\\ndesign = \"grid\"\\n'\n"
+        "    '[[axis]]\\nkey = \"boundary.base_density\"\\nvalues = [\"1e-12 g/cm3\", '\n"
+        "    '\"2e-12 g/cm3\"]\\n')\n"
+        "n = int(sys.argv[1])\n"
+        "run = run_sweep(load_sweep('sweep.toml'), 'out.h5', workers=n, quiet=True)\n"
+        "print('done', run.converged)\n")
+    proc = subprocess.run([sys.executable, str(script), "2"], cwd=tmp_path,
+                          capture_output=True, text=True, timeout=300)
+    assert proc.returncode != 0
+    assert 'if __name__ == "__main__":' in proc.stderr.strip().splitlines()[-1]
+    assert not (tmp_path / "out.h5").exists()
+    proc = subprocess.run([sys.executable, str(script), "1"], cwd=tmp_path,
+                          capture_output=True, text=True, timeout=300)
+    assert proc.returncode == 0, proc.stderr[-2000:]
+    assert "done 2" in proc.stdout and not (tmp_path / "out.h5.partial").exists()
