@@ -92,8 +92,8 @@ def test_parker_critical_point_is_a_saddle_with_textbook_slopes():
     result = windsolve.solve(model)
     (cp,) = result.critical_points
     assert cp["kind"] == critical.KIND_NAMES[critical.SADDLE]
-    assert math.isclose(cp["slope_plus"], a / rc, rel_tol=1e-6)
-    assert math.isclose(cp["slope_minus"], -a / rc, rel_tol=1e-6)
+    assert math.isclose(cp["slope_plus"].to_value("1/s"), a / rc, rel_tol=1e-6)
+    assert math.isclose(cp["slope_minus"].to_value("1/s"), -a / rc, rel_tol=1e-6)
 
 
 @pytest.mark.parametrize("b, c, kind", [

@@ -291,8 +291,13 @@ def test_csv_export_and_plot(tmp_path, capsys):
     lines = csv_path.read_text().splitlines()
     assert len(lines) == 7
     header = lines[0].split(",")
-    assert header[:3] == ["row", "star.luminosity [erg / s]", "porosity.length [cm]"]
-    assert "mass_loss_rate [g / s]" in header and "status" in header
+    # in the units the sweep file wrote (Lsun, Rsun; issue 14), cgs with --cgs
+    assert header[:3] == ["row", "star.luminosity [solLum]", "porosity.length [solRad]"]
+    assert "mass_loss_rate [solMass / yr]" in header and "status" in header
+    assert cli.main(["inspect", str(out), "--csv", str(csv_path), "--cgs"]) == 0
+    cgs = csv_path.read_text().splitlines()[0].split(",")
+    assert cgs[:3] == ["row", "star.luminosity [erg / s]", "porosity.length [cm]"]
+    assert "mass_loss_rate [g / s]" in cgs
     png = tmp_path / "grid.png"
     assert cli.main(["plot", str(out), "-o", str(png)]) == 0
     assert png.read_bytes()[:4] == b"\x89PNG"

@@ -40,7 +40,16 @@ __all__ = [
     "OutputError",
     "demo_model_path",
     "read_result",
+    "read_table",
 ]
+
+
+def __getattr__(name):
+    # windsolve.read_table imports astropy.table (0.15 s) only when first used
+    if name == "read_table":
+        from .tabular import read_table
+        return read_table
+    raise AttributeError(f"module 'windsolve' has no attribute {name!r}")
 
 
 def demo_model_path() -> "Traversable":

@@ -302,3 +302,84 @@ def format_quantity(q):
     """
     unit = q.unit.to_string()
     return f"{float(q.value)!r} {unit}".strip() if unit else repr(float(q.value))
+
+
+# Units people read summaries in (a quantity of none of these physical types stays in
+# its cgs unit): mass-loss rate, speed, length, luminosity, mass.
+READING_UNITS = (u.Msun / u.yr, u.km / u.s, u.Rsun, u.Lsun, u.Msun)
+
+
+def chosen_units(model=None, shown=()):
+    """A function giving, for a cgs unit, the unit the user chose for that physical type.
+
+    The user's choices are, in order: the units of ``shown`` (e.g. a sweep's
+    axes as its sweep file wrote them), then the units of the model's fields
+    in declaration order (``star.radius = "100 Rsun"`` makes lengths Rsun),
+    then :data:`READING_UNITS`; a unit of no chosen physical type is kept.
+    Dimensionless units are never replaced.
+
+    Parameters
+    ----------
+    model : WindModel or None
+        The model whose field units count (its Quantity fields).
+    shown : iterable of Unit or str
+        Units chosen first.
+
+    Returns
+    -------
+    callable
+        ``pick(cgs_unit) -> Unit``, a unit equivalent to ``cgs_unit``.
+    """
+    prefs = []
+    for unit in shown:
+        try:
+            prefs.append(u.Unit(unit))
+        except (ValueError, TypeError):
+            continue
+    if model is not None:
+        for name in model.params():
+            value = getattr(model, name, None)
+            if isinstance(value, u.Quantity):
+                prefs.append(value.unit)
+    prefs += list(READING_UNITS)
+    prefs = [p for p in prefs if p.physical_type != "dimensionless"]
+
+    def pick(cgs_unit):
+        cgs_unit = u.Unit(cgs_unit)
+        if cgs_unit.physical_type == "dimensionless":
+            return cgs_unit
+        for unit in prefs:
+            if unit.physical_type == cgs_unit.physical_type:
+                return unit
+        return cgs_unit
+
+    return pick
+
+
+def html_summary(title, rows):
+    """An HTML table (for notebooks' ``_repr_html_``): a title, then quantity, value, unit.
+
+    Parameters
+    ----------
+    title : str
+        The caption (escaped).
+    rows : iterable of (str, object)
+        Label and value: a Quantity shows its value and unit, anything else as text.
+
+    Returns
+    -------
+    str
+        ``<table>...</table>``.
+    """
+    from html import escape
+    out = [f"<table><caption>{escape(str(title))}</caption>",
+           "<tr><th>quantity</th><th>value</th><th>unit</th></tr>"]
+    for label, value in rows:
+        if isinstance(value, u.Quantity):
+            text, unit = f"{float(value.value):.6g}", value.unit.to_string()
+        else:
+            text, unit = str(value), ""
+        out.append(f"<tr><td>{escape(str(label))}</td><td>{escape(text)}</td>"
+                   f"<td>{escape(unit)}</td></tr>")
+    out.append("</table>")
+    return "\n".join(out)

@@ -284,7 +284,7 @@ def cmd_sweep(args: argparse.Namespace) -> int:
     try:
         run = run_sweep(sweep, args.output, workers=args.workers,
                         scheduler=args.scheduler, resume=args.resume, quiet=args.quiet,
-                        stall_timeout=args.stall_timeout)
+                        stall_timeout=args.stall_timeout, in_process=False)
     except OSError as error:  # its journal or lock file (the table's write says so itself)
         from .io import output_error
         raise output_error(error.filename or args.output, error) from None
@@ -819,15 +819,19 @@ def cmd_extract(args: argparse.Namespace) -> int:
 
 
 def cmd_inspect(args: argparse.Namespace) -> int:
-    """``windsolve inspect FILE [--model] [--csv [OUT]]``: print what a windsolve file holds.
+    """``windsolve inspect FILE [--model] [--csv [OUT]] [--cgs]``: what a windsolve file holds.
 
     The file is first checked by the reader of its kind (result, family or
     sweep; :func:`windsolve.files.read_any_file`).  Prints the root attributes,
-    the summary values with their units, each profile dataset's length, range
-    and unit, each table column's range and unit (and where a family ends), the
-    critical points [cm], and with ``--model`` the stored (resolved) model file.
-    With ``--csv`` prints none of that, but exports the /table of a sweep or
-    family file as CSV to standard output, or to OUT followed by ``wrote OUT``.
+    the summary values, each profile quantity's length and range, each table
+    column's range (and where a family ends), the critical points, and with
+    ``--model`` the stored (resolved) model file.  Numbers are shown in the
+    units the model or sweep file used for their physical type (else Msun/yr,
+    km/s, Rsun, Lsun), or in cgs with ``--cgs``.  With ``--csv`` prints none
+    of that, but exports the /table of a sweep or family file, or the profile
+    of a result file, as CSV (each column's unit in its header;
+    :func:`windsolve.tabular.export_csv`) to standard output, or to OUT
+    followed by ``wrote OUT``.
 
     Parameters
     ----------
@@ -843,78 +847,74 @@ def cmd_inspect(args: argparse.Namespace) -> int:
     ------
     OutputError
         The file is missing, no windsolve file or damaged (one line naming
-        what is wrong), the CSV output cannot be written, or ``--csv`` was
-        given for a file without a /table.
+        what is wrong), or the CSV output cannot be written.
     """
     import numpy as np
 
-    from .files import read_any_file
     from .io import open_hdf5
+    from .tabular import export_csv, read_table
     path = Path(args.file)
-    read_any_file(path)  # one line naming what is wrong with a damaged file
-    f = open_hdf5(path)
     if args.csv is not None:
-        f.close()
-        return _export_csv(path, args.csv)
-    with f:
+        export_csv(path, args.csv, cgs=args.cgs, stream=sys.stdout)
+        if args.csv != "-":
+            print(f"wrote {args.csv}")
+        return EXIT_OK
+    table = read_table(path, cgs=args.cgs)  # checks the file: one line naming what is wrong
+    kind = table.meta["file_kind"]
+    with open_hdf5(path) as f:
         print(f"{path}")
         for key, value in f.attrs.items():
-            if key == "model_toml":
+            if key in ("model_toml", "base_model_toml", "sweep_toml"):
                 continue
             print(f"  {key}: {value}")
-        if "summary" in f:
-            import json
-            g = f["summary"]
-            units = json.loads(g.attrs.get("units", "{}"))
-            print("summary:")
-            for key, value in g.attrs.items():
-                if key == "units":
-                    continue
-                unit = units.get(key, "")
-                print(f"  {key:<24s} {value}{' ' + unit if unit and unit != '1' else ''}")
-        if "profile" in f:
-            print("profile:")
-            for key, d in f["profile"].items():
-                data = d[()]
-                rng = (f"{np.nanmin(data):.4g} .. {np.nanmax(data):.4g}" if data.size
-                       else "empty")
-                unit = d.attrs.get("units", "?")
-                print(f"  {key:<18s} {data.shape[0]:6d} points  {rng}  [{unit}]")
-        if "table" in f:
-            g = f["table"]
-            n = len(next(iter(g.values()))) if len(g) else 0
-            print(f"table: {n} rows" + (f" (family along {f.attrs['family_scan']})"
-                                         if "family_scan" in f.attrs else ""))
-            for key, d in g.items():
-                unit = d.attrs.get("units", "?")
-                data = d[()]
-                if data.dtype.kind == "f" and data.size and np.isfinite(data).any():
-                    rng = f"{np.nanmin(data):.4g} .. {np.nanmax(data):.4g}"
-                else:
-                    rng = ""
-                print(f"  {key:<26s} {rng:<24s} [{unit}]")
-            if f.attrs.get("family_ends"):
-                print(f"  {f.attrs['family_ends']}")
-        if "critical_points" in f:
-            c = f["critical_points"]
+        model_toml = f.attrs.get("model_toml")
+        stored = f.attrs.get("base_model_toml") if model_toml is None else model_toml
+    if kind == "result":
+        from ._units import chosen_units
+        from .result import read_result
+        result = read_result(path)
+        pick = (lambda unit: unit) if args.cgs else chosen_units(result.model)
+        print(f"summary ({result.status}):")
+        for key, q in result.summary.items():
+            shown = q.to(pick(q.unit))
+            unit = shown.unit.to_string()
+            print(f"  {key:<24s} {float(shown.value):.6g}{' ' + unit if unit else ''}")
+        if len(table):
+            print(f"profile: {len(table)} points")
+        for name in table.colnames:
+            _print_range(name, table[name], np)
+        if result.critical_points:
             print("critical points:")
-            for i in range(c["radius"].shape[0]):
-                kind = c["kind"][i]
-                kind = kind.decode() if isinstance(kind, bytes) else kind
-                print(f"  r = {c['radius'][i]:.6g} cm  {kind}")
-        if args.model and "model_toml" in f.attrs:
-            print("model file (resolved):")
-            print(f.attrs["model_toml"])
+            for cp in result.critical_points:
+                r = cp["radius"].to(pick(cp["radius"].unit))
+                print(f"  r = {float(r.value):.6g} {r.unit.to_string()}  {cp['kind']}")
+    else:
+        extra = (f" (family along {table.meta['scan']})" if kind == "family" else "")
+        print(f"table: {len(table)} rows{extra}")
+        for name in table.colnames:
+            _print_range(name, table[name], np)
+        if table.meta.get("ends"):
+            print(f"  {table.meta['ends']}")
+    if args.model and stored is not None:
+        print("model file (resolved):" if model_toml is not None else
+              "base model file (resolved):")
+        print(stored)
     return EXIT_OK
 
 
-def _export_csv(path, target):
-    """Write the /table of a sweep or family file as CSV (units in the header)."""
-    from .io import export_table_csv
-    export_table_csv(path, target, sys.stdout)
-    if target != "-":
-        print(f"wrote {target}")
-    return EXIT_OK
+def _print_range(name, col, np):
+    """One line of ``inspect``: a column's range and unit (numbers), or nothing for text."""
+    unit = getattr(col, "unit", None)
+    data = np.asarray(getattr(col, "value", col))
+    if data.dtype.kind == "f":
+        finite = data[np.isfinite(data)]
+        rng = f"{finite.min():.6g} .. {finite.max():.6g}" if finite.size else "(no value)"
+    elif data.dtype.kind == "b":
+        rng = f"{int(data.sum())} of {data.size} true"
+    else:
+        rng = ""
+    text = unit.to_string() if unit is not None else ""
+    print(f"  {name:<26s} {rng:<30s} {'[' + text + ']' if text else ''}".rstrip())
 
 
 def cmd_plot(args: argparse.Namespace) -> int:
@@ -1145,8 +1145,11 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("file", help="HDF5 result file")
     p.add_argument("--model", action="store_true", help="also print the stored model file")
     p.add_argument("--csv", nargs="?", const="-", metavar="FILE",
-                   help="export the /table of a sweep or family file as CSV (to FILE, or "
+                   help="export the /table of a sweep or family file, or the profile of a "
+                        "result file, as CSV with units in the header (to FILE, or "
                         "standard output)")
+    p.add_argument("--cgs", action="store_true",
+                   help="numbers in cgs, not in the units the model or sweep file used")
     p.set_defaults(func=cmd_inspect)
 
     p = sub.add_parser("plot", help="plot the profiles of a result file",

@@ -262,6 +262,60 @@ class FamilyResult:
                    for i in range(len(values))]
         return cls(model, scan, values, members, ends)
 
+    def to_table(self, cgs: bool = False):
+        """The family's table as an astropy QTable, every number a Quantity column.
+
+        Parameters
+        ----------
+        cgs : bool
+            Every column in cgs (as the family file stores it); by default the
+            scanned column in its scan unit (``SCANS``) and every other in the
+            unit the model file used for its physical type (Rsun, Lsun, ...),
+            else Msun/yr, km/s (:func:`windsolve._units.chosen_units`).
+
+        Returns
+        -------
+        astropy.table.QTable
+            The scanned quantity, the summary columns some member has (no
+            column that is NaN in every member), ``converged``, ``status``,
+            ``message``; ``meta``: ``scan``, ``ends``.
+        """
+        from astropy.table import QTable
+
+        from ._units import chosen_units
+        pick = chosen_units(self.model)
+        table = QTable(meta={"scan": self.scan, "ends": self.ends})
+        scan = np.asarray(self.values, dtype=float) * SCANS[self.scan]
+        table[self.scan] = scan.cgs if cgs else scan
+        for key, unit in COLUMNS.items():
+            if key == self.scan:
+                continue
+            values = self.column(key)
+            if key not in REQUIRED and not np.isfinite(values).any():
+                continue
+            q = values * unit
+            table[key] = q if cgs else q.to(pick(unit))
+        table["converged"] = self.converged.astype(bool) if self.members else np.array([], bool)
+        table["status"] = [m.status for m in self.members]
+        table["message"] = [m.message for m in self.members]
+        return table
+
+    def __repr__(self):
+        n = len(self.members)
+        good = int(self.converged.sum()) if n else 0
+        lo, hi = (float(np.min(self.values)), float(np.max(self.values))) if n else (0, 0)
+        name = getattr(self.model, "name", "") or ""
+        return (f"<FamilyResult {name!r} along {self.scan} {lo:.4g}..{hi:.4g} "
+                f"{SCANS[self.scan].to_string()}: {n} members, {good} converged>")
+
+    def __str__(self):
+        return "\n".join(self.lines() + ([self.ends] if self.ends else []))
+
+    def _repr_html_(self):
+        from html import escape
+        caption = escape(repr(self)) + (f"<br>{escape(self.ends)}" if self.ends else "")
+        return f"<p>{caption}</p>\n{self.to_table()._repr_html_()}"
+
     def lines(self) -> list[str]:
         """A printable table: one line per member (Msun/yr, km/s, Rsun, K)."""
         head = (f"{self.scan:>24s} {'Mdot [Msun/yr]':>15s} {'v_inf [km/s]':>13s} "

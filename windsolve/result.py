@@ -20,7 +20,8 @@ from .io import dataset, open_hdf5, stamp, strings, write_hdf5
 from .registry import SUMMARY_UNITS
 from .status import STATUSES, check_statuses
 
-__all__ = ["WindResult", "SolutionCGS", "PROFILE_UNITS", "SUMMARY_UNITS", "STATUSES"]
+__all__ = ["WindResult", "SolutionCGS", "PROFILE_UNITS", "SUMMARY_UNITS", "STATUSES",
+           "CRITICAL_UNITS"]
 
 MSUN_PER_YR = u.Msun / u.yr
 
@@ -36,6 +37,16 @@ PROFILE_UNITS = {
     "optical_depth": u.dimensionless_unscaled,
 }
 # (the cgs unit of every summary value: declared with the models, windsolve.registry)
+
+# The numbers of each critical point (WindResult.critical_points), with their units:
+# dv/dr along the two separatrices.
+CRITICAL_UNITS = {"radius": u.cm, "slope_plus": 1 / u.s, "slope_minus": 1 / u.s}
+
+
+def _critical_with_units(cp):
+    """A critical point's dict with Quantities (cgs floats in: SolutionCGS, the file)."""
+    return {key: (value << CRITICAL_UNITS[key] if key in CRITICAL_UNITS else value)
+            for key, value in cp.items()}
 
 # A Model A solution is flagged ``hydrostatic`` when its base lies more than
 # this many density e-folds below the sonic point: ln(rho0 / rho_c) > 30,
@@ -179,7 +190,9 @@ class WindResult:
         ``optical_depth``.  Empty when no solution was found.
     critical_points : list of dict
         Every root of the critical condition on the radial range (for the
-        converged mass-loss rate): ``radius``, ``kind``, ``slopes``.
+        converged mass-loss rate): ``radius`` [Quantity, cm], ``kind`` (text:
+        ``saddle``, ``node``, ...), ``slope_plus`` and ``slope_minus``
+        [Quantity, 1/s: dv/dr along the two separatrices].
     counters : dict
         ``shots`` (trial integrations), ``seconds`` (wall time of the solve).
     hydrostatic : bool (property)
@@ -224,7 +237,8 @@ class WindResult:
         profile = {key: solution.profile[key] << unit for key, unit in PROFILE_UNITS.items()
                    if key in solution.profile}
         return cls(model, solution.converged, solution.status, solution.message, summary,
-                   profile, solution.critical_points, solution.counters)
+                   profile, [_critical_with_units(cp) for cp in solution.critical_points],
+                   solution.counters)
 
     def to_cgs(self) -> SolutionCGS:
         """This result without units: a :class:`SolutionCGS` (the inverse of :meth:`from_cgs`).
@@ -234,8 +248,10 @@ class WindResult:
         summary = {key: float(q.to_value(SUMMARY_UNITS[key])) for key, q in self.summary.items()}
         profile = {key: q.to_value(PROFILE_UNITS[key]) for key, q in self.profile.items()}
         mdot = summary.get("mass_loss_rate", math.nan)
+        cps = [{key: (float(q.to_value(CRITICAL_UNITS[key])) if key in CRITICAL_UNITS else q)
+                for key, q in cp.items()} for cp in self.critical_points]
         return SolutionCGS(self.converged, self.status, self.message, summary, profile,
-                           list(self.critical_points), dict(self.counters),
+                           cps, dict(self.counters),
                            math.log(mdot) if mdot > 0 else math.nan)
 
     @property
@@ -314,6 +330,55 @@ class WindResult:
     def __str__(self):
         return "\n".join(self.summary_lines())
 
+    def __repr__(self):
+        name = getattr(self.model, "name", "") or ""
+        kind = getattr(self.model, "kind", "?")
+        mdot = self.summary.get("mass_loss_rate")
+        rate = (f", Mdot = {mdot.to_value(MSUN_PER_YR):.4g} Msun/yr"
+                if mdot is not None and np.isfinite(mdot.value) else "")
+        n = len(self.profile.get("radius", ()))
+        return (f"<WindResult {name!r} ({kind}): {self.status}{rate}, "
+                f"{n} profile points>")
+
+    def _repr_html_(self):
+        from ._units import chosen_units, html_summary
+        pick = chosen_units(self.model)
+        rows = [("status", self.status), ("message", self.message)]
+        for key, q in self.summary.items():
+            if np.isfinite(q.value):
+                rows.append((key, q.to(pick(q.unit))))
+        for i, cp in enumerate(self.critical_points):
+            rows.append((f"critical point {i + 1} ({cp['kind']}): radius",
+                         u.Quantity(cp["radius"]).to(pick(u.cm))))
+        return html_summary(repr(self), rows)
+
+    def profile_table(self, cgs: bool = False):
+        """The profile as an astropy QTable, one Quantity column per profile quantity.
+
+        Parameters
+        ----------
+        cgs : bool
+            Every column in cgs (as :attr:`profile`); by default each in the
+            unit the model file used for its physical type (radius in Rsun when
+            ``star.radius`` was written in Rsun, ...), else Rsun, km/s, Lsun
+            (:func:`windsolve._units.chosen_units`).
+
+        Returns
+        -------
+        astropy.table.QTable
+            Columns ``radius``, ``velocity``, ``density``, ... in profile order;
+            ``meta["summary"]`` holds the summary (Quantities), ``meta["status"]``.
+        """
+        from astropy.table import QTable
+
+        from ._units import chosen_units
+        pick = chosen_units(self.model)
+        table = QTable(meta={"status": self.status, "message": self.message,
+                             "summary": dict(self.summary)})
+        for key, q in self.profile.items():
+            table[key] = q if cgs else q.to(pick(q.unit))
+        return table
+
     # -- HDF5 ---------------------------------------------------------------
     def to_hdf5(self, path: str | Path) -> Path:
         """Write the result as docs/physics.md, section 9 lays out (cgs, units on every dataset).
@@ -369,7 +434,8 @@ class WindResult:
             n = len(self.critical_points)
             for key, unit in (("radius", "cm"), ("slope_plus", "1/s"),
                               ("slope_minus", "1/s")):
-                dataset(c, key, np.array([cp[key] for cp in self.critical_points],
+                dataset(c, key, np.array([u.Quantity(cp[key], CRITICAL_UNITS[key]).value
+                                          for cp in self.critical_points],
                                          dtype=np.float64).reshape(n), unit)
             strings(c, "kind", (cp["kind"] for cp in self.critical_points))
 
@@ -570,9 +636,10 @@ def read_result(path: str | Path, cls: "type | None" = None) -> "WindResult":
             kinds = column(c, "kind", path, n, text=True)
             check_values(radius, path, "/critical_points/radius", PROFILE_UNITS["radius"],
                          positive=True)
-            cps = [{"radius": float(radius[i]), "kind": str(kinds[i]),
-                    "slope_plus": float(slopes["slope_plus"][i]),
-                    "slope_minus": float(slopes["slope_minus"][i])} for i in range(n)]
+            cps = [_critical_with_units({"radius": float(radius[i]), "kind": str(kinds[i]),
+                                         "slope_plus": float(slopes["slope_plus"][i]),
+                                         "slope_minus": float(slopes["slope_minus"][i])})
+                   for i in range(n)]
         counters = {}
         for key, name, kind in (("shots", "shots", int), ("seconds", "solve_seconds", float)):
             value = plain(g.attrs.get(name, 0))  # counters: informative only

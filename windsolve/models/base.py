@@ -367,8 +367,10 @@ class WindModel:
         Parameters
         ----------
         **changes
-            Field names (not model-file keys) and new values, as the
-            constructor takes them (Quantities or strings with units).
+            Field names (``luminosity="3e6 Lsun"``) or dotted model-file keys
+            (``**{"star.luminosity": "3e6 Lsun"}``, ``**{"opacity.law":
+            "kramers"}``) and new values, as the constructor or a model file
+            takes them (Quantities, or strings with units).
 
         Returns
         -------
@@ -378,13 +380,21 @@ class WindModel:
         Raises
         ------
         ModelError
-            As the constructor.
+            As the constructor; or a key that is neither a field nor a model-file
+            key of this model (naming the nearest one).
 
         Notes
         -----
         Only the changed fields are read again; the cross-field checks run on
         the whole.  A sweep builds every row this way, so it is kept cheap.
+
+        Examples
+        --------
+        >>> model = windsolve.load_model(windsolve.demo_model_path())  # doctest: +SKIP
+        >>> brighter = model.replace(**{"star.luminosity": "5e6 Lsun"})  # doctest: +SKIP
         """
+        if any("." in key for key in changes):
+            changes = self._field_changes(changes)
         values = {f.name: getattr(self, f.name) for f in dataclasses.fields(self)}
         values.update(changes)
         _REPLACING.unchanged = frozenset(values).difference(changes)
@@ -392,6 +402,56 @@ class WindModel:
             return type(self)(**values)
         finally:
             _REPLACING.unchanged = ()
+
+    def _field_changes(self, changes):
+        """``changes`` with dotted model-file keys turned into field names."""
+        by_key = {p.key: name for name, p in self.params().items()}
+        fields = {f.name for f in dataclasses.fields(self)}
+        out, opacity = {}, {}
+        for key, value in changes.items():
+            if key in fields and "." not in key:
+                out[key] = value
+            elif key in by_key:
+                out[by_key[key]] = value
+            elif key.startswith("opacity.") and (key.partition(".")[2] == "law" or
+                                                 key.partition(".")[2]
+                                                 in self.opacity_parameter_names()):
+                opacity[key.partition(".")[2]] = value
+            else:
+                keys = [*by_key, "opacity.law"]
+                raise ModelError(f"replace: unknown key \"{key}\"{nearest(key, keys)}; "
+                                 f"give a field name or a dotted model-file key "
+                                 f"({', '.join(keys[:6])}, ...; {type(self).__name__}.keys() "
+                                 f"lists them all)")
+        if opacity:
+            if "opacity" in out:
+                raise ModelError("replace: give either opacity or opacity.* keys, not both")
+            table = dict(self.opacity.to_toml())
+            if "law" in opacity and opacity["law"] != table.get("law"):
+                table = {}  # another law: its own parameters only
+            out["opacity"] = dict(table, **opacity)
+        return out
+
+    # -- text ---------------------------------------------------------------
+    def __repr__(self):
+        shown = []
+        for name, p in self.params().items():
+            value = getattr(self, name, None)
+            if value is None or p.section != "star":
+                continue
+            shown.append(f"{p.key} = {format_value(value)}")
+        return (f"<{type(self).__name__} {getattr(self, 'name', '')!r} ({self.kind}): "
+                f"{', '.join(shown)}>")
+
+    def _repr_html_(self):
+        from .._units import html_summary
+        rows = [("model", self.kind)]
+        for name, p in self.params().items():
+            value = getattr(self, name, None)
+            if value is not None:
+                rows.append((p.key, value))
+        rows += [(f"opacity.{k}", v) for k, v in self.opacity.to_toml().items()]
+        return html_summary(f"{type(self).__name__} {getattr(self, 'name', '')}", rows)
 
     def cgs(self, name: str) -> float:
         """Field ``name`` as a plain float in cgs (NaN when unset).

@@ -7,13 +7,24 @@ keeps no record: only which rows are done and how each ended (a few bytes a
 row), so its memory stays flat however many rows the sweep has.
 """
 
+import contextlib
 import json
 import logging
 import math
+import multiprocessing.context
 import os
+import sys
 import time
+import types
 from collections.abc import Mapping
-from concurrent.futures import FIRST_COMPLETED, BrokenExecutor, CancelledError, wait
+from concurrent.futures import (
+    FIRST_COMPLETED,
+    BrokenExecutor,
+    CancelledError,
+    Executor,
+    Future,
+    wait,
+)
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -208,6 +219,15 @@ class SweepRun:
     statuses: dict
     interrupted: bool
 
+    def _repr_html_(self):
+        from .._units import html_summary
+        rows = [("table", str(self.path)), ("rows", self.rows), ("done", self.done),
+                ("converged", self.converged), ("failed", self.failed),
+                ("hydrostatic", self.hydrostatic),
+                ("statuses", ", ".join(f"{k}: {v}" for k, v in self.statuses.items())),
+                ("interrupted", self.interrupted)]
+        return html_summary(f"sweep run {self.path}", rows)
+
 
 def _lock_output(out):
     """Hold an OS lock (fcntl.flock) on ``OUT.lock`` while a sweep writes ``OUT`` and its journal.
@@ -299,7 +319,8 @@ def _check_stall_timeout(stall_timeout):
 
 def run_sweep(sweep: Sweep, out: str | Path, workers: int | None = None,
               scheduler: str | None = None, resume: bool = False, quiet: bool = False,
-              stall_timeout: float | None = DEFAULT_STALL_TIMEOUT) -> SweepRun:
+              stall_timeout: float | None = DEFAULT_STALL_TIMEOUT,
+              in_process: bool | None = None) -> SweepRun:
     """Run every row not already done and write the table; returns a :class:`SweepRun`.
 
     Parameters
@@ -324,6 +345,14 @@ def run_sweep(sweep: Sweep, out: str | Path, workers: int | None = None,
         When no batch has finished for this long (a dask cluster that lost
         its workers, a stuck worker) the sweep stops; ``None`` or 0 waits
         for ever.
+    in_process : bool or None
+        Solve the rows in this process, one batch after another, with no
+        worker process (nothing re-imported, no pickling: any script or
+        notebook).  None (the default): in this process when ``workers`` is
+        1 and there is no ``scheduler``.  A row stuck in this process is not
+        stopped by ``stall_timeout`` (Ctrl-C stops it); ``windsolve sweep``
+        keeps a worker process for ``--workers 1``, so that its stall check
+        holds.
 
     Returns
     -------
@@ -352,11 +381,18 @@ def run_sweep(sweep: Sweep, out: str | Path, workers: int | None = None,
     the sweep.  The output is locked while the sweep runs (see
     :func:`_lock_output`).
     """
+    if _in_bootstrap():
+        raise WindsolveError("run_sweep was called while a sweep worker was starting (the "
+                             "script that calls it runs again in each worker); put the call "
+                             "under `if __name__ == \"__main__\":`")
     out = Path(out)
     stall_timeout = _check_stall_timeout(stall_timeout)
     release = _lock_output(out)
     try:
-        return _run_locked(sweep, out, workers, scheduler, resume, quiet, stall_timeout)
+        if in_process is None:
+            in_process = workers == 1 and scheduler is None
+        return _run_locked(sweep, out, workers, scheduler, resume, quiet, stall_timeout,
+                           in_process)
     finally:
         release()
 
@@ -365,19 +401,57 @@ def _one_line(text):
     return " ".join(str(text).split())
 
 
-def _run_locked(sweep, out, workers, scheduler, resume, quiet, stall_timeout):
+def _run_locked(sweep, out, workers, scheduler, resume, quiet, stall_timeout, in_process=False):
     journal = out.with_name(out.name + JOURNAL_SUFFIX)
     if journal.exists() and not resume:
-        raise OutputError(f"{journal} holds an interrupted run of a sweep; pass --resume to "
-                          f"finish it, or delete it to start again")
+        if _journal_is_empty(journal):  # a run that ended before any model finished
+            journal.unlink()
+        else:
+            raise OutputError(f"{journal} holds an interrupted run of a sweep; pass --resume "
+                              f"to finish it, or delete it to start again")
     design = sweep.design_digest()
     if resume and journal.exists():
         _trim_journal(journal)
         progress = _read_journal(journal, sweep, design)
     else:
         progress = _Progress(len(sweep))
+    # (A journal a failed run left with no finished model is kept for --resume, as any,
+    # but does not block a new run: see above.)
+    return _run_todo(sweep, out, workers, scheduler, quiet, stall_timeout, journal, design,
+                     progress, in_process)
+
+
+def _journal_is_empty(journal):
+    """Does the journal hold no finished row (at most its header line)?"""
+    try:
+        with open(journal, "rb") as f:
+            lines = [line for line in f.read(1 << 20).splitlines() if line.strip()]
+    except OSError:
+        return False
+    return len(lines) <= 1 and os.path.getsize(journal) < (1 << 20)
+
+
+def _in_bootstrap():
+    """Is this process a spawned worker still importing its parent's main module?"""
+    import multiprocessing
+    return (multiprocessing.parent_process() is not None
+            and bool(getattr(multiprocessing.current_process(), "_inheriting", False)))
+
+
+def _run_todo(sweep, out, workers, scheduler, quiet, stall_timeout, journal, design,
+              progress, in_process=False):
     todo = progress.todo()
-    executor, close, describe, rows_queue = _executor(workers, scheduler)
+    if in_process:
+        executor = _InProcess()
+        rows_queue = None  # rows return with their batch, as from dask
+
+        def close(pending=(), abort=False):
+            pass
+
+        def describe():
+            return "this process"
+    else:
+        executor, close, describe, rows_queue = _executor(workers, scheduler)
     batch = sweep.batch or _default_batch(sweep.kind, len(todo), workers, scheduler)
     batches = (todo[k:k + batch].tolist() for k in range(0, len(todo), batch))
     bar = None
@@ -406,6 +480,8 @@ def _run_locked(sweep, out, workers, scheduler, resume, quiet, stall_timeout):
             stalled_shown = 0
             # Keep a bounded number of batches in flight, so memory stays flat.
             limit = max(4 * (workers or os.cpu_count() or 1), 8)
+            if isinstance(executor, _InProcess):
+                limit = 1  # each batch runs as it is submitted: report it at once
             try:
                 while True:
                     while len(pending) < limit:
@@ -448,6 +524,13 @@ def _run_locked(sweep, out, workers, scheduler, resume, quiet, stall_timeout):
                         try:
                             text, ends = fut.result()
                         except BrokenExecutor as error:
+                            if progress.done == 0 and _main_is_needed():
+                                raise WindsolveError(
+                                    "a worker process died before any model finished: the "
+                                    "script registers its own model, so every worker runs "
+                                    "it again; put the run_sweep call under "
+                                    "`if __name__ == \"__main__\":` (or pass workers=1)"
+                                ) from None
                             raise WindsolveError(
                                 f"a worker process died ({_one_line(error)}); the models "
                                 f"finished so far are kept: rerun with --resume") from None
@@ -614,9 +697,13 @@ def _executor(workers, scheduler):
     from concurrent.futures import ProcessPoolExecutor
     n = workers or os.cpu_count() or 1
     # "spawn": workers start clean (no inherited threads or locks) and load
-    # the compiled kernels from numba's on-disk cache.
+    # the compiled kernels from numba's on-disk cache.  They run only
+    # windsolve's own functions, so they are started without the caller's main
+    # module (_CleanSpawnContext): a script without an `if __name__ ==
+    # "__main__":` guard is not run again in each worker.
     from ..registry import plugin_modules
-    context = multiprocessing.get_context("spawn")
+    context = (multiprocessing.get_context("spawn") if _main_is_needed()
+               else _CleanSpawnContext())
     rows = context.Queue()
     pool = ProcessPoolExecutor(max_workers=n, mp_context=context,
                                initializer=_worker_init,
@@ -638,3 +725,56 @@ def _executor(workers, scheduler):
     return pool, close, lambda: f"{n} local worker process{'es' * (n != 1)}", rows
 
 
+
+
+class _InProcess(Executor):
+    """An executor that runs each task in this process as it is submitted (workers=1)."""
+
+    def submit(self, fn, /, *args, **kwargs):
+        future = Future()
+        try:
+            future.set_result(fn(*args, **kwargs))
+        except Exception as error:  # noqa: BLE001 -- reported by the loop, as a pool's
+            future.set_exception(error)
+        return future
+
+
+def _main_is_needed():
+    """Do workers need the caller's main module (a model class registered there)?"""
+    from ..registry import plugin_modules
+    return any(m in ("__main__", "__mp_main__") for m in plugin_modules())
+
+
+@contextlib.contextmanager
+def _main_hidden():
+    """While a worker is started: no main module for it to run again (see _CleanSpawnContext)."""
+    main = sys.modules.get("__main__")
+    if main is None:
+        yield
+        return
+    sys.modules["__main__"] = types.ModuleType("__main__")
+    try:
+        yield
+    finally:
+        sys.modules["__main__"] = main
+
+
+class _CleanSpawnProcess(multiprocessing.context.SpawnProcess):
+    """A spawned process started without the parent's main module.
+
+    multiprocessing's spawn start method has each child import the parent's
+    ``__main__`` (by path or module name) so that functions defined there can
+    be unpickled; that runs a script's top level again in every child.  A
+    sweep worker runs only windsolve's functions (``run_batch``), so the child
+    is told of no main module, as for an interactive session (or a notebook).
+    """
+
+    def start(self):
+        with _main_hidden():
+            super().start()
+
+
+class _CleanSpawnContext(multiprocessing.context.SpawnContext):
+    """The spawn context whose processes start without the parent's main module."""
+
+    Process = _CleanSpawnProcess

@@ -95,6 +95,22 @@ class Sweep:
     def __len__(self):
         return len(self.rows)
 
+    def __repr__(self):
+        axes = ", ".join(f"{a.key} ({len(set(a.texts))} values)" for a in self.axes)
+        return (f"<Sweep {str(self.path)!r}: {len(self.rows)} {self.kind} models, "
+                f"{self.design} design over {axes}>")
+
+    def _repr_html_(self):
+        from .._units import html_summary
+        rows = [("model kind", self.kind), ("design", self.design), ("rows", len(self.rows))]
+        for a in self.axes:
+            shown = a.shown_unit or a.unit
+            rows.append((f"axis {a.key}", f"{len(set(a.texts))} values"
+                         + (f" [{shown}]" if shown else "")))
+        if self.observables:
+            rows.append(("observables", ", ".join(self.observables)))
+        return html_summary(repr(self), rows)
+
 
 # -- reading a sweep file ---------------------------------------------------------
 

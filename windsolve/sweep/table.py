@@ -4,11 +4,15 @@ import json
 import math
 import operator
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from ..registry import LINE_WIDTHS
 from .spec import AxisView, _wide
+
+if TYPE_CHECKING:
+    from astropy.table import QTable
 
 
 def _summary_columns():
@@ -263,13 +267,20 @@ def write_sweep_rows(sweep, chunks, out):
 SWEEP_REQUIRED = ("mass_loss_rate", "terminal_velocity")  # numbers of every converged row
 
 
-def read_sweep_table(path: str | Path) -> tuple[dict[str, np.ndarray], dict]:
-    """{column: numpy array} and the root attributes of a sweep file.
+def read_sweep_table(path: str | Path, as_qtable: bool = False,
+                     cgs: bool = False) -> "tuple[dict[str, np.ndarray], dict] | QTable":
+    """{column: numpy array} and the root attributes of a sweep file (or one QTable).
 
     Parameters
     ----------
     path : str or Path
         A sweep's HDF5 file (layout: docs/physics.md, section 9).
+    as_qtable : bool
+        Return one :class:`astropy.table.QTable` with units instead
+        (:func:`sweep_qtable`: axes in the sweep file's units, the summary in
+        the units its base model used; the arrays below are cgs).
+    cgs : bool
+        With ``as_qtable``: every column in its cgs unit instead.
 
     Returns
     -------
@@ -290,6 +301,8 @@ def read_sweep_table(path: str | Path) -> tuple[dict[str, np.ndarray], dict]:
         the right dimension, finite or NaN, speeds below light, no NaN in a
         converged row's mass-loss rate and terminal velocity.
     """
+    if as_qtable:
+        return sweep_qtable(path, cgs=cgs)
     import astropy.units as u
 
     from ..errors import OutputError
@@ -347,6 +360,93 @@ def read_sweep_table(path: str | Path) -> tuple[dict[str, np.ndarray], dict]:
                               rows=table["converged"])
         attrs = dict(f.attrs)
     return table, attrs
+
+
+def sweep_qtable(path: str | Path, cgs: bool = False) -> "QTable":
+    """A sweep file's table as an astropy QTable, every number a Quantity column.
+
+    Columns: the axes (in sweep order), the summary values the sweep's model
+    kind reports (:attr:`windsolve.registry.ModelSpec.summary_units`; no
+    column of another model's, so no column that is NaN in every row), the
+    line widths when measured, ``seconds``, ``converged``, ``hydrostatic``,
+    ``status`` and ``message``.  Units: each axis in the unit its sweep file
+    wrote it in; each other value in the unit the user chose for its physical
+    type (:func:`windsolve._units.chosen_units`: the axes' units, then the
+    base model's field units, then Msun/yr, km/s, Rsun, Lsun); or all cgs.
+
+    Parameters
+    ----------
+    path : str or Path
+        A sweep's HDF5 file; checked by :func:`read_sweep_table`.
+    cgs : bool
+        Every column in its cgs unit (as the file stores it).
+
+    Returns
+    -------
+    astropy.table.QTable
+        One row per model of the design; ``meta`` holds ``kind``, ``design``,
+        ``axes``, ``sweep_toml``, ``base_model_toml`` and ``windsolve_version``.
+
+    Raises
+    ------
+    OutputError
+        As :func:`read_sweep_table`.
+    """
+    import astropy.units as u
+    from astropy.table import QTable
+
+    from .._units import chosen_units
+    from ..registry import MODEL_SPECS, SUMMARY_UNITS
+
+    table, attrs = read_sweep_table(path)
+    views = axis_views(path)
+    kind = str(attrs.get("model", ""))
+    base = _base_model(attrs)
+    pick = chosen_units(base, [v.unit for v in views])
+    spec = MODEL_SPECS.get(kind)
+    summary = list(spec.summary_units) if spec is not None else list(SUMMARY_UNITS)
+    out = QTable(meta={"kind": kind, "design": str(attrs.get("design", "")),
+                       "axes": [v.key for v in views],
+                       "sweep_toml": str(attrs.get("sweep_toml", "")),
+                       "base_model_toml": str(attrs.get("base_model_toml", "")),
+                       "windsolve_version": str(attrs.get("windsolve_version", ""))})
+    for v in views:
+        values = table[v.key]
+        if v.cgs_unit:
+            q = values * u.Unit(v.cgs_unit)
+            out[v.key] = q if cgs or not v.unit else q.to(u.Unit(v.unit))
+        else:
+            out[v.key] = values
+    extra = {"seconds": u.s, **{k: u.cm / u.s for k in WIDTH_COLUMNS}}
+    for key in [*summary, *WIDTH_COLUMNS, "seconds"]:
+        if key not in table or key in out.colnames:
+            continue
+        unit = SUMMARY_UNITS.get(key, extra.get(key))
+        q = table[key] * unit
+        out[key] = q if cgs or key == "seconds" else q.to(pick(unit))
+    for key in ("converged", "hydrostatic"):
+        if key in table:
+            out[key] = np.asarray(table[key], dtype=bool)
+    for key in ("status", "message"):
+        if key in table:
+            out[key] = table[key]
+    return out
+
+
+def _base_model(attrs):
+    """The base model of a sweep file's ``base_model_toml`` (None when absent or unreadable)."""
+    from ..errors import WindsolveError
+    from ..io import parse_toml
+    from ..modelfile import model_from_dict
+    text = attrs.get("base_model_toml")
+    if isinstance(text, bytes):
+        text = text.decode(errors="replace")
+    if not isinstance(text, str) or not text.strip():
+        return None
+    try:
+        return model_from_dict(parse_toml(text, "sweep file"), source="sweep file")
+    except (WindsolveError, KeyError, TypeError, ValueError):
+        return None
 
 
 def _axes_attr(f, path):

@@ -16,7 +16,7 @@ from ..base import LUM, WindModel, param
 from . import kernels as diff_kernels
 
 
-@dataclass(frozen=True, eq=False)
+@dataclass(frozen=True, eq=False, repr=False)
 class DiffusionWind(WindModel):
     """Model B: optically thick wind, gas + radiation, radiative diffusion.
 

@@ -16,7 +16,7 @@ from ..base import RHO, WindModel, param
 from . import kernels as iso_kernels
 
 
-@dataclass(frozen=True, eq=False)
+@dataclass(frozen=True, eq=False, repr=False)
 class IsothermalWind(WindModel):
     """Model A: steady, spherical, isothermal continuum-driven wind.
 
