@@ -98,7 +98,8 @@ def main_process_peak(path, out):
     try:
         start = tracemalloc.get_traced_memory()[0]
         tracemalloc.reset_peak()
-        run_sweep(sweep, out, workers=1, quiet=True)
+        # one worker process, so that what is measured is the main process's part
+        run_sweep(sweep, out, workers=1, quiet=True, in_process=False)
         return tracemalloc.get_traced_memory()[1] - start
     finally:
         tracemalloc.stop()

@@ -371,6 +371,21 @@ def _add_line_options(p):
                    help="Sobolev line strength of the P Cygni line (default 100)")
 
 
+def _result_spec(result):
+    """The ModelSpec of a result's model; for a file without a readable model, the one
+    model whose summary keys cover the result's finite values (None if not one)."""
+    import math
+
+    from .registry import MODEL_SPECS
+    spec = MODEL_SPECS.get(getattr(result.model, "kind", None))
+    if spec is not None:
+        return spec
+    keys = {k for k, q in result.summary.items()
+            if getattr(q, "isscalar", False) and math.isfinite(q.value)}
+    fits = [s for s in MODEL_SPECS.values() if keys <= set(s.summary_units)]
+    return fits[0] if len(fits) == 1 else None
+
+
 def cmd_lines(args: argparse.Namespace) -> int:
     """``windsolve lines FILE [-o OUT] [--pcygni]``: a synthetic line profile and its widths.
 
@@ -450,8 +465,7 @@ def cmd_lines(args: argparse.Namespace) -> int:
     print(f"  blue edge  {kms(line.edge_velocity)}   (absorption depth {settings.edge_depth:g})")
     v_inf = result.summary.get("terminal_velocity")
     if v_inf is not None:
-        from .registry import MODEL_SPECS
-        spec = MODEL_SPECS.get(getattr(result.model, "kind", None))
+        spec = _result_spec(result)
         print(f"  model {spec.terminal_label if spec else 'terminal velocity'}  {kms(v_inf)}")
     if line.fastest is not None:
         traced = "the edge and HWZI trace the fastest gas"

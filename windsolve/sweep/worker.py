@@ -244,6 +244,9 @@ class _RowModel:
         return getattr(self._model(), name)
 
 
+NUMBERS_KEPT = 1024  # _FastRows keeps at most this many read values (then starts afresh)
+
+
 class _FastRows:
     """Model A rows of one base model: (P, O) from the base's, each axis value read once.
 
@@ -285,6 +288,8 @@ class _FastRows:
                 hit = p.cgs(p.read(value))
             except Exception:  # noqa: BLE001 -- apply_changes gives the row its error
                 hit = _INVALID
+            if len(self.numbers) >= NUMBERS_KEPT:  # a random design: every value new
+                self.numbers.clear()
             self.numbers[k] = hit
         return hit
 
