@@ -372,7 +372,7 @@ def make_integrator(rhs, monitor):
                         interpolate)
 
 
-def make_scalar_integrator(rhs, monitor, two_way=False):
+def make_scalar_integrator(rhs, monitor):
     """:func:`make_integrator` for one equation, with plain floats for the state.
 
     ``rhs(x, y, P, O) -> dy/dx`` and ``monitor(x, y, P, O) -> int`` take a
@@ -384,74 +384,54 @@ def make_scalar_integrator(rhs, monitor, two_way=False):
     the same numbers bit for bit but takes 1.1-1.3x as long per Model A leg
     (benchmarks/bench_dop853_drivers.py).
 
-    With ``two_way`` the model's functions take one more argument,
-    ``forward`` (True when ``x_end >= x0``): ``rhs(x, y, P, O, forward)``
-    and ``monitor(x, y, P, O, forward)``.  One compiled integrator then
-    serves two legs that run in opposite directions (Model A's outward leg
-    in ln r and inward leg in r), where two one-way integrators would be
-    two compiled copies of the whole driver and its steps: on an empty
-    numba cache each copy costs seconds of compile time
-    (benchmarks/bench_startup.py).
-
     Parameters
     ----------
     rhs : numba dispatcher
-        Compiled ``rhs(x, y, P, O) -> float`` (``rhs(x, y, P, O, forward)``
-        with ``two_way``).
+        Compiled ``rhs(x, y, P, O) -> float``.
     monitor : numba dispatcher
-        Compiled ``monitor(x, y, P, O) -> int`` (``monitor(x, y, P, O,
-        forward)`` with ``two_way``).
-    two_way : bool
-        Whether ``rhs`` and ``monitor`` take ``forward``.
+        Compiled ``monitor(x, y, P, O) -> int``.
 
     Returns
     -------
     numba dispatcher
         ``integrate``, as :func:`make_integrator` gives it.
     """
-    if two_way:
-        f = rhs
-    else:
-        @njit(cache=True, error_model="numpy", inline="always")
-        def f(x, y, P, O, forward):
-            """``rhs`` without the direction it does not need."""
-            return rhs(x, y, P, O)
 
     @njit(cache=True, error_model="numpy")
-    def begin(x, y0, P, O, forward):
+    def begin(x, y0, P, O):
         """(y, f, y_new, f_new, K, F, y_stage, f_stage): the state, its
         derivative and the buffers of the steps (y_new, f_new are returned by
         ``step`` and y_stage, f_stage unused for a float state)."""
-        fx = f(x, y0, P, O, forward)
-        return (y0, fx, y0, fx, np.empty(N_STAGES_EXTENDED), np.empty(INTERPOLATOR_POWER),
+        f = rhs(x, y0, P, O)
+        return (y0, f, y0, f, np.empty(N_STAGES_EXTENDED), np.empty(INTERPOLATOR_POWER),
                 0.0, 0.0)
 
     @njit(cache=True, error_model="numpy")
-    def step(x, y, fx, h, P, O, K, y_new, f_new, y_stage, f_stage, forward):
+    def step(x, y, f, h, P, O, K, y_new, f_new, y_stage, f_stage):
         """One DOP853 step from (x, y) with derivative f: (y_new, f_new); fills K."""
-        K[0] = fx
+        K[0] = f
         for s in range(1, N_STAGES):
             acc = 0.0
             for m in range(s):
                 acc += A[s, m] * K[m]
-            K[s] = f(x + C[s] * h, y + h * acc, P, O, forward)
+            K[s] = rhs(x + C[s] * h, y + h * acc, P, O)
         acc = 0.0
         for m in range(N_STAGES):
             acc += B[m] * K[m]
         y_new = y + h * acc
-        f_new = f(x + h, y_new, P, O, forward)
+        f_new = rhs(x + h, y_new, P, O)
         K[N_STAGES] = f_new
         return y_new, f_new
 
     @njit(cache=True, error_model="numpy")
-    def dense(x, y, y_new, f_new, h, P, O, K, F, y_stage, f_stage, forward):
+    def dense(x, y, y_new, f_new, h, P, O, K, F, y_stage, f_stage):
         """The step's interpolant into F (as ``dense_coefficients``, one component)."""
         for e in range(N_STAGES_EXTENDED - N_STAGES - 1):
             s = N_STAGES + 1 + e
             acc = 0.0
             for m in range(s):
                 acc += A_EXTRA[e, m] * K[m]
-            K[s] = f(x + C_EXTRA[e] * h, y + h * acc, P, O, forward)
+            K[s] = rhs(x + C_EXTRA[e] * h, y + h * acc, P, O)
         dy = y_new - y
         F[0] = dy
         F[1] = h * K[0] - dy
@@ -467,49 +447,10 @@ def make_scalar_integrator(rhs, monitor, two_way=False):
         """out_y[row] = the interpolated state at t = (x - x_old) / h."""
         out_y[row] = interpolate_scalar(F, y, t)
 
-    return _make_driver(monitor, False, begin, step, error_norm_scalar, dense, store_dense,
-                        two_way)
+    return _make_driver(monitor, False, begin, step, error_norm_scalar, dense, store_dense)
 
 
-@njit(cache=True, error_model="numpy", inline="always")
-def store_row(y, out_y, row):
-    """out_y[row, :] = y, element by element.
-
-    ``out_y[row] = y`` means the same, but numba compiles its broadcasting
-    with a shape-mismatch error message, and the string formatting that
-    message needs took about 2 s of a first run's compile
-    (benchmarks/bench_startup.py).
-
-    Parameters
-    ----------
-    y : ndarray (n,)
-        The state.
-    out_y : ndarray (m, n)
-        Output, written in place.
-    row : int
-        The row written.
-    """
-    for j in range(y.shape[0]):
-        out_y[row, j] = y[j]
-
-
-@njit(cache=True, error_model="numpy", inline="always")
-def store_float(y, out_y, row):
-    """out_y[row] = y, for a float state (:func:`store_row`'s twin).
-
-    Parameters
-    ----------
-    y : float
-        The state.
-    out_y : ndarray (m,)
-        Output, written in place.
-    row : int
-        The row written.
-    """
-    out_y[row] = y
-
-
-def _make_driver(monitor, in_place, begin, step, norm, dense, store_dense, two_way=False):
+def _make_driver(monitor, in_place, begin, step, norm, dense, store_dense):
     """The one DOP853 driver: the loop, step-size control and output, compiled
     with the state's operations (array or float) chosen by the caller.
 
@@ -526,12 +467,7 @@ def _make_driver(monitor, in_place, begin, step, norm, dense, store_dense, two_w
     accepted step is copied into ``y`` and ``f``; False, a float state --
     ``step`` returns ``(y_new, f_new)`` and they become ``y`` and ``f``.  No
     array reference is rebound inside the loop, so numba counts none there.
-    A float state's ``begin``, ``step`` and ``dense`` take one more
-    argument, ``forward`` (x_end >= x0), and so does ``monitor`` when
-    ``two_way`` (a compile-time constant too): see
-    :func:`make_scalar_integrator`.
     """
-    store = store_row if in_place else store_float
 
     @njit(cache=True, error_model="numpy")
     def integrate(x0, y0, x_end, P, O, rtol, atol, h_start, max_step,
@@ -573,18 +509,14 @@ def _make_driver(monitor, in_place, begin, step, norm, dense, store_dense, two_w
             Right-hand-side evaluations.
         """
         direction = 1.0 if x_end >= x0 else -1.0
-        forward = x_end >= x0
         x = x0
-        if in_place:
-            y, f, y_new, f_new, K, F, y_stage, f_stage = begin(x, y0, P, O)
-        else:
-            y, f, y_new, f_new, K, F, y_stage, f_stage = begin(x, y0, P, O, forward)
+        y, f, y_new, f_new, K, F, y_stage, f_stage = begin(x, y0, P, O)
         nfev = 1
         capacity = out_x.shape[0]
         n_out = 0
         if capacity > 0:
             out_x[0] = x
-            store(y, out_y, 0)
+            out_y[0] = y
             n_out = 1
         with_dense = dx_out > 0.0
         k_next = 1  # index of the next dense output point x0 + k dx_out
@@ -605,18 +537,14 @@ def _make_driver(monitor, in_place, begin, step, norm, dense, store_dense, two_w
                 if in_place:
                     step(x, y, f, h, P, O, K, y_new, f_new, y_stage, f_stage)
                 else:
-                    y_new, f_new = step(x, y, f, h, P, O, K, y_new, f_new, y_stage, f_stage,
-                                        forward)
+                    y_new, f_new = step(x, y, f, h, P, O, K, y_new, f_new, y_stage, f_stage)
                 nfev += N_STAGES
                 en = norm(K, h, y, y_new, rtol, atol)
                 h_abs, accepted, rejected = next_step(en, h_abs, rejected)
             if with_dense and n_out < capacity:
                 x_k = x0 + direction * k_next * dx_out
                 if direction * (x_new - x_k) > 0.0:
-                    if in_place:
-                        dense(x, y, y_new, f_new, h, P, O, K, F, y_stage, f_stage)
-                    else:
-                        dense(x, y, y_new, f_new, h, P, O, K, F, y_stage, f_stage, forward)
+                    dense(x, y, y_new, f_new, h, P, O, K, F, y_stage, f_stage)
                     nfev += N_STAGES_EXTENDED - N_STAGES - 1
                 while direction * (x_new - x_k) > 0.0 and n_out < capacity:
                     store_dense(F, y, (x_k - x) / h, out_y, n_out)
@@ -632,13 +560,10 @@ def _make_driver(monitor, in_place, begin, step, norm, dense, store_dense, two_w
             else:
                 y = y_new
                 f = f_new
-            if two_way:
-                code = monitor(x, y, P, O, forward)
-            else:
-                code = monitor(x, y, P, O)
+            code = monitor(x, y, P, O)
             if n_out < capacity:
                 out_x[n_out] = x
-                store(y, out_y, n_out)
+                out_y[n_out] = y
                 n_out += 1
             if code != 0:
                 return code, x, y, n_out, nfev

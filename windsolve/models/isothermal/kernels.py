@@ -439,76 +439,8 @@ def left_table(x, y, P, O):
     return table_margin(O, density(r, math.exp(y), P), P[I_T]) < TABLE_EDGE
 
 
-@njit(cache=True, error_model="numpy", inline="always")
-def rhs_leg(x, y, P, O, forward):
-    """:func:`rhs` (forward: the outward leg, x = ln r) or :func:`rhs_radius`
-    (backward: the inward leg, x = r), the same operations as each.
-
-    One right-hand side for both legs, so that one compiled integrator serves
-    both (:func:`windsolve.core.integrate.make_scalar_integrator`, ``two_way``):
-    a second one doubled the compile time of a first run.  N(r, v), the bulk of
-    the work, appears once.
-
-    Parameters
-    ----------
-    x : float
-        ln r [ln cm] (forward) or r [cm] (backward).
-    y : float
-        ln v [ln(cm s^-1)].
-    P, O : ndarray
-        Parameter (Mdot set) and opacity vectors.
-    forward : bool
-        The direction of integration: True outward.
-
-    Returns
-    -------
-    float
-        d ln v / d ln r [dimensionless] (forward) or d ln v / d r [cm^-1].
-    """
-    v = math.exp(y)
-    inv_v = math.exp(-y)
-    if forward:
-        r = math.exp(x)
-        inv_r = math.exp(-x)
-    else:
-        r = x
-        inv_r = 1.0 / x
-    n = force_balance_inv(r, inv_r, v, inv_v, P, O)
-    if forward:
-        return r * n / (v * v - P[I_A2])
-    return n / (v * v - P[I_A2])
-
-
-@njit(cache=True, error_model="numpy")
-def monitor_leg(x, y, P, O, forward):
-    """:func:`monitor_outward` (forward) or :func:`monitor_inward` (backward).
-
-    Parameters
-    ----------
-    x : float
-        ln r [ln cm] (forward) or r [cm] (backward).
-    y : float
-        ln v.
-    P, O : ndarray
-        Parameter and opacity vectors.
-    forward : bool
-        The direction of integration: True outward.
-
-    Returns
-    -------
-    int
-        0, STOP_STALL, STOP_DENSE or STOP_SINGULAR.
-    """
-    if forward:
-        return monitor_outward(x, y, P, O)
-    return monitor_inward(x, y, P, O)
-
-
-# One compiled integrator for both legs; the direction picks the leg's
-# variables (rhs_leg): outward x = ln r, inward x = r, y = ln v.
-integrate_leg = make_scalar_integrator(rhs_leg, monitor_leg, two_way=True)
-integrate_outward = integrate_leg  # from ln(r_c (1 + delta)) out to ln r_out
-integrate_inward = integrate_leg  # from r_c (1 - delta) in to R0
+integrate_outward = make_scalar_integrator(rhs, monitor_outward)  # x = ln r, y = ln v
+integrate_inward = make_scalar_integrator(rhs_radius, monitor_inward)  # x = r, y = ln v
 refine_sonic = make_illinois(sonic_force_balance)
 refine_base = make_illinois(base_sonic_balance)
 
@@ -1134,16 +1066,14 @@ def solve(P, O, rtol, delta):
         c_in, g_in, rc_in, s_in = shoot_work(x_in, P, O, rtol, delta, P.copy(), np.empty(0))
         shots += 1
         if c_in == OK and rc_in <= P[I_R0] * (1.0 + BASE_EMERGE):
-            # (np.int64: a literal 0 would make numba compile converge once
-            # more, for Literal[int](0); likewise below)
             res = converge(P, O, rtol, delta, xb, xb - ln_mdot_max, P[I_R0], math.nan,
-                           0.02, x_min, x_max, np.int64(0), np.int64(OK))
+                           0.02, x_min, x_max, 0, OK)
             if res[6]:
                 return checked(res[0], res[1], res[2], res[3], res[4] + shots, res[5], P, delta)
             shots += res[4]
         elif c_in == OK:
             res = converge(P, O, rtol, delta, x_in, g_in, rc_in, s_in, 1.0, x_min, x_max,
-                           shots, np.int64(OK))
+                           shots, OK)
             return checked(res[0], res[1], res[2], res[3], res[4], res[5], P, delta)
         # Nothing admissible next to the boundary: search as below.
         guess = min(max(xb + side * 1e-6 * (1.0 + abs(xb)), x_min), x_max)
