@@ -450,6 +450,44 @@ def make_scalar_integrator(rhs, monitor):
     return _make_driver(monitor, False, begin, step, error_norm_scalar, dense, store_dense)
 
 
+@njit(cache=True, error_model="numpy", inline="always")
+def store_row(y, out_y, row):
+    """out_y[row, :] = y, element by element.
+
+    ``out_y[row] = y`` means the same, but numba compiles its broadcasting
+    with a shape-mismatch error message, and the string formatting that
+    message needs took about 2 s of a first Model B run's compile
+    (benchmarks/bench_startup.py).
+
+    Parameters
+    ----------
+    y : ndarray (n,)
+        The state.
+    out_y : ndarray (m, n)
+        Output, written in place.
+    row : int
+        The row written.
+    """
+    for j in range(y.shape[0]):
+        out_y[row, j] = y[j]
+
+
+@njit(cache=True, error_model="numpy", inline="always")
+def store_float(y, out_y, row):
+    """out_y[row] = y, for a float state (:func:`store_row`'s twin).
+
+    Parameters
+    ----------
+    y : float
+        The state.
+    out_y : ndarray (m,)
+        Output, written in place.
+    row : int
+        The row written.
+    """
+    out_y[row] = y
+
+
 def _make_driver(monitor, in_place, begin, step, norm, dense, store_dense):
     """The one DOP853 driver: the loop, step-size control and output, compiled
     with the state's operations (array or float) chosen by the caller.
@@ -468,6 +506,7 @@ def _make_driver(monitor, in_place, begin, step, norm, dense, store_dense):
     ``step`` returns ``(y_new, f_new)`` and they become ``y`` and ``f``.  No
     array reference is rebound inside the loop, so numba counts none there.
     """
+    store = store_row if in_place else store_float
 
     @njit(cache=True, error_model="numpy")
     def integrate(x0, y0, x_end, P, O, rtol, atol, h_start, max_step,
@@ -516,7 +555,7 @@ def _make_driver(monitor, in_place, begin, step, norm, dense, store_dense):
         n_out = 0
         if capacity > 0:
             out_x[0] = x
-            out_y[0] = y
+            store(y, out_y, 0)
             n_out = 1
         with_dense = dx_out > 0.0
         k_next = 1  # index of the next dense output point x0 + k dx_out
@@ -563,7 +602,7 @@ def _make_driver(monitor, in_place, begin, step, norm, dense, store_dense):
             code = monitor(x, y, P, O)
             if n_out < capacity:
                 out_x[n_out] = x
-                out_y[n_out] = y
+                store(y, out_y, n_out)
                 n_out += 1
             if code != 0:
                 return code, x, y, n_out, nfev

@@ -403,7 +403,13 @@ def _outside(O, log_T, log_R):
             or log_R < O[SLOT_LOGR_MIN] - EDGE_TOL or log_R > O[SLOT_LOGR_MAX] + EDGE_TOL)
 
 
-@njit(cache=True, error_model="numpy", inline="always")
+# Not inlined (unlike the analytic laws): a table lookup is a few hundred
+# lines of IR, and numba's inline="always" puts a copy of it into every
+# caller -- every right-hand-side evaluation of every DOP853 stage (13 a
+# step), for every integrator, whatever the model's law.  That made most of
+# the first run's compile time (benchmarks/bench_startup.py); as a call it
+# compiles once and costs a few ns against the lookup's tens.
+@njit(cache=True, error_model="numpy")
 def table_opacity(O, rho, T):
     """Tabulated opacity kappa(rho, T) [cm2 g-1].
 

@@ -1066,14 +1066,16 @@ def solve(P, O, rtol, delta):
         c_in, g_in, rc_in, s_in = shoot_work(x_in, P, O, rtol, delta, P.copy(), np.empty(0))
         shots += 1
         if c_in == OK and rc_in <= P[I_R0] * (1.0 + BASE_EMERGE):
+            # (np.int64: a literal 0 would make numba compile converge once
+            # more, for Literal[int](0); likewise below)
             res = converge(P, O, rtol, delta, xb, xb - ln_mdot_max, P[I_R0], math.nan,
-                           0.02, x_min, x_max, 0, OK)
+                           0.02, x_min, x_max, np.int64(0), np.int64(OK))
             if res[6]:
                 return checked(res[0], res[1], res[2], res[3], res[4] + shots, res[5], P, delta)
             shots += res[4]
         elif c_in == OK:
             res = converge(P, O, rtol, delta, x_in, g_in, rc_in, s_in, 1.0, x_min, x_max,
-                           shots, OK)
+                           shots, np.int64(OK))
             return checked(res[0], res[1], res[2], res[3], res[4], res[5], P, delta)
         # Nothing admissible next to the boundary: search as below.
         guess = min(max(xb + side * 1e-6 * (1.0 + abs(xb)), x_min), x_max)
