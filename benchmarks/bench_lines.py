@@ -71,6 +71,7 @@ def main():
         rng = np.random.default_rng(0)
         records = {i: {"row": i, "converged": bool(rng.random() > 0.05), "status": "converged",
                        "message": "", "seconds": 0.0,
+                       "mass_loss_rate": float(rng.uniform(1e21, 1e23)),
                        "terminal_velocity": float(rng.uniform(2e7, 8e7)),
                        "fwhm": float(rng.uniform(1e7, 5e7)), "hwzi": float(rng.uniform(2e7, 8e7)),
                        "edge_velocity": float(-rng.uniform(2e7, 8e7))} for i in range(len(sweep))}
