@@ -1,0 +1,247 @@
+"""Posterior inference (windsolve fit): fit files, sampling, checkpoints, summaries.
+
+The closed-form check uses a linear model registered in this file alone: its
+"terminal velocity" is v = A . (x, y), so with normal priors and Gaussian
+measurements the posterior is the Gaussian of Bayesian linear regression,
+computed here from its equations (precision = prior precision + A^T S^-1 A;
+e.g. Bishop 2006, Pattern Recognition and Machine Learning, eqs. 3.50-3.51,
+from memory).
+"""
+
+import json
+import math
+from dataclasses import dataclass
+from pathlib import Path
+
+import astropy.units as u
+import numpy as np
+import pytest
+
+import windsolve
+from windsolve.cli import main
+from windsolve.fit import (
+    best_model,
+    load_fit,
+    posterior_table,
+    read_fit,
+    run_fit,
+    summary_table,
+)
+from windsolve.models import WindModel, param
+from windsolve.registry import ModelSpec, register
+from windsolve.result import WindResult
+
+CONFIGS = Path(__file__).resolve().parent.parent / "configs"
+KIND = "linear_fit_test"
+A_KM_S = np.array([100.0, 30.0])  # v = A . (x, y) [km/s], the test model's linear map
+
+
+@dataclass(frozen=True, eq=False)
+class LinearToy(WindModel):
+    """Test-only model: a terminal velocity linear in two dimensionless keys."""
+
+    kind = KIND
+    sections = ("toy",)
+
+    name: str = param("name", str, "a label", "toy")
+    x: float = param("toy.x", float, "first coefficient", 0.0)
+    y: float = param("toy.y", float, "second coefficient", 0.0)
+    opacity: object = None
+
+    def __post_init__(self):
+        self._read_fields()
+
+
+def solve_toy(model, profile=True):
+    v = (A_KM_S[0] * model.x + A_KM_S[1] * model.y) * 1e5
+    if not v > 0:
+        return WindResult(model, False, "no_solution", "v <= 0", {}, {}, [], {})
+    return WindResult(model, True, "converged", "converged: linear toy",
+                      {"terminal_velocity": v * u.cm / u.s}, {}, [], {"shots": 0,
+                                                                      "seconds": 0.0})
+
+
+TOY_SPEC = ModelSpec(kind=KIND, model_class=LinearToy, solve=solve_toy,
+                     check=lambda model, source: ([("model", KIND)], []),
+                     summary_units={"terminal_velocity": u.cm / u.s}, sweep_batch=50)
+register(TOY_SPEC, replace=True)
+
+
+@pytest.fixture(scope="module", autouse=True)
+def registered():
+    from windsolve.registry import unregister
+    register(TOY_SPEC, replace=True)
+    yield
+    unregister(KIND)
+
+
+def write_toy(tmp_path, sampler="walkers = 16\nsteps = 1000\nseed = 7\nburn = 200",
+              obs=(("terminal_velocity", 150.0, 20.0),), extra=""):
+    (tmp_path / "toy.toml").write_text(f'model = "{KIND}"\nname = "toy (invented)"\n'
+                                       f'[toy]\nx = 1.0\ny = 0.0\n')
+    rows = "".join(f"Toy (invented),{q},-,{v},{s},km/s\n" for q, v, s in obs)
+    (tmp_path / "obs.csv").write_text("object,quantity,line,value,uncertainty,unit\n" + rows)
+    fit = tmp_path / "fit.toml"
+    fit.write_text(f"""[fit]
+base = "toy.toml"
+observations = "obs.csv"
+{extra}
+[[free]]
+key = "toy.x"
+prior = "normal"
+mean = 1.0
+sigma = 0.5
+
+[[free]]
+key = "toy.y"
+prior = "normal"
+mean = 0.0
+sigma = 0.3
+
+[sampler]
+{sampler}
+""")
+    return fit
+
+
+def test_linear_gaussian_posterior_matches_the_closed_form(tmp_path):
+    fit = write_toy(tmp_path)
+    run = run_fit(load_fit(fit), tmp_path / "chain.h5")
+    samples = posterior_table(tmp_path / "chain.h5")
+    xy = np.column_stack([samples["toy.x"], samples["toy.y"]])
+    # Bayesian linear regression (independent calculation, equations in the docstring):
+    prior_mean, prior_prec = np.array([1.0, 0.0]), np.diag([1 / 0.5**2, 1 / 0.3**2])
+    prec = prior_prec + np.outer(A_KM_S, A_KM_S) / 20.0**2
+    cov = np.linalg.inv(prec)
+    mean = cov @ (prior_prec @ prior_mean + A_KM_S * 150.0 / 20.0**2)
+    sd = np.sqrt(np.diag(cov))
+    # A few per cent of the posterior width (common practice for MCMC checks).
+    assert np.all(np.abs(xy.mean(0) - mean) < 0.08 * sd), (xy.mean(0), mean)
+    assert np.all(np.abs(xy.std(0) / sd - 1) < 0.06), (xy.std(0), sd)
+    rho = cov[0, 1] / (sd[0] * sd[1])
+    assert abs(np.corrcoef(xy.T)[0, 1] - rho) < 0.05
+    assert np.all(run.ess > 400)  # effective samples behind the checks above
+    assert 0.2 < run.acceptance.mean() < 0.9  # the stretch move's usual range (common practice)
+
+
+def test_killed_and_resumed_fit_gives_the_same_chain(tmp_path):
+    sampler = "walkers = 8\nsteps = 40\nseed = 11\nthin = 2\nburn = 10"
+    fit = write_toy(tmp_path, sampler)
+    spec = load_fit(fit)
+    run_fit(spec, tmp_path / "whole.h5")
+
+    def stop(step):
+        if step == 10:  # of 20 saved steps
+            raise KeyboardInterrupt
+
+    part = run_fit(spec, tmp_path / "parts.h5", on_step=stop)
+    assert part.interrupted and part.steps == 10
+    assert (tmp_path / "parts.h5.partial").exists() and not (tmp_path / "parts.h5").exists()
+    with pytest.raises(windsolve.ModelError, match="--resume"):
+        run_fit(spec, tmp_path / "parts.h5")
+    done = run_fit(spec, tmp_path / "parts.h5", resume=True)
+    assert done.steps == 20 and not (tmp_path / "parts.h5.partial").exists()
+    a, b = read_fit(tmp_path / "whole.h5"), read_fit(tmp_path / "parts.h5")
+    assert np.array_equal(a.chain, b.chain)
+    assert np.array_equal(a.log_prob, b.log_prob)
+    for name in a.derived:
+        assert np.array_equal(a.derived[name], b.derived[name], equal_nan=True)
+    # Statuses are counted across the interruption: one solve per walker and proposal
+    # (40 steps x 8 walkers) plus the starting ensemble.
+    assert sum(json.loads(b.attrs["statuses"]).values()) == 8 * 40 + 8
+
+
+def test_a_too_short_chain_says_how_many_more_steps(tmp_path):
+    fit = write_toy(tmp_path, "walkers = 8\nsteps = 30\nseed = 1\nburn = 0")
+    run = run_fit(load_fit(fit), tmp_path / "c.h5")
+    assert "more steps" in run.warning
+    more = int(run.warning.split("run about ")[1].split()[0])
+    assert more == math.ceil(50 * float(np.max(run.tau)) - 30)
+
+
+def write_demo_fit(tmp_path, free=None, sampler="walkers = 8\nsteps = 12\nseed = 2\nburn = 4",
+                   extra="", lines=""):
+    free = free or """[[free]]
+key = "star.luminosity"
+prior = "log-uniform"
+lower = "3.5e6 Lsun"
+upper = "4.5e6 Lsun"
+"""
+    fit = tmp_path / "fit.toml"
+    fit.write_text(f"""[fit]
+base = "{CONFIGS / 'demo.toml'}"
+observations = "{CONFIGS / 'observed_widths.csv'}"
+model_uncertainty = 0.05
+{extra}
+{free}
+{lines}
+[sampler]
+{sampler}
+""")
+    return fit
+
+
+def test_demo_fit_through_the_command_line(tmp_path, capsys):
+    fit = write_demo_fit(tmp_path)
+    out, best = tmp_path / "chain.h5", tmp_path / "best.toml"
+    assert main(["fit", str(fit), "-o", str(out), "--best", str(best), "-q"]) == 0
+    model = windsolve.load_model(best)
+    samples = posterior_table(out)
+    i = np.argmax(samples["log_prob"])
+    # The maximum-posterior model file holds the best sample's luminosity exactly.
+    assert model.luminosity.to_value(u.Lsun) == samples["star.luminosity"][i].to_value(u.Lsun)
+    assert samples["star.luminosity"].unit == u.Lsun
+    assert samples["mass_loss_rate"].unit == u.Msun / u.yr
+    assert best_model(out).luminosity == model.luminosity
+    table = summary_table(out)
+    row = table[list(table["quantity"]).index("star.luminosity")]
+    assert 3.5e6 <= row["p2.5"] <= row["p16"] <= row["median"] <= row["p84"] <= 4.5e6
+    assert set(table["quantity"]) >= {"mass_loss_rate", "terminal_velocity", "fwhm", "hwzi"}
+
+
+BAD_FITS = {
+    "unknown prior": ("prior", 'prior = "log-uniform"', 'prior = "loguniform"'),
+    "no unit": ("prior", 'lower = "3.5e6 Lsun"', "lower = 3.5e6"),
+    "wrong unit": ("prior", 'lower = "3.5e6 Lsun"', 'lower = "3.5e6 km/s"'),
+    "bad range": ("prior", 'upper = "4.5e6 Lsun"', 'upper = "3e6 Lsun"'),
+    "unknown key": ("prior", 'key = "star.luminosity"', 'key = "star.luminosty"'),
+    "not variable": ("prior", 'key = "star.luminosity"', 'key = "energy.photon_tiring"'),
+    "unknown sampler option": ("sampler", "seed = 2", "sed = 2"),
+    "too few walkers": ("sampler", "walkers = 8", "walkers = 1"),
+    "odd walkers": ("sampler", "walkers = 8", "walkers = 7"),
+    "unknown fit key": ("extra", "", "obj = \"x\""),
+    "bad model uncertainty": ("extra", "", "model_uncertainty = -1"),
+    "unknown line setting": ("lines", "", "[lines]\nturbulance = \"10 km/s\""),
+}
+
+
+@pytest.mark.parametrize("case", sorted(BAD_FITS))
+def test_bad_fit_file_is_one_line_exit_2_nothing_written(case, tmp_path, capsys):
+    where, old, new = BAD_FITS[case]
+    fit = write_demo_fit(tmp_path)
+    text = fit.read_text()
+    if where in ("extra", "lines"):
+        marker = "model_uncertainty = 0.05\n" if where == "extra" else "[sampler]\n"
+        text = (text.replace(marker, marker + new + "\n") if where == "extra"
+                else text.replace(marker, new + "\n" + marker))
+        if case == "bad model uncertainty":
+            text = text.replace("model_uncertainty = 0.05\n", "", 1)
+    else:
+        assert old in text
+        text = text.replace(old, new, 1)
+    fit.write_text(text)
+    out = tmp_path / "chain.h5"
+    assert main(["fit", str(fit), "-o", str(out)]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and err.startswith("windsolve: error: "), err
+    assert not out.exists() and not Path(str(out) + ".partial").exists()
+
+
+def test_an_observation_the_model_cannot_predict_is_refused(tmp_path, capsys):
+    # The toy model has no line profile, so it predicts no FWHM.
+    fit = write_toy(tmp_path, obs=(("terminal_velocity", 150.0, 20.0), ("fwhm", 100, 10)))
+    out = tmp_path / "chain.h5"
+    assert main(["fit", str(fit), "-o", str(out)]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "predicts no fwhm" in err, err
+    assert not out.exists()
