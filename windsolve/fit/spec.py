@@ -49,6 +49,7 @@ from ..sweep.spec import _check_observables
 
 __all__ = ["PRIORS", "Prior", "FitSpec", "load_fit", "SAMPLER_KEYS"]
 
+_UNITS = {}  # unit text -> astropy unit, parsed once
 PRIORS = ("uniform", "log-uniform", "normal", "truncated-normal")
 FIT_KEYS = ("base", "observations", "object", "model_uncertainty")
 FREE_KEYS = ("key", "prior", "lower", "upper", "mean", "sigma")
@@ -182,6 +183,27 @@ class Prior:
             filled += take
         return out
 
+    def quantity(self, x: float) -> "object":
+        """A value in :attr:`unit` as the solver takes it: a Quantity (a float if unitless).
+
+        Parameters
+        ----------
+        x : float
+            The value in :attr:`unit`.
+
+        Returns
+        -------
+        astropy.units.Quantity or float
+            ``x`` in :attr:`unit` (one unit object per prior: no unit text parsed per model).
+        """
+        if not self.unit:
+            return float(x)
+        unit = _UNITS.get(self.unit)
+        if unit is None:
+            import astropy.units as u
+            unit = _UNITS[self.unit] = u.Unit(self.unit)
+        return float(x) * unit
+
     def text(self, x: float) -> "str | float":
         """A value in :attr:`unit` as a model file writes it (exact: repr of the float).
 
@@ -251,7 +273,7 @@ class FitSpec:
         return [p.key for p in self.priors]
 
     def changes(self, theta: np.ndarray) -> dict:
-        """The dotted-key changes of one point of the sampled space (model-file values).
+        """The dotted-key changes of one point of the sampled space (Quantities in the unit).
 
         Parameters
         ----------
@@ -261,9 +283,9 @@ class FitSpec:
         Returns
         -------
         dict
-            Dotted key -> value as a model file writes it.
+            Dotted key -> value (:meth:`Prior.quantity`).
         """
-        return {p.key: p.text(p.to_value(t)) for p, t in zip(self.priors, theta, strict=True)}
+        return {p.key: p.quantity(p.to_value(t)) for p, t in zip(self.priors, theta, strict=True)}
 
     def log_prior(self, theta: np.ndarray) -> np.ndarray:
         """ln prior of points ``theta`` (shape (n, ndim)), up to a constant.
@@ -306,7 +328,11 @@ def _read_prior(path, model_cls, table, index):
         _fail(path, f"{where}: key = \"a dotted model key\" is missing, e.g. "
                     f"key = \"star.luminosity\"")
     where = f"[[free]] {key}"
-    reader, cgs_unit = _axis_spec(model_cls, key, f"{path} {where}")
+    try:
+        reader, cgs_unit = _axis_spec(model_cls, key, f"{path} {where}")
+    except ModelError as error:  # the sweeps' check, in a fit's words
+        raise ModelError(str(error).replace("axis key", "free key").replace(
+            "sweep numeric keys only", "only numeric keys can be free")) from None
     kind = table.get("prior")
     if kind not in PRIORS:
         _fail(path, f"{where}: prior = {kind!r} is not known{nearest(str(kind), PRIORS)}; "
