@@ -184,7 +184,13 @@ model_uncertainty = 0.05
 def test_demo_fit_through_the_command_line(tmp_path, capsys):
     fit = write_demo_fit(tmp_path)
     out, best = tmp_path / "chain.h5", tmp_path / "best.toml"
-    assert main(["fit", str(fit), "-o", str(out), "--best", str(best), "-q"]) == 0
+    pngs = tmp_path / "corner.png", tmp_path / "predictive.png"
+    assert main(["fit", str(fit), "-o", str(out), "--best", str(best), "--corner",
+                 str(pngs[0]), "--predictive", str(pngs[1])]) == 0
+    printed = capsys.readouterr().out
+    assert "autocorrelation time" in printed and "acceptance fraction" in printed
+    for png in pngs:
+        assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     model = windsolve.load_model(best)
     samples = posterior_table(out)
     i = np.argmax(samples["log_prob"])

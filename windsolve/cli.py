@@ -1128,8 +1128,15 @@ def cmd_fit(args: argparse.Namespace) -> int:
     if args.workers < 1:
         raise WindsolveError("--workers must be at least 1")
     _check_output(args.output, ".h5")
-    if args.best is not None:
-        _check_output(args.best, ".toml")
+    for path, ext in ((args.best, ".toml"), (args.corner, ".png"), (args.predictive, ".png")):
+        if path is not None:
+            _check_output(path, ext)
+    if args.corner is not None:
+        try:
+            import corner  # noqa: F401 -- before sampling, not after
+        except ImportError:
+            raise WindsolveError("--corner needs the corner package: pip install "
+                                 "\"windsolve[plots]\"") from None
     spec = load_fit(args.fit)
     if not args.quiet:
         print(f"{args.fit}: {spec.ndim} free keys ({', '.join(spec.keys)}), "
@@ -1146,6 +1153,11 @@ def cmd_fit(args: argparse.Namespace) -> int:
         from .io import write_text
         from .modelfile import dumps
         write_text(args.best, dumps(best_model(args.output).to_dict()))
+    from .fit import corner_plot, predictive_plot
+    if args.corner is not None:
+        corner_plot(args.output, args.corner, derived=True)
+    if args.predictive is not None:
+        predictive_plot(args.output, args.predictive)
     if not args.quiet:
         print("  models: " + ", ".join(f"{k}: {v}" for k, v in sorted(run.statuses.items())))
         print(f"  acceptance fraction {run.acceptance.mean():.3f} (walkers "
@@ -1162,7 +1174,8 @@ def cmd_fit(args: argparse.Namespace) -> int:
             print(f"  {row['quantity']:<22} " + " ".join(
                 f"{row[c]:12.5g}" for c in ("median", "p16", "p84", "p2.5", "p97.5"))
                 + f"  {row['unit']}")
-        print(f"wrote {args.output}" + (f" and {args.best}" if args.best else ""))
+        written = [p for p in (args.output, args.best, args.corner, args.predictive) if p]
+        print(f"wrote {', '.join(written)}")
     return EXIT_OK
 
 
@@ -1378,6 +1391,10 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--resume", action="store_true", help="continue an interrupted fit")
     p.add_argument("--best", metavar="BEST.toml",
                    help="also write the maximum-posterior model as a model file")
+    p.add_argument("--corner", metavar="IMAGE",
+                   help="also draw the corner plot of the posterior (needs windsolve[plots])")
+    p.add_argument("--predictive", metavar="IMAGE",
+                   help="also draw each observation against its posterior predictions")
     p.add_argument("-q", "--quiet", action="store_true", help="no progress bar or summary")
     p.set_defaults(func=cmd_fit)
 

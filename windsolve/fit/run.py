@@ -325,6 +325,9 @@ def _write_output(out, spec, backend, run, blob_names):
         for name in ("walkers", "steps", "seed", "thin", "burn"):
             f.attrs[name] = getattr(spec, name)
         f.attrs["model_uncertainty"] = spec.model_uncertainty
+        f.attrs["observations"] = json.dumps([  # cgs
+            {"quantity": o.quantity, "line": o.line, "value": o.value,
+             "uncertainty": o.uncertainty} for o in spec.observations])
         g = f.create_group("posterior")
         g.attrs["keys"] = json.dumps(spec.keys)
         g.attrs["units"] = json.dumps([p.unit for p in spec.priors])
