@@ -251,3 +251,31 @@ def test_an_observation_the_model_cannot_predict_is_refused(tmp_path, capsys):
     err = capsys.readouterr().err
     assert err.count("\n") == 1 and "predicts no fwhm" in err, err
     assert not out.exists()
+
+
+@pytest.mark.slow
+def test_a_fit_killed_with_sigkill_resumes_to_the_uninterrupted_chain(tmp_path):
+    import os
+    import signal
+    import subprocess
+    import sys
+    import time
+
+    fit = write_demo_fit(tmp_path, sampler="walkers = 8\nsteps = 1500\nseed = 5\nburn = 100")
+    env = dict(os.environ, PYTHONPATH=str(Path(__file__).resolve().parent.parent))
+    cmd = [sys.executable, "-m", "windsolve", "fit", str(fit), "-q"]
+    subprocess.run(cmd + ["-o", str(tmp_path / "whole.h5")], check=True, env=env)
+    parts = tmp_path / "parts.h5"
+    journal = Path(str(parts) + ".partial")
+    proc = subprocess.Popen(cmd + ["-o", str(parts)], env=env)
+    deadline = time.monotonic() + 60
+    while not journal.exists() and time.monotonic() < deadline:
+        time.sleep(0.05)
+    time.sleep(2.5)  # a few checkpoints (one a second)
+    proc.send_signal(signal.SIGKILL)
+    proc.wait()
+    assert journal.exists() and not parts.exists(), "the fit ended before it was killed"
+    subprocess.run(cmd + ["-o", str(parts), "--resume"], check=True, env=env)
+    a, b = read_fit(tmp_path / "whole.h5"), read_fit(parts)
+    assert np.array_equal(a.chain, b.chain) and np.array_equal(a.log_prob, b.log_prob)
+    assert a.attrs["statuses"] == b.attrs["statuses"]
