@@ -279,3 +279,93 @@ def test_a_fit_killed_with_sigkill_resumes_to_the_uninterrupted_chain(tmp_path):
     a, b = read_fit(tmp_path / "whole.h5"), read_fit(parts)
     assert np.array_equal(a.chain, b.chain) and np.array_equal(a.log_prob, b.log_prob)
     assert a.attrs["statuses"] == b.attrs["statuses"]
+
+
+def test_model_b_photosphere_anchored_fit_runs(tmp_path):
+    # Model B (configs/bump_wind.toml, an invented star), one free key, a short chain:
+    # every model of the chain is counted by status, and a converged sample predicts a
+    # finite terminal velocity.
+    (tmp_path / "obs.csv").write_text("object,quantity,line,value,uncertainty,unit\n"
+                                      "Bump (invented),terminal_velocity,-,1000,300,km/s\n")
+    fit = tmp_path / "fit.toml"
+    fit.write_text(f"""[fit]
+base = "{CONFIGS / 'bump_wind.toml'}"
+observations = "obs.csv"
+
+[[free]]
+key = "boundary.photosphere_luminosity"
+prior = "uniform"
+lower = "1.95e5 Lsun"
+upper = "2.05e5 Lsun"
+
+[sampler]
+walkers = 4
+steps = 3
+seed = 1
+burn = 1
+""")
+    run = run_fit(load_fit(fit), tmp_path / "b.h5")
+    assert sum(run.statuses.values()) == 4 * 3 + 4
+    samples = posterior_table(tmp_path / "b.h5")
+    assert len(samples) > 0 and np.all(np.isfinite(samples["terminal_velocity"]))
+    assert samples["boundary.photosphere_luminosity"].unit == u.Lsun
+
+
+def test_flat_prior_credible_interval_agrees_with_the_delta_chi2_interval(tmp_path):
+    # One key, a flat prior, one measurement, no model uncertainty: the posterior is
+    # exp(-chi^2/2), so its central 68.27 % interval is the Delta chi^2 = 1 interval
+    # (common practice) when the prediction is close to linear over it.  The Delta chi^2
+    # interval comes from windsolve.observe.match_interval (Brent's method on full solves).
+    from windsolve.observe import match_interval, read_observed
+    obs_csv = tmp_path / "vinf.csv"
+    obs_csv.write_text("object,quantity,line,value,uncertainty,unit\n"
+                       "Calder Var A (invented),terminal_velocity,-,450,15,km/s\n")
+    free = """[[free]]
+key = "star.luminosity"
+prior = "uniform"
+lower = "3.4e6 Lsun"
+upper = "5.4e6 Lsun"
+"""
+    fit = write_demo_fit(tmp_path, free=free,
+                         sampler="walkers = 8\nsteps = 700\nseed = 4\nburn = 100")
+    fit.write_text(fit.read_text().replace(str(CONFIGS / "observed_widths.csv"), str(obs_csv))
+                   .replace("model_uncertainty = 0.05", "model_uncertainty = 0.0"))
+    run_fit(load_fit(fit), tmp_path / "c.h5")
+    L = posterior_table(tmp_path / "c.h5")["star.luminosity"].to_value(u.Lsun)
+    (obs,) = read_observed(obs_csv)
+    m = match_interval(windsolve.load_model(CONFIGS / "demo.toml"), "star.luminosity",
+                       "3.4e6 Lsun", "5.4e6 Lsun", obs)
+    low, high = m["low"].to_value(u.Lsun), m["high"].to_value(u.Lsun)
+    half = 0.5 * (high - low)
+    p_lo, p_hi = np.percentile(L, [15.865, 84.135])
+    assert abs(p_lo - low) < 0.15 * half and abs(p_hi - high) < 0.15 * half, (
+        (p_lo, p_hi), (low, high))
+
+
+@pytest.mark.slow
+def test_credible_intervals_are_calibrated_over_seeded_synthetic_data(tmp_path):
+    # Truths drawn from the prior, data from the likelihood: the truth falls inside the
+    # 68 % (95 %) central interval with probability 0.68 (0.95) (common practice:
+    # simulation-based calibration).  Bounds: 99 % binomial intervals from scipy.stats.
+    from scipy.stats import binom
+    rng = np.random.default_rng(2026)
+    n_sets, inside68, inside95 = 20, 0, 0
+    for k in range(n_sets):
+        while True:
+            truth = rng.normal([1.0, 0.0], [0.5, 0.3])
+            v = float(A_KM_S @ truth + rng.normal(0.0, 20.0))
+            if v > 0:
+                break
+        d = tmp_path / f"set{k}"
+        d.mkdir()
+        fit = write_toy(d, f"walkers = 12\nsteps = 500\nseed = {k}\nburn = 100",
+                        obs=(("terminal_velocity", v, 20.0),))
+        run_fit(load_fit(fit), d / "c.h5")
+        x = np.asarray(posterior_table(d / "c.h5")["toy.x"], float)
+        lo68, hi68, lo95, hi95 = np.percentile(x, [16, 84, 2.5, 97.5])
+        inside68 += lo68 <= truth[0] <= hi68
+        inside95 += lo95 <= truth[0] <= hi95
+    lo, hi = binom.interval(0.99, n_sets, 0.68)
+    assert lo <= inside68 <= hi, inside68
+    lo, hi = binom.interval(0.99, n_sets, 0.95)
+    assert lo <= inside95 <= hi, inside95

@@ -263,10 +263,13 @@ def run_fit(spec: FitSpec, out: "str | Path", workers: int = 1, scheduler: "str 
             state = backend.get_last_sample()
         left = nsave - backend.iteration
         try:
-            for _ in sampler.sample(state, iterations=max(left, 0), thin_by=spec.thin,
-                                    progress=not quiet):
-                if on_step is not None:
-                    on_step(backend.iteration)
+            # A walker with no solution proposing another: emcee computes -inf - (-inf);
+            # the NaN rejects the move, as it should -- no warning for it.
+            with np.errstate(invalid="ignore"):
+                for _ in sampler.sample(state, iterations=max(left, 0), thin_by=spec.thin,
+                                        progress=not quiet):
+                    if on_step is not None:
+                        on_step(backend.iteration)
         except KeyboardInterrupt:
             backend.flush()  # every step finished whole; the one in progress is lost
             run.interrupted = True
@@ -298,10 +301,14 @@ def _convergence(run, spec, backend):
     import emcee
     tau = emcee.autocorr.integrated_time(chain, tol=0) if n > 1 else np.full(spec.ndim, np.inf)
     run.tau = np.asarray(tau, float)
-    run.ess = spec.walkers * n / run.tau
+    with np.errstate(divide="ignore", invalid="ignore"):
+        run.ess = spec.walkers * n / run.tau
     run.acceptance = backend.accepted / max(backend.iteration * spec.thin, 1)
     worst = float(np.max(run.tau))
-    if not n >= TAU_STEPS * worst:
+    if not worst > 0:  # a chain of a few steps: no estimate at all
+        run.warning = (f"the chain ({n} saved steps after burn-in) is too short to estimate "
+                       f"an autocorrelation time; run many more steps (raise [sampler] steps)")
+    elif not n >= TAU_STEPS * worst:
         more = math.ceil((TAU_STEPS * worst - n) * spec.thin) if math.isfinite(worst) else None
         run.warning = (f"the chain is shorter than {TAU_STEPS} autocorrelation times "
                        f"(tau up to {worst:.3g} saved steps, {n} after burn-in): the "
