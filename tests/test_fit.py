@@ -369,3 +369,31 @@ def test_credible_intervals_are_calibrated_over_seeded_synthetic_data(tmp_path):
     assert lo <= inside68 <= hi, inside68
     lo, hi = binom.interval(0.99, n_sets, 0.95)
     assert lo <= inside95 <= hi, inside95
+
+
+@pytest.mark.slow
+def test_the_chain_does_not_depend_on_where_the_models_are_solved(tmp_path):
+    # In process, on 2 local worker processes and on a dask cluster: the same chain.
+    distributed = pytest.importorskip("distributed")
+    fit = write_demo_fit(tmp_path, sampler="walkers = 8\nsteps = 15\nseed = 9\nburn = 5")
+    spec = load_fit(fit)
+    run_fit(spec, tmp_path / "local.h5")
+    run_fit(spec, tmp_path / "pool.h5", workers=2)
+    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
+                                  dashboard_address=None) as cluster:
+        client = distributed.Client(cluster.scheduler_address)
+        run_fit(spec, tmp_path / "dask.h5", scheduler=cluster.scheduler_address)
+        # The models were solved on the cluster's workers, not here.
+        assert sum(client.run(lambda: len(__import__("windsolve.sweep.worker", fromlist=[
+            "_BASE_CACHE"])._BASE_CACHE)).values()) >= 1
+        client.close()
+    a = read_fit(tmp_path / "local.h5")
+    for name in ("pool.h5", "dask.h5"):
+        b = read_fit(tmp_path / name)
+        assert np.array_equal(a.chain, b.chain) and np.array_equal(a.log_prob, b.log_prob)
+
+
+def test_the_demo_fit_file_is_valid():
+    spec = load_fit(CONFIGS / "demo_fit.toml")
+    assert spec.keys == ["star.luminosity", "porosity.length"]
+    assert spec.lines == {"turbulence": "10 km/s"} and spec.walkers >= 2 * spec.ndim

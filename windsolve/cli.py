@@ -1387,7 +1387,8 @@ def build_parser() -> argparse.ArgumentParser:
                    help="local processes solving the walkers' models (default 1: in this "
                         "process, fastest for the isothermal model)")
     p.add_argument("--scheduler", metavar="ADDRESS",
-                   help="solve on the dask.distributed scheduler at ADDRESS")
+                   help="solve on the dask.distributed scheduler at ADDRESS (each half-ensemble in "
+                        "--workers tasks, default 8)")
     p.add_argument("--resume", action="store_true", help="continue an interrupted fit")
     p.add_argument("--best", metavar="BEST.toml",
                    help="also write the maximum-posterior model as a model file")

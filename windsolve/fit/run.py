@@ -79,6 +79,7 @@ class FitRun:
     evaluations: int = 0
 
 
+DASK_CHUNKS = 8  # tasks a half-ensemble is split into on a dask cluster (without --workers)
 CHECKPOINT_SECONDS = 1.0  # the longest stretch of saved steps a killed fit can lose [s]
 
 
@@ -169,6 +170,10 @@ def _executor(workers, scheduler):
         return None, (lambda *a, **k: None), 1
     from ..sweep import _executor as sweep_executor
     pool, close, _describe, _rows = sweep_executor(workers, scheduler)
+    # Tasks per half-ensemble: one per local worker; on a cluster DASK_CHUNKS unless
+    # more workers are named.
+    if scheduler is not None:
+        return pool, close, workers if workers and workers > 1 else DASK_CHUNKS
     return pool, close, workers or os.cpu_count() or 1
 
 
