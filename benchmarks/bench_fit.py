@@ -3,6 +3,7 @@
 Run from the repository's top folder: ``python benchmarks/bench_fit.py``.
 
 For each case the same walker points are solved
+  (0) as bare solves of models built beforehand (the kernels' cost: a lower bound),
   (1) by a plain loop: one :func:`windsolve.sweep.run_batch` call per model (what a
       hand-written likelihood around windsolve's fastest solve would do),
   (2) by the fit's likelihood (:class:`windsolve.fit.LogPosterior`, a whole half-ensemble
@@ -25,7 +26,10 @@ TOP = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(TOP))
 
 from windsolve.fit import LogPosterior, initial_walkers, load_fit, run_fit  # noqa: E402
-from windsolve.sweep import run_batch  # noqa: E402
+from windsolve.lines import LineSettings  # noqa: E402
+from windsolve.models.isothermal import solve_isothermal_cgs  # noqa: E402
+from windsolve.solve import solve  # noqa: E402
+from windsolve.sweep import apply_changes, run_batch  # noqa: E402
 
 CASES = {
     "Model A (demo, porous) with widths": ("demo.toml", "observed_widths.csv", """
@@ -82,6 +86,21 @@ def main():
             points = np.concatenate([theta * (1 + 1e-9 * k) for k in range(4)])
             items = [(j, spec.changes(t)) for j, t in enumerate(points)]
             run_batch(spec.base, items[:2], False, spec.lines)  # warm (numba cache, imports)
+            # (0) the bare solves of models built beforehand (not timed): the kernels'
+            # own cost, with widths for Model A, a lower bound for any likelihood.
+            models = [apply_changes(spec.base_model, changes) for _, changes in items]
+            if spec.base_model.kind == "isothermal":
+                settings = LineSettings(**spec.lines).cgs
+
+                def bare(model, settings=settings):
+                    return solve_isothermal_cgs(model, profile=False, critical=False,
+                                                widths=settings, explain=False)
+            else:
+                bare = solve
+            t0 = time.perf_counter()
+            for model in models:
+                bare(model)
+            kernel = len(models) / (time.perf_counter() - t0)
             t0 = time.perf_counter()
             for item in items:
                 run_batch(spec.base, [item], False, spec.lines)
@@ -93,6 +112,7 @@ def main():
                 logpost(points[j:j + half])
             batched = len(points) / (time.perf_counter() - t0)
             print(f"{label}:")
+            print(f"  bare solves of prebuilt models   {kernel:9.0f} models/s")
             print(f"  plain loop of run_batch solves   {plain:9.0f} models/s")
             print(f"  fit likelihood, half-ensembles   {batched:9.0f} models/s "
                   f"({batched / plain:.2f} x plain)")

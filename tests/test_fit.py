@@ -397,3 +397,18 @@ def test_the_demo_fit_file_is_valid():
     spec = load_fit(CONFIGS / "demo_fit.toml")
     assert spec.keys == ["star.luminosity", "porosity.length"]
     assert spec.lines == {"turbulence": "10 km/s"} and spec.walkers >= 2 * spec.ndim
+
+
+def test_a_journal_of_another_fit_file_is_not_resumed(tmp_path, capsys):
+    fit = write_toy(tmp_path, "walkers = 8\nsteps = 20\nseed = 3\nburn = 0")
+
+    def stop(step):
+        if step == 5:
+            raise KeyboardInterrupt
+
+    assert run_fit(load_fit(fit), tmp_path / "c.h5", on_step=stop).interrupted
+    fit.write_text(fit.read_text().replace("seed = 3", "seed = 4"))
+    assert main(["fit", str(fit), "-o", str(tmp_path / "c.h5"), "--resume", "-q"]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "another fit file" in err, err
+    assert not (tmp_path / "c.h5").exists()
