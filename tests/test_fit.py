@@ -202,7 +202,8 @@ def test_demo_fit_through_the_command_line(tmp_path, capsys):
     table = summary_table(out)
     row = table[list(table["quantity"]).index("star.luminosity")]
     assert 3.5e6 <= row["p2.5"] <= row["p16"] <= row["median"] <= row["p84"] <= 4.5e6
-    assert set(table["quantity"]) >= {"mass_loss_rate", "terminal_velocity", "fwhm", "hwzi"}
+    assert set(table["quantity"]) >= {"mass_loss_rate", "terminal_velocity", "fwhm", "hwzi",
+                                      "sonic_radius"}
 
 
 BAD_FITS = {

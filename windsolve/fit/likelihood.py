@@ -21,7 +21,8 @@ from ..sweep import run_batch
 __all__ = ["DERIVED", "LogPosterior"]
 
 # Derived quantities stored with every sample (blobs), cgs: besides the predictions.
-DERIVED = {"mass_loss_rate": "g / s", "terminal_velocity": "cm / s"}
+DERIVED = {"mass_loss_rate": "g / s", "terminal_velocity": "cm / s", "sonic_radius": "cm",
+           "photosphere_radius": "cm"}
 
 
 class LogPosterior:

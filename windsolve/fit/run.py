@@ -39,6 +39,7 @@ TAU_STEPS = 50  # a chain this many autocorrelation times long is long enough (c
 PERCENTILES = (2.5, 16.0, 50.0, 84.0, 97.5)
 # Display units of the derived quantities (the fit file's keys keep their own units).
 DERIVED_UNITS = {"mass_loss_rate": "solMass / yr", "terminal_velocity": "km / s",
+                 "sonic_radius": "solRad", "photosphere_radius": "solRad",
                  "fwhm": "km / s", "hwzi": "km / s", "edge_velocity": "km / s"}
 
 
@@ -419,7 +420,8 @@ def posterior_table(fit: "FitFile | str | Path", discard: "int | None" = None):
     -------
     astropy.table.QTable
         One row per sample: each free key (the fit file's unit), ``log_prob``
-        and the derived quantities (Msun/yr, km/s), samples with no solution
+        and the derived quantities (Mdot in Msun/yr, speeds in km/s, r_c and
+        R_ph in Rsun; NaN where a model has none), samples with no solution
         left out.
     """
     import astropy.units as u
@@ -435,7 +437,7 @@ def posterior_table(fit: "FitFile | str | Path", discard: "int | None" = None):
         t[key] = col * u.Unit(unit) if unit else col
     t["log_prob"] = fit.log_prob[discard:].reshape(-1)[ok]
     for name, values in fit.derived.items():
-        cgs = u.g / u.s if name == "mass_loss_rate" else u.cm / u.s
+        cgs = u.Unit(DERIVED.get(name, "cm / s"))
         t[name] = (values[discard:].reshape(-1)[ok] * cgs).to(DERIVED_UNITS[name])
     return t
 
@@ -463,6 +465,9 @@ def summary_table(fit: "FitFile | str | Path"):
         col = samples[name]
         unit = getattr(col, "unit", None)
         x = np.asarray(getattr(col, "value", col), float)
+        x = x[np.isfinite(x)]  # (a model without a photosphere has no R_ph)
+        if not len(x):
+            continue
         p = np.percentile(x, PERCENTILES)
         rows.append((name, *p, "" if unit is None else unit.to_string()))
     names = ("quantity", "p2.5", "p16", "median", "p84", "p97.5", "unit")
