@@ -1110,6 +1110,89 @@ class _Parser(argparse.ArgumentParser):
                                   f"{command + ' ' if command else ''}--help)\n")
 
 
+def cmd_fit(args: argparse.Namespace) -> int:
+    """``windsolve fit FIT.toml -o CHAIN.h5``: sample the posterior of a fit file with emcee.
+
+    Validates the fit file whole (nothing runs or is written on bad input),
+    samples, checkpointing every saved step to ``CHAIN.h5.partial``
+    (``--resume`` continues an interrupted fit to the same chain), writes
+    the chain, then prints the statuses of the models solved, the
+    acceptance fraction, autocorrelation times and effective sample sizes
+    (and a warning with the steps still needed when the chain is too
+    short), and the median and 16/84 and 2.5/97.5 percentiles of every free
+    key and derived quantity.  ``--best`` writes the maximum-posterior model.
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+        The parsed command line (see :func:`build_parser`).
+
+    Returns
+    -------
+    int
+        EXIT_OK (0), or 130 when interrupted (the journal kept for --resume).
+
+    Raises
+    ------
+    WindsolveError
+        A bad fit file or option, an unusable output path, a journal without
+        ``--resume`` or of another fit file.
+    """
+    from .fit import best_model, load_fit, run_fit, summary_table
+    if args.workers < 1:
+        raise WindsolveError("--workers must be at least 1")
+    _check_output(args.output, ".h5")
+    for path, ext in ((args.best, ".toml"), (args.corner, ".png"), (args.predictive, ".png")):
+        if path is not None:
+            _check_output(path, ext)
+    if args.corner is not None:
+        try:
+            import corner  # noqa: F401 -- before sampling, not after
+        except ImportError:
+            raise WindsolveError("--corner needs the corner package: pip install "
+                                 "\"windsolve[plots]\"") from None
+    spec = load_fit(args.fit)
+    if not args.quiet:
+        print(f"{args.fit}: {spec.ndim} free keys ({', '.join(spec.keys)}), "
+              f"{len(spec.observations)} observations, {spec.walkers} walkers x "
+              f"{spec.steps} steps (seed {spec.seed})")
+    run = run_fit(spec, args.output, workers=args.workers, scheduler=args.scheduler,
+                  resume=args.resume, quiet=args.quiet)
+    if run.interrupted:
+        print(f"windsolve: interrupted after {run.steps} saved steps, kept in "
+              f"{args.output}.partial; resume with: windsolve fit {args.fit} -o "
+              f"{args.output} --resume", file=sys.stderr)
+        return 130
+    if args.best is not None:
+        from .io import write_text
+        from .modelfile import dumps
+        write_text(args.best, dumps(best_model(args.output).to_dict()))
+    from .fit import corner_plot, predictive_plot
+    if args.corner is not None:
+        corner_plot(args.output, args.corner, derived=True)
+    if args.predictive is not None:
+        predictive_plot(args.output, args.predictive)
+    if not args.quiet:
+        print("  models: " + ", ".join(f"{k}: {v}" for k, v in sorted(run.statuses.items())))
+        print(f"  acceptance fraction {run.acceptance.mean():.3f} (walkers "
+              f"{run.acceptance.min():.3f} to {run.acceptance.max():.3f})")
+        for key, tau, ess in zip(spec.keys, run.tau, run.ess, strict=True):
+            print(f"  {key}: autocorrelation time {tau:.3g} saved steps, effective sample "
+                  f"size {ess:.0f}")
+        if run.warning:
+            print(f"  warning: {run.warning}")
+        table = summary_table(args.output)
+        print(f"  {'quantity':<22} {'median':>12} {'16%':>12} {'84%':>12} {'2.5%':>12} "
+              f"{'97.5%':>12}  unit")
+        for row in table:
+            print(f"  {row['quantity']:<22} " + " ".join(
+                f"{row[c]:12.5g}" for c in ("median", "p16", "p84", "p2.5", "p97.5"))
+                + f"  {row['unit']}")
+        written = [p for p in (args.output, args.best, args.corner, args.predictive) if p]
+        print(f"wrote {', '.join(written)}")
+    return EXIT_OK
+
+
 def build_parser() -> argparse.ArgumentParser:
     """The command-line parser of ``windsolve`` and all its commands.
 
@@ -1307,6 +1390,29 @@ def build_parser() -> argparse.ArgumentParser:
                         f"(default: {' '.join(TABULATE_LOG_R)}; NUM >= 4)")
     p.add_argument("-q", "--quiet", action="store_true", help="print nothing on success")
     p.set_defaults(func=cmd_tabulate)
+    p = sub.add_parser("fit", help="posterior of model keys given observed widths (emcee)",
+                       description="Sample the posterior of the free keys of a fit file "
+                                   "(priors, observed widths) with emcee's ensemble sampler; "
+                                   "every saved step is checkpointed (OUT.h5.partial), and a "
+                                   "killed fit resumes with --resume to the same chain.")
+    p.add_argument("fit", help="fit file (TOML)")
+    p.add_argument("-o", "--output", required=True, metavar="CHAIN.h5", help="HDF5 output")
+    p.add_argument("--workers", type=int, default=1, metavar="N",
+                   help="local processes solving the walkers' models (default 1: in this "
+                        "process, fastest for the isothermal model)")
+    p.add_argument("--scheduler", metavar="ADDRESS",
+                   help="solve on the dask.distributed scheduler at ADDRESS (each half-ensemble in "
+                        "--workers tasks, default 8)")
+    p.add_argument("--resume", action="store_true", help="continue an interrupted fit")
+    p.add_argument("--best", metavar="BEST.toml",
+                   help="also write the maximum-posterior model as a model file")
+    p.add_argument("--corner", metavar="IMAGE",
+                   help="also draw the corner plot of the posterior (needs windsolve[plots])")
+    p.add_argument("--predictive", metavar="IMAGE",
+                   help="also draw each observation against its posterior predictions")
+    p.add_argument("-q", "--quiet", action="store_true", help="no progress bar or summary")
+    p.set_defaults(func=cmd_fit)
+
     parser.commands = list(sub.choices)
     return parser
 

@@ -192,6 +192,7 @@ FAST_KEYS = {
     "porosity.length": "porosity_length",
     "porosity.radial_exponent": "porosity_exponent",
 }
+NUMBERS_CACHE = 100_000  # checked values kept per base model (then forgotten)
 _FAST_ROWS = {}  # base key -> _FastRows (of the base model in _BASE_CACHE)
 _INVALID = object()
 
@@ -276,13 +277,18 @@ class _FastRows:
         self.numbers = {}  # (key, type, value) -> cgs float, or _INVALID
 
     def number(self, key, value):
-        """The checked cgs float of a model-file value, or _INVALID."""
+        """The checked cgs float of a model-file value (or a scalar Quantity), or _INVALID."""
+        unit = getattr(value, "unit", None)
         try:
-            k = (key, type(value), value)
+            # A Quantity (a fit's walkers: no unit string to parse, ~65 us for g/cm3) is
+            # keyed by its unit and float value.
+            k = (key, type(value), value) if unit is None else (key, unit, float(value.value))
             hit = self.numbers.get(k)
         except TypeError:  # unhashable (a table where a number belongs): apply_changes says
             return _INVALID
         if hit is None:
+            if len(self.numbers) >= NUMBERS_CACHE:  # a fit's values never repeat
+                self.numbers.clear()
             p = self.params[FAST_KEYS[key]]
             try:
                 hit = p.cgs(p.read(value))
