@@ -192,7 +192,6 @@ FAST_KEYS = {
     "porosity.length": "porosity_length",
     "porosity.radial_exponent": "porosity_exponent",
 }
-NUMBERS_CACHE = 100_000  # checked values kept per base model (then forgotten)
 _FAST_ROWS = {}  # base key -> _FastRows (of the base model in _BASE_CACHE)
 _INVALID = object()
 
@@ -287,14 +286,12 @@ class _FastRows:
         except TypeError:  # unhashable (a table where a number belongs): apply_changes says
             return _INVALID
         if hit is None:
-            if len(self.numbers) >= NUMBERS_CACHE:  # a fit's values never repeat
-                self.numbers.clear()
             p = self.params[FAST_KEYS[key]]
             try:
                 hit = p.cgs(p.read(value))
             except Exception:  # noqa: BLE001 -- apply_changes gives the row its error
                 hit = _INVALID
-            if len(self.numbers) >= NUMBERS_KEPT:  # a random design: every value new
+            if len(self.numbers) >= NUMBERS_KEPT:  # a random design or a fit: values new
                 self.numbers.clear()
             self.numbers[k] = hit
         return hit
