@@ -273,7 +273,9 @@ def run_fit(spec: FitSpec, out: "str | Path", workers: int = 1, scheduler: "str 
             # the NaN rejects the move, as it should -- no warning for it.
             with np.errstate(invalid="ignore"):
                 for _ in sampler.sample(state, iterations=max(left, 0), thin_by=spec.thin,
-                                        progress=not quiet):
+                                        progress=not quiet,
+                                        # no bar when stderr is not a terminal (a log)
+                                        progress_kwargs={"disable": None, "leave": False}):
                     if on_step is not None:
                         on_step(backend.iteration)
         except KeyboardInterrupt:
