@@ -855,8 +855,7 @@ def describe_off_table(O, rho, T):
         E.g. ``"rho = 1e-12 g/cm3, T = 1e+05 K (log T = 5, log R = -8.2): below the
         table's log R edge -8 at this log T"``.
     """
-    log_T = math.log10(T)
-    log_R = math.log10(rho) - 3.0 * log_T + 18.0
+    log_T, log_R = table_coordinates(rho, T)
     where = (f"rho = {rho:.3g} g/cm3, T = {T:.3g} K (log T = {log_T:.3f}, "
              f"log R = {log_R:.3f})")
     if O[SLOT_LAW] != LAW_TABLE:

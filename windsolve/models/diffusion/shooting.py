@@ -613,17 +613,19 @@ def solve_base_anchor(P, O, L0, base_kind, base_value, rtol, start=None):
     A two-dimensional quasi-Newton (Broyden) iteration on x = (ln L_ph,
     ln T_eff) for the log residuals F = (ln L(R0) - ln L0, ln b(R0) - ln b0),
     b the base temperature or density, each evaluation a photosphere-anchored
-    solve and the inward leg to R0: the Jacobian from forward differences at
-    the start, then Broyden's rank-one updates (Broyden 1965, Math. Comp. 19,
-    577; Dennis & Schnabel 1983, Numerical Methods for Unconstrained
+    solve and the inward leg to R0: the first Jacobian fitted to the first
+    guess's evaluations (:func:`_secant_jacobian`) or from forward
+    differences, then Broyden's rank-one updates (Broyden 1965, Math. Comp.
+    19, 577; Dennis & Schnabel 1983, Numerical Methods for Unconstrained
     Optimization and Nonlinear Equations, ch. 8; from memory), each step
     shortened by backtracking until |F| falls (or the trial has a solution
-    at all).  Each photosphere solve starts its Mdot bracket at the previous
-    one's Mdot, and bisects it only as finely as the current residual needs
-    (to 1e-3 |F|, 1e-14 at the end).  Without ``start`` the first T_eff comes
-    from a scan at L_ph = L0 (:func:`_scan_bracket`).  Should the iteration
-    not converge, the nested root-finds of :func:`solve_base_anchor_nested`
-    take over.
+    at all).  Each photosphere solve starts its Mdot bracket next to the Mdot
+    extrapolated from the previous solves, and bisects it only as finely as
+    the current residual needs (1e-6 |F|, 1e-14 once |F| < 1e-6).  The first
+    guess comes from ``start`` shifted by the change of L0
+    (:func:`_first_guess`), else from :func:`_cold_start`.  Should the
+    iteration not converge, the nested root-finds of
+    :func:`solve_base_anchor_nested` take over.
 
     Parameters
     ----------
@@ -640,8 +642,9 @@ def solve_base_anchor(P, O, L0, base_kind, base_value, rtol, start=None):
     rtol : float
         Relative tolerance.
     start : tuple, optional
-        (L_ph [erg s^-1], T_eff [K], ln Mdot [ln(g s^-1)]) of a nearby
-        solution (the previous model of a sweep or family): no scan.
+        (L_ph [erg s^-1], T_eff [K], ln Mdot [ln(g s^-1)], L(R0) [erg s^-1])
+        of a nearby solution (the previous model of a sweep or family): no
+        cold start.
 
     Returns
     -------
@@ -954,7 +957,7 @@ def solve_base_anchor_nested(P, O, L0, base_kind, base_value, rtol):
     solves): two nested one-dimensional root-finds, each trial a photosphere-anchored
     solve (inward integrations are the numerically stable direction of an
     optically thick envelope; the base temperature is a steep function of
-    T_eff, which defeats a plain two-dimensional Newton step): the inner one
+    T_eff): the inner one
     finds T_eff that gives the base value for a photospheric luminosity, the
     outer one (secant in ln L_ph) makes L(R0) = L0.
 
