@@ -4,7 +4,7 @@
   (``.NAME.tmp-PID`` renamed over NAME when complete), one-line errors, input text.
 - :mod:`~windsolve.io.hdf5`: HDF5 files built in memory, and the checks of a file's
   layout, units and values when it is read.
-- :mod:`~windsolve.io.csvfile`: CSV tables, and the CSV export of a sweep or family table.
+- :mod:`~windsolve.io.csvfile`: CSV tables written atomically.
 - :mod:`~windsolve.io.tomlfile`: TOML text read with a one-line error, and its writer.
 
 (``csvfile`` and ``tomlfile``, not ``csv`` and ``toml``, so that no module of the
@@ -22,7 +22,7 @@ from .atomic import (
     write_figure,
     write_text,
 )
-from .csvfile import export_table_csv, table_rows, write_csv
+from .csvfile import write_csv
 from .hdf5 import (
     CONSISTENCY_RTOL,
     KINDS,
@@ -49,7 +49,7 @@ from .tomlfile import dumps, parse_toml
 __all__ = [
     "atomic_write", "check_output_path", "output_error", "read_input_text",
     "remove_stale_temporaries", "temporary_name", "write_bytes", "write_figure", "write_text",
-    "export_table_csv", "table_rows", "write_csv",
+    "write_csv",
     "CONSISTENCY_RTOL", "KINDS", "check_photosphere", "check_values", "column", "dataset",
     "dataset_unit", "file_kind", "group", "hdf5_kind", "open_hdf5", "parse_unit", "plain",
     "read_strings", "require_kind", "stamp", "strings", "text_attr", "write_hdf5",
