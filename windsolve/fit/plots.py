@@ -11,16 +11,10 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import WindsolveError
+from ..plotting import pyplot
 from .run import DERIVED_UNITS, posterior_table, read_fit
 
 __all__ = ["corner_plot", "predictive_plot"]
-
-
-def _pyplot():
-    import matplotlib
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-    return plt
 
 
 def corner_plot(fit: "str | Path", path: "str | Path", derived: bool = False) -> Path:
@@ -61,7 +55,7 @@ def corner_plot(fit: "str | Path", path: "str | Path", derived: bool = False) ->
         unit = getattr(table[n], "unit", None)
         labels.append(n if unit is None or unit.to_string() == "" else
                       f"{n} [{unit.to_string()}]")
-    plt = _pyplot()
+    plt = pyplot()
     fig = corner.corner(data, labels=labels, quantiles=(0.16, 0.5, 0.84), show_titles=True,
                         title_fmt=".3g")
     try:
@@ -91,7 +85,7 @@ def predictive_plot(fit: "str | Path", path: "str | Path") -> Path:
     f = read_fit(fit)
     table = posterior_table(f)
     observations = json.loads(f.attrs["observations"])
-    plt = _pyplot()
+    plt = pyplot()
     n = len(observations)
     fig, axes = plt.subplots(1, n, figsize=(3.2 * n, 3.0), constrained_layout=True,
                              squeeze=False)
