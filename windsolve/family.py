@@ -20,7 +20,7 @@ from typing import TYPE_CHECKING
 import astropy.units as u
 import numpy as np
 
-from .core.constants import R_SUN, SIGMA_SB
+from .core.constants import L_SUN, R_SUN, SIGMA_SB
 from .errors import ModelError
 
 if TYPE_CHECKING:
@@ -596,7 +596,7 @@ def plot_family(result: FamilyResult, path: str | Path) -> str | Path:
                     else not np.allclose(tb, tb[0], rtol=1e-9) if tb.size else False)
     base_scan = result.scan in BASE_SCANS
     if base_scan:  # the base is held: what the photosphere's luminosity does
-        panels.append((result.column("photosphere_luminosity")[ok] / 3.828e33,  # IAU Lsun
+        panels.append((result.column("photosphere_luminosity")[ok] / L_SUN,
                        r"photosphere luminosity  $L_{\rm ph}$  [L$_\odot$]", "log"))
     elif fixed_radius:  # fixed base radius: its temperature varies
         panels.append((result.column("base_temperature")[ok], "base temperature  [K]", "log"))
@@ -628,6 +628,6 @@ def plot_family(result: FamilyResult, path: str | Path) -> str | Path:
         if result.model is not None:
             L = result.model.photosphere_luminosity.to_value(u.Lsun)
         else:
-            L = np.nanmedian(result.column("photosphere_luminosity")) / 3.828e33  # IAU 2015 Lsun
+            L = np.nanmedian(result.column("photosphere_luminosity")) / L_SUN
         fig.suptitle(f"{name} — family at L$_{{\\rm ph}}$ = {L:.3g} L$_\\odot$ {counts}")
     return save(plt, fig, path)

@@ -26,7 +26,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ...core.constants import C_LIGHT, R_SUN
+from ...core.constants import C_LIGHT, L_SUN, R_SUN
 from ...core.critical import SADDLE
 from ...core.opacity import LAW_TABLE, SLOT_LAW, describe_off_table
 from . import kernels as D
@@ -1158,7 +1158,7 @@ def photosphere_hint(P, O, L_ph, T_eff, rtol, budget=HINT_BUDGET):
                     continue
     notes = []
     for what, value, unit, scale, held in (("T_eff", T_eff, "K", 1.0, "L_ph"),
-                                           ("L_ph", L_ph, "Lsun", 1.0 / 3.828e33, "T_eff")):
+                                           ("L_ph", L_ph, "Lsun", 1.0 / L_SUN, "T_eff")):
         if not good[what]:
             continue
         lo, hi = min(good[what]), max(good[what])
