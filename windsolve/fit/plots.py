@@ -11,7 +11,7 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import WindsolveError
-from ..plotting import pyplot
+from ..plotting import _scaled, pyplot
 from .run import DERIVED_UNITS, posterior_table, read_fit
 
 __all__ = ["corner_plot", "predictive_plot"]
@@ -48,16 +48,18 @@ def corner_plot(fit: "str | Path", path: "str | Path", derived: bool = False) ->
     f = read_fit(fit)
     table = posterior_table(f)
     names = list(f.keys) + (["mass_loss_rate", "terminal_velocity"] if derived else [])
-    data = np.column_stack([np.asarray(getattr(table[n], "value", table[n]), float)
-                            for n in names])
-    labels = []
-    for n in names:
+    columns, labels = [], []
+    for n in names:  # each column in its unit, divided by a power of ten the label states
         unit = getattr(table[n], "unit", None)
-        labels.append(n if unit is None or unit.to_string() == "" else
-                      f"{n} [{unit.to_string()}]")
+        values, label = _scaled(np.asarray(getattr(table[n], "value", table[n]), float), n,
+                                "" if unit is None else unit.to_string())
+        columns.append(values)
+        labels.append(label)
     plt = pyplot()
-    fig = corner.corner(data, labels=labels, quantiles=(0.16, 0.5, 0.84), show_titles=True,
-                        title_fmt=".3g")
+    fig = corner.corner(np.column_stack(columns), labels=labels, quantiles=(0.16, 0.5, 0.84),
+                        show_titles=True, title_fmt=".3g", title_kwargs={"fontsize": 8},
+                        label_kwargs={"fontsize": 9})
+    fig.set_size_inches(2.6 * len(names), 2.6 * len(names))
     try:
         return write_figure(fig, path, dpi=100)
     finally:
